@@ -1,0 +1,48 @@
+// Command padline runs end-of-line tests of firmware-free capacitive touch
+// switches: it finds each unit's trip capacitance on a relay-switched
+// capacitor ladder, judges it against limits from the circuit's timing model,
+// and logs every serial's result to a SQLite shift log.
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"os/signal"
+	"syscall"
+)
+
+func main() {
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	code := run(ctx, os.Args[1:], os.Stdin, os.Stdout, os.Stderr)
+	stop()
+	os.Exit(code)
+}
+
+// exitError carries a specific exit status out of a subcommand.
+type exitError struct {
+	code int
+	err  error
+}
+
+func (e *exitError) Error() string { return e.err.Error() }
+func (e *exitError) Unwrap() error { return e.err }
+
+// exitCode maps an error returned by a subcommand to the process exit status:
+// 0 for success, the code of an *exitError, 1 otherwise.
+func exitCode(err error) int {
+	if err == nil {
+		return 0
+	}
+	var ee *exitError
+	if errors.As(err, &ee) {
+		return ee.code
+	}
+	return 1
+}
+
+// reportError prints err as one line on w, prefixed with the program name.
+func reportError(w interface{ Write([]byte) (int, error) }, err error) {
+	fmt.Fprintf(w, "padline: %v\n", err)
+}

@@ -1,0 +1,54 @@
+package main
+
+import (
+	"context"
+	"io"
+
+	"github.com/spf13/cobra"
+)
+
+// app carries the streams every subcommand writes to, so an end-to-end test
+// can run a subcommand in-process and read what it printed.
+type app struct {
+	stdin  io.Reader
+	stdout io.Writer
+	stderr io.Writer
+}
+
+// run builds the command tree, executes args and returns the exit status.
+func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.Writer) int {
+	a := &app{stdin: stdin, stdout: stdout, stderr: stderr}
+	root := a.rootCmd()
+	root.SetArgs(args)
+	root.SetIn(stdin)
+	root.SetOut(stdout)
+	root.SetErr(stderr)
+	err := root.ExecuteContext(ctx)
+	if err != nil {
+		reportError(stderr, err)
+	}
+	return exitCode(err)
+}
+
+func (a *app) rootCmd() *cobra.Command {
+	root := &cobra.Command{
+		Use:   "padline",
+		Short: "End-of-line tester for firmware-free capacitive touch switches",
+		Long: `padline tests capacitive touch switches built from plain CMOS logic.
+
+It puts known capacitances on each unit's sense pad through a relay-switched
+ladder of reference capacitors, watches the unit's latch output, finds the
+trip capacitance (the 50 % point) with a fast search, judges it against limits
+computed from the circuit's timing model, and records every serial's result
+in a SQLite shift log.
+
+Start with 'padline demo' to run a simulated shift without any hardware, and
+'padline limits --variant QM-205' to see where a good unit's trip point falls.`,
+		SilenceUsage:  true,
+		SilenceErrors: true,
+	}
+	for _, add := range a.subcommands() {
+		root.AddCommand(add())
+	}
+	return root
+}
