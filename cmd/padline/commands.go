@@ -5,5 +5,7 @@ import "github.com/spf13/cobra"
 // subcommands lists the constructors of every subcommand; each lives in its
 // own file.
 func (a *app) subcommands() []func() *cobra.Command {
-	return []func() *cobra.Command{}
+	return []func() *cobra.Command{
+		a.limitsCmd,
+	}
 }

@@ -1,0 +1,131 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"io"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"padline/sequences/timing"
+)
+
+// defaultUncertaintyPF is U (k = 2) when neither --uncertainty-pf nor a
+// station gives one: a stand-in until the station's own uncertainty budget
+// (rung calibration, ladder resolution, repeatability) is computed. The demo
+// ladder's 0.5 pF step alone contributes u = 0.5/√12 = 0.14 pF (GUM), so
+// U = 2u ≈ 0.3 pF.
+const defaultUncertaintyPF = 0.3
+
+// limitsCmd builds `padline limits`.
+func (a *app) limitsCmd() *cobra.Command {
+	var (
+		variant string
+		u       float64
+		draws   int
+		seed    uint64
+		asJSON  bool
+	)
+	cmd := &cobra.Command{
+		Use:   "limits --variant NAME|FILE",
+		Short: "Predict a variant's trip point and clock, and derive guard-banded test limits",
+		Long: `limits works out, before any unit is tested, where a good unit's trip point
+can fall and which limits the station should test it against.
+
+From the variant file's circuit values and tolerances it computes:
+  clock      the oscillator frequency, nominal and at its worst-case corners;
+  trip point the external capacitance at the pad at which the unit trips:
+             nominal, worst-case corners (every min/max combination), and a
+             seeded Monte Carlo (mean, sd, 0.135/50/99.865 % percentiles);
+  spec       the product's window: no trip at or below no_trip_at_pf, a trip
+             at or below trip_by_pf;
+  guard band the station's expanded uncertainty U (k = 2); per ISO 14253-1
+             each limit is pulled in by U;
+  test limits the tighter of the model corners and the spec window, shrunk
+             by U: what 'padline run' judges the measured trip against;
+  capability the design's predicted Cpk and yield against the spec window.
+Warnings say plainly when the design cannot meet its spec window.
+
+--variant takes a file path (anything ending in .yaml/.yml, or an existing
+file) or the name of a built-in demo variant (QM-205, QM-212). The
+same --seed always gives the same numbers.`,
+		Example: `  padline limits --variant QM-205
+  padline limits --variant testdata/variants/QM-212.yaml --uncertainty-pf 0.5
+  padline limits --variant QM-205 --draws 100000 --seed 7 --json`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			if variant == "" {
+				return fmt.Errorf("limits: --variant is required (a .yaml file or one of: %s)", strings.Join(builtinNames("variants"), ", "))
+			}
+			if draws < 1 {
+				return fmt.Errorf("limits: --draws must be ≥ 1, got %d", draws)
+			}
+			v, err := loadVariant(variant)
+			if err != nil {
+				return err
+			}
+			rep, err := v.Limits(timing.Options{Draws: draws, Seed: seed, UncertaintyPF: u})
+			if err != nil {
+				return err
+			}
+			if asJSON {
+				return writeLimitsJSON(a.stdout, v, rep)
+			}
+			writeLimits(a.stdout, v, rep)
+			return nil
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&variant, "variant", "", "variant: a .yaml file or a built-in name ("+strings.Join(builtinNames("variants"), ", ")+")")
+	f.Float64Var(&u, "uncertainty-pf", defaultUncertaintyPF, "station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U")
+	f.IntVar(&draws, "draws", timing.DefaultDraws, "Monte Carlo draws")
+	f.Uint64Var(&seed, "seed", 1, "Monte Carlo seed (same seed, same numbers)")
+	f.BoolVar(&asJSON, "json", false, "print one JSON object instead of the report")
+	return cmd
+}
+
+// limitsJSON is what `limits --json` prints: the variant's identity and the
+// timing report.
+type limitsJSON struct {
+	Variant    string `json:"variant"`
+	Source     string `json:"source"`
+	ConfigHash string `json:"config_hash"`
+	timing.Report
+}
+
+func writeLimitsJSON(w io.Writer, v *Variant, rep timing.Report) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	if err := enc.Encode(limitsJSON{Variant: v.Name, Source: v.Source.Name, ConfigHash: v.Source.Hash, Report: rep}); err != nil {
+		return fmt.Errorf("limits: write json: %w", err)
+	}
+	return nil
+}
+
+func writeLimits(w io.Writer, v *Variant, r timing.Report) {
+	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
+	p("variant     %s — %s", v.Name, v.Description)
+	p("file        %s (sha256 %.12s)", v.Source.Name, v.Source.Hash)
+	p("")
+	p("clock       nominal %.1f Hz   corners %.1f … %.1f Hz   (half periods %.3f / %.3f ms)",
+		r.Clock.Nominal, r.Clock.CornerLow, r.Clock.CornerHigh, 1e3*r.Clock.HighS, 1e3*r.Clock.LowS)
+	p("trip point  nominal %.2f pF   corners %.2f … %.2f pF", r.Trip.Nominal, r.Trip.CornerLow, r.Trip.CornerHigh)
+	p("            Monte Carlo (%d draws, seed %d): mean %.2f pF, sd %.2f pF", r.Draws, r.Seed, r.Trip.MCMean, r.Trip.MCSD)
+	p("            percentiles 0.135 %% %.2f   50 %% %.2f   99.865 %% %.2f pF", r.Trip.MCP00135, r.Trip.MCP50, r.Trip.MCP99865)
+	p("")
+	p("spec window no trip at ≤ %.2f pF, trip by %.2f pF", r.Spec.NoTripAtPF, r.Spec.TripByPF)
+	p("model       %.2f … %.2f pF (worst-case corners)", r.ModelLimits.Low, r.ModelLimits.High)
+	p("guard band  %.2f pF each side (U, k = 2; ISO 14253-1 acceptance zone)", r.GuardBandPF)
+	p("test limits %.2f … %.2f pF", r.TestLimits.Low, r.TestLimits.High)
+	p("")
+	p("predicted   Cpk %.2f   yield %.4f %% (Monte Carlo)   %.4f %% (normal model)",
+		r.Predicted.Cpk, 100*r.Predicted.Yield, 100*r.Predicted.YieldNormal)
+	if len(r.Warnings) == 0 {
+		p("warnings    none")
+		return
+	}
+	for _, msg := range r.Warnings {
+		p("WARNING     %s", msg)
+	}
+}

@@ -1,0 +1,137 @@
+package main
+
+import (
+	"time"
+)
+
+// Station is one station file, parsed and validated: which fixture, which
+// driver, which pins, the ladder as calibrated, and where the shift log is.
+type Station struct {
+	Name     string
+	Fixture  string
+	Driver   string // "sim" or "gpio"
+	ShiftLog string
+	Pins     StationPins
+	Ladder   StationLadder
+	// Sim is the optional `sim:` section, passed on unchecked (its keys
+	// belong to the simulator's wiring); nil when absent.
+	Sim map[string]any
+	// UncertaintyPF is the station's expanded measurement uncertainty U
+	// (k = 2) in pF; 0 when the file does not state it.
+	UncertaintyPF float64
+	// Source is where the file came from, its exact bytes and their sha256.
+	Source source
+}
+
+// StationPins maps each logical fixture pin to a GPIO line name. Clock,
+// PassLamp and FailLamp are optional ("" = not wired).
+type StationPins struct {
+	Latch, Power, Clock, Lid string
+	PassLamp, FailLamp       string
+	// Ladder has one pin per rung, in the order of StationLadder.RungsPF.
+	Ladder []string
+}
+
+// StationLadder is the calibrated reference-capacitor ladder.
+type StationLadder struct {
+	// RungsPF is each rung's capacitance as measured (relay closed minus
+	// open), pF; 1 to 12 rungs, each > 0. Equal values are allowed.
+	RungsPF []float64
+	// StrayPF is the calibrated stray at the pad with every relay open.
+	StrayPF float64
+	// Operate and Bounce are the relay settling times.
+	Operate, Bounce time.Duration
+	// RatedOperations is the relays' rated life in operations.
+	RatedOperations float64
+}
+
+// maxRungs is the most rungs a ladder may have (DESIGN.md §5).
+const maxRungs = 12
+
+// loadStation resolves ref (a file path, or a built-in station name such as
+// demo-sim) and parses it.
+func loadStation(ref string) (*Station, error) {
+	src, err := openConfig(ref, "stations", "station")
+	if err != nil {
+		return nil, err
+	}
+	return parseStation(src)
+}
+
+// parseStation parses and validates one station file. Every problem is a
+// one-line *configError naming the file and the key.
+func parseStation(src source) (*Station, error) {
+	d, err := parseDoc(src.Name, src.Raw)
+	if err != nil {
+		return nil, err
+	}
+	s := &Station{Source: src}
+	s.Name = d.str("name", true)
+	s.Fixture = d.str("fixture", true)
+	s.Driver = d.str("driver", true)
+	if s.Driver != "" && s.Driver != "sim" && s.Driver != "gpio" {
+		d.fail("driver", "must be sim or gpio, got %q", s.Driver)
+	}
+	s.ShiftLog = d.str("shift_log", true)
+	if d.section("pins", true) {
+		p := &s.Pins
+		p.Latch = d.str("pins.latch", true)
+		p.Power = d.str("pins.power", true)
+		p.Clock = d.str("pins.clock", false)
+		p.Lid = d.str("pins.lid", true)
+		p.PassLamp = d.str("pins.pass_lamp", false)
+		p.FailLamp = d.str("pins.fail_lamp", false)
+		p.Ladder = d.strList("pins.ladder")
+		roles := map[string]string{}
+		claim := func(role, pin string) {
+			if pin == "" {
+				return
+			}
+			if other, dup := roles[pin]; dup {
+				d.fail("pins."+role, "pin %s is already used by pins.%s", pin, other)
+				return
+			}
+			roles[pin] = role
+		}
+		claim("latch", p.Latch)
+		claim("power", p.Power)
+		claim("clock", p.Clock)
+		claim("lid", p.Lid)
+		claim("pass_lamp", p.PassLamp)
+		claim("fail_lamp", p.FailLamp)
+		for i, pin := range p.Ladder {
+			claim(fmtIndex("ladder", i), pin)
+		}
+	}
+	if d.section("ladder", true) {
+		l := &s.Ladder
+		l.RungsPF = d.numList("ladder.rungs_pf")
+		if d.err == nil {
+			switch {
+			case len(l.RungsPF) == 0 || len(l.RungsPF) > maxRungs:
+				d.fail("ladder.rungs_pf", "want 1 to %d rungs, got %d", maxRungs, len(l.RungsPF))
+			case len(s.Pins.Ladder) != len(l.RungsPF):
+				d.fail("pins.ladder", "has %d pins but ladder.rungs_pf has %d rungs", len(s.Pins.Ladder), len(l.RungsPF))
+			}
+			for i, c := range l.RungsPF {
+				if c <= 0 {
+					d.fail(fmtIndex("ladder.rungs_pf", i), "must be > 0, got %g", c)
+				}
+			}
+		}
+		l.StrayPF = d.nonNegative("ladder.stray_pf", true, 0)
+		l.Operate = msDuration(d.positive("ladder.operate_ms", true, 0))
+		l.Bounce = msDuration(d.nonNegative("ladder.bounce_ms", true, 0))
+		l.RatedOperations = d.positive("ladder.rated_operations", true, 0)
+	}
+	s.Sim = d.freeForm("sim")
+	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
+	if err := d.finish(); err != nil {
+		return nil, err
+	}
+	return s, nil
+}
+
+func msDuration(ms float64) time.Duration {
+	return time.Duration(ms * float64(time.Millisecond))
+}

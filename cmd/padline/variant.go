@@ -1,0 +1,185 @@
+package main
+
+import (
+	"fmt"
+	"regexp"
+
+	"padline/sequences/timing"
+)
+
+// Variant is one product variant's file, parsed and validated: what the
+// limits come from and what the plan runs.
+type Variant struct {
+	Name        string
+	Description string
+	// SerialPattern is the regular expression every serial of the variant
+	// must match; Serial is it compiled.
+	SerialPattern string
+	Serial        *regexp.Regexp
+	Circuit       timing.Circuit
+	Spec          timing.Spec
+	Plan          Plan
+	// Source is where the file came from, its exact bytes and their sha256
+	// (the config hash every run records).
+	Source source
+}
+
+// Plan holds the optional `plan:` section of a variant file; every key has a
+// default.
+type Plan struct {
+	// PowerSettleMS is the wait after unit power-up, ms (default 50).
+	PowerSettleMS float64
+	// IdlePeriods is how many clock periods the latch must stay 0 with no
+	// rung closed (default 8).
+	IdlePeriods int
+	// ClockPeriods is how many periods the frequency measurement spans
+	// (default 16).
+	ClockPeriods int
+	// ReleasePeriods is how many periods the latch must read 0 again after
+	// the rungs open (default 8).
+	ReleasePeriods int
+	Search         PlanSearch
+	Retest         PlanRetest
+}
+
+// PlanSearch tunes the trip search (`plan.search`).
+type PlanSearch struct {
+	// Strategy is "bracket" (default) or "staircase".
+	Strategy string
+	// SETargetPF is the standard error of the trip estimate to stop at, pF
+	// (default 0.1).
+	SETargetPF float64
+	// MaxRefineSamples caps the latch samples spent refining (default 200).
+	MaxRefineSamples int
+	// SpreadLimitPF is the widest acceptable 10–90 % transition, pF; wider
+	// gives trip_noisy (default 1.5).
+	SpreadLimitPF float64
+}
+
+// PlanRetest says what happens after a fail (`plan.retest`).
+type PlanRetest struct {
+	// Max is how many retests a failing unit gets (default 1; 0 = none).
+	Max int
+	// FlagPassAfterFail marks a unit that passes only on retest (default true).
+	FlagPassAfterFail bool
+}
+
+// DefaultPlan returns the plan used for keys a variant file leaves out.
+func DefaultPlan() Plan {
+	return Plan{
+		PowerSettleMS: 50, IdlePeriods: 8, ClockPeriods: 16, ReleasePeriods: 8,
+		Search: PlanSearch{Strategy: "bracket", SETargetPF: 0.1, MaxRefineSamples: 200, SpreadLimitPF: 1.5},
+		Retest: PlanRetest{Max: 1, FlagPassAfterFail: true},
+	}
+}
+
+// loadVariant resolves ref (a file path, or a built-in variant name) and
+// parses it.
+func loadVariant(ref string) (*Variant, error) {
+	src, err := openConfig(ref, "variants", "variant")
+	if err != nil {
+		return nil, err
+	}
+	return parseVariant(src)
+}
+
+// parseVariant parses and validates one variant file. Every problem is a
+// one-line *configError naming the file and the key.
+func parseVariant(src source) (*Variant, error) {
+	d, err := parseDoc(src.Name, src.Raw)
+	if err != nil {
+		return nil, err
+	}
+	v := &Variant{Source: src}
+	v.Name = d.str("name", true)
+	v.Description = d.str("description", false)
+	v.SerialPattern = d.str("serial_pattern", true)
+	if v.SerialPattern != "" {
+		re, err := regexp.Compile(v.SerialPattern)
+		if err != nil {
+			d.fail("serial_pattern", "invalid regular expression: %v", err)
+		}
+		v.Serial = re
+	}
+	c := &v.Circuit
+	c.SupplyV = d.toleranced("supply_v", mustBePositive)
+	if d.section("oscillator", true) {
+		c.OscROhm = d.toleranced("oscillator.r_ohm", mustBePositive)
+		c.OscCF = d.toleranced("oscillator.c_f", mustBePositive)
+		c.VtPosFrac = d.toleranced("oscillator.vt_pos_frac", mustBeFraction)
+		c.VtNegFrac = d.toleranced("oscillator.vt_neg_frac", mustBeFraction)
+		if d.err == nil && c.VtNegFrac.Max >= c.VtPosFrac.Min {
+			d.fail("oscillator.vt_neg_frac", "max %g must be below oscillator.vt_pos_frac min %g", c.VtNegFrac.Max, c.VtPosFrac.Min)
+		}
+	}
+	if d.section("sense", true) {
+		c.SenseROhm = d.toleranced("sense.r_ohm", mustBePositive)
+		c.PadPF = d.toleranced("sense.pad_pf", mustBePositive)
+		c.InputPF = d.toleranced("sense.input_pf", mustBePositive)
+	}
+	if d.section("clock_path", true) {
+		c.DelayNS = d.toleranced("clock_path.delay_ns", mustBePositive)
+		c.SetupNS = d.toleranced("clock_path.setup_ns", mayBeZero)
+		if d.err == nil && c.SetupNS.Max >= c.DelayNS.Min {
+			d.fail("clock_path.setup_ns", "max %g must be below clock_path.delay_ns min %g", c.SetupNS.Max, c.DelayNS.Min)
+		}
+	}
+	c.ThresholdFrac = d.toleranced("threshold_frac", mustBeFraction)
+	if d.section("spec", true) {
+		v.Spec.NoTripAtPF = d.nonNegative("spec.no_trip_at_pf", true, 0)
+		v.Spec.TripByPF = d.positive("spec.trip_by_pf", true, 0)
+		if d.err == nil && v.Spec.NoTripAtPF >= v.Spec.TripByPF {
+			d.fail("spec.no_trip_at_pf", "%g must be below spec.trip_by_pf %g", v.Spec.NoTripAtPF, v.Spec.TripByPF)
+		}
+	}
+	v.Plan = readPlan(d)
+	if err := d.finish(); err != nil {
+		return nil, err
+	}
+	// Anything the key-by-key checks missed (e.g. a corner where the sample
+	// instant falls after the clock edge) is caught by the model itself.
+	if err := v.Circuit.Validate(); err != nil {
+		return nil, &configError{File: src.Name, Msg: err.Error()}
+	}
+	return v, nil
+}
+
+// readPlan reads the optional plan section.
+func readPlan(d *doc) Plan {
+	p := DefaultPlan()
+	if !d.section("plan", false) {
+		return p
+	}
+	p.PowerSettleMS = d.nonNegative("plan.power_settle_ms", false, p.PowerSettleMS)
+	p.IdlePeriods = d.count("plan.idle_periods", 1, p.IdlePeriods)
+	p.ClockPeriods = d.count("plan.clock_periods", 1, p.ClockPeriods)
+	p.ReleasePeriods = d.count("plan.release_periods", 1, p.ReleasePeriods)
+	if d.section("plan.search", false) {
+		s := &p.Search
+		if d.has("plan.search.strategy") {
+			s.Strategy = d.str("plan.search.strategy", true)
+			if s.Strategy != "bracket" && s.Strategy != "staircase" {
+				d.fail("plan.search.strategy", "must be bracket or staircase, got %q", s.Strategy)
+			}
+		} else {
+			d.lookup("plan.search.strategy")
+		}
+		s.SETargetPF = d.positive("plan.search.se_target_pf", false, s.SETargetPF)
+		s.MaxRefineSamples = d.count("plan.search.max_refine_samples", 1, s.MaxRefineSamples)
+		s.SpreadLimitPF = d.positive("plan.search.spread_limit_pf", false, s.SpreadLimitPF)
+	}
+	if d.section("plan.retest", false) {
+		p.Retest.Max = d.count("plan.retest.max", 0, p.Retest.Max)
+		p.Retest.FlagPassAfterFail = d.boolean("plan.retest.flag_pass_after_fail", p.Retest.FlagPassAfterFail)
+	}
+	return p
+}
+
+// Limits runs the timing model on the variant.
+func (v *Variant) Limits(opt timing.Options) (timing.Report, error) {
+	rep, err := timing.Analyze(v.Circuit, v.Spec, opt)
+	if err != nil {
+		return rep, fmt.Errorf("variant %s: %w", v.Name, err)
+	}
+	return rep, nil
+}

@@ -1,0 +1,16 @@
+// Package timing is the closed-form timing model of an RC-race touch switch
+// (DESIGN.md §4) and the tolerance analysis built on it (§7): toleranced
+// circuit values, the Schmitt RC oscillator, the sense-node race and its trip
+// capacitance, worst-case corners, a seeded Monte Carlo, the spec window, the
+// ISO 14253-1 guard band and the resulting test limits, and the design's
+// predicted Cpk and yield.
+//
+// It is pure: no I/O, no clocks, no configuration. It must not import any
+// other padline package (and in particular fixture/sim must not import it:
+// the simulator and this model are two independent computations that tests
+// compare).
+//
+// Units: values in a [Circuit] and a [Point] carry their unit in the field
+// name (V, ohm, F, pF, ns, or a fraction of the supply). Capacitances in
+// results are in pF, frequencies in Hz, times in seconds.
+package timing
