@@ -1,0 +1,314 @@
+package sequences
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"padline/fixture"
+)
+
+// Level is one reachable ladder value: the external capacitance at the pad
+// (closed rungs plus the fixture's calibrated stray) and its rung pattern.
+type Level = fixture.Level
+
+// Fail codes: the short reason a unit failed, one per failing check.
+const (
+	CodeClockDead    = "clock_dead"    // no oscillator edges at the clock test point
+	CodeClockLow     = "clock_low"     // oscillator below its limits
+	CodeClockHigh    = "clock_high"    // oscillator above its limits
+	CodeIdleLatched  = "idle_latched"  // latch high with no ladder rung closed
+	CodeNoTrip       = "no_trip"       // never latched anywhere on the ladder
+	CodeTripLow      = "trip_low"      // trip point below the low test limit
+	CodeTripHigh     = "trip_high"     // trip point above the high test limit
+	CodeTripNoisy    = "trip_noisy"    // trip transition wider than allowed
+	CodeStuckLatched = "stuck_latched" // latch stays high after the ladder opens
+)
+
+// Station-fault codes: why the station, not the unit, could not finish.
+const (
+	CodeLidOpen      = "lid_open"
+	CodeStepTimeout  = "step_timeout"
+	CodePinError     = "pin_error"
+	CodeStationError = "station_error"
+)
+
+// ErrAborted is returned by Execute when its context ended mid-unit: the
+// unit has no verdict and must not be logged as tested.
+var ErrAborted = errors.New("sequences: run aborted")
+
+// Limits are the test limits a plan judges against.
+type Limits struct {
+	TripLowPF, TripHighPF   float64
+	ClockLowHz, ClockHighHz float64
+	SpreadMaxPF             float64 // widest acceptable 10–90 % transition
+}
+
+// PlanConfig is a variant's plan with its parameters.
+type PlanConfig struct {
+	PowerSettle    time.Duration
+	ClockPeriods   int // 0: no clock step (no clock pin wired)
+	IdlePeriods    int
+	ReleasePeriods int
+	// Period is the wait for one latch sample when no clock pin is wired:
+	// the unit's slowest clock period.
+	Period      time.Duration
+	StepTimeout time.Duration
+	Search      SearchOptions
+	Limits      Limits
+}
+
+// Plan is the ordered steps run on every unit of a variant.
+type Plan struct {
+	cfg       PlanConfig
+	levels    []Level
+	steps     []Step
+	powerDown Step
+}
+
+// NewPlan builds the standard plan — power up and settle, clock frequency
+// (when ClockPeriods > 0), idle check, trip search, release check — and the
+// power-down step that always runs last.
+func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
+	if len(levels) < 2 {
+		return nil, fmt.Errorf("plan needs at least 2 ladder levels, have %d", len(levels))
+	}
+	for i := 1; i < len(levels); i++ {
+		if levels[i].PF < levels[i-1].PF {
+			return nil, fmt.Errorf("ladder levels not sorted at index %d", i)
+		}
+	}
+	if cfg.Period <= 0 {
+		return nil, errors.New("plan needs the unit's clock period")
+	}
+	if cfg.IdlePeriods < 1 || cfg.ReleasePeriods < 1 {
+		return nil, errors.New("plan needs at least one idle and one release period")
+	}
+	if cfg.StepTimeout <= 0 {
+		cfg.StepTimeout = 5 * time.Second
+	}
+	p := &Plan{cfg: cfg, levels: levels}
+	add := func(name string, s Step) {
+		p.steps = append(p.steps, Wrap(s, Named(name), Timeout(cfg.StepTimeout)))
+	}
+	add("power_up", StepFunc(p.powerUp))
+	if cfg.ClockPeriods > 0 {
+		add("clock", StepFunc(p.clock))
+	}
+	add("idle", StepFunc(p.idle))
+	add("trip_search", StepFunc(p.tripSearch))
+	add("release", StepFunc(p.release))
+	p.powerDown = Wrap(StepFunc(powerDown), Named("power_down"), Timeout(cfg.StepTimeout))
+	return p, nil
+}
+
+// Levels returns the ladder levels the plan searches.
+func (p *Plan) Levels() []Level { return p.levels }
+
+// Execute runs the plan on the unit in the fixture and fills run's verdict,
+// fail code, measurements and times. The station is left with power off and
+// every rung open on every path: a step's error, a panic (re-raised after
+// halting) or the context ending (ErrAborted; run gets no verdict).
+func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t *Trial, err error) {
+	t = &Trial{ctx: ctx, st: st, clock: clk, run: run, period: p.cfg.Period, Phases: map[string]time.Duration{}}
+	defer func() {
+		if r := recover(); r != nil {
+			_ = st.Halt()
+			panic(r)
+		}
+	}()
+	run.Started = clk.Now()
+	var stepErr error
+	for _, s := range p.steps {
+		if stepErr = s.Do(ctx, t); stepErr != nil {
+			break
+		}
+	}
+	// Power down even after a failure; it may not be cut short by the
+	// caller's context, only by its own budget.
+	t.ctx = context.WithoutCancel(ctx)
+	downErr := p.powerDown.Do(t.ctx, t)
+	t.ctx = ctx
+	run.Finished = clk.Now()
+
+	if ctx.Err() != nil {
+		_ = st.Halt()
+		run.Verdict, run.FailCode = "", ""
+		return t, fmt.Errorf("%w: %w", ErrAborted, ctx.Err())
+	}
+	var uf *UnitFailure
+	switch {
+	case stepErr == nil && downErr == nil:
+		run.Verdict, run.FailCode = Pass, ""
+	case stepErr != nil && errors.As(stepErr, &uf) && downErr == nil:
+		run.Verdict, run.FailCode = Fail, uf.Code
+	default:
+		_ = st.Halt()
+		err = errors.Join(stepErr, downErr)
+		run.Verdict, run.FailCode = StationFault, stationCode(err)
+		return t, err
+	}
+	return t, nil
+}
+
+// stationCode names the station fault behind err.
+func stationCode(err error) string {
+	switch {
+	case errors.Is(err, ErrLidOpen), errors.Is(err, fixture.ErrLidOpen):
+		return CodeLidOpen
+	case errors.Is(err, ErrStepTimeout):
+		return CodeStepTimeout
+	}
+	var pe *fixture.PinError
+	if errors.As(err, &pe) {
+		return CodePinError
+	}
+	return CodeStationError
+}
+
+// timed adds the fixture time fn takes to phase.
+func (t *Trial) timed(phase string, fn func() error) error {
+	start := t.clock.Now()
+	err := fn()
+	t.Phases[phase] += t.clock.Now().Sub(start)
+	return err
+}
+
+func (p *Plan) powerUp(ctx context.Context, t *Trial) error {
+	return t.timed("power_up", func() error {
+		closed, err := t.LidClosed()
+		if err != nil {
+			return err
+		}
+		if !closed {
+			return ErrLidOpen
+		}
+		if err := t.SetPattern(0); err != nil {
+			return err
+		}
+		if err := t.Power(true); err != nil {
+			return err
+		}
+		return t.Sleep(p.cfg.PowerSettle)
+	})
+}
+
+func (p *Plan) clock(ctx context.Context, t *Trial) error {
+	return t.timed("clock", func() error {
+		hz, err := t.MeasureClock(p.cfg.ClockPeriods)
+		if err != nil {
+			if errors.Is(err, fixture.ErrNoClockEdges) {
+				t.Measure("clock_hz", 0, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz)
+				return fail(CodeClockDead, "no edges at the clock test point")
+			}
+			return err
+		}
+		if t.Measure("clock_hz", hz, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz) == Fail {
+			if hz < p.cfg.Limits.ClockLowHz {
+				return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, p.cfg.Limits.ClockLowHz)
+			}
+			return fail(CodeClockHigh, "%.1f Hz > %.1f Hz", hz, p.cfg.Limits.ClockHighHz)
+		}
+		return nil
+	})
+}
+
+func (p *Plan) idle(ctx context.Context, t *Trial) error {
+	return t.timed("idle", func() error {
+		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
+			return err
+		}
+		highs, err := t.Sample(p.cfg.IdlePeriods)
+		if err != nil {
+			return err
+		}
+		if t.Measure("idle_highs", float64(highs), "count", 0, 0) == Fail {
+			return fail(CodeIdleLatched, "latch high %d of %d periods at %.2f pF", highs, p.cfg.IdlePeriods, p.levels[0].PF)
+		}
+		return nil
+	})
+}
+
+// prober presents the trial's station to the search as ladder levels and
+// times every probe.
+type prober struct {
+	t       *Trial
+	levels  []Level
+	elapsed []time.Duration
+}
+
+func (pr *prober) Probe(level, k int) (int, error) {
+	start := pr.t.clock.Now()
+	defer func() { pr.elapsed = append(pr.elapsed, pr.t.clock.Now().Sub(start)) }()
+	if err := pr.t.SetPattern(pr.levels[level].Pattern); err != nil {
+		return 0, err
+	}
+	return pr.t.Sample(k)
+}
+
+func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
+	pf := make([]float64, len(p.levels))
+	for i, l := range p.levels {
+		pf[i] = l.PF
+	}
+	pr := &prober{t: t, levels: p.levels}
+	res, err := FindTrip(pr, pf, p.cfg.Search)
+	for i, d := range pr.elapsed {
+		if i < len(res.Probes) {
+			t.Phases[res.Probes[i].Phase] += d
+		}
+	}
+	t.Probes = len(pr.elapsed)
+	if err != nil {
+		return err
+	}
+	t.Trip = &res
+	lim := p.cfg.Limits
+	if !res.Found {
+		t.Measure("trip_pf", math.NaN(), "pF", lim.TripLowPF, lim.TripHighPF)
+		return fail(CodeNoTrip, "no latch up to %.1f pF", p.levels[len(p.levels)-1].PF)
+	}
+	if res.Below {
+		// The bottom of the ladder already trips the unit on every sample:
+		// the trip point is at or below it.
+		t.Measure("trip_pf", res.TripPF, "pF", lim.TripLowPF, lim.TripHighPF)
+		return fail(CodeTripLow, "latched at the lowest level, %.2f pF", res.TripPF)
+	}
+	tripV := t.Measure("trip_pf", res.TripPF, "pF", lim.TripLowPF, lim.TripHighPF)
+	t.Measure("trip_se_pf", res.SEPF, "pF", NoLimit, NoLimit)
+	spreadV := t.Measure("spread_pf", res.SpreadPF, "pF", NoLimit, lim.SpreadMaxPF)
+	switch {
+	case res.Noisy || spreadV == Fail:
+		return fail(CodeTripNoisy, "transition %.2f pF wide (limit %.2f pF), consistent %v, guard misread %v",
+			res.SpreadPF, lim.SpreadMaxPF, res.Consistent, res.GuardMisread)
+	case tripV == Fail && res.TripPF < lim.TripLowPF:
+		return fail(CodeTripLow, "%.2f pF < %.2f pF", res.TripPF, lim.TripLowPF)
+	case tripV == Fail:
+		return fail(CodeTripHigh, "%.2f pF > %.2f pF", res.TripPF, lim.TripHighPF)
+	}
+	return nil
+}
+
+func (p *Plan) release(ctx context.Context, t *Trial) error {
+	return t.timed("release", func() error {
+		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
+			return err
+		}
+		highs, err := t.Sample(p.cfg.ReleasePeriods)
+		if err != nil {
+			return err
+		}
+		if t.Measure("release_highs", float64(highs), "count", 0, 0) == Fail {
+			return fail(CodeStuckLatched, "latch still high %d of %d periods after the ladder opened", highs, p.cfg.ReleasePeriods)
+		}
+		return nil
+	})
+}
+
+func powerDown(ctx context.Context, t *Trial) error {
+	return t.timed("power_down", func() error {
+		return errors.Join(t.SetPattern(0), t.Power(false))
+	})
+}
