@@ -69,15 +69,17 @@ type Plan struct {
 }
 
 // NewPlan builds the standard plan — power up and settle, clock frequency
-// (when ClockPeriods > 0), idle check, trip search, release check — and the
-// power-down step that always runs last.
+// (when ClockPeriods > 0), idle check, release check, trip search — and the
+// power-down step that always runs last. The release check comes before the
+// search: a latch that cannot fall again would make every later probe read
+// high and pass for a low trip point.
 func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	if len(levels) < 2 {
 		return nil, fmt.Errorf("plan needs at least 2 ladder levels, have %d", len(levels))
 	}
 	for i := 1; i < len(levels); i++ {
-		if levels[i].PF < levels[i-1].PF {
-			return nil, fmt.Errorf("ladder levels not sorted at index %d", i)
+		if !(levels[i].PF > levels[i-1].PF) {
+			return nil, fmt.Errorf("ladder levels not strictly ascending at index %d", i)
 		}
 	}
 	if cfg.Period <= 0 {
@@ -98,8 +100,8 @@ func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 		add("clock", StepFunc(p.clock))
 	}
 	add("idle", StepFunc(p.idle))
-	add("trip_search", StepFunc(p.tripSearch))
 	add("release", StepFunc(p.release))
+	add("trip_search", StepFunc(p.tripSearch))
 	p.powerDown = Wrap(StepFunc(powerDown), Named("power_down"), Timeout(cfg.StepTimeout))
 	return p, nil
 }
@@ -121,8 +123,14 @@ func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t 
 	}()
 	run.Started = clk.Now()
 	var stepErr error
-	for _, s := range p.steps {
+	for i, s := range p.steps {
 		if stepErr = s.Do(ctx, t); stepErr != nil {
+			break
+		}
+		// The lid must stay closed the whole test: opening it mid-test
+		// is a station fault, never a unit verdict.
+		if closed, err := st.LidClosed(); err != nil || !closed {
+			stepErr = fmt.Errorf("after step %d: %w", i+1, errors.Join(ErrLidOpen, err))
 			break
 		}
 	}
@@ -291,8 +299,26 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 	return nil
 }
 
+// release touches the unit with the lowest level at or above the high test
+// limit (where every good unit trips), then opens the ladder: the latch must
+// read 0 again for ReleasePeriods periods. A unit that does not latch at the
+// touch level is left for the trip search to judge.
 func (p *Plan) release(ctx context.Context, t *Trial) error {
 	return t.timed("release", func() error {
+		touch := len(p.levels) - 1
+		for i, l := range p.levels {
+			if l.PF >= p.cfg.Limits.TripHighPF {
+				touch = i
+				break
+			}
+		}
+		if err := t.SetPattern(p.levels[touch].Pattern); err != nil {
+			return err
+		}
+		latched, err := t.Sample(2)
+		if err != nil || latched == 0 {
+			return err
+		}
 		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
 			return err
 		}
@@ -301,7 +327,8 @@ func (p *Plan) release(ctx context.Context, t *Trial) error {
 			return err
 		}
 		if t.Measure("release_highs", float64(highs), "count", 0, 0) == Fail {
-			return fail(CodeStuckLatched, "latch still high %d of %d periods after the ladder opened", highs, p.cfg.ReleasePeriods)
+			return fail(CodeStuckLatched, "latch still high %d of %d periods after the ladder opened from %.1f pF",
+				highs, p.cfg.ReleasePeriods, p.levels[touch].PF)
 		}
 		return nil
 	})

@@ -45,7 +45,8 @@ var ErrLidOpen = errors.New("sequences: lid open")
 // Timeout bounds the fixture time a step may take. Time is the trial's
 // injected clock, so the budget holds in virtual time too: every station
 // operation made through the trial checks the deadline and fails with
-// ErrStepTimeout once it has passed.
+// ErrStepTimeout once it has passed, and so does a step that would succeed
+// after its budget ran out.
 func Timeout(d time.Duration) func(Step) Step {
 	return func(next Step) Step {
 		return StepFunc(func(ctx context.Context, t *Trial) error {
@@ -55,7 +56,13 @@ func Timeout(d time.Duration) func(Step) Step {
 				t.deadline = dl
 			}
 			defer func() { t.deadline = prev }()
-			return next.Do(ctx, t)
+			err := next.Do(ctx, t)
+			if err == nil && t.clock.Now().After(dl) {
+				// The step's last operation overran: nothing after it
+				// checked the deadline.
+				return ErrStepTimeout
+			}
+			return err
 		})
 	}
 }

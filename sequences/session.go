@@ -1,0 +1,74 @@
+package sequences
+
+import (
+	"context"
+	"errors"
+	"fmt"
+)
+
+// Lamps is the optional station capability of showing the verdict on the
+// fixture's pass and fail lamps.
+type Lamps interface {
+	Lamps(pass, fail bool) error
+}
+
+// ErrNotSaved is returned when a unit was tested but its run could not be
+// committed: no verdict may be shown for it.
+var ErrNotSaved = errors.New("sequences: run not saved")
+
+// Session tests units one after another on one station for one variant and
+// commits every run before its verdict is known to anyone.
+type Session struct {
+	Plan     *Plan
+	Station  Station
+	Clock    Clock
+	Recorder Recorder
+	// Template holds the fields every run of the session shares: variant,
+	// config hash, station, fixture, operator, lot, software.
+	Template Run
+	// CheckSerial refuses a serial before anything touches the unit; nil
+	// accepts every serial.
+	CheckSerial func(serial string) error
+}
+
+// Outcome is one tested unit: its committed run, its id in the shift log and
+// the trial's details (fixture time per phase, the trip search).
+type Outcome struct {
+	Run   Run
+	ID    int64
+	Trial *Trial
+}
+
+// Test runs the plan on the unit with this serial, commits the run and then
+// lights the lamps. A refused serial is not tested. When ctx ends mid-unit
+// the unit gets no verdict and nothing is recorded (ErrAborted). A station
+// fault is committed like any verdict and also returned as the error.
+func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
+	if s.CheckSerial != nil {
+		if err := s.CheckSerial(serial); err != nil {
+			return nil, err
+		}
+	}
+	run := s.Template
+	run.Serial = serial
+	run.Measurements = nil
+	trial, runErr := s.Plan.Execute(ctx, s.Station, s.Clock, &run)
+	if errors.Is(runErr, ErrAborted) {
+		return nil, runErr
+	}
+	// The unit was tested to the end: record it even if a stop request
+	// arrives now, so a verdict is never lost half-way.
+	id, err := s.Recorder.Record(context.WithoutCancel(ctx), &run)
+	if err != nil {
+		if l, ok := s.Station.(Lamps); ok {
+			_ = l.Lamps(false, true)
+		}
+		return nil, fmt.Errorf("%w: serial %s: %w", ErrNotSaved, serial, err)
+	}
+	if l, ok := s.Station.(Lamps); ok {
+		if err := l.Lamps(run.Verdict == Pass, run.Verdict != Pass); err != nil && runErr == nil {
+			runErr = fmt.Errorf("lamps: %w", err)
+		}
+	}
+	return &Outcome{Run: run, ID: id, Trial: trial}, runErr
+}
