@@ -1,0 +1,310 @@
+package store
+
+import (
+	"context"
+	"database/sql"
+	"embed"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"os"
+	"path"
+	"sort"
+	"sync"
+	"time"
+
+	"github.com/mattn/go-sqlite3"
+)
+
+// ApplicationID is the value of PRAGMA application_id in every padline shift
+// log ("PDLN" in ASCII). A SQLite file carrying another value is refused.
+const ApplicationID = 0x50444C4E
+
+// sqliteMagic opens every SQLite 3 database file (SQLite file format, §1.3
+// "The Database Header", https://www.sqlite.org/fileformat.html).
+const sqliteMagic = "SQLite format 3\x00"
+
+// Sentinel errors of the store.
+var (
+	// ErrNotShiftLog: the file is not a SQLite database, or is one that
+	// padline did not create.
+	ErrNotShiftLog = errors.New("store: not a padline shift log")
+	// ErrSchemaTooNew: the file was written by a newer padline.
+	ErrSchemaTooNew = errors.New("store: shift log schema newer than this program")
+	// ErrNotSaved: a run was not committed; nothing of it is in the log.
+	ErrNotSaved = errors.New("store: run not saved")
+	// ErrDiskFull: the disk, or the log's size cap, is full.
+	ErrDiskFull = errors.New("store: shift log full")
+	// ErrUnknownConfig: a run names a variant configuration that was never
+	// registered with PutVariant.
+	ErrUnknownConfig = errors.New("store: unknown variant configuration")
+	// ErrInvalidRun: a run lacks a field the log requires.
+	ErrInvalidRun = errors.New("store: invalid run")
+	// ErrNotFound: a looked-up item is not in the log.
+	ErrNotFound = errors.New("store: not found")
+)
+
+//go:embed migrations/*.sql
+var migrationFS embed.FS
+
+// migration is one embedded schema step; version is its 1-based position.
+type migration struct {
+	name string
+	sql  string
+}
+
+// migrations returns the embedded migrations in file-name order.
+func migrations() ([]migration, error) {
+	names, err := fs.Glob(migrationFS, "migrations/*.sql")
+	if err != nil {
+		return nil, err
+	}
+	sort.Strings(names)
+	out := make([]migration, 0, len(names))
+	for _, n := range names {
+		b, err := migrationFS.ReadFile(n)
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, migration{name: path.Base(n), sql: string(b)})
+	}
+	return out, nil
+}
+
+// SchemaVersion is the schema version this program writes: the number of
+// embedded migrations.
+func SchemaVersion() int {
+	m, err := migrations()
+	if err != nil {
+		return 0
+	}
+	return len(m)
+}
+
+// DB is an open shift log. It is safe for concurrent use; writes from one
+// DB are serialised, and other processes may read (and write) the same file.
+type DB struct {
+	sql  *sql.DB
+	path string
+	now  func() time.Time
+
+	wmu sync.Mutex // serialises this process's write transactions
+	ids idCache    // committed name → id lookups
+}
+
+// Open opens the shift log at path, creating it if it does not exist, and
+// brings its schema up to date. It refuses a file that is not a padline
+// shift log (ErrNotShiftLog) and one whose schema is newer than this program
+// (ErrSchemaTooNew).
+func Open(path string) (*DB, error) {
+	return open(path, -1)
+}
+
+// open opens path and migrates it to version target (-1: all migrations).
+func open(path string, target int) (*DB, error) {
+	if err := checkHeader(path); err != nil {
+		return nil, fmt.Errorf("open shift log %s: %w", path, err)
+	}
+	// Per-connection settings go in the DSN so every pooled connection gets
+	// them; WAL is persistent in the file and is set once below, after the
+	// file is known to be ours.
+	dsn := path + "?_foreign_keys=1&_synchronous=FULL&_busy_timeout=10000&_txlock=immediate"
+	sdb, err := sql.Open("sqlite3", dsn)
+	if err != nil {
+		return nil, fmt.Errorf("open shift log %s: %w", path, err)
+	}
+	db := &DB{sql: sdb, path: path, now: time.Now}
+	if err := db.prepare(context.Background(), target); err != nil {
+		sdb.Close()
+		return nil, fmt.Errorf("open shift log %s: %w", path, err)
+	}
+	return db, nil
+}
+
+// checkHeader refuses a non-empty file that does not start with the SQLite
+// magic string, before SQLite touches it.
+func checkHeader(path string) error {
+	f, err := os.Open(path)
+	if errors.Is(err, fs.ErrNotExist) {
+		return nil
+	}
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	buf := make([]byte, len(sqliteMagic))
+	n, err := io.ReadFull(f, buf)
+	if n == 0 && (err == io.EOF) {
+		return nil // empty file: SQLite treats it as a new database
+	}
+	if err != nil || string(buf) != sqliteMagic {
+		return fmt.Errorf("%w: not a SQLite database file", ErrNotShiftLog)
+	}
+	return nil
+}
+
+// prepare checks the file's identity and version, switches it to WAL and
+// applies the pending migrations.
+func (db *DB) prepare(ctx context.Context, target int) error {
+	all, err := migrations()
+	if err != nil {
+		return fmt.Errorf("read migrations: %w", err)
+	}
+	if target < 0 || target > len(all) {
+		target = len(all)
+	}
+	var appID, version, objects int64
+	if err := db.sql.QueryRowContext(ctx, "PRAGMA application_id").Scan(&appID); err != nil {
+		return classifyOpen(err)
+	}
+	if err := db.sql.QueryRowContext(ctx, "PRAGMA user_version").Scan(&version); err != nil {
+		return classifyOpen(err)
+	}
+	if err := db.sql.QueryRowContext(ctx, "SELECT count(*) FROM sqlite_schema").Scan(&objects); err != nil {
+		return classifyOpen(err)
+	}
+	switch {
+	case appID == ApplicationID:
+	case appID == 0 && version == 0 && objects == 0:
+		// a new, empty database: ours to initialise
+	default:
+		return fmt.Errorf("%w: application_id %#x (want %#x), user_version %d, %d schema objects",
+			ErrNotShiftLog, appID, ApplicationID, version, objects)
+	}
+	if version > int64(len(all)) {
+		return fmt.Errorf("%w: file has schema version %d, this padline knows versions up to %d",
+			ErrSchemaTooNew, version, len(all))
+	}
+	var mode string
+	if err := db.sql.QueryRowContext(ctx, "PRAGMA journal_mode=WAL").Scan(&mode); err != nil {
+		return fmt.Errorf("set WAL: %w", err)
+	}
+	if mode != "wal" {
+		return fmt.Errorf("set WAL: journal mode is %q", mode)
+	}
+	for v := int(version); v < target; v++ {
+		if err := db.migrate(ctx, v+1, all[v]); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// migrate applies migration m as schema version v in one transaction. It
+// re-reads the version inside the transaction, so two processes opening a
+// new file at once apply each migration once.
+func (db *DB) migrate(ctx context.Context, v int, m migration) error {
+	tx, err := db.sql.BeginTx(ctx, nil)
+	if err != nil {
+		return fmt.Errorf("migration %s: %w", m.name, err)
+	}
+	defer tx.Rollback()
+	var cur int
+	if err := tx.QueryRowContext(ctx, "PRAGMA user_version").Scan(&cur); err != nil {
+		return fmt.Errorf("migration %s: %w", m.name, err)
+	}
+	if cur >= v {
+		return nil
+	}
+	if cur != v-1 {
+		return fmt.Errorf("migration %s: file at version %d, want %d", m.name, cur, v-1)
+	}
+	if _, err := tx.ExecContext(ctx, m.sql); err != nil {
+		return fmt.Errorf("migration %s: %w", m.name, err)
+	}
+	if v == 1 {
+		if _, err := tx.ExecContext(ctx, fmt.Sprintf("PRAGMA application_id = %d", ApplicationID)); err != nil {
+			return fmt.Errorf("migration %s: %w", m.name, err)
+		}
+	}
+	if _, err := tx.ExecContext(ctx, fmt.Sprintf("PRAGMA user_version = %d", v)); err != nil {
+		return fmt.Errorf("migration %s: %w", m.name, err)
+	}
+	if err := tx.Commit(); err != nil {
+		return fmt.Errorf("migration %s: %w", m.name, err)
+	}
+	return nil
+}
+
+// classifyOpen turns SQLite's "not a database" into ErrNotShiftLog.
+func classifyOpen(err error) error {
+	var se sqlite3.Error
+	if errors.As(err, &se) && se.Code == sqlite3.ErrNotADB {
+		return fmt.Errorf("%w: %w", ErrNotShiftLog, err)
+	}
+	return err
+}
+
+// isFull reports whether err is SQLite's "database or disk is full".
+func isFull(err error) bool {
+	var se sqlite3.Error
+	return errors.As(err, &se) && se.Code == sqlite3.ErrFull
+}
+
+// Close closes the shift log. Runs already recorded stay committed.
+func (db *DB) Close() error {
+	return db.sql.Close()
+}
+
+// Path returns the file the log was opened from.
+func (db *DB) Path() string { return db.path }
+
+// Version returns the schema version of the open file.
+func (db *DB) Version(ctx context.Context) (int, error) {
+	var v int
+	err := db.sql.QueryRowContext(ctx, "PRAGMA user_version").Scan(&v)
+	return v, err
+}
+
+// IntegrityCheck runs PRAGMA integrity_check and returns nil when SQLite
+// reports "ok".
+func (db *DB) IntegrityCheck(ctx context.Context) error {
+	rows, err := db.sql.QueryContext(ctx, "PRAGMA integrity_check")
+	if err != nil {
+		return fmt.Errorf("integrity check: %w", err)
+	}
+	defer rows.Close()
+	var msgs []string
+	for rows.Next() {
+		var s string
+		if err := rows.Scan(&s); err != nil {
+			return fmt.Errorf("integrity check: %w", err)
+		}
+		msgs = append(msgs, s)
+	}
+	if err := rows.Err(); err != nil {
+		return fmt.Errorf("integrity check: %w", err)
+	}
+	if len(msgs) == 1 && msgs[0] == "ok" {
+		return nil
+	}
+	return fmt.Errorf("integrity check: %v", msgs)
+}
+
+// idCache remembers committed name → id mappings of the small lookup tables.
+type idCache struct {
+	mu sync.Mutex
+	m  map[string]int64
+}
+
+func (c *idCache) get(key string) (int64, bool) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	id, ok := c.m[key]
+	return id, ok
+}
+
+func (c *idCache) merge(pending map[string]int64) {
+	if len(pending) == 0 {
+		return
+	}
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if c.m == nil {
+		c.m = make(map[string]int64)
+	}
+	for k, v := range pending {
+		c.m[k] = v
+	}
+}

@@ -1,0 +1,390 @@
+package store
+
+import (
+	"context"
+	"database/sql"
+	"errors"
+	"fmt"
+	"iter"
+	"math"
+	"strings"
+	"time"
+
+	"padline/sequences"
+)
+
+// Filter selects runs. Empty fields match everything. Since is inclusive and
+// Until exclusive, both on the run's finish time.
+type Filter struct {
+	Serial  string
+	Variant string
+	Station string
+	Fixture string
+	Lot     string
+	Verdict sequences.Verdict
+	Since   time.Time
+	Until   time.Time
+}
+
+// where returns the SQL condition (on runs aliased r) and its arguments.
+func (f Filter) where() (string, []any) {
+	var (
+		conds []string
+		args  []any
+	)
+	add := func(cond string, arg any) {
+		conds = append(conds, cond)
+		args = append(args, arg)
+	}
+	if f.Serial != "" {
+		add("r.serial = ?", f.Serial)
+	}
+	if f.Variant != "" {
+		add("r.variant_id = (SELECT id FROM variants WHERE name = ?)", f.Variant)
+	}
+	if f.Station != "" {
+		add("r.station_id = (SELECT id FROM stations WHERE name = ?)", f.Station)
+	}
+	if f.Fixture != "" {
+		add("r.fixture_id = (SELECT id FROM fixtures WHERE name = ?)", f.Fixture)
+	}
+	if f.Lot != "" {
+		add("r.lot = ?", f.Lot)
+	}
+	if f.Verdict != "" {
+		add("r.verdict = ?", string(f.Verdict))
+	}
+	if !f.Since.IsZero() {
+		add("r.finished >= ?", f.Since.UnixNano())
+	}
+	if !f.Until.IsZero() {
+		add("r.finished < ?", f.Until.UnixNano())
+	}
+	if len(conds) == 0 {
+		return "1", nil
+	}
+	return strings.Join(conds, " AND "), args
+}
+
+// Entry is one run as the shift log holds it.
+type Entry struct {
+	ID int64
+	sequences.Run
+	// TripPF is the run's trip point (measurement trip_search/trip_pf) in
+	// pF, NaN when the run has none.
+	TripPF float64
+}
+
+// runsSQL streams runs with their measurements in (finished, id, seq)
+// order. CROSS JOIN keeps runs as the outer loop, so SQLite walks an index
+// in order and never sorts the whole result.
+const runsSQL = `
+SELECT r.id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf,
+       m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
+FROM runs r
+CROSS JOIN variants v ON v.id = r.variant_id
+CROSS JOIN configs c ON c.id = r.config_id
+CROSS JOIN stations s ON s.id = r.station_id
+CROSS JOIN fixtures fx ON fx.id = r.fixture_id
+LEFT JOIN measurements m ON m.run_id = r.id
+LEFT JOIN quantities q ON q.id = m.quantity_id
+WHERE %s
+ORDER BY r.finished, r.id, m.seq`
+
+// Runs streams the runs matching f, oldest first (by finish time, then
+// id), each with its measurements in recorded order. It reads from one
+// SELECT, so the sequence is a consistent snapshot even while another
+// connection writes, and it never holds more than one run in memory.
+// Stop early by breaking out of the loop.
+func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
+	return func(yield func(*Entry, error) bool) {
+		cond, args := f.where()
+		rows, err := db.sql.QueryContext(ctx, fmt.Sprintf(runsSQL, cond), args...)
+		if err != nil {
+			yield(nil, fmt.Errorf("query runs: %w", err))
+			return
+		}
+		defer rows.Close()
+		var cur *Entry
+		for rows.Next() {
+			var (
+				e                          Entry
+				started                    sql.NullInt64
+				finished                   int64
+				verdict                    string
+				trip                       sql.NullFloat64
+				seq                        sql.NullInt64
+				step, name, unit, mverdict sql.NullString
+				value, low, high           sql.NullFloat64
+			)
+			if err := rows.Scan(&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
+				&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip,
+				&seq, &step, &name, &unit, &value, &low, &high, &mverdict); err != nil {
+				yield(nil, fmt.Errorf("read run: %w", err))
+				return
+			}
+			if cur == nil || cur.ID != e.ID {
+				if cur != nil && !yield(cur, nil) {
+					return
+				}
+				if started.Valid {
+					e.Started = time.Unix(0, started.Int64).UTC()
+				}
+				e.Finished = time.Unix(0, finished).UTC()
+				e.Verdict = sequences.Verdict(verdict)
+				e.TripPF = orNaN(trip)
+				cur = &e
+			}
+			if seq.Valid {
+				cur.Measurements = append(cur.Measurements, sequences.Measurement{
+					Step: step.String, Name: name.String, Unit: unit.String,
+					Value: orNaN(value), Low: orNaN(low), High: orNaN(high),
+					Verdict: sequences.Verdict(mverdict.String),
+				})
+			}
+		}
+		if err := rows.Err(); err != nil {
+			yield(nil, fmt.Errorf("query runs: %w", err))
+			return
+		}
+		if cur != nil {
+			yield(cur, nil)
+		}
+	}
+}
+
+func orNaN(v sql.NullFloat64) float64 {
+	if !v.Valid {
+		return math.NaN()
+	}
+	return v.Float64
+}
+
+// RunsBySerial returns every run of one serial, oldest first, with
+// measurements.
+func (db *DB) RunsBySerial(ctx context.Context, serial string) ([]*Entry, error) {
+	var out []*Entry
+	for e, err := range db.Runs(ctx, Filter{Serial: serial}) {
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, e)
+	}
+	return out, nil
+}
+
+// TripPoint is one run's trip point, what drift analysis consumes.
+type TripPoint struct {
+	RunID    int64
+	Finished time.Time
+	TripPF   float64
+	Station  string
+	Fixture  string
+	Lot      string
+	Verdict  sequences.Verdict
+}
+
+// TripSeries returns the trip points of the runs matching f (usually with
+// Variant set) that have one, in time order. last > 0 keeps only the last
+// that many points.
+func (db *DB) TripSeries(ctx context.Context, f Filter, last int) ([]TripPoint, error) {
+	cond, args := f.where()
+	// Station and fixture names come from their small tables, not a join per
+	// row: the series is read at the rate of one index entry per point.
+	stations, err := db.names(ctx, "stations")
+	if err != nil {
+		return nil, fmt.Errorf("trip series: %w", err)
+	}
+	fixtures, err := db.names(ctx, "fixtures")
+	if err != nil {
+		return nil, fmt.Errorf("trip series: %w", err)
+	}
+	q := `SELECT r.id, r.finished, r.trip_pf, r.station_id, r.fixture_id, r.lot, r.verdict
+FROM runs r
+WHERE ` + cond + ` AND r.trip_pf IS NOT NULL
+ORDER BY r.finished DESC, r.id DESC`
+	if last > 0 {
+		q += " LIMIT ?"
+		args = append(args, last)
+	}
+	rows, err := db.sql.QueryContext(ctx, q, args...)
+	if err != nil {
+		return nil, fmt.Errorf("trip series: %w", err)
+	}
+	defer rows.Close()
+	var out []TripPoint
+	if last > 0 {
+		out = make([]TripPoint, 0, min(last, 1<<20))
+	}
+	// Lots and verdicts repeat in runs of equal values: keep the last string
+	// and allocate only when the value changes.
+	var (
+		lot, verdict         sql.RawBytes
+		lastLot, lastVerdict string
+	)
+	for rows.Next() {
+		var (
+			p                  TripPoint
+			finished, sid, fid int64
+		)
+		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict); err != nil {
+			return nil, fmt.Errorf("trip series: %w", err)
+		}
+		if string(lot) != lastLot {
+			lastLot = string(lot)
+		}
+		if string(verdict) != lastVerdict {
+			lastVerdict = string(verdict)
+		}
+		st, ok := stations[sid]
+		if !ok {
+			if st, err = db.name(ctx, "stations", sid); err != nil {
+				return nil, fmt.Errorf("trip series: %w", err)
+			}
+			stations[sid] = st
+		}
+		fx, ok := fixtures[fid]
+		if !ok {
+			if fx, err = db.name(ctx, "fixtures", fid); err != nil {
+				return nil, fmt.Errorf("trip series: %w", err)
+			}
+			fixtures[fid] = fx
+		}
+		p.Finished = time.Unix(0, finished).UTC()
+		p.Station, p.Fixture, p.Lot, p.Verdict = st, fx, lastLot, sequences.Verdict(lastVerdict)
+		out = append(out, p)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("trip series: %w", err)
+	}
+	for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
+		out[i], out[j] = out[j], out[i]
+	}
+	return out, nil
+}
+
+// name reads one name of a small (id, name) table: one committed after
+// names read the table.
+func (db *DB) name(ctx context.Context, table string, id int64) (string, error) {
+	var n string
+	err := db.sql.QueryRowContext(ctx, "SELECT name FROM "+table+" WHERE id = ?", id).Scan(&n)
+	return n, err
+}
+
+// names reads a small (id, name) table whole.
+func (db *DB) names(ctx context.Context, table string) (map[int64]string, error) {
+	rows, err := db.sql.QueryContext(ctx, "SELECT id, name FROM "+table)
+	if err != nil {
+		return nil, err
+	}
+	defer rows.Close()
+	m := map[int64]string{}
+	for rows.Next() {
+		var (
+			id   int64
+			name string
+		)
+		if err := rows.Scan(&id, &name); err != nil {
+			return nil, err
+		}
+		m[id] = name
+	}
+	return m, rows.Err()
+}
+
+// Counts are the verdict totals of a set of runs, for yield.
+type Counts struct {
+	Runs         int64
+	Pass         int64
+	Fail         int64
+	StationFault int64
+	// FirstUnits counts serials whose first unit verdict (their first run
+	// that is not a station fault, over the whole log) is among the runs;
+	// FirstPass counts those of them that passed it. First-pass yield is
+	// FirstPass/FirstUnits.
+	FirstUnits int64
+	FirstPass  int64
+}
+
+// Counts returns the verdict totals of the runs matching f.
+func (db *DB) Counts(ctx context.Context, f Filter) (Counts, error) {
+	cond, args := f.where()
+	q := `SELECT count(*), total(verdict = 'pass'), total(verdict = 'fail'),
+       total(verdict = 'station-fault'), total(first), total(first AND verdict = 'pass')
+FROM (
+  SELECT r.verdict,
+         r.verdict != 'station-fault' AND NOT EXISTS (
+           SELECT 1 FROM runs e
+           WHERE e.serial = r.serial AND e.verdict != 'station-fault'
+             AND (e.finished < r.finished OR (e.finished = r.finished AND e.id < r.id))
+         ) AS first
+  FROM runs r WHERE ` + cond + `
+)`
+	var (
+		c                        Counts
+		pass, fail, sf, fu, fpas float64
+	)
+	if err := db.sql.QueryRowContext(ctx, q, args...).Scan(&c.Runs, &pass, &fail, &sf, &fu, &fpas); err != nil {
+		return Counts{}, fmt.Errorf("counts: %w", err)
+	}
+	c.Pass, c.Fail, c.StationFault = int64(pass), int64(fail), int64(sf)
+	c.FirstUnits, c.FirstPass = int64(fu), int64(fpas)
+	return c, nil
+}
+
+// ConfigChange is one configuration a variant has had.
+type ConfigChange struct {
+	Hash      string
+	FirstSeen time.Time // when PutVariant first registered these bytes
+	Size      int       // snapshot length in bytes
+}
+
+// ConfigHistory returns the configurations variant has had, in the order
+// they were first seen: each entry is a change of the variant's limits or
+// other settings.
+func (db *DB) ConfigHistory(ctx context.Context, variant string) ([]ConfigChange, error) {
+	rows, err := db.sql.QueryContext(ctx,
+		`SELECT c.hash, c.first_seen, length(c.snapshot) FROM configs c
+		 JOIN variants v ON v.id = c.variant_id WHERE v.name = ?
+		 ORDER BY c.first_seen, c.id`, variant)
+	if err != nil {
+		return nil, fmt.Errorf("config history of %s: %w", variant, err)
+	}
+	defer rows.Close()
+	var out []ConfigChange
+	for rows.Next() {
+		var (
+			c    ConfigChange
+			seen int64
+		)
+		if err := rows.Scan(&c.Hash, &seen, &c.Size); err != nil {
+			return nil, fmt.Errorf("config history of %s: %w", variant, err)
+		}
+		c.FirstSeen = time.Unix(0, seen).UTC()
+		out = append(out, c)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("config history of %s: %w", variant, err)
+	}
+	return out, nil
+}
+
+// Snapshot returns the exact configuration bytes registered for variant
+// under hash; ErrNotFound if there are none.
+func (db *DB) Snapshot(ctx context.Context, variant, hash string) ([]byte, error) {
+	var b []byte
+	err := db.sql.QueryRowContext(ctx,
+		`SELECT c.snapshot FROM configs c JOIN variants v ON v.id = c.variant_id
+		 WHERE v.name = ? AND c.hash = ?`, variant, hash).Scan(&b)
+	if errors.Is(err, sql.ErrNoRows) {
+		return nil, fmt.Errorf("snapshot of %s %s: %w", variant, hash, ErrNotFound)
+	}
+	if err != nil {
+		return nil, fmt.Errorf("snapshot of %s %s: %w", variant, hash, err)
+	}
+	if b == nil {
+		b = []byte{}
+	}
+	return b, nil
+}
