@@ -7,5 +7,7 @@ import "github.com/spf13/cobra"
 func (a *app) subcommands() []func() *cobra.Command {
 	return []func() *cobra.Command{
 		a.limitsCmd,
+		a.demoCmd,
+		a.historyCmd,
 	}
 }

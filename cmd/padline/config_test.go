@@ -152,12 +152,21 @@ func TestDemoStation(t *testing.T) {
 		}
 	}
 	raw, _ := os.ReadFile(repo + "/testdata/stations/demo-sim.yaml")
-	raw = append(raw, []byte("uncertainty_pf: 0.25\nsim:\n  noise_mv: 10\n  units: {defect_rate: 0.01}\n")...)
+	raw = append(raw, []byte("uncertainty_pf: 0.25\nsim:\n  noise_mv_at_5v: 12\n  defect_rates: {open_pad: 0.01}\n  faults: {rung_stuck_open: [3]}\n")...)
 	s, err := parseStation(newSource("x.yaml", raw))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if s.UncertaintyPF != 0.25 || s.Sim["noise_mv"] != 10 {
-		t.Errorf("uncertainty %v, sim %v", s.UncertaintyPF, s.Sim)
+	if s.UncertaintyPF != 0.25 || s.Sim.NoiseMVAt5V != 12 || s.Sim.DefectRates["open_pad"] != 0.01 ||
+		len(s.Sim.Faults.RungStuckOpen) != 1 || s.Sim.Faults.RungStuckOpen[0] != 3 {
+		t.Errorf("uncertainty %v, sim %+v", s.UncertaintyPF, s.Sim)
+	}
+	// The realism floor (DESIGN.md §12) is the default when the section is absent.
+	if s, _ := loadStation("demo-sim"); s.Sim.NoiseMVAt5V != 10 || s.Sim.JitterNs != 1 || s.Sim.RungErrSDPF != 0.05 {
+		t.Errorf("sim defaults %+v", s.Sim)
+	}
+	bad := append(raw[:len(raw):len(raw)], []byte("  bogus: 1\n")...)
+	if _, err := parseStation(newSource("x.yaml", bad)); err == nil || err.Error() != "x.yaml: unknown key sim.bogus" {
+		t.Errorf("unknown sim key: %v", err)
 	}
 }

@@ -13,9 +13,9 @@ type Station struct {
 	ShiftLog string
 	Pins     StationPins
 	Ladder   StationLadder
-	// Sim is the optional `sim:` section, passed on unchecked (its keys
-	// belong to the simulator's wiring); nil when absent.
-	Sim map[string]any
+	// Sim is the optional `sim:` section: how the simulated line differs
+	// from its defaults (driver: sim only).
+	Sim StationSim
 	// UncertaintyPF is the station's expanded measurement uncertainty U
 	// (k = 2) in pF; 0 when the file does not state it.
 	UncertaintyPF float64
@@ -124,7 +124,7 @@ func parseStation(src source) (*Station, error) {
 		l.Bounce = msDuration(d.nonNegative("ladder.bounce_ms", true, 0))
 		l.RatedOperations = d.positive("ladder.rated_operations", true, 0)
 	}
-	s.Sim = d.freeForm("sim")
+	s.Sim = readStationSim(d)
 	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
 	if err := d.finish(); err != nil {
 		return nil, err

@@ -49,7 +49,7 @@ type PlanSearch struct {
 	// SETargetPF is the standard error of the trip estimate to stop at, pF
 	// (default 0.1).
 	SETargetPF float64
-	// MaxRefineSamples caps the latch samples spent refining (default 200).
+	// MaxRefineSamples caps the latch samples spent refining (default 32).
 	MaxRefineSamples int
 	// SpreadLimitPF is the widest acceptable 10–90 % transition, pF; wider
 	// gives trip_noisy (default 1.5).
@@ -68,7 +68,7 @@ type PlanRetest struct {
 func DefaultPlan() Plan {
 	return Plan{
 		PowerSettleMS: 50, IdlePeriods: 8, ClockPeriods: 16, ReleasePeriods: 8,
-		Search: PlanSearch{Strategy: "bracket", SETargetPF: 0.1, MaxRefineSamples: 200, SpreadLimitPF: 1.5},
+		Search: PlanSearch{Strategy: "bracket", SETargetPF: 0.1, MaxRefineSamples: 32, SpreadLimitPF: 1.5},
 		Retest: PlanRetest{Max: 1, FlagPassAfterFail: true},
 	}
 }
