@@ -9,5 +9,6 @@ func (a *app) subcommands() []func() *cobra.Command {
 		a.limitsCmd,
 		a.demoCmd,
 		a.historyCmd,
+		a.runCmd,
 	}
 }

@@ -221,7 +221,7 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 		return nil, err
 	}
 	sess := &sequences.Session{
-		Plan: plan, Station: fx, Clock: line.Clock(), Recorder: rec,
+		Plan: plan, Station: fx, Clock: line.Clock(), Recorder: rec, WallClock: time.Now,
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
 			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: softwareVersion(),

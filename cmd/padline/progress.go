@@ -7,9 +7,10 @@ import (
 	"strings"
 )
 
-// isTerminal reports whether w is a character device (a person watching).
-func isTerminal(w io.Writer) bool {
-	f, ok := w.(*os.File)
+// isTerminal reports whether stream is a character device (a person at a
+// terminal).
+func isTerminal(stream any) bool {
+	f, ok := stream.(*os.File)
 	if !ok {
 		return false
 	}

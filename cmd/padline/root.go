@@ -44,9 +44,11 @@ in a SQLite shift log.
 
 Start with 'padline demo' to run a simulated shift without any hardware, and
 'padline limits --variant QM-205' to see where a good unit's trip point falls.`,
+		Version:       softwareVersion(),
 		SilenceUsage:  true,
 		SilenceErrors: true,
 	}
+	root.SetVersionTemplate("{{.Version}}\n")
 	for _, add := range a.subcommands() {
 		root.AddCommand(add())
 	}

@@ -5,10 +5,19 @@ import (
 	"sync"
 )
 
+// buildVersion is set at link time by the build scripts
+// (-ldflags "-X main.buildVersion=$(git describe --always --dirty)"); it
+// wins over what Go's build info knows, which is nothing when VCS stamping
+// is off (GOFLAGS=-buildvcs=false).
+var buildVersion string
+
 // softwareVersion is what every run records as the software that judged it:
-// the module version, or the VCS revision (with "+dirty" for a modified
-// tree) that Go embeds at build time.
+// the link-time version, else the module version or the VCS revision (with
+// "+dirty" for a modified tree) that Go embeds at build time.
 var softwareVersion = sync.OnceValue(func() string {
+	if buildVersion != "" {
+		return "padline " + buildVersion
+	}
 	bi, ok := debug.ReadBuildInfo()
 	if !ok {
 		return "padline (unknown build)"
