@@ -13,6 +13,25 @@ type Lamps interface {
 	Lamps(pass, fail bool) error
 }
 
+// ErrRetestLimit refuses a serial that has used up its retests.
+var ErrRetestLimit = errors.New("sequences: retest limit reached")
+
+// RetestPolicy is a variant's rule for testing a serial again.
+type RetestPolicy struct {
+	// Max is how many times a serial may be tested again after its first
+	// unit verdict (0: once only).
+	Max int
+	// FlagPassAfterFail records a "retest/prior_fails" measurement on a
+	// pass that follows fails, so the history shows it.
+	FlagPassAfterFail bool
+}
+
+// PriorRuns tells how often a serial already got a unit verdict (pass or
+// fail) and how many of those were fails; *store.DB has it.
+type PriorRuns interface {
+	PriorRuns(ctx context.Context, serial string) (tested, failed int, err error)
+}
+
 // ErrNotSaved is returned when a unit was tested but its run could not be
 // committed: no verdict may be shown for it.
 var ErrNotSaved = errors.New("sequences: run not saved")
@@ -30,6 +49,9 @@ type Session struct {
 	// CheckSerial refuses a serial before anything touches the unit; nil
 	// accepts every serial.
 	CheckSerial func(serial string) error
+	// Retest is applied when Recorder also implements PriorRuns; nil
+	// allows any number of retests.
+	Retest *RetestPolicy
 	// WallClock, when set, stamps each run's start and finish (the station
 	// clock still measures its duration): a simulated station runs on
 	// virtual time, but its shift log must say when the test happened.
@@ -42,6 +64,9 @@ type Outcome struct {
 	Run   Run
 	ID    int64
 	Trial *Trial
+	// PriorFails is how many fails the serial had before this run; with
+	// Pass it marks a pass after fail.
+	PriorFails int
 }
 
 // Test runs the plan on the unit with this serial, commits the run and then
@@ -54,6 +79,18 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 			return nil, err
 		}
 	}
+	var priorFails int
+	if pr, ok := s.Recorder.(PriorRuns); ok && s.Retest != nil {
+		tested, failed, err := pr.PriorRuns(ctx, serial)
+		if err != nil {
+			return nil, err
+		}
+		if tested > s.Retest.Max {
+			return nil, fmt.Errorf("%w: serial %s already has %d verdict(s) and the variant allows %d retest(s); set the unit aside for review",
+				ErrRetestLimit, serial, tested, s.Retest.Max)
+		}
+		priorFails = failed
+	}
 	run := s.Template
 	run.Serial = serial
 	run.Measurements = nil
@@ -65,6 +102,12 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 		d := run.Finished.Sub(run.Started)
 		run.Finished = s.WallClock()
 		run.Started = run.Finished.Add(-d)
+	}
+	if run.Verdict == Pass && priorFails > 0 && s.Retest != nil && s.Retest.FlagPassAfterFail {
+		run.Measurements = append(run.Measurements, Measurement{
+			Step: "retest", Name: "prior_fails", Value: float64(priorFails), Unit: "count",
+			Low: NoLimit, High: NoLimit, Verdict: Pass,
+		})
 	}
 	// The unit was tested to the end: record it even if a stop request
 	// arrives now, so a verdict is never lost half-way.
@@ -80,5 +123,5 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 			runErr = fmt.Errorf("lamps: %w", err)
 		}
 	}
-	return &Outcome{Run: run, ID: id, Trial: trial}, runErr
+	return &Outcome{Run: run, ID: id, Trial: trial, PriorFails: priorFails}, runErr
 }

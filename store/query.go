@@ -388,3 +388,16 @@ func (db *DB) Snapshot(ctx context.Context, variant, hash string) ([]byte, error
 	}
 	return b, nil
 }
+
+// PriorRuns counts the unit verdicts already logged for a serial (pass and
+// fail; a station fault tested nothing) and how many of them were fails:
+// what a retest policy needs before the unit is tested again.
+func (db *DB) PriorRuns(ctx context.Context, serial string) (tested, failed int, err error) {
+	err = db.sql.QueryRowContext(ctx, `
+		SELECT count(*), coalesce(sum(verdict = 'fail'), 0)
+		FROM runs WHERE serial = ? AND verdict IN ('pass', 'fail')`, serial).Scan(&tested, &failed)
+	if err != nil {
+		return 0, 0, fmt.Errorf("prior runs of %s: %w", serial, err)
+	}
+	return tested, failed, nil
+}

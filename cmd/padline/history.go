@@ -186,7 +186,7 @@ func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
 func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts historyOptions) error {
 	const row = "%-8s %-19s %-16s %-8s %-7s %-10s %-13s %-14s %8s\n"
 	fmt.Fprintf(w, row, "ID", "FINISHED", "SERIAL", "STATION", "FIXTURE", "LOT", "VERDICT", "FAIL CODE", "TRIP pF")
-	var n, pass, fail, sf int
+	var n, pass, fail, sf, flagged int
 	for e, err := range db.Runs(cmd.Context(), opts.filter) {
 		if err != nil {
 			return err
@@ -200,8 +200,13 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 		case sequences.StationFault:
 			sf++
 		}
+		verdict := string(e.Verdict)
+		if passAfterFail(e) {
+			verdict += " (retest)"
+			flagged++
+		}
 		fmt.Fprintf(w, row, strconv.FormatInt(e.ID, 10), e.Finished.Local().Format("2006-01-02 15:04:05"),
-			e.Serial, e.Station, e.Fixture, e.Lot, e.Verdict, histDash(e.FailCode), histPF(e.TripPF))
+			e.Serial, e.Station, e.Fixture, e.Lot, verdict, histDash(e.FailCode), histPF(e.TripPF))
 		if opts.filter.Serial != "" {
 			writeDetail(w, e)
 		}
@@ -215,7 +220,21 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 		noun = "run"
 	}
 	fmt.Fprintf(w, "%d %s: %d pass, %d fail, %d station-fault\n", n, noun, pass, fail, sf)
+	if flagged > 0 {
+		fmt.Fprintf(w, "%d pass(es) after an earlier fail, marked \"(retest)\"\n", flagged)
+	}
 	return nil
+}
+
+// passAfterFail reports whether a run is a pass the retest policy flagged
+// because fails came before it.
+func passAfterFail(e *store.Entry) bool {
+	for _, m := range e.Measurements {
+		if m.Step == "retest" && m.Name == "prior_fails" && m.Value > 0 {
+			return true
+		}
+	}
+	return false
 }
 
 // writeDetail prints a run's traceability and measurements under its line.

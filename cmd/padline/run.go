@@ -192,6 +192,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		},
 		CheckSerial: func(s string) error { return validSerial(v.Serial, s) },
 		WallClock:   time.Now,
+		Retest:      &sequences.RetestPolicy{Max: v.Plan.Retest.Max, FlagPassAfterFail: v.Plan.Retest.FlagPassAfterFail},
 	}
 	if !o.asJSON {
 		fmt.Fprintf(a.stderr, "padline run: %s on station %s, fixture %s; trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
@@ -241,8 +242,11 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		case errors.Is(err, sequences.ErrAborted):
 			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", serial)
 			return nil
+		case errors.Is(err, sequences.ErrRetestLimit):
+			fmt.Fprintf(a.stdout, "REFUSED  %v\n", err)
+			continue
 		case oc == nil:
-			// Not saved (or refused): never show a verdict.
+			// Not saved: never show a verdict.
 			return err
 		}
 		tested++
@@ -313,7 +317,7 @@ func unitJSON(oc *sequences.Outcome) map[string]any {
 	r := oc.Run
 	m := map[string]any{
 		"id": oc.ID, "serial": r.Serial, "verdict": r.Verdict, "fail_code": r.FailCode,
-		"fixture_ms": ms(r.Finished.Sub(r.Started)),
+		"fixture_ms": ms(r.Finished.Sub(r.Started)), "prior_fails": oc.PriorFails,
 	}
 	for _, x := range r.Measurements {
 		if x.Name == "trip_pf" || x.Name == "trip_se_pf" || x.Name == "spread_pf" || x.Name == "clock_hz" {
@@ -341,7 +345,11 @@ func writeVerdict(w io.Writer, oc *sequences.Outcome, lim sequences.Limits) {
 	}
 	switch r.Verdict {
 	case sequences.Pass:
-		fmt.Fprintf(w, "%s   ======== PASS ========   %s\n", r.Serial, trip)
+		flag := ""
+		if oc.PriorFails > 0 {
+			flag = fmt.Sprintf("   (pass after %d fail(s): flagged in the shift log)", oc.PriorFails)
+		}
+		fmt.Fprintf(w, "%s   ======== PASS ========   %s%s\n", r.Serial, trip, flag)
 	case sequences.Fail:
 		fmt.Fprintf(w, "%s   ######## FAIL ########   %s   %s\n", r.Serial, r.FailCode, trip)
 	default:
