@@ -23,13 +23,13 @@ import (
 // stations and every file of the bad-config corpus; crashers the fuzzer
 // finds are kept under testdata/fuzz/<target>/ and rerun by `go test`.
 
-// addConfigSeeds adds every demo variant, demo station and bad-config file
-// as a seed, so each target starts from valid files of both kinds and from
-// one example of each known mistake.
+// addConfigSeeds adds every demo variant, demo station, bad-config file and
+// the deployment example station as a seed, so each target starts from valid
+// files of both kinds and from one example of each known mistake.
 func addConfigSeeds(f *testing.F) {
 	f.Helper()
 	var files []string
-	for _, glob := range []string{"testdata/variants/*.yaml", "testdata/stations/*.yaml", "testdata/config/bad/*.yaml"} {
+	for _, glob := range []string{"testdata/variants/*.yaml", "testdata/stations/*.yaml", "testdata/config/bad/*.yaml", "deploy/*.yaml"} {
 		m, err := filepath.Glob(filepath.Join(repo, glob))
 		if err != nil || len(m) == 0 {
 			f.Fatalf("seeds %s: %v (%d files)", glob, err, len(m))
@@ -90,6 +90,19 @@ func finite(xs ...float64) bool {
 		}
 	}
 	return true
+}
+
+func TestDeployStationExampleLoads(t *testing.T) {
+	// deploy/station.example.yaml is what the README tells a technician to
+	// copy: it must load, drive real pins and keep the shift log in the
+	// service's state directory (padline.service may write nowhere else).
+	s, err := loadStation(repo + "/deploy/station.example.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s.Driver != "gpio" || !strings.HasPrefix(s.ShiftLog, "/var/lib/padline/") {
+		t.Errorf("driver %q, shift log %q; want gpio under /var/lib/padline/", s.Driver, s.ShiftLog)
+	}
 }
 
 func FuzzVariant(f *testing.F) {

@@ -194,22 +194,27 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		WallClock:   time.Now,
 		Retest:      &sequences.RetestPolicy{Max: v.Plan.Retest.Max, FlagPassAfterFail: v.Plan.Retest.FlagPassAfterFail},
 	}
+	// What the operator must read goes to stdout (the station's screen);
+	// stderr is for the log.
 	if !o.asJSON {
-		fmt.Fprintf(a.stderr, "padline run: %s on station %s, fixture %s; trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
+		fmt.Fprintf(a.stdout, "padline run: %s on station %s, fixture %s; trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
 			v.Name, st.Name, st.Fixture, rep.TestLimits.Low, rep.TestLimits.High, u, uFrom, dbPath)
-		fmt.Fprintln(a.stderr, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
+		fmt.Fprintln(a.stdout, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
 	}
 
-	next := serialSource(a.stdin, o.serial)
+	next := serialSource(ctx, a.stdin, o.serial)
 	tested := 0
 	for {
 		if ctx.Err() != nil {
 			break
 		}
 		if o.serial == "" && !o.asJSON && isTerminal(a.stdin) {
-			fmt.Fprint(a.stderr, "scan serial> ")
+			fmt.Fprint(a.stdout, "scan serial> ")
 		}
-		raw, ok := next()
+		raw, ok, err := next()
+		if err != nil {
+			return fmt.Errorf("read serials: %w", err)
+		}
 		if !ok {
 			break
 		}
@@ -224,7 +229,11 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		if line != nil {
 			line.Load(serial)
 		}
-		if err := waitLid(ctx, fx, clk, o.lidTimeout, a.stderr); err != nil {
+		var lidMsg io.Writer = a.stdout
+		if o.asJSON {
+			lidMsg = a.stderr
+		}
+		if err := waitLid(ctx, fx, clk, o.lidTimeout, lidMsg); err != nil {
 			if line != nil {
 				line.Unload()
 			}
@@ -259,30 +268,61 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		}
 	}
 	if !o.asJSON {
-		fmt.Fprintf(a.stderr, "\n%d unit(s) tested; fixture halted.\n", tested)
+		fmt.Fprintf(a.stdout, "\n%d unit(s) tested; fixture halted.\n", tested)
 	}
 	return nil
 }
 
-// serialSource yields the one --serial, or the lines of r as scanned.
-func serialSource(r io.Reader, one string) func() (string, bool) {
+// serialSource yields the one --serial, or the lines of r as scanned; a
+// read error (or a line over 1 MiB) ends the source with that error. A stop
+// request ends it at once, even while a read is blocked waiting for a scan.
+func serialSource(ctx context.Context, r io.Reader, one string) func() (string, bool, error) {
 	if one != "" {
 		done := false
-		return func() (string, bool) {
+		return func() (string, bool, error) {
 			if done {
-				return "", false
+				return "", false, nil
 			}
 			done = true
-			return one, true
+			return one, true, nil
 		}
 	}
-	sc := bufio.NewScanner(r)
-	sc.Buffer(make([]byte, 64*1024), 1<<20)
-	return func() (string, bool) {
-		if !sc.Scan() {
-			return "", false
+	type line struct {
+		text string
+		err  error
+	}
+	lines := make(chan line)
+	go func() {
+		defer close(lines)
+		sc := bufio.NewScanner(r)
+		sc.Buffer(make([]byte, 64*1024), 1<<20)
+		for sc.Scan() {
+			select {
+			case lines <- line{text: sc.Text()}:
+			case <-ctx.Done():
+				return
+			}
 		}
-		return sc.Text(), true
+		if err := sc.Err(); err != nil {
+			select {
+			case lines <- line{err: err}:
+			case <-ctx.Done():
+			}
+		}
+	}()
+	return func() (string, bool, error) {
+		select {
+		case l, ok := <-lines:
+			if !ok {
+				return "", false, nil
+			}
+			if l.err != nil {
+				return "", false, l.err
+			}
+			return l.text, true, nil
+		case <-ctx.Done():
+			return "", false, nil
+		}
 	}
 }
 

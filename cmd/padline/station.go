@@ -120,8 +120,11 @@ func parseStation(src source) (*Station, error) {
 			}
 		}
 		l.StrayPF = d.nonNegative("ladder.stray_pf", true, 0)
-		l.Operate = msDuration(d.positive("ladder.operate_ms", true, 0))
-		l.Bounce = msDuration(d.nonNegative("ladder.bounce_ms", true, 0))
+		l.Operate = msDuration(d.atMost("ladder.operate_ms", d.positive("ladder.operate_ms", true, 0), maxRelayMS))
+		l.Bounce = msDuration(d.atMost("ladder.bounce_ms", d.nonNegative("ladder.bounce_ms", true, 0), maxRelayMS))
+		if l.Operate <= 0 && d.err == nil {
+			d.fail("ladder.operate_ms", "must be at least 1 µs")
+		}
 		l.RatedOperations = d.positive("ladder.rated_operations", true, 0)
 	}
 	s.Sim = readStationSim(d)
@@ -130,6 +133,18 @@ func parseStation(src source) (*Station, error) {
 		return nil, err
 	}
 	return s, nil
+}
+
+// maxRelayMS bounds a relay's operate or bounce time: even slow armature
+// relays settle in tens of ms, so anything past 10 s is a typo.
+const maxRelayMS = 10000
+
+// atMost fails key when f exceeds max, and returns f.
+func (d *doc) atMost(key string, f, max float64) float64 {
+	if f > max {
+		d.fail(key, "must be at most %g, got %g", max, f)
+	}
+	return f
 }
 
 func msDuration(ms float64) time.Duration {

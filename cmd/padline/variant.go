@@ -150,7 +150,7 @@ func readPlan(d *doc) Plan {
 	if !d.section("plan", false) {
 		return p
 	}
-	p.PowerSettleMS = d.nonNegative("plan.power_settle_ms", false, p.PowerSettleMS)
+	p.PowerSettleMS = d.atMost("plan.power_settle_ms", d.nonNegative("plan.power_settle_ms", false, p.PowerSettleMS), 60000)
 	p.IdlePeriods = d.count("plan.idle_periods", 1, p.IdlePeriods)
 	p.ClockPeriods = d.count("plan.clock_periods", 1, p.ClockPeriods)
 	p.ReleasePeriods = d.count("plan.release_periods", 1, p.ReleasePeriods)
