@@ -28,8 +28,10 @@ if ! command -v "$cc" >/dev/null 2>&1; then
 fi
 
 mkdir -p "$(dirname "$out")"
+# The version every run records: the git description when there is one.
+version=$(git describe --always --dirty 2>/dev/null || echo unknown)
 CGO_ENABLED=1 GOOS=linux GOARCH=arm64 CC=$cc \
-	go build -trimpath -buildvcs=auto -o "$out" ./cmd/padline
+	go build -trimpath -buildvcs=auto -ldflags "-X main.buildVersion=$version" -o "$out" ./cmd/padline
 
 # Check the ELF header: magic, 64-bit class, little-endian, e_machine 183
 # (EM_AARCH64). `file` is used when present; od reads the header otherwise.
