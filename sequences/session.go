@@ -83,6 +83,9 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 	if pr, ok := s.Recorder.(PriorRuns); ok && s.Retest != nil {
 		tested, failed, err := pr.PriorRuns(ctx, serial)
 		if err != nil {
+			if ctx.Err() != nil {
+				return nil, fmt.Errorf("%w: %w", ErrAborted, ctx.Err())
+			}
 			return nil, err
 		}
 		if tested > s.Retest.Max {

@@ -182,7 +182,10 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 			return err
 		}
 	}
-	defer func() { _ = db.SaveRelayOps(context.WithoutCancel(ctx), st.Fixture, fx.RelayOps()) }()
+	// Relay wear is saved after every unit (a power cut loses at most the
+	// unit in progress) and once more on the way out.
+	saveOps := func() { _ = db.SaveRelayOps(context.WithoutCancel(ctx), st.Fixture, fx.RelayOps()) }
+	defer saveOps()
 
 	sess := &sequences.Session{
 		Plan: plan, Station: fx, Clock: clk, Recorder: db,
@@ -223,7 +226,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		}
 		serial, err := cleanSerial(v.Serial, raw)
 		if err != nil {
-			fmt.Fprintf(a.stdout, "REFUSED  %v (unit not tested; scan again)\n", err)
+			a.refused(o.asJSON, raw, fmt.Sprintf("%v (unit not tested; scan again)", err))
 			continue
 		}
 		if line != nil {
@@ -240,7 +243,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 			if errors.Is(err, context.Canceled) {
 				break
 			}
-			fmt.Fprintf(a.stdout, "NOT TESTED  %s: %v\n", serial, err)
+			a.refused(o.asJSON, serial, fmt.Sprintf("not tested: %v", err))
 			continue
 		}
 		oc, err := sess.Test(ctx, serial)
@@ -252,13 +255,14 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", serial)
 			return nil
 		case errors.Is(err, sequences.ErrRetestLimit):
-			fmt.Fprintf(a.stdout, "REFUSED  %v\n", err)
+			a.refused(o.asJSON, serial, err.Error())
 			continue
 		case oc == nil:
 			// Not saved: never show a verdict.
 			return err
 		}
 		tested++
+		saveOps()
 		if o.asJSON {
 			if err := json.NewEncoder(a.stdout).Encode(unitJSON(oc)); err != nil {
 				return err
@@ -267,10 +271,23 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 			writeVerdict(a.stdout, oc, cfg.Limits)
 		}
 	}
-	if !o.asJSON {
+	if o.asJSON {
+		fmt.Fprintf(a.stderr, "%d unit(s) tested; fixture halted.\n", tested)
+	} else {
 		fmt.Fprintf(a.stdout, "\n%d unit(s) tested; fixture halted.\n", tested)
 	}
 	return nil
+}
+
+// refused tells the operator a scan was not tested: a plain line, or with
+// --json an object {"serial": …, "refused": reason}, so the output stays
+// one JSON object per line.
+func (a *app) refused(asJSON bool, serial, reason string) {
+	if asJSON {
+		_ = json.NewEncoder(a.stdout).Encode(map[string]string{"serial": serial, "refused": reason})
+		return
+	}
+	fmt.Fprintf(a.stdout, "REFUSED  %s\n", reason)
 }
 
 // serialSource yields the one --serial, or the lines of r as scanned; a
