@@ -9,6 +9,7 @@ func (a *app) subcommands() []func() *cobra.Command {
 		a.limitsCmd,
 		a.demoCmd,
 		a.historyCmd,
+		a.driftCmd,
 		a.runCmd,
 	}
 }

@@ -33,6 +33,7 @@ type demoOptions struct {
 	search           string
 	compare          bool
 	asJSON           bool
+	drift            demoDrift
 }
 
 // demoCmd builds `padline demo`.
@@ -56,11 +57,20 @@ which fail code, the trip accuracy against the simulator's ground truth on
 good units, and fixture time per unit split into fixed steps, bracketing and
 refinement. --compare-search runs the same units again with the plain
 staircase (one sample per ladder value from the bottom up) and shows both
-side by side.`,
+side by side.
+
+--drift-at N --drift-pf D puts a step into the shift: from unit N on, the
+pad laminate changes and the pad capacitance mean drops by D pF, so units
+trip D pF higher. --ramp-pf-per-1000 R adds a slow ramp (R pF per 1000
+units) from unit N, or from unit 1 with --drift-at 0. Afterwards the default
+drift watch (individuals 3σ + CUSUM, limits from the first min(50, N−1)
+units) runs over the good units' trip points and the summary gives the
+first alarm at or after unit N: chart, rule, unit and lag.`,
 		Example: `  padline demo
   padline demo --units 2000 --compare-search
   padline demo --units 100 --json > shift.jsonl
-  padline demo --db shift.db && padline history --db shift.db --variant QM-205`,
+  padline demo --db shift.db && padline history --db shift.db --variant QM-205
+  padline demo --units 300 --drift-at 150 --drift-pf 4`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return a.demo(cmd.Context(), o)
@@ -75,6 +85,9 @@ side by side.`,
 	f.StringVar(&o.search, "search", "bracket", "trip search: bracket or staircase")
 	f.BoolVar(&o.compare, "compare-search", false, "run the same units with the staircase too and compare")
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per unit, then a summary object")
+	f.IntVar(&o.drift.at, "drift-at", 0, "unit from which the pad capacitance drops (trip points step up); 0 = no step")
+	f.Float64Var(&o.drift.stepPF, "drift-pf", 0, "size of the step at --drift-at, pF of trip point")
+	f.Float64Var(&o.drift.rampPF, "ramp-pf-per-1000", 0, "slow ramp of the trip point, pF per 1000 units, from --drift-at (or unit 1)")
 	return cmd
 }
 
@@ -100,6 +113,9 @@ type demoUnit struct {
 func (a *app) demo(ctx context.Context, o demoOptions) error {
 	if o.units < 1 {
 		return errors.New("demo: --units must be at least 1")
+	}
+	if err := o.drift.check(o.units); err != nil {
+		return err
 	}
 	v, err := loadVariant(o.variant)
 	if err != nil {
@@ -154,7 +170,7 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 			rec = discard{} // the comparison pass re-tests the same serials; log the shift once
 		}
 		t0, c0 := time.Now(), cpuTime()
-		us, err := a.demoShift(ctx, v, st, rep, hash, strategy, serials, rec, o.asJSON || !isTerminal(a.stderr))
+		us, err := a.demoShift(ctx, v, st, rep, hash, strategy, serials, rec, o.asJSON || !isTerminal(a.stderr), o.drift)
 		if err != nil {
 			return err
 		}
@@ -169,13 +185,22 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 				return err
 			}
 		}
-		return enc.Encode(demoSummaryJSON(v, st, rep, strategies, results, cpu, wall))
+		sum := demoSummaryJSON(v, st, rep, strategies, results, cpu, wall)
+		if sum.Drift, err = o.drift.watch(results[0]); err != nil {
+			return err
+		}
+		return enc.Encode(sum)
+	}
+	dw, err := o.drift.watch(results[0])
+	if err != nil {
+		return err
 	}
 	line, err := newSimLine(st, v)
 	if err != nil {
 		return err
 	}
 	writeDemoSummary(a.stdout, v, st, rep, dbPath, o.db != "", strategies, results, cpu, wall, line.TrueStrayPF())
+	writeDemoDrift(a.stdout, dw)
 	return nil
 }
 
@@ -201,7 +226,7 @@ func demoSerials(v *Variant, n int) ([]string, error) {
 
 // demoShift tests every serial on a fresh simulated line.
 func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing.Report, hash, strategy string,
-	serials []string, rec sequences.Recorder, quiet bool) ([]demoUnit, error) {
+	serials []string, rec sequences.Recorder, quiet bool, dr demoDrift) ([]demoUnit, error) {
 	line, err := newSimLine(st, v)
 	if err != nil {
 		return nil, err
@@ -231,7 +256,12 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 	bisect := math.Ceil(math.Log2(float64(len(lv))))
 	prog := newProgress(a.stderr, len(serials), "testing ("+strategy+")", quiet)
 	out := make([]demoUnit, 0, len(serials))
-	for _, serial := range serials {
+	base := unitModel(v, st.Sim)
+	for i, serial := range serials {
+		if err := dr.apply(line, base, i+1); err != nil {
+			prog.done()
+			return nil, err
+		}
 		unit := line.Load(serial)
 		ops0 := sum(fx.RelayOps())
 		oc, err := sess.Test(ctx, serial)
@@ -410,6 +440,8 @@ type demoSummary struct {
 	JitterNs     float64     `json:"jitter_ns"`
 	RungErrSDPF  float64     `json:"rung_err_sd_pf"`
 	Passes       []demoStats `json:"passes"`
+	// Drift is the drift watch over the shift; nil without drift flags.
+	Drift *demoDriftWatch `json:"drift,omitempty"`
 }
 
 func demoSummaryJSON(v *Variant, st *Station, rep timing.Report, strategies []string, results [][]demoUnit, cpu, wall []time.Duration) demoSummary {

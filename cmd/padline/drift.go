@@ -1,0 +1,1377 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime/debug"
+	"slices"
+	"strconv"
+	"strings"
+	"time"
+	"unicode/utf8"
+
+	"github.com/spf13/cobra"
+	"github.com/spf13/viper"
+
+	"padline/fixture/sim"
+	"padline/sequences/timing"
+	"padline/store"
+	"padline/store/drift"
+	"padline/store/drift/chart"
+)
+
+// driftDefaultBaseline is the phase I window when --baseline is not given:
+// the first 50 points (the drift package's own studies use 50).
+const driftDefaultBaseline = 50
+
+// driftDefaultAlarms is how many alarms the report lists by default.
+const driftDefaultAlarms = 50
+
+// driftMemoryLimit is the Go heap's soft limit while drift runs.
+const driftMemoryLimit = 160 << 20
+
+// driftFirstAsk is how many trip points driftGroups asks the store for
+// first (see there).
+const driftFirstAsk = 1 << 20
+
+// driftOptions are the parsed flags of `padline drift`.
+type driftOptions struct {
+	db, stationFile, variant string
+	filter                   store.Filter
+	since, until             string // as given, for the report
+	by, chart, rules         string
+	subgroup, baseline       int
+	svg, png                 string
+	asJSON                   bool
+	csvFile, column          string
+	uncertainty              float64
+	uncertaintyFrom          string
+	lsl, usl                 float64 // NaN = from the variant
+	alarms                   int
+	o                        drift.Options
+}
+
+// driftCmd builds `padline drift` and its `study` subcommand.
+func (a *app) driftCmd() *cobra.Command {
+	var (
+		o                                driftOptions
+		dbFlag, station, fixtureN, lot   string
+		target, sigma, k, h, lambda, wid float64
+	)
+	cmd := &cobra.Command{
+		Use:   "drift --variant V [filters] | --csv FILE --column NAME",
+		Short: "Watch trip points for drift: control charts, run rules, EWMA/CUSUM, capability, yield",
+		Long: `drift asks the shift log whether a variant's trip points are moving: a new reel
+of sense resistors, another pad laminate, a humid afternoon or a wearing relay
+moves them long before units start to fail.
+
+It reads the trip-point series of --variant (oldest first, narrowed by
+--since/--until, --station, --fixture, --lot), estimates the centre and σ
+from a baseline window (phase I: the first --baseline points, always
+printed), applies those limits to the whole series (phase II), and lists the
+alarms numbered as on the chart, with the unit index, run time and serial.
+
+Charts (--chart):
+  watch    the default watch: individuals with the 3σ limit alone (large
+           jumps at once) plus the tabular CUSUM (k = 0.5σ, h = 5σ: small
+           steps); in-control ARL about 450 with a 50-point baseline, a 1σ
+           step flagged after a median of 9 units (see 'padline drift study')
+  imr      individuals and moving range, with the run rules of --rules
+  xbar-r   subgroup means and ranges, --subgroup N consecutive units (2…10)
+  xbar-s   subgroup means and standard deviations
+  ewma     EWMA with exact time-varying limits (--lambda, --width as L)
+  cusum    tabular CUSUM (--k, --h in σ)
+--rules picks the run rules on the individuals / X̄ chart: we (Western
+Electric, default for imr and xbar), nelson, or limits (3σ only; the watch).
+
+Capability Cp/Cpk (σ within subgroups) and Pp/Ppk (overall σ) are against
+the variant's test limits, computed as 'padline limits' does from the
+variant's configuration (the latest one in the shift log, else the built-in
+or file of that name) with the station's uncertainty U (--uncertainty-pf,
+else the --station-file's, else the stand-in 0.3 pF); --lsl/--usl override
+them. First-pass yield (each serial's first unit verdict) comes with its
+exact Clopper–Pearson 95 % interval.
+
+--by station|fixture|lot|shift reports each group on its own (shifts: early
+06–14, late 14–22, night 22–06 local time, named by the day they start).
+
+--csv FILE --column NAME analyses a column of numbers from a CSV file with a
+header row instead (blank cells are skipped); --target, --sigma, --k, --h,
+--lambda and --width override what would be estimated.
+
+--svg/--png FILE renders the charts (with --by, one file per group, the
+group's name added to FILE). --json prints one JSON object.
+
+The shift log is found as 'padline history' finds it: --db, $PADLINE_DB,
+the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
+		Example: `  padline drift --variant QM-205
+  padline drift --variant QM-205 --since 8h --svg drift.svg
+  padline drift --variant QM-205 --by fixture --chart xbar-r --subgroup 5
+  padline drift --variant QM-205 --chart ewma --lambda 0.1 --json
+  padline drift --csv bench.csv --column trip_pf --target 29.7 --sigma 4.2
+  padline drift study --runs 5000`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			v := viper.New()
+			v.SetEnvPrefix("PADLINE")
+			if err := v.BindEnv("db"); err != nil {
+				return err
+			}
+			if err := v.BindPFlag("db", cmd.Flags().Lookup("db")); err != nil {
+				return err
+			}
+			o.db = v.GetString("db")
+			fl := cmd.Flags()
+			if o.stationFile != "" {
+				st, err := loadStation(o.stationFile)
+				if err != nil {
+					return fmt.Errorf("drift: %w", err)
+				}
+				if o.db == "" {
+					o.db = st.ShiftLog
+				}
+				if !fl.Changed("uncertainty-pf") {
+					o.uncertainty, o.uncertaintyFrom = stationU(st)
+				}
+			}
+			if o.db == "" {
+				o.db = defaultShiftLog
+			}
+			if fl.Changed("uncertainty-pf") {
+				o.uncertaintyFrom = "--uncertainty-pf"
+			} else if o.uncertaintyFrom == "" {
+				o.uncertaintyFrom = "stand-in (no station file)"
+			}
+			if !fl.Changed("lsl") {
+				o.lsl = math.NaN()
+			}
+			if !fl.Changed("usl") {
+				o.usl = math.NaN()
+			}
+			if fl.Changed("target") {
+				o.o.Target, o.o.FixTarget = target, true
+			}
+			set := func(name string, val float64, dst *float64) error {
+				if !fl.Changed(name) {
+					return nil
+				}
+				if !(val > 0) || math.IsInf(val, 0) {
+					return fmt.Errorf("drift: --%s must be a positive number, got %g", name, val)
+				}
+				*dst = val
+				return nil
+			}
+			for _, s := range []struct {
+				name string
+				val  float64
+				dst  *float64
+			}{{"sigma", sigma, &o.o.Sigma}, {"k", k, &o.o.K}, {"h", h, &o.o.H}, {"lambda", lambda, &o.o.Lambda}, {"width", wid, &o.o.Width}} {
+				if err := set(s.name, s.val, s.dst); err != nil {
+					return err
+				}
+			}
+			if o.o.Lambda > 1 {
+				return fmt.Errorf("drift: --lambda must be in (0, 1], got %g", o.o.Lambda)
+			}
+			if o.chart == "ewma" {
+				o.o.L = o.o.Width
+			}
+			now := time.Now()
+			var err error
+			o.filter = store.Filter{Station: station, Fixture: fixtureN, Lot: lot}
+			if o.filter.Since, err = parseWhen(o.since, now); err != nil {
+				return fmt.Errorf("drift: --since: %w", err)
+			}
+			if o.filter.Until, err = parseWhen(o.until, now); err != nil {
+				return fmt.Errorf("drift: --until: %w", err)
+			}
+			if err := o.check(); err != nil {
+				return err
+			}
+			return a.drift(cmd.Context(), o)
+		},
+	}
+	fl := cmd.Flags()
+	fl.StringVar(&dbFlag, "db", "", "shift log file (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
+	fl.StringVar(&o.stationFile, "station-file", "", "station file (or built-in name): its shift_log and uncertainty_pf")
+	fl.StringVar(&o.variant, "variant", "", "variant whose trip points to watch, e.g. QM-205 (or a .yaml file)")
+	fl.StringVar(&o.since, "since", "", "from this time on (inclusive): 8h, 2d, 2026-11-30, \"2026-11-30 14:00\"")
+	fl.StringVar(&o.until, "until", "", "before this time (exclusive); same forms as --since")
+	fl.StringVar(&station, "station", "", "only runs of this station")
+	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
+	fl.StringVar(&lot, "lot", "", "only runs of this lot")
+	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift")
+	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
+	fl.StringVar(&o.rules, "rules", "", "run rules on the individuals/X̄ chart: we, nelson or limits (default: we; limits for watch)")
+	fl.IntVar(&o.subgroup, "subgroup", 5, "subgroup size for xbar-r and xbar-s (2…10)")
+	fl.IntVar(&o.baseline, "baseline", driftDefaultBaseline, "phase I window: limits come from the first N points")
+	fl.StringVar(&o.svg, "svg", "", "render the charts to this SVG file")
+	fl.StringVar(&o.png, "png", "", "render the charts to this PNG file")
+	fl.BoolVar(&o.asJSON, "json", false, "print one JSON object instead of the report")
+	fl.StringVar(&o.csvFile, "csv", "", "analyse a column of this CSV file instead of the shift log")
+	fl.StringVar(&o.column, "column", "", "with --csv: the header name of the column to analyse")
+	fl.Float64Var(&target, "target", 0, "process centre to use instead of the baseline mean")
+	fl.Float64Var(&sigma, "sigma", 0, "process σ per unit to use instead of the baseline estimate")
+	fl.Float64Var(&k, "k", drift.DefaultK, "CUSUM reference value k, in σ")
+	fl.Float64Var(&h, "h", drift.DefaultH, "CUSUM decision interval h, in σ")
+	fl.Float64Var(&lambda, "lambda", drift.DefaultLambda, "EWMA weight λ")
+	fl.Float64Var(&wid, "width", 3, "limit half-width in σ (Shewhart; for --chart ewma its L, default 2.86)")
+	fl.Float64Var(&o.uncertainty, "uncertainty-pf", defaultUncertaintyPF, "station's expanded uncertainty U (k = 2), pF: the guard band of the test limits")
+	fl.Float64Var(&o.lsl, "lsl", 0, "lower limit for capability instead of the variant's test limit")
+	fl.Float64Var(&o.usl, "usl", 0, "upper limit for capability instead of the variant's test limit")
+	fl.IntVar(&o.alarms, "alarms", driftDefaultAlarms, "list at most this many alarms per group, the most recent (0 = all)")
+	cmd.AddCommand(a.driftStudyCmd())
+	return cmd
+}
+
+// check validates the flags that do not need the data.
+func (o *driftOptions) check() error {
+	switch {
+	case o.csvFile == "" && o.variant == "":
+		return errors.New("drift: give --variant V, or --csv FILE --column NAME (see padline drift --help)")
+	case o.csvFile != "" && o.column == "":
+		return errors.New("drift: --csv needs --column NAME (the header of the column to analyse)")
+	case o.csvFile == "" && o.column != "":
+		return errors.New("drift: --column goes with --csv FILE")
+	case o.csvFile != "" && o.by != "":
+		return errors.New("drift: --by works on the shift log, not on --csv")
+	case o.svg != "" && o.png != "":
+		return errors.New("drift: give --svg or --png, not both")
+	case o.baseline < 2:
+		return fmt.Errorf("drift: --baseline must be at least 2 points, got %d", o.baseline)
+	case o.alarms < 0:
+		return fmt.Errorf("drift: --alarms must be ≥ 0, got %d", o.alarms)
+	}
+	switch o.by {
+	case "", "station", "fixture", "lot", "shift":
+	default:
+		return fmt.Errorf("drift: --by must be station, fixture, lot or shift, got %q", o.by)
+	}
+	switch o.chart {
+	case "watch", "imr", "ewma", "cusum":
+	case "xbar-r", "xbar-s":
+		if o.subgroup < drift.MinSubgroup || o.subgroup > drift.MaxSubgroup {
+			return fmt.Errorf("drift: --subgroup must be %d…%d, got %d", drift.MinSubgroup, drift.MaxSubgroup, o.subgroup)
+		}
+	default:
+		return fmt.Errorf("drift: --chart must be watch, imr, xbar-r, xbar-s, ewma or cusum, got %q", o.chart)
+	}
+	if _, err := driftRules(o.rules, o.chart); err != nil {
+		return err
+	}
+	return nil
+}
+
+// driftRules resolves --rules for a chart.
+func driftRules(name, chartKind string) ([]drift.Rule, error) {
+	switch name {
+	case "":
+		if chartKind == "watch" {
+			return drift.DefaultSet.Rules, nil
+		}
+		return drift.WesternElectric, nil
+	case "we":
+		return drift.WesternElectric, nil
+	case "nelson":
+		return drift.NelsonRules, nil
+	case "limits":
+		return drift.LimitsOnly, nil
+	}
+	return nil, fmt.Errorf("drift: --rules must be we, nelson or limits, got %q", name)
+}
+
+// driftSeries is one group's series: values with, when they come from the
+// shift log, each point's run id and finish time.
+type driftSeries struct {
+	key    string
+	x      []float64
+	runIDs []int64
+	times  []int64 // Unix ns
+	filter store.Filter
+	counts <-chan countsResult // the group's verdict totals, computed alongside
+}
+
+// countsResult is one Counts answer.
+type countsResult struct {
+	c   store.Counts
+	err error
+}
+
+// driftCountWorkers bounds the Counts queries running at once (each holds
+// a SQLite connection).
+const driftCountWorkers = 4
+
+// startCounts runs db.Counts(f) in the background, at most
+// driftCountWorkers at a time (sem), so the first-pass yield query overlaps
+// the trip series read and the charts.
+func startCounts(ctx context.Context, db *store.DB, f store.Filter, sem chan struct{}) <-chan countsResult {
+	ch := make(chan countsResult, 1)
+	go func() {
+		sem <- struct{}{}
+		defer func() { <-sem }()
+		c, err := db.Counts(ctx, f)
+		ch <- countsResult{c, err}
+	}()
+	return ch
+}
+
+// driftAnalysis is what analyseSeries finds in one series.
+type driftAnalysis struct {
+	window drift.Window
+	charts []drift.Chart
+	alarms []drift.Alarm
+	cap    *drift.Capability
+	capErr error
+}
+
+// analyseSeries runs the chosen chart on x with limits from the first
+// baseline points, and capability against low/high (NaN = none).
+func analyseSeries(x []float64, o driftOptions, low, high float64) (driftAnalysis, error) {
+	var an driftAnalysis
+	if len(x) < 2 {
+		return an, fmt.Errorf("%d points: too few to chart (need at least 2)", len(x))
+	}
+	an.window = drift.FirstN(min(o.baseline, len(x)))
+	rules, err := driftRules(o.rules, o.chart)
+	if err != nil {
+		return an, err
+	}
+	opt := o.o
+	opt.Rules = rules
+	sub, useS := 1, false
+	switch o.chart {
+	case "watch":
+		set := drift.DefaultSet
+		set.Rules = rules
+		w, err := drift.WatchSeries(x, an.window, opt, set)
+		if err != nil {
+			return an, err
+		}
+		an.charts, an.alarms = w.Charts, w.Alarms
+	case "imr", "xbar-r", "xbar-s":
+		var s drift.Shewhart
+		switch o.chart {
+		case "imr":
+			s, err = drift.IndividualsChart(x, an.window, opt)
+		case "xbar-r":
+			sub = o.subgroup
+			s, err = drift.XbarRChart(x, sub, an.window, opt)
+		default:
+			sub, useS = o.subgroup, true
+			s, err = drift.XbarSChart(x, sub, an.window, opt)
+		}
+		if err != nil {
+			return an, err
+		}
+		an.charts, an.alarms = []drift.Chart{s.Location, s.Spread}, s.Alarms
+	case "ewma", "cusum":
+		var c drift.Chart
+		if o.chart == "ewma" {
+			c, err = drift.EWMAChart(x, an.window, opt)
+		} else {
+			c, err = drift.CUSUMChart(x, an.window, opt)
+		}
+		if err != nil {
+			return an, err
+		}
+		an.alarms = drift.Number(&c)
+		an.charts = []drift.Chart{c}
+	}
+	if math.IsNaN(low) && math.IsNaN(high) {
+		an.capErr = errors.New("no limits: give --variant or --lsl/--usl")
+	} else if c, err := drift.CapabilityOf(x, sub, useS, low, high); err != nil {
+		an.capErr = err
+	} else {
+		an.cap = &c
+	}
+	return an, nil
+}
+
+// drift runs the command.
+func (a *app) drift(ctx context.Context, o driftOptions) error {
+	// A million points and their charts fit well inside 200 MB; a soft
+	// limit keeps the collector from letting garbage double the heap
+	// (unless GOMEMLIMIT says otherwise).
+	if os.Getenv("GOMEMLIMIT") == "" {
+		defer debug.SetMemoryLimit(debug.SetMemoryLimit(driftMemoryLimit))
+	}
+
+	rep := driftReport{Chart: o.chart, Baseline: o.baseline, UncertaintyPF: jnum(math.NaN())}
+	low, high := o.lsl, o.usl
+	var groups []driftSeries
+	var db *store.DB
+	if o.csvFile != "" {
+		x, err := readSeriesCSV(o.csvFile, o.column)
+		if err != nil {
+			return fmt.Errorf("drift: %w", err)
+		}
+		rep.Source = fmt.Sprintf("CSV %s, column %s", o.csvFile, o.column)
+		groups = []driftSeries{{x: x}}
+	} else {
+		if _, err := os.Stat(o.db); errors.Is(err, fs.ErrNotExist) {
+			return fmt.Errorf("drift: no shift log at %s (give --db PATH, set PADLINE_DB, or --station-file)", o.db)
+		}
+		var err error
+		db, err = store.Open(o.db)
+		if err != nil {
+			return fmt.Errorf("drift: %w", err)
+		}
+		defer db.Close()
+		rep.Source = "shift log " + o.db
+		rep.Since, rep.Until = o.since, o.until
+		rep.Station, rep.Fixture, rep.Lot, rep.By = o.filter.Station, o.filter.Fixture, o.filter.Lot, o.by
+	}
+	if o.variant != "" {
+		v, from, err := driftVariant(ctx, db, o.variant)
+		switch {
+		case err != nil && o.csvFile != "":
+			return fmt.Errorf("drift: %w", err)
+		case err != nil:
+			// Runs of a variant this program has no file for: the trip
+			// series is still there, capability needs --lsl/--usl.
+			rep.Variant = o.variant
+			rep.LimitsFrom = "none: " + err.Error()
+		default:
+			rep.Variant = v.Name
+			lr, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: o.uncertainty})
+			if err != nil {
+				return fmt.Errorf("drift: %w", err)
+			}
+			if math.IsNaN(low) {
+				low = lr.TestLimits.Low
+			}
+			if math.IsNaN(high) {
+				high = lr.TestLimits.High
+			}
+			rep.UncertaintyPF = jnum(o.uncertainty)
+			rep.LimitsFrom = fmt.Sprintf("variant %s from %s, U %.2f pF (%s)", v.Name, from, o.uncertainty, o.uncertaintyFrom)
+		}
+	}
+	if !math.IsNaN(o.lsl) || !math.IsNaN(o.usl) {
+		rep.LimitsFrom = "--lsl/--usl"
+		if !math.IsNaN(o.lsl) && !math.IsNaN(o.usl) && o.lsl >= o.usl {
+			return fmt.Errorf("drift: --lsl %g must be below --usl %g", o.lsl, o.usl)
+		}
+	}
+	rep.Limits = [2]jnum{jnum(low), jnum(high)}
+	if db != nil {
+		o.filter.Variant = rep.Variant
+		ctx, cancel := context.WithCancel(ctx)
+		defer cancel() // stops Counts queries nobody waits for after an error
+		sem := make(chan struct{}, driftCountWorkers)
+		var whole <-chan countsResult
+		if o.by == "" {
+			whole = startCounts(ctx, db, o.filter, sem)
+		}
+		var err error
+		if groups, err = driftGroups(ctx, db, o.filter, o.by); err != nil {
+			return fmt.Errorf("drift: %w", err)
+		}
+		if len(groups) == 0 {
+			return fmt.Errorf("drift: no trip points of %s in %s%s", rep.Variant, o.db, describeFilter(o))
+		}
+		for i := range groups {
+			if whole != nil {
+				groups[i].counts = whole
+			} else {
+				groups[i].counts = startCounts(ctx, db, groups[i].filter, sem)
+			}
+		}
+	}
+	for _, g := range groups {
+		gr, err := a.driftGroup(ctx, db, o, g, low, high)
+		if err != nil {
+			if o.by != "" {
+				err = fmt.Errorf("%s %s: %w", o.by, g.key, err)
+			}
+			return fmt.Errorf("drift: %w", err)
+		}
+		rep.Groups = append(rep.Groups, gr)
+	}
+	if o.asJSON {
+		enc := json.NewEncoder(a.stdout)
+		enc.SetIndent("", "  ")
+		return enc.Encode(rep)
+	}
+	out := bufio.NewWriter(a.stdout)
+	writeDriftReport(out, rep)
+	return out.Flush()
+}
+
+// describeFilter states the filters for a "nothing found" message.
+func describeFilter(o driftOptions) string {
+	var parts []string
+	for _, p := range [][2]string{{"since", o.since}, {"until", o.until}, {"station", o.filter.Station}, {"fixture", o.filter.Fixture}, {"lot", o.filter.Lot}} {
+		if p[1] != "" {
+			parts = append(parts, p[0]+" "+p[1])
+		}
+	}
+	if len(parts) == 0 {
+		return ""
+	}
+	return " (" + strings.Join(parts, ", ") + ")"
+}
+
+// driftVariant finds the variant's configuration: a file when ref names
+// one, else the latest configuration the shift log holds for that name (the
+// limits the line judged against), else the built-in.
+func driftVariant(ctx context.Context, db *store.DB, ref string) (*Variant, string, error) {
+	ext := strings.ToLower(filepath.Ext(ref))
+	if st, err := os.Stat(ref); (err == nil && !st.IsDir()) || ext == ".yaml" || ext == ".yml" {
+		v, err := loadVariant(ref)
+		if err != nil {
+			return nil, "", err
+		}
+		return v, "file " + ref, nil
+	}
+	if db != nil {
+		hist, err := db.ConfigHistory(ctx, ref)
+		if err != nil {
+			return nil, "", err
+		}
+		if n := len(hist); n > 0 {
+			last := hist[n-1]
+			raw, err := db.Snapshot(ctx, ref, last.Hash)
+			if err == nil {
+				v, perr := parseVariant(newSource("shift log config "+histShortHash(last.Hash), raw))
+				if perr == nil {
+					return v, fmt.Sprintf("the shift log's latest configuration %s (first seen %s)",
+						histShortHash(last.Hash), last.FirstSeen.Local().Format("2006-01-02 15:04")), nil
+				}
+			}
+		}
+	}
+	v, err := loadVariant(ref)
+	if err != nil {
+		return nil, "", err
+	}
+	return v, v.Source.Name, nil
+}
+
+// driftGroups reads the trip series and splits it by the --by key, groups
+// in key order (shift keys sort by time). The store's points are copied to
+// compact arrays and dropped.
+func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string) ([]driftSeries, error) {
+	// Ask for the last driftFirstAsk points first: the store sizes its
+	// slice for them at once instead of growing it (a million points are
+	// 100 MB; growing briefly holds the old array and the new). Only when
+	// the answer is full can there be more, and then ask for all.
+	pts, err := db.TripSeries(ctx, f, driftFirstAsk)
+	if err == nil && len(pts) == driftFirstAsk {
+		pts = nil
+		pts, err = db.TripSeries(ctx, f, 0)
+	}
+	if err != nil {
+		return nil, err
+	}
+	if by == "" {
+		g := driftSeries{x: make([]float64, len(pts)), runIDs: make([]int64, len(pts)), times: make([]int64, len(pts)), filter: f}
+		for i, p := range pts {
+			g.x[i], g.runIDs[i], g.times[i] = p.TripPF, p.RunID, p.Finished.UnixNano()
+		}
+		return []driftSeries{g}, nil
+	}
+	idx := map[string]int{}
+	var out []driftSeries
+	for _, p := range pts {
+		key, gf := driftKey(p, by, f)
+		i, ok := idx[key]
+		if !ok {
+			i = len(out)
+			idx[key] = i
+			out = append(out, driftSeries{key: key, filter: gf})
+		}
+		g := &out[i]
+		g.x = append(g.x, p.TripPF)
+		g.runIDs = append(g.runIDs, p.RunID)
+		g.times = append(g.times, p.Finished.UnixNano())
+	}
+	slices.SortStableFunc(out, func(a, b driftSeries) int { return strings.Compare(a.key, b.key) })
+	return out, nil
+}
+
+// driftKey is a point's group under --by, and the filter that selects the
+// group's runs (for its yield).
+func driftKey(p store.TripPoint, by string, f store.Filter) (string, store.Filter) {
+	switch by {
+	case "station":
+		f.Station = p.Station
+		return p.Station, f
+	case "fixture":
+		f.Fixture = p.Fixture
+		return p.Fixture, f
+	case "lot":
+		f.Lot = p.Lot
+		return p.Lot, f
+	}
+	name, start, end := shiftOf(p.Finished.Local())
+	if f.Since.IsZero() || f.Since.Before(start) {
+		f.Since = start
+	}
+	if f.Until.IsZero() || f.Until.After(end) {
+		f.Until = end
+	}
+	return name, f
+}
+
+// shiftOf names the shift t falls in (early 06–14, late 14–22, night
+// 22–06, dated by the day it starts) and gives its bounds, in t's zone.
+func shiftOf(t time.Time) (name string, start, end time.Time) {
+	day := time.Date(t.Year(), t.Month(), t.Day(), 0, 0, 0, 0, t.Location())
+	h := t.Hour()
+	var which string
+	switch {
+	case h < 6:
+		day = day.AddDate(0, 0, -1)
+		which, start = "night", day.Add(22*time.Hour)
+	case h < 14:
+		which, start = "early", day.Add(6*time.Hour)
+	case h < 22:
+		which, start = "late", day.Add(14*time.Hour)
+	default:
+		which, start = "night", day.Add(22*time.Hour)
+	}
+	return day.Format("2006-01-02") + " " + which, start, start.Add(8 * time.Hour)
+}
+
+// driftGroup analyses one group and assembles its report.
+func (a *app) driftGroup(ctx context.Context, db *store.DB, o driftOptions, g driftSeries, low, high float64) (driftGroupReport, error) {
+	gr := driftGroupReport{Key: g.key, Points: len(g.x)}
+	if len(g.times) > 0 {
+		gr.First, gr.Last = tptr(g.times[0]), tptr(g.times[len(g.times)-1])
+	}
+	an, err := analyseSeries(g.x, o, low, high)
+	if err != nil {
+		return gr, err
+	}
+	w := an.window
+	if len(g.times) > 0 {
+		w.From, w.To = time.Unix(0, g.times[w.Start]), time.Unix(0, g.times[w.End-1])
+	}
+	gr.Baseline = driftWindowJSON{FirstUnit: w.Start + 1, LastUnit: w.End, Points: w.Len(), Text: w.String()}
+	if len(g.times) > 0 {
+		gr.Baseline.From, gr.Baseline.To = &w.From, &w.To
+	}
+	for _, c := range an.charts {
+		gr.Charts = append(gr.Charts, chartJSON(c))
+	}
+	gr.AlarmCount = len(an.alarms)
+	shown := an.alarms
+	if o.alarms > 0 && len(shown) > o.alarms {
+		shown = shown[len(shown)-o.alarms:] // the most recent
+	}
+	for _, al := range shown {
+		aj := driftAlarmJSON{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
+			Unit: al.Unit + 1, Point: al.Index + 1, Side: al.Side, Note: al.Note}
+		if al.Onset >= 0 && al.Chart == drift.CUSUM {
+			aj.OnsetUnit = al.Onset + 1
+		}
+		if al.Unit < len(g.runIDs) {
+			aj.RunID = g.runIDs[al.Unit]
+			aj.Time = tptr(g.times[al.Unit])
+			if db != nil {
+				aj.Serial = runSerial(ctx, db, g.filter.Variant, aj.RunID, *aj.Time)
+			}
+		}
+		gr.Alarms = append(gr.Alarms, aj)
+	}
+	if an.cap != nil {
+		c := an.cap
+		gr.Capability = &capabilityJSON{N: c.N, Low: jnum(c.Low), High: jnum(c.High), Mean: jnum(c.Mean),
+			SigmaWithin: jnum(c.SigmaWithin), SigmaOverall: jnum(c.SigmaOverall), Method: c.Method,
+			Cp: jnum(c.Cp), Cpk: jnum(c.Cpk), Pp: jnum(c.Pp), Ppk: jnum(c.Ppk)}
+	} else {
+		gr.CapabilityNote = an.capErr.Error()
+	}
+	if g.counts != nil {
+		res := <-g.counts
+		cnt, err := res.c, res.err
+		if err != nil {
+			return gr, err
+		}
+		gr.Runs = cnt.Runs
+		if cnt.FirstUnits > 0 {
+			y, err := drift.FirstPassYield(int(cnt.FirstPass), int(cnt.FirstUnits), 0.95)
+			if err != nil {
+				return gr, err
+			}
+			gr.Yield = &yieldJSON{Pass: y.Pass, Total: y.Total, Rate: jnum(y.Rate), Low: jnum(y.Low), High: jnum(y.High), Confidence: y.Confidence}
+		}
+	}
+	if path := driftChartPath(o, g.key); path != "" {
+		title := "trip point"
+		if o.variant != "" {
+			title = o.variant + " trip point"
+		}
+		if g.key != "" {
+			title += " — " + o.by + " " + g.key
+		}
+		unit := "pF"
+		if o.csvFile != "" {
+			title, unit = o.column, ""
+		}
+		copts := chart.Options{Title: title + " (" + driftChartTitle(o.chart) + ")", Quantity: "trip point", Unit: unit}
+		if o.csvFile != "" {
+			copts.Quantity = o.column
+		}
+		if err := chart.WriteFile(path, copts, an.charts...); err != nil {
+			return gr, err
+		}
+		gr.ChartFile = path
+	}
+	return gr, nil
+}
+
+func driftChartTitle(kind string) string {
+	if kind == "watch" {
+		return "default watch"
+	}
+	return kind
+}
+
+// driftChartPath is the chart file of a group: --svg/--png as given, with
+// the group's name before the extension under --by.
+func driftChartPath(o driftOptions, key string) string {
+	path := o.svg
+	if path == "" {
+		path = o.png
+	}
+	if path == "" || key == "" {
+		return path
+	}
+	ext := filepath.Ext(path)
+	safe := strings.Map(func(r rune) rune {
+		if r == '-' || r == '_' || r == '.' || (r >= '0' && r <= '9') || (r >= 'a' && r <= 'z') || (r >= 'A' && r <= 'Z') {
+			return r
+		}
+		return '_'
+	}, key)
+	return strings.TrimSuffix(path, ext) + "-" + safe + ext
+}
+
+// runSerial looks up the serial of one run (found by its finish time, an
+// indexed range of one nanosecond); "" when it cannot be found.
+func runSerial(ctx context.Context, db *store.DB, variant string, id int64, at time.Time) string {
+	for e, err := range db.Runs(ctx, store.Filter{Variant: variant, Since: at, Until: at.Add(1)}) {
+		if err != nil {
+			return ""
+		}
+		if e.ID == id {
+			return e.Serial
+		}
+	}
+	return ""
+}
+
+func tptr(ns int64) *time.Time {
+	t := time.Unix(0, ns)
+	return &t
+}
+
+// jnum is a float that encodes NaN and ±Inf as JSON null.
+type jnum float64
+
+// MarshalJSON writes the number, or null when it is not finite.
+func (f jnum) MarshalJSON() ([]byte, error) {
+	v := float64(f)
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return []byte("null"), nil
+	}
+	return strconv.AppendFloat(nil, v, 'g', -1, 64), nil
+}
+
+// driftReport is the whole answer; --json prints it as one object.
+type driftReport struct {
+	Source        string             `json:"source"`
+	Variant       string             `json:"variant,omitempty"`
+	Since         string             `json:"since,omitempty"`
+	Until         string             `json:"until,omitempty"`
+	Station       string             `json:"station,omitempty"`
+	Fixture       string             `json:"fixture,omitempty"`
+	Lot           string             `json:"lot,omitempty"`
+	By            string             `json:"by,omitempty"`
+	Chart         string             `json:"chart"`
+	Baseline      int                `json:"baseline_points"`
+	Limits        [2]jnum            `json:"limits"`
+	LimitsFrom    string             `json:"limits_from,omitempty"`
+	UncertaintyPF jnum               `json:"uncertainty_pf"`
+	Groups        []driftGroupReport `json:"groups"`
+}
+
+type driftGroupReport struct {
+	Key            string           `json:"key,omitempty"`
+	Points         int              `json:"points"`
+	First          *time.Time       `json:"first,omitempty"`
+	Last           *time.Time       `json:"last,omitempty"`
+	Baseline       driftWindowJSON  `json:"baseline"`
+	Charts         []driftChartJSON `json:"charts"`
+	AlarmCount     int              `json:"alarm_count"`
+	Alarms         []driftAlarmJSON `json:"alarms"`
+	Capability     *capabilityJSON  `json:"capability,omitempty"`
+	CapabilityNote string           `json:"capability_note,omitempty"`
+	Runs           int64            `json:"runs,omitempty"`
+	Yield          *yieldJSON       `json:"first_pass_yield,omitempty"`
+	ChartFile      string           `json:"chart_file,omitempty"`
+}
+
+type driftWindowJSON struct {
+	FirstUnit int        `json:"first_unit"` // 1-based
+	LastUnit  int        `json:"last_unit"`  // 1-based, inclusive
+	Points    int        `json:"points"`
+	From      *time.Time `json:"from,omitempty"`
+	To        *time.Time `json:"to,omitempty"`
+	Text      string     `json:"text"`
+}
+
+type driftChartJSON struct {
+	Kind   string `json:"kind"`
+	Title  string `json:"title"`
+	Size   int    `json:"size"`
+	Points int    `json:"points"`
+	Center jnum   `json:"center"`
+	// Lower and Upper are the limits at the last point (EWMA limits widen
+	// towards their steady value; the others are constant).
+	Lower  jnum   `json:"lower"`
+	Upper  jnum   `json:"upper"`
+	Target jnum   `json:"target"`
+	Sigma  jnum   `json:"sigma"`
+	Method string `json:"method"`
+	Alarms int    `json:"alarms"`
+}
+
+func chartJSON(c drift.Chart) driftChartJSON {
+	j := driftChartJSON{Kind: string(c.Kind), Title: c.Kind.Title(), Size: c.Size, Points: len(c.Stat),
+		Center: jnum(c.Center), Lower: jnum(math.NaN()), Upper: jnum(math.NaN()),
+		Target: jnum(c.Target), Sigma: jnum(c.Sigma), Method: c.Method, Alarms: len(c.Alarms)}
+	if n := len(c.Upper); n > 0 {
+		j.Upper = jnum(c.Upper[n-1])
+	}
+	if n := len(c.Lower); n > 0 {
+		j.Lower = jnum(c.Lower[n-1])
+	}
+	return j
+}
+
+type driftAlarmJSON struct {
+	Seq         int        `json:"seq"`
+	Chart       string     `json:"chart"`
+	Rule        string     `json:"rule"`
+	Description string     `json:"description"`
+	Unit        int        `json:"unit"`  // 1-based series index
+	Point       int        `json:"point"` // 1-based chart point
+	Side        int        `json:"side"`
+	OnsetUnit   int        `json:"onset_unit,omitempty"`
+	Note        string     `json:"note,omitempty"`
+	RunID       int64      `json:"run_id,omitempty"`
+	Time        *time.Time `json:"time,omitempty"`
+	Serial      string     `json:"serial,omitempty"`
+}
+
+type capabilityJSON struct {
+	N            int    `json:"n"`
+	Low          jnum   `json:"low"`
+	High         jnum   `json:"high"`
+	Mean         jnum   `json:"mean"`
+	SigmaWithin  jnum   `json:"sigma_within"`
+	SigmaOverall jnum   `json:"sigma_overall"`
+	Method       string `json:"sigma_within_method"`
+	Cp           jnum   `json:"cp"`
+	Cpk          jnum   `json:"cpk"`
+	Pp           jnum   `json:"pp"`
+	Ppk          jnum   `json:"ppk"`
+}
+
+type yieldJSON struct {
+	Pass       int     `json:"first_pass"`
+	Total      int     `json:"first_units"`
+	Rate       jnum    `json:"rate"`
+	Low        jnum    `json:"low"`
+	High       jnum    `json:"high"`
+	Confidence float64 `json:"confidence"`
+}
+
+// writeDriftReport prints the report for people.
+func writeDriftReport(w io.Writer, r driftReport) {
+	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
+	head := r.Source
+	if r.Variant != "" {
+		head = r.Variant + " trip points, " + head
+	}
+	var sel []string
+	for _, s := range [][2]string{{"since", r.Since}, {"until", r.Until}, {"station", r.Station}, {"fixture", r.Fixture}, {"lot", r.Lot}} {
+		if s[1] != "" {
+			sel = append(sel, s[0]+" "+s[1])
+		}
+	}
+	if len(sel) > 0 {
+		head += " (" + strings.Join(sel, ", ") + ")"
+	}
+	p("drift            %s", head)
+	p("chart            %s", driftChartDesc(r.Chart))
+	lim := "none"
+	if !math.IsNaN(float64(r.Limits[0])) || !math.IsNaN(float64(r.Limits[1])) {
+		lim = fmt.Sprintf("%s … %s", fmtNum(float64(r.Limits[0]), "-inf"), fmtNum(float64(r.Limits[1]), "+inf"))
+	}
+	p("test limits      %s  (%s)", lim, dashIfEmpty(r.LimitsFrom))
+	for _, g := range r.Groups {
+		p("")
+		if g.Key != "" {
+			p("── %s %s ──", r.By, g.Key)
+		}
+		span := ""
+		if g.First != nil {
+			span = fmt.Sprintf(", %s … %s", fmtTime(*g.First), fmtTime(*g.Last))
+		}
+		p("series           %d points%s", g.Points, span)
+		base := g.Baseline.Text
+		if g.Baseline.From != nil {
+			base = fmt.Sprintf("units %d–%d (%d points), %s … %s", g.Baseline.FirstUnit, g.Baseline.LastUnit,
+				g.Baseline.Points, fmtTime(*g.Baseline.From), fmtTime(*g.Baseline.To))
+		}
+		p("baseline         %s (phase I: limits from these points, applied to all)", base)
+		p("%-16s %10s %10s %10s   %s", "chart", "centre", "lower", "upper", "target, σ from")
+		for _, c := range g.Charts {
+			p("%-16s %10s %10s %10s   %s", c.Kind, fmtNum(float64(c.Center), "-"), fmtNum(float64(c.Lower), "-"),
+				fmtNum(float64(c.Upper), "-"), fmt.Sprintf("target %s, σ %s: %s", fmtNum(float64(c.Target), "-"), fmtNum(float64(c.Sigma), "-"), c.Method))
+		}
+		switch {
+		case g.AlarmCount == 0:
+			p("alarms           none")
+		default:
+			more := ""
+			if len(g.Alarms) < g.AlarmCount {
+				more = fmt.Sprintf(", the last %d listed (--alarms)", len(g.Alarms))
+			}
+			p("alarms           %d%s", g.AlarmCount, more)
+			p("  %4s  %-12s %-8s %8s  %-19s  %-14s  %s", "#", "chart", "rule", "unit", "time", "serial", "description")
+			for _, al := range g.Alarms {
+				when := "-"
+				if al.Time != nil {
+					when = fmtTime(*al.Time)
+				}
+				desc := al.Description
+				if al.Note != "" {
+					desc += "; " + al.Note
+				}
+				p("  %4d  %-12s %-8s %8d  %-19s  %-14s  %s", al.Seq, al.Chart, al.Rule, al.Unit, when, dashIfEmpty(al.Serial), desc)
+			}
+		}
+		if c := g.Capability; c != nil {
+			p("capability       n %d, mean %s, σ within %s (%s), σ overall %s", c.N, fmtNum(float64(c.Mean), "-"),
+				fmtNum(float64(c.SigmaWithin), "-"), c.Method, fmtNum(float64(c.SigmaOverall), "-"))
+			p("                 Cp %s  Cpk %s  Pp %s  Ppk %s", fmtIdx(c.Cp), fmtIdx(c.Cpk), fmtIdx(c.Pp), fmtIdx(c.Ppk))
+		} else {
+			p("capability       not computed: %s", g.CapabilityNote)
+		}
+		if y := g.Yield; y != nil {
+			p("first-pass yield %.2f %% (%d of %d serials passed their first test), 95 %% CI %.2f … %.2f %% (Clopper–Pearson)",
+				100*float64(y.Rate), y.Pass, y.Total, 100*float64(y.Low), 100*float64(y.High))
+		} else if r.Variant != "" && !strings.HasPrefix(r.Source, "CSV") {
+			p("first-pass yield no unit verdicts in the selection")
+		}
+		if g.ChartFile != "" {
+			p("chart file       %s", g.ChartFile)
+		}
+	}
+}
+
+func driftChartDesc(kind string) string {
+	switch kind {
+	case "watch":
+		return "default watch: individuals (3σ limit) + tabular CUSUM"
+	case "imr":
+		return "individuals / moving range"
+	case "xbar-r":
+		return "X̄ / R"
+	case "xbar-s":
+		return "X̄ / s"
+	case "ewma":
+		return "EWMA"
+	}
+	return "tabular CUSUM"
+}
+
+func fmtNum(v float64, none string) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return none
+	}
+	return strconv.FormatFloat(v, 'f', 3, 64)
+}
+
+func fmtIdx(v jnum) string {
+	if math.IsNaN(float64(v)) || math.IsInf(float64(v), 0) {
+		return "-"
+	}
+	return strconv.FormatFloat(float64(v), 'f', 2, 64)
+}
+
+func fmtTime(t time.Time) string { return t.Local().Format("2006-01-02 15:04:05") }
+
+func dashIfEmpty(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return s
+}
+
+// readSeriesCSV opens path and parses its column; errors name the file.
+func readSeriesCSV(path, column string) ([]float64, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	x, err := parseSeriesCSV(bufio.NewReader(f), column)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	return x, nil
+}
+
+// parseSeriesCSV reads a CSV table with a header row and returns the
+// numbers of the named column, in row order. Blank cells are skipped; any
+// other cell that is not a finite number is an error naming its line and
+// column. Rows may be ragged as long as they reach the column.
+func parseSeriesCSV(r io.Reader, column string) ([]float64, error) {
+	cr := csv.NewReader(r)
+	cr.FieldsPerRecord = -1
+	cr.ReuseRecord = true
+	head, err := cr.Read()
+	if errors.Is(err, io.EOF) {
+		return nil, errors.New("empty file: want a header row naming the columns")
+	}
+	if err != nil {
+		return nil, fmt.Errorf("header: %w", err)
+	}
+	col := -1
+	var names []string
+	for i, h := range head {
+		h = strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))
+		names = append(names, h)
+		if h == column {
+			if col >= 0 {
+				return nil, fmt.Errorf("line 1: column %q appears twice in the header", column)
+			}
+			col = i
+		}
+	}
+	if col < 0 {
+		return nil, fmt.Errorf("line 1: no column %q in the header (columns: %s)", column, quoteList(names))
+	}
+	var out []float64
+	for {
+		rec, err := cr.Read()
+		if errors.Is(err, io.EOF) {
+			return out, nil
+		}
+		if err != nil {
+			var pe *csv.ParseError
+			if errors.As(err, &pe) {
+				return nil, fmt.Errorf("line %d, column %d: %w", pe.Line, pe.Column, pe.Err)
+			}
+			return nil, err
+		}
+		line, _ := cr.FieldPos(0)
+		if col >= len(rec) {
+			return nil, fmt.Errorf("line %d: %d fields, column %q is field %d", line, len(rec), column, col+1)
+		}
+		cell := strings.TrimSpace(rec[col])
+		if cell == "" {
+			continue
+		}
+		v, err := strconv.ParseFloat(cell, 64)
+		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil, fmt.Errorf("line %d, column %q: %s is not a finite number", line, column, quoteCell(cell))
+		}
+		out = append(out, v)
+	}
+}
+
+func quoteList(names []string) string {
+	q := make([]string, len(names))
+	for i, n := range names {
+		q[i] = strconv.Quote(n)
+	}
+	return strings.Join(q, ", ")
+}
+
+// quoteCell quotes a cell for an error, cut to a readable length.
+func quoteCell(s string) string {
+	const max = 40
+	if utf8.RuneCountInString(s) > max {
+		s = string([]rune(s)[:max]) + "…"
+	}
+	return strconv.Quote(s)
+}
+
+// driftStudyCmd builds `padline drift study`.
+func (a *app) driftStudyCmd() *cobra.Command {
+	var (
+		runs   int
+		seed   uint64
+		asJSON bool
+	)
+	cmd := &cobra.Command{
+		Use:   "study",
+		Short: "Simulate the average run lengths of the drift charts against published figures",
+		Long: `study simulates each chart set on independent normal values (known μ and σ,
+zero-state: the step from the first point) --runs times per step size (0,
+0.5, 1 and 2 σ) and prints the average run length (ARL: units up to and
+including the first alarm), its standard error, median and 10/90 %
+percentiles, beside the published ARL where there is one. The same --seed
+gives the same table.`,
+		Example: `  padline drift study
+  padline drift study --runs 20000 --seed 7 --json`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			if runs < 1 {
+				return fmt.Errorf("drift study: --runs must be ≥ 1, got %d", runs)
+			}
+			rows, err := drift.Study(runs, seed)
+			if err != nil {
+				return fmt.Errorf("drift study: %w", err)
+			}
+			if asJSON {
+				type row struct {
+					Chart     string  `json:"chart"`
+					Shift     float64 `json:"shift_sigma"`
+					Runs      int     `json:"runs"`
+					Censored  int     `json:"censored"`
+					Mean      jnum    `json:"arl"`
+					SE        jnum    `json:"arl_se"`
+					Median    jnum    `json:"median"`
+					P10       jnum    `json:"p10"`
+					P90       jnum    `json:"p90"`
+					Published jnum    `json:"published_arl"`
+					Source    string  `json:"source,omitempty"`
+				}
+				out := make([]row, len(rows))
+				for i, r := range rows {
+					out[i] = row{r.Chart, r.Shift, r.Result.Runs, r.Result.Censored, jnum(r.Result.Mean), jnum(r.Result.SE),
+						jnum(r.Result.Median), jnum(r.Result.P10), jnum(r.Result.P90), jnum(r.Published), r.Source}
+				}
+				enc := json.NewEncoder(a.stdout)
+				enc.SetIndent("", "  ")
+				return enc.Encode(map[string]any{"runs": runs, "seed": seed, "rows": out})
+			}
+			w := bufio.NewWriter(a.stdout)
+			fmt.Fprintf(w, "zero-state run lengths, known μ and σ, %d runs per cell, seed %d\n\n", runs, seed)
+			fmt.Fprintf(w, "%-44s %6s %9s %7s %7s %6s %7s %10s  %s\n", "chart set", "shift", "ARL", "±SE", "median", "p10", "p90", "published", "source")
+			for _, r := range rows {
+				pub := "-"
+				if !math.IsNaN(r.Published) {
+					pub = strconv.FormatFloat(r.Published, 'f', 1, 64)
+				}
+				fmt.Fprintf(w, "%-44s %5.1fσ %9.1f %7.1f %7.0f %6.0f %7.0f %10s  %s\n", r.Chart, r.Shift, r.Result.Mean, r.Result.SE,
+					r.Result.Median, r.Result.P10, r.Result.P90, pub, r.Source)
+			}
+			return w.Flush()
+		},
+	}
+	f := cmd.Flags()
+	f.IntVar(&runs, "runs", 2000, "simulated runs per chart set and step size")
+	f.Uint64Var(&seed, "seed", 1, "seed (same seed, same table)")
+	f.BoolVar(&asJSON, "json", false, "print one JSON object instead of the table")
+	return cmd
+}
+
+// ---- demo drift: a step or ramp in the simulated shift, then the watch ----
+
+// demoDrift is the drift the demo puts into its shift: from unit at on, the
+// pad laminate changes and the pad capacitance mean drops by stepPF (units
+// trip stepPF higher: the node needs the same total capacitance to trip);
+// a ramp drops it a further rampPF per 1000 units from unit at (or 1).
+type demoDrift struct {
+	at             int
+	stepPF, rampPF float64
+}
+
+func (d demoDrift) active() bool { return d.at > 0 || d.stepPF != 0 || d.rampPF != 0 }
+
+// check validates the drift flags against the shift length.
+func (d demoDrift) check(units int) error {
+	switch {
+	case !d.active():
+		return nil
+	case math.IsNaN(d.stepPF) || math.IsInf(d.stepPF, 0) || math.IsNaN(d.rampPF) || math.IsInf(d.rampPF, 0):
+		return errors.New("demo: --drift-pf and --ramp-pf-per-1000 must be finite numbers")
+	case d.at < 0:
+		return fmt.Errorf("demo: --drift-at must be ≥ 0, got %d", d.at)
+	case d.at == 0 && d.stepPF != 0:
+		return errors.New("demo: --drift-pf needs --drift-at N, the unit the step starts at")
+	case d.at == 1:
+		return errors.New("demo: --drift-at must be 0 (a ramp from unit 1) or at least 2: the watch takes its baseline from the units before the step")
+	case d.at > units:
+		return fmt.Errorf("demo: --drift-at %d is past the shift's %d units", d.at, units)
+	}
+	return nil
+}
+
+// offset is the trip-point shift of unit n (1-based), pF.
+func (d demoDrift) offset(n int) float64 {
+	var off float64
+	if d.at > 0 && n >= d.at {
+		off += d.stepPF
+	}
+	if start := max(d.at, 1); d.rampPF != 0 && n >= start {
+		off += d.rampPF * float64(n-start) / 1000
+	}
+	return off
+}
+
+// apply sets the line's unit model for unit n when the drift changes it.
+func (d demoDrift) apply(line *sim.Line, base sim.UnitModel, n int) error {
+	if !d.active() {
+		return nil
+	}
+	off := d.offset(n)
+	prev := 0.0
+	if n > 1 {
+		prev = d.offset(n - 1)
+	}
+	if off == prev {
+		return nil
+	}
+	um := base
+	um.PadPF.Mean -= off
+	if um.PadPF.Min != 0 || um.PadPF.Max != 0 {
+		um.PadPF.Min -= off
+		um.PadPF.Max -= off
+	}
+	if um.PadPF.Mean-3*um.PadPF.SD < 0 {
+		return fmt.Errorf("demo: drift of %+.2f pF at unit %d would leave the pad %.2f ± %.2f pF (3σ): the pad cannot lose more than it has",
+			off, n, um.PadPF.Mean, 3*um.PadPF.SD)
+	}
+	if err := line.SetUnitModel(um); err != nil {
+		return fmt.Errorf("demo: drift at unit %d: %w", n, err)
+	}
+	return nil
+}
+
+// demoDriftWatch is the drift part of the demo summary.
+type demoDriftWatch struct {
+	StepAtUnit    int     `json:"step_at_unit"`
+	StepPF        float64 `json:"step_pf"`
+	RampPFPer1000 float64 `json:"ramp_pf_per_1000"`
+	Charts        string  `json:"charts"`
+	GoodUnits     int     `json:"good_units_watched"`
+	Baseline      string  `json:"baseline"`
+	BaselineUnits [2]int  `json:"baseline_units"`
+	TargetPF      float64 `json:"target_pf"`
+	SigmaPF       float64 `json:"sigma_pf"`
+	AlarmsBefore  int     `json:"alarms_before_step"`
+	Alarms        int     `json:"alarms"`
+	// First is the first alarm at or after the step; nil when none.
+	First *demoAlarm `json:"first_alarm"`
+}
+
+// demoAlarm is one alarm in shift terms.
+type demoAlarm struct {
+	Seq         int    `json:"seq"`
+	Chart       string `json:"chart"`
+	Rule        string `json:"rule"`
+	Description string `json:"description"`
+	Unit        int    `json:"unit"` // shift unit number, 1-based
+	Serial      string `json:"serial"`
+	// LagUnits counts the units from the step to the alarm, both included
+	// (an alarm on the step's own unit has lag 1); LagGoodUnits counts only
+	// the good units the watch saw.
+	LagUnits     int    `json:"lag_units"`
+	LagGoodUnits int    `json:"lag_good_units"`
+	Note         string `json:"note,omitempty"`
+}
+
+// watch runs the default drift watch over the good units' trip points
+// (no injected defect, trip measured), in test order, with limits from the
+// units before the step (at most 50); nil when the demo has no drift.
+func (d demoDrift) watch(us []demoUnit) (*demoDriftWatch, error) {
+	if !d.active() {
+		return nil, nil
+	}
+	baseUnits := driftDefaultBaseline
+	if d.at > 0 {
+		baseUnits = min(driftDefaultBaseline, d.at-1)
+	}
+	var x []float64
+	var unitNo []int
+	var serials []string
+	basePts := 0
+	for i, u := range us {
+		if len(u.Defects) > 0 || u.TripPF == nil {
+			continue
+		}
+		x = append(x, *u.TripPF)
+		unitNo = append(unitNo, i+1)
+		serials = append(serials, u.Serial)
+		if i+1 <= baseUnits {
+			basePts++
+		}
+	}
+	win := drift.Window{Start: 0, End: basePts}
+	w, err := drift.WatchSeries(x, win, drift.Options{}, drift.DefaultSet)
+	if err != nil {
+		return nil, fmt.Errorf("demo: drift watch over %d good units, baseline units 1–%d (%d good): %w", len(x), baseUnits, basePts, err)
+	}
+	from := max(d.at, 1)
+	out := &demoDriftWatch{StepAtUnit: d.at, StepPF: d.stepPF, RampPFPer1000: d.rampPF,
+		Charts:    fmt.Sprintf("individuals (3σ limit) + tabular CUSUM (k %gσ, h %gσ)", float64(drift.DefaultK), float64(drift.DefaultH)),
+		GoodUnits: len(x), Baseline: fmt.Sprintf("units 1–%d (%d good units)", baseUnits, basePts),
+		BaselineUnits: [2]int{1, baseUnits}, Alarms: len(w.Alarms)}
+	if len(w.Charts) > 0 {
+		out.TargetPF, out.SigmaPF = w.Charts[0].Target, w.Charts[0].Sigma
+	}
+	first := len(x)
+	for i, n := range unitNo {
+		if n >= from {
+			first = i
+			break
+		}
+	}
+	for _, al := range w.Alarms {
+		if al.Unit < first {
+			out.AlarmsBefore++
+		}
+	}
+	if al, ok := w.First(first); ok {
+		out.First = &demoAlarm{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
+			Unit: unitNo[al.Unit], Serial: serials[al.Unit], LagUnits: unitNo[al.Unit] - from + 1,
+			LagGoodUnits: al.Unit - first + 1, Note: al.Note}
+	}
+	return out, nil
+}
+
+// writeDemoDrift prints the drift lines of the demo summary.
+func writeDemoDrift(w io.Writer, d *demoDriftWatch) {
+	if d == nil {
+		return
+	}
+	var what []string
+	if d.StepAtUnit > 0 {
+		what = append(what, fmt.Sprintf("step %+.2f pF of trip point at unit %d (pad capacitance mean %.2f pF lower: another pad laminate)", d.StepPF, d.StepAtUnit, d.StepPF))
+	}
+	if d.RampPFPer1000 != 0 {
+		what = append(what, fmt.Sprintf("ramp %+.2f pF per 1000 units from unit %d", d.RampPFPer1000, max(d.StepAtUnit, 1)))
+	}
+	fmt.Fprintf(w, "\ndrift            %s\n", strings.Join(what, "; "))
+	fmt.Fprintf(w, "drift watch      %s over %d good units' trip points\n", d.Charts, d.GoodUnits)
+	fmt.Fprintf(w, "  baseline       %s: target %.2f pF, σ %.2f pF\n", d.Baseline, d.TargetPF, d.SigmaPF)
+	if f := d.First; f != nil {
+		fmt.Fprintf(w, "  first alarm    #%d %s %s (%s) at unit %d (%s): lag %d units from unit %d (%d good units)\n",
+			f.Seq, f.Chart, f.Rule, f.Description, f.Unit, f.Serial, f.LagUnits, max(d.StepAtUnit, 1), f.LagGoodUnits)
+		if f.Note != "" {
+			fmt.Fprintf(w, "                 %s\n", f.Note)
+		}
+	} else {
+		fmt.Fprintf(w, "  first alarm    none at or after unit %d\n", max(d.StepAtUnit, 1))
+	}
+	fmt.Fprintf(w, "  alarms         %d in all, %d before unit %d (false alarms)\n", d.Alarms, d.AlarmsBefore, max(d.StepAtUnit, 1))
+}
