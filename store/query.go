@@ -189,6 +189,17 @@ type TripPoint struct {
 // Variant set) that have one, in time order. last > 0 keeps only the last
 // that many points.
 func (db *DB) TripSeries(ctx context.Context, f Filter, last int) ([]TripPoint, error) {
+	return db.tripSeries(ctx, f, last, true)
+}
+
+// TripValues is TripSeries with only RunID, Finished and TripPF filled: for
+// long series it is about twice as fast, since the cost lies in the columns
+// read per row.
+func (db *DB) TripValues(ctx context.Context, f Filter, last int) ([]TripPoint, error) {
+	return db.tripSeries(ctx, f, last, false)
+}
+
+func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]TripPoint, error) {
 	cond, args := f.where()
 	// Station and fixture names come from their small tables, not a join per
 	// row: the series is read at the rate of one index entry per point.
@@ -200,7 +211,11 @@ func (db *DB) TripSeries(ctx context.Context, f Filter, last int) ([]TripPoint, 
 	if err != nil {
 		return nil, fmt.Errorf("trip series: %w", err)
 	}
-	q := `SELECT r.id, r.finished, r.trip_pf, r.station_id, r.fixture_id, r.lot, r.verdict
+	cols := "r.id, r.finished, r.trip_pf"
+	if full {
+		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict"
+	}
+	q := `SELECT ` + cols + `
 FROM runs r
 WHERE ` + cond + ` AND r.trip_pf IS NOT NULL
 ORDER BY r.finished DESC, r.id DESC`
@@ -228,6 +243,14 @@ ORDER BY r.finished DESC, r.id DESC`
 			p                  TripPoint
 			finished, sid, fid int64
 		)
+		if !full {
+			if err := rows.Scan(&p.RunID, &finished, &p.TripPF); err != nil {
+				return nil, fmt.Errorf("trip series: %w", err)
+			}
+			p.Finished = time.Unix(0, finished).UTC()
+			out = append(out, p)
+			continue
+		}
 		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict); err != nil {
 			return nil, fmt.Errorf("trip series: %w", err)
 		}

@@ -565,10 +565,15 @@ func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string) (
 	// slice for them at once instead of growing it (a million points are
 	// 100 MB; growing briefly holds the old array and the new). Only when
 	// the answer is full can there be more, and then ask for all.
-	pts, err := db.TripSeries(ctx, f, driftFirstAsk)
+	// Station, fixture and lot are read only when --by needs them.
+	series := db.TripSeries
+	if by == "" || by == "shift" {
+		series = db.TripValues
+	}
+	pts, err := series(ctx, f, driftFirstAsk)
 	if err == nil && len(pts) == driftFirstAsk {
 		pts = nil
-		pts, err = db.TripSeries(ctx, f, 0)
+		pts, err = series(ctx, f, 0)
 	}
 	if err != nil {
 		return nil, err
