@@ -20,7 +20,6 @@ import (
 	"unicode/utf8"
 
 	"github.com/spf13/cobra"
-	"github.com/spf13/viper"
 
 	"padline/fixture/sim"
 	"padline/sequences/timing"
@@ -121,30 +120,17 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
   padline drift study --runs 5000`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			v := viper.New()
-			v.SetEnvPrefix("PADLINE")
-			if err := v.BindEnv("db"); err != nil {
-				return err
+			var err error
+			if o.db, err = shiftLogPath(cmd, o.stationFile); err != nil {
+				return fmt.Errorf("drift: %w", err)
 			}
-			if err := v.BindPFlag("db", cmd.Flags().Lookup("db")); err != nil {
-				return err
-			}
-			o.db = v.GetString("db")
 			fl := cmd.Flags()
-			if o.stationFile != "" {
+			if o.stationFile != "" && !fl.Changed("uncertainty-pf") {
 				st, err := loadStation(o.stationFile)
 				if err != nil {
 					return fmt.Errorf("drift: %w", err)
 				}
-				if o.db == "" {
-					o.db = st.ShiftLog
-				}
-				if !fl.Changed("uncertainty-pf") {
-					o.uncertainty, o.uncertaintyFrom = stationU(st)
-				}
-			}
-			if o.db == "" {
-				o.db = defaultShiftLog
+				o.uncertainty, o.uncertaintyFrom = stationU(st)
 			}
 			if fl.Changed("uncertainty-pf") {
 				o.uncertaintyFrom = "--uncertainty-pf"
@@ -186,7 +172,6 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 				o.o.L = o.o.Width
 			}
 			now := time.Now()
-			var err error
 			o.filter = store.Filter{Station: station, Fixture: fixtureN, Lot: lot}
 			if o.filter.Since, err = parseWhen(o.since, now); err != nil {
 				return fmt.Errorf("drift: --since: %w", err)

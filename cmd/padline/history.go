@@ -14,15 +14,10 @@ import (
 	"time"
 
 	"github.com/spf13/cobra"
-	"github.com/spf13/viper"
 
 	"padline/sequences"
 	"padline/store"
 )
-
-// defaultShiftLog is the shift log history reads when neither --db,
-// PADLINE_DB nor a station file names one.
-const defaultShiftLog = "padline-shift.db"
 
 // historyOptions are the parsed flags of `padline history`.
 type historyOptions struct {
@@ -78,25 +73,11 @@ history never creates a shift log.`,
   PADLINE_DB=/var/lib/padline/L2-S1.db padline history --serial QM205-0001234`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			v := viper.New()
-			v.SetEnvPrefix("PADLINE")
-			if err := v.BindEnv("db"); err != nil {
-				return err
+			db, err := shiftLogPath(cmd, stationFile)
+			if err != nil {
+				return fmt.Errorf("history: %w", err)
 			}
-			if err := v.BindPFlag("db", cmd.Flags().Lookup("db")); err != nil {
-				return err
-			}
-			opts := historyOptions{db: v.GetString("db"), format: format, limitsHistory: limitsHistory}
-			if opts.db == "" && stationFile != "" {
-				st, err := loadStation(stationFile)
-				if err != nil {
-					return fmt.Errorf("history: %w", err)
-				}
-				opts.db = st.ShiftLog
-			}
-			if opts.db == "" {
-				opts.db = defaultShiftLog
-			}
+			opts := historyOptions{db: db, format: format, limitsHistory: limitsHistory}
 			if asJSON {
 				if cmd.Flags().Changed("format") && format != "json" {
 					return fmt.Errorf("history: --json conflicts with --format %s", format)
@@ -116,7 +97,6 @@ history never creates a shift log.`,
 			}
 			now := time.Now()
 			f := store.Filter{Serial: serial, Variant: variant, Station: station, Fixture: fixture, Lot: lot}
-			var err error
 			if f.Since, err = parseWhen(since, now); err != nil {
 				return fmt.Errorf("history: --since: %w", err)
 			}

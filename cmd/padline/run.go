@@ -11,7 +11,6 @@ import (
 	"time"
 
 	"github.com/spf13/cobra"
-	"github.com/spf13/viper"
 
 	"padline/fixture"
 	"padline/fixture/hostpins"
@@ -80,32 +79,6 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
-}
-
-// shiftLogPath resolves the shift log: --db, then $PADLINE_DB, then the
-// station file's shift_log, then the default in the working directory.
-func shiftLogPath(cmd *cobra.Command, stationRef string) (string, error) {
-	v := viper.New()
-	v.SetEnvPrefix("PADLINE")
-	if err := v.BindEnv("db"); err != nil {
-		return "", err
-	}
-	if err := v.BindPFlag("db", cmd.Flags().Lookup("db")); err != nil {
-		return "", err
-	}
-	if p := v.GetString("db"); p != "" {
-		return p, nil
-	}
-	if stationRef != "" {
-		st, err := loadStation(stationRef)
-		if err != nil {
-			return "", err
-		}
-		if st.ShiftLog != "" {
-			return st.ShiftLog, nil
-		}
-	}
-	return defaultShiftLog, nil
 }
 
 // openPins opens the station's pins: the simulated line's, or the real

@@ -1,0 +1,36 @@
+package main
+
+import (
+	"github.com/spf13/cobra"
+	"github.com/spf13/viper"
+)
+
+// defaultShiftLog is the shift log every command uses when
+// neither --db, PADLINE_DB nor a station file names one.
+const defaultShiftLog = "padline-shift.db"
+
+// shiftLogPath resolves the shift log: --db, then $PADLINE_DB, then the
+// station file's shift_log, then the default in the working directory.
+func shiftLogPath(cmd *cobra.Command, stationRef string) (string, error) {
+	v := viper.New()
+	v.SetEnvPrefix("PADLINE")
+	if err := v.BindEnv("db"); err != nil {
+		return "", err
+	}
+	if err := v.BindPFlag("db", cmd.Flags().Lookup("db")); err != nil {
+		return "", err
+	}
+	if p := v.GetString("db"); p != "" {
+		return p, nil
+	}
+	if stationRef != "" {
+		st, err := loadStation(stationRef)
+		if err != nil {
+			return "", err
+		}
+		if st.ShiftLog != "" {
+			return st.ShiftLog, nil
+		}
+	}
+	return defaultShiftLog, nil
+}
