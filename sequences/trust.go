@@ -5,8 +5,10 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/bits"
 	"slices"
 	"sort"
+	"strings"
 	"time"
 )
 
@@ -300,16 +302,25 @@ type CheckConfig struct {
 	// PowerSettle is the wait after power-up; Period the latch sample
 	// period without a clock pin.
 	PowerSettle, Period time.Duration
-	// GuardPF is how far a go/no-go level sits from the reference trip
-	// (default 0.9 pF, about 5σ of the demo's 0.44 pF transition, so rungs
-	// from 1.8 pF up get a go/no-go pair).
+	// GuardPF is the least distance of a go/no-go level from the reference
+	// trip (default 0.9 pF, about 5σ of a 0.44 pF transition). The check
+	// widens it to 2× the reference unit's measured 10–90 % transition
+	// (≈ 5σ) when that is wider, so a go/no-go reading is certain.
 	GuardPF float64
-	// DriftPF flags a rung whose effective value differs from its entered
-	// value by more than this (default 0.3 pF).
-	DriftPF float64
 	// K is the samples per go/no-go level (default 8).
 	K int
-	// Search tunes the trip searches (defaults: SE target 0.03 pF, 96
+	// Fine pairs: a rung too small for a go/no-go pair gets a pair
+	// straddling the measured trip (without the rung just below it, with it
+	// just above), judged by how many more samples latch with the rung than
+	// without it. With the unit's measured σ the healthy difference of the
+	// latch-high probabilities is Δp = Φ(m/σ) − Φ(−m/σ) at the pair's
+	// margin m; a stuck rung gives 0. A pair is used when Δp ≥ FineMinDP
+	// (default 0.3); it takes k = 64·2p(1−p)/Δp² samples per level (4
+	// standard deviations between the two outcomes and the threshold
+	// Δp·k/2), at least 32 and at most FineMaxK (default 256).
+	FineMinDP float64
+	FineMaxK  int
+	// Search tunes the trip search (defaults: SE target 0.03 pF, 96
 	// refinement samples).
 	Search SearchOptions
 }
@@ -318,11 +329,14 @@ func (c CheckConfig) withDefaults() CheckConfig {
 	if c.GuardPF <= 0 {
 		c.GuardPF = 0.9
 	}
-	if c.DriftPF <= 0 {
-		c.DriftPF = 0.3
-	}
 	if c.K <= 0 {
 		c.K = 8
+	}
+	if c.FineMinDP <= 0 {
+		c.FineMinDP = 0.3
+	}
+	if c.FineMaxK <= 0 {
+		c.FineMaxK = 256
 	}
 	if c.Search.SETargetPF == 0 {
 		c.Search.SETargetPF = 0.03
@@ -338,9 +352,14 @@ const (
 	RungOK          = "ok"
 	RungStuckOpen   = "stuck_open"
 	RungStuckClosed = "stuck_closed"
-	RungDrifted     = "drifted"
-	// RungUnmeasured: the rung's value cannot be measured with this
-	// reference unit (no level set with and without it around its trip).
+	// RungDrifted: a reference deviation that, across every reference
+	// unit, only this rung explains (CombineChecks).
+	RungDrifted = "drifted"
+	// RungDriftSuspect: one of a group of rungs a reference deviation
+	// points at that the reference units cannot tell apart.
+	RungDriftSuspect = "drift_suspect"
+	// RungUnmeasured: this reference unit has no go/no-go or fine pair for
+	// the rung (its trip sits badly on the rung's grid).
 	RungUnmeasured = "not_measured"
 )
 
@@ -348,31 +367,37 @@ const (
 type RungFinding struct {
 	Rung      int     `json:"rung"`
 	EnteredPF float64 `json:"entered_pf"`
-	// EffectivePF is the measured contribution (trip on levels without the
-	// rung minus trip on levels with it, plus its entered value); NaN (null
-	// in JSON) when not measured.
-	EffectivePF *float64 `json:"effective_pf"`
-	SEPF        *float64 `json:"se_pf,omitempty"` // standard error of EffectivePF
-	// GoNoGo tells whether the rung passed the two-level test (low without
-	// it, high with it); "" when the rung is too small for it.
-	GoNoGo string `json:"go_no_go,omitempty"`
+	// Test says how the rung was tested and what it read; "" when it was
+	// not tested.
+	Test   string `json:"test,omitempty"`
 	Status string `json:"status"`
 }
 
 // RefCheck is the result of checking one reference unit.
 type RefCheck struct {
 	Reference
-	MeasuredPF *float64      `json:"measured_pf"`
-	SEPF       *float64      `json:"se_pf"`
-	DevPF      *float64      `json:"dev_pf"`
-	OK         bool          `json:"ok"`
-	Rungs      []RungFinding `json:"rungs"`
+	MeasuredPF *float64 `json:"measured_pf"`
+	SEPF       *float64 `json:"se_pf"`
+	DevPF      *float64 `json:"dev_pf"`
+	// SpreadPF is the measured 10–90 % transition; GuardPF the go/no-go
+	// distance used (GuardPF of the config, or 2× the spread).
+	SpreadPF *float64      `json:"spread_pf"`
+	GuardPF  float64       `json:"guard_pf"`
+	OK       bool          `json:"ok"`
+	Rungs    []RungFinding `json:"rungs"`
 	// Faults name every problem found, one line each; empty when OK.
 	Faults []string `json:"faults"`
 	// Suspects, for a deviation no rung test explains: what could cause it.
-	Suspects    string        `json:"suspects,omitempty"`
-	FixtureTime time.Duration `json:"fixture_time_ns"`
-	Searches    int           `json:"searches"`
+	Suspects string `json:"suspects,omitempty"`
+	// SuspectRungs are the rungs closed at every level near the reference
+	// trip, which a deviation of this reference cannot tell apart (nor
+	// from the stray); Covers is the same set for a reference within its
+	// allowance: the rungs (and the stray) it vouches for. CombineChecks
+	// narrows one by the other.
+	SuspectRungs []int         `json:"suspect_rungs,omitempty"`
+	Covers       []int         `json:"covers_rungs,omitempty"`
+	FixtureTime  time.Duration `json:"fixture_time_ns"`
+	Searches     int           `json:"searches"`
 }
 
 // checker drives one reference check.
@@ -381,19 +406,34 @@ type checker struct {
 	st  Station
 	cfg CheckConfig
 	all []Level // every pattern of the ladder, by entered pF, ascending
-	t   float64 // the registered reference trip
+	g   float64 // the go/no-go guard in force
 }
 
 // CheckReference powers the reference unit already in the fixture, measures
-// its trip point and compares it with ref; then it self-tests the ladder on
-// it: every rung large enough gets a go/no-go pair (a level just below the
-// trip without the rung must read low, the same level with the rung must read
-// high: a stuck-open rung reads low, a stuck-closed rung high), and every rung
-// that has levels with and without it around the trip gets its effective
-// value from two trip searches. A latch that never reads high even with every
-// rung closed is a pogo-pin fault (pad or latch pin). The station is left
-// with power off and every rung open. An error means the station could not
-// finish (pin error, lid): no verdict.
+// its trip point and compares it with ref, and self-tests the ladder on it:
+//   - pogo pins: a latch that never reads high, even with every rung
+//     closed, is an open pad or latch pin (the two read the same: nothing
+//     of the fixture reaches the unit, or nothing of the unit the fixture);
+//   - go/no-go: every rung large enough gets a pair, a level at least the
+//     guard below the trip without the rung and the same level with it at
+//     least the guard above; the readings are tested against the healthy
+//     ladder and against every single stuck-open or stuck-closed rung;
+//   - fine pairs: a rung too small for that gets a pair straddling the
+//     measured trip by at least FineMinPF each side, FineK samples each: a
+//     working rung latches clearly more often with it than without it; a
+//     stuck one reads the same both ways;
+//   - deviation: a reference trip beyond its allowance that no rung test
+//     explains points at the rungs closed at every level near the trip,
+//     the stray, or the reference unit itself (CombineChecks narrows this
+//     with the other reference units).
+//
+// A binary ladder has no level sets with and without a rung (other than the
+// smallest) close enough together around one trip to measure the rung's
+// value by a difference of two trips, so a drifted rung is found only
+// through the deviation of a reference unit whose trip needs it.
+//
+// The station is left with power off and every rung open. An error means
+// the station could not finish (pin error, lid): no verdict.
 func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, cfg CheckConfig) (res RefCheck, err error) {
 	cfg = cfg.withDefaults()
 	res.Reference = ref
@@ -408,7 +448,7 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 		}
 		res.FixtureTime = clk.Now().Sub(start)
 	}()
-	c := &checker{ctx: ctx, st: st, cfg: cfg, t: ref.TripPF}
+	c := &checker{ctx: ctx, st: st, cfg: cfg, g: cfg.GuardPF}
 	for p := range 1 << n {
 		pf := cfg.StrayPF
 		for i := range n {
@@ -435,39 +475,47 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 	fault := func(format string, args ...any) { res.Faults = append(res.Faults, fmt.Sprintf(format, args...)) }
 	T := ref.TripPF
 	allClosed := uint16(1<<n - 1)
+	res.Rungs = make([]RungFinding, n)
+	for r := range n {
+		res.Rungs[r] = RungFinding{Rung: r, EnteredPF: cfg.RungsPF[r], Status: RungUnmeasured}
+	}
 
-	// Pogo pins: nothing may be latched with every rung open, and the
-	// latch must read high with every rung closed.
-	lowAll, err := c.highs(0)
+	// Pogo pins: the latch must read high with every rung closed.
+	lowAll, err := c.highs(0, cfg.K)
 	if err != nil {
 		return res, err
 	}
-	highAll, err := c.highs(allClosed)
+	highAll, err := c.highs(allClosed, cfg.K)
 	if err != nil {
 		return res, err
 	}
 	if highAll == 0 && c.all[len(c.all)-1].PF > T+cfg.GuardPF {
 		fault("pad or latch pogo pin open: the latch never read high, not even with every rung closed (%.1f pF)", c.all[len(c.all)-1].PF)
+		res.GuardPF = c.g
 		return res, nil
 	}
 
 	// The reference trip on the whole ladder.
-	full, err := c.trip(func(uint16) bool { return true })
+	full, err := c.tripNear(func(uint16) bool { return true }, T)
 	if err != nil {
 		return res, err
 	}
+	res.Searches++
+	center := T
 	if full.Found && !full.Below {
 		res.MeasuredPF, res.SEPF = ptrF(full.TripPF), ptrF(full.SEPF)
 		res.DevPF = ptrF(full.TripPF - T)
+		if sp := full.SpreadPF; sp > 0 && !math.IsInf(sp, 0) {
+			res.SpreadPF = ptrF(sp)
+			c.g = math.Max(c.g, 2*math.Min(sp, 3))
+		}
+		if math.Abs(full.TripPF-T) <= c.g {
+			center = full.TripPF
+		}
 	}
-	res.Searches++
+	res.GuardPF = c.g
 
-	res.Rungs = make([]RungFinding, n)
-	for r := range n {
-		res.Rungs[r] = RungFinding{Rung: r, EnteredPF: cfg.RungsPF[r], Status: RungUnmeasured}
-	}
-	// Go/no-go: for every rung large enough, a level without it at least
-	// guard below the trip and the same level with it at least guard above.
+	// Go/no-go pairs for every rung large enough.
 	obs := []observation{{0, lowAll}, {allClosed, highAll}}
 	for r := range n {
 		bit := uint16(1) << r
@@ -475,28 +523,20 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 		if !ok {
 			continue
 		}
-		lo, err := c.highs(q)
+		lo, err := c.highs(q, cfg.K)
 		if err != nil {
 			return res, err
 		}
-		hi, err := c.highs(q | bit)
+		hi, err := c.highs(q|bit, cfg.K)
 		if err != nil {
 			return res, err
 		}
 		obs = append(obs, observation{q, lo}, observation{q | bit, hi})
 		f := &res.Rungs[r]
 		f.Status = RungOK
-		switch {
-		case lo == 0 && hi == cfg.K:
-			f.GoNoGo = "pass"
-		case lo > 0:
-			f.GoNoGo = "latched without the rung"
-		default:
-			f.GoNoGo = "not latched with the rung"
-		}
+		f.Test = fmt.Sprintf("go/no-go %.2f → %.2f pF: %d and %d of %d high", c.pf(q), c.pf(q|bit), lo, hi, cfg.K)
 	}
-	// The single-fault hypotheses the go/no-go readings allow. When the
-	// healthy ladder explains them, go on to the rungs' effective values.
+	// The single-fault hypotheses the go/no-go readings allow.
 	healthy, sOpen, sClosed := c.explain(obs, T)
 	if !healthy {
 		for r := range res.Rungs {
@@ -523,65 +563,84 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 				fault("%s (this reference unit cannot tell them apart)", joinList(alts))
 			}
 		}
-		res.OK = false
 		return res, nil
 	}
+
+	// Fine pairs for the rungs too small for a go/no-go pair. When the
+	// reference trip deviates too, a drifted larger rung in the pair's
+	// base level reads the same as a stuck small rung: both are named.
+	confound := ""
+	if res.DevPF != nil && math.Abs(*res.DevPF) > ref.AllowedDevPF {
+		confound = ", or a drifted rung in the levels near the trip (the reference trip deviates too)"
+	}
+
 	for r := range n {
 		f := &res.Rungs[r]
+		if f.Status != RungUnmeasured {
+			continue
+		}
 		bit := uint16(1) << r
-		if !c.measurable(r, T) {
+		// Centred on the registered trip, not the measured one: a stuck
+		// rung biases the measurement, and the pair must not follow it.
+		q, m := c.finePair(r, T)
+		sigma := c.g / 5 // the guard is 2× the 10–90 % width, about 5σ
+		if res.SpreadPF != nil {
+			sigma = *res.SpreadPF / 2.5631 // 10–90 % = 2·1.2816σ
+		}
+		p := normCDF(m / sigma)
+		dp := 2*p - 1
+		if dp < cfg.FineMinDP {
+			f.Test = fmt.Sprintf("no level pair straddles the trip enough (best ±%.2f pF, σ %.2f pF)", m, sigma)
 			continue
 		}
-		with, err := c.trip(func(p uint16) bool { return p&bit != 0 })
+		k := int(math.Ceil(64 * 2 * p * (1 - p) / (dp * dp)))
+		k = min(max(k, 32), cfg.FineMaxK)
+		lo, err := c.highs(q, k)
 		if err != nil {
 			return res, err
 		}
-		without, err := c.trip(func(p uint16) bool { return p&bit == 0 })
+		hi, err := c.highs(q|bit, k)
 		if err != nil {
 			return res, err
 		}
-		res.Searches += 2
-		found := with.Found && !with.Below && without.Found && !without.Below
-		se := math.Hypot(with.SEPF, without.SEPF)
-		// A stuck rung moves its effective value by its whole value: judged
-		// when that is ≥ 3 standard errors; drift is judged beyond DriftPF
-		// + 3 standard errors.
-		if !found || se > cfg.RungsPF[r]/3 {
-			continue
-		}
-		eff := cfg.RungsPF[r] - (with.TripPF - without.TripPF)
-		f.EffectivePF, f.SEPF = ptrF(eff), ptrF(se)
+		f.Test = fmt.Sprintf("fine pair %.2f → %.2f pF (±%.2f pF about %.2f): %d and %d of %d high", c.pf(q), c.pf(q|bit), m, T, lo, hi, k)
 		switch {
-		case eff < cfg.RungsPF[r]/2 && without.TripPF-T < -cfg.RungsPF[r]/2:
-			f.Status = RungStuckClosed
-		case eff < cfg.RungsPF[r]/2:
-			f.Status = RungStuckOpen
-		case math.Abs(eff-cfg.RungsPF[r]) > cfg.DriftPF+3*se:
-			f.Status = RungDrifted
-		case f.Status == RungUnmeasured:
+		case float64(hi-lo) >= dp*float64(k)/2:
 			f.Status = RungOK
+		case lo+hi < k:
+			f.Status = RungStuckOpen
+			fault("rung %d (%.2f pF) stuck open%s", r, cfg.RungsPF[r], confound)
+		default:
+			f.Status = RungStuckClosed
+			fault("rung %d (%.2f pF) stuck closed%s", r, cfg.RungsPF[r], confound)
 		}
 	}
-	for _, f := range res.Rungs {
-		switch f.Status {
-		case RungStuckOpen, RungStuckClosed:
-			fault("rung %d (%.2f pF) %s", f.Rung, f.EnteredPF, map[string]string{RungStuckOpen: "stuck open", RungStuckClosed: "stuck closed"}[f.Status])
-		case RungDrifted:
-			fault("rung %d (%.2f pF) drifted: effective %.2f pF, %+.2f pF from its entered value", f.Rung, f.EnteredPF, *f.EffectivePF, *f.EffectivePF-f.EnteredPF)
-		}
-	}
+
+	always := c.always(center)
 	switch {
 	case res.DevPF == nil && len(res.Faults) == 0:
 		fault("reference unit %s: no trip point found (registered %.2f pF)", ref.Serial, T)
 	case res.DevPF != nil && math.Abs(*res.DevPF) > ref.AllowedDevPF:
 		fault("reference unit %s: trip %.2f pF, registered %.2f pF: deviation %+.2f pF beyond ±%.2f pF",
 			ref.Serial, *res.MeasuredPF, T, *res.DevPF, ref.AllowedDevPF)
-		if c.onlyDeviation(res) {
-			res.Suspects = c.suspects(T)
-		}
+		res.SuspectRungs = always
+		res.Suspects = "drift of " + c.describe(always, true) + " (closed at every level near the reference trip), or of the reference unit itself"
+	case res.DevPF != nil:
+		res.Covers = always
 	}
 	res.OK = len(res.Faults) == 0
 	return res, nil
+}
+
+// pf is the entered capacitance of pattern p.
+func (c *checker) pf(p uint16) float64 {
+	pf := c.cfg.StrayPF
+	for r, v := range c.cfg.RungsPF {
+		if p&(1<<r) != 0 {
+			pf += v
+		}
+	}
+	return pf
 }
 
 // observation is one go/no-go reading: K samples at a pattern.
@@ -606,7 +665,7 @@ func (c *checker) explain(obs []observation, T float64) (healthy bool, open, clo
 				}
 			}
 			switch {
-			case math.Abs(pf-T) < c.cfg.GuardPF/2:
+			case math.Abs(pf-T) < c.g/2:
 			case pf > T && o.highs != c.cfg.K:
 				return false
 			case pf < T && o.highs != 0:
@@ -627,34 +686,39 @@ func (c *checker) explain(obs []observation, T float64) (healthy bool, open, clo
 	return healthy, open, closed
 }
 
-// onlyDeviation reports whether no rung finding explains a deviation.
-func (c *checker) onlyDeviation(res RefCheck) bool {
-	for _, f := range res.Rungs {
-		if f.Status != RungOK && f.Status != RungUnmeasured {
-			return false
+// always returns the rungs closed at every level the trip search can use
+// within half the guard of T: a drift of any of them (or of the stray)
+// moves this reference's measured trip by the drift.
+func (c *checker) always(T float64) []int {
+	mask := ^uint16(0)
+	for _, lv := range c.subset(func(uint16) bool { return true }, T) {
+		if math.Abs(lv.PF-T) <= c.g/2 {
+			mask &= lv.Pattern
 		}
 	}
-	return true
+	var out []int
+	for r := range c.cfg.RungsPF {
+		if mask&(1<<r) != 0 {
+			out = append(out, r)
+		}
+	}
+	return out
 }
 
-// suspects names what a reference deviation with healthy rung tests points
-// at: the stray and the rungs closed at every level near the trip, whose
-// values this reference unit cannot separate.
-func (c *checker) suspects(T float64) string {
-	always := ^uint16(0)
-	for _, lv := range c.all {
-		if math.Abs(lv.PF-T) <= c.cfg.GuardPF {
-			always &= lv.Pattern
-		}
-	}
+// describe names rungs (and the stray).
+func (c *checker) describe(rungs []int, stray bool) string {
+	return describeRungs(c.cfg.RungsPF, rungs, stray)
+}
+
+func describeRungs(rungsPF []float64, rungs []int, stray bool) string {
 	var s []string
-	for r := range c.cfg.RungsPF {
-		if always&(1<<r) != 0 {
-			s = append(s, fmt.Sprintf("rung %d (%.2f pF)", r, c.cfg.RungsPF[r]))
-		}
+	for _, r := range rungs {
+		s = append(s, fmt.Sprintf("rung %d (%.2f pF)", r, rungsPF[r]))
 	}
-	s = append(s, "the stray")
-	return "drift of " + joinList(s) + " (closed at every level near the reference trip), or of the reference unit itself"
+	if stray {
+		s = append(s, "the stray")
+	}
+	return joinList(s)
 }
 
 func joinList(s []string) string {
@@ -680,30 +744,30 @@ func joinList(s []string) string {
 
 func ptrF(f float64) *float64 { return &f }
 
-// highs sets pattern p and returns the high count of K samples.
-func (c *checker) highs(p uint16) (int, error) {
+// highs sets pattern p and returns the high count of k samples.
+func (c *checker) highs(p uint16, k int) (int, error) {
 	if err := c.ctx.Err(); err != nil {
 		return 0, fmt.Errorf("reference check: %w", err)
 	}
 	if err := c.st.SetPattern(p); err != nil {
 		return 0, fmt.Errorf("reference check: set pattern %#x: %w", p, err)
 	}
-	h, err := c.st.Sample(c.cfg.K, c.cfg.Period)
+	h, err := c.st.Sample(k, c.cfg.Period)
 	if err != nil {
 		return 0, fmt.Errorf("reference check: sample: %w", err)
 	}
 	return h, nil
 }
 
-// window is how far from the reference trip the restricted searches look.
+// checkWindowPF is how far from the reference trip the search looks.
 const checkWindowPF = 2.5
 
 // subset returns the strictly ascending levels of the patterns keep accepts,
-// within the window around T (fewest closed rungs first on equal values).
+// within the window around T (on equal values, the first in c.all).
 func (c *checker) subset(keep func(uint16) bool, T float64) []Level {
 	var out []Level
 	for _, lv := range c.all {
-		if !keep(lv.Pattern) || math.Abs(lv.PF-T) > checkWindowPF {
+		if !keep(lv.Pattern) || math.Abs(lv.PF-T) > math.Max(checkWindowPF, c.g) {
 			continue
 		}
 		if k := len(out); k > 0 && lv.PF <= out[k-1].PF {
@@ -714,29 +778,14 @@ func (c *checker) subset(keep func(uint16) bool, T float64) []Level {
 	return out
 }
 
-// brackets reports whether levels reach at least guard below and above T,
-// so a search on them can locate the trip.
-func (c *checker) brackets(lv []Level, T float64) bool {
-	return len(lv) >= 2 && lv[0].PF <= T-c.cfg.GuardPF && lv[len(lv)-1].PF >= T+c.cfg.GuardPF
-}
-
-// measurable reports whether rung r has level sets with and without it that
-// bracket T.
-func (c *checker) measurable(r int, T float64) bool {
-	bit := uint16(1) << r
-	return c.brackets(c.subset(func(p uint16) bool { return p&bit != 0 }, T), T) &&
-		c.brackets(c.subset(func(p uint16) bool { return p&bit == 0 }, T), T)
-}
-
 // pairBase finds a pattern q without rung r with q below T − guard and q + r
-// above T + guard, preferring q closest to T − guard (fewest rungs on ties).
+// above T + guard, preferring q closest to T − guard.
 func (c *checker) pairBase(r int, T float64) (uint16, bool) {
 	bit := uint16(1) << r
-	g := c.cfg.GuardPF
 	best, found := uint16(0), false
 	bestPF := math.Inf(-1)
 	for _, lv := range c.all {
-		if lv.Pattern&bit != 0 || lv.PF > T-g || lv.PF+c.cfg.RungsPF[r] < T+g {
+		if lv.Pattern&bit != 0 || lv.PF > T-c.g || lv.PF+c.cfg.RungsPF[r] < T+c.g {
 			continue
 		}
 		if lv.PF > bestPF {
@@ -746,13 +795,24 @@ func (c *checker) pairBase(r int, T float64) (uint16, bool) {
 	return best, found
 }
 
-// trip searches the reference trip on the patterns keep accepts, near T.
-func (c *checker) trip(keep func(uint16) bool) (TripResult, error) {
-	return c.tripNear(keep, c.refT())
+// finePair finds the pattern q without rung r whose pair (q, q + r) best
+// straddles T: it maximises m = min(T − q, q + r − T), fewest rungs on ties.
+func (c *checker) finePair(r int, T float64) (uint16, float64) {
+	bit := uint16(1) << r
+	best, bestM := uint16(0), math.Inf(-1)
+	for _, lv := range c.all {
+		if lv.Pattern&bit != 0 {
+			continue
+		}
+		m := math.Min(T-lv.PF, lv.PF+c.cfg.RungsPF[r]-T)
+		if m > bestM+1e-9 || (math.Abs(m-bestM) <= 1e-9 && bits.OnesCount16(lv.Pattern) < bits.OnesCount16(best)) {
+			best, bestM = lv.Pattern, m
+		}
+	}
+	return best, bestM
 }
 
-func (c *checker) refT() float64 { return c.t }
-
+// tripNear searches the reference trip on the patterns keep accepts, near T.
 func (c *checker) tripNear(keep func(uint16) bool, T float64) (TripResult, error) {
 	lv := c.subset(keep, T)
 	pf := make([]float64, len(lv))
@@ -774,3 +834,80 @@ func (c *checker) tripNear(keep func(uint16) bool, T float64) (TripResult, error
 	}
 	return res, nil
 }
+
+// CombineChecks merges the checks of a station's reference units into one
+// ladder verdict and one fault list. A rung's status is the worst any
+// reference found; a reference deviation no rung test explains is narrowed
+// by the references within their allowance: a rung (or the stray) that such
+// a reference needs at its own trip is cleared. What is left is named: one
+// rung is "drifted", several are "drift_suspect" (these reference units
+// cannot tell them apart).
+func CombineChecks(refs []RefCheck) ([]RungFinding, []string) {
+	var rungs []RungFinding
+	rank := map[string]int{RungUnmeasured: 0, RungOK: 1, RungDriftSuspect: 2, RungDrifted: 3, RungStuckClosed: 4, RungStuckOpen: 4}
+	for _, rc := range refs {
+		for _, f := range rc.Rungs {
+			for len(rungs) <= f.Rung {
+				rungs = append(rungs, RungFinding{Rung: len(rungs), Status: RungUnmeasured})
+			}
+			g := &rungs[f.Rung]
+			g.EnteredPF = f.EnteredPF
+			if f.Test != "" {
+				if g.Test != "" {
+					g.Test += "; "
+				}
+				g.Test += rc.Serial + ": " + f.Test
+			}
+			if rank[f.Status] > rank[g.Status] {
+				g.Status = f.Status
+			}
+		}
+	}
+	rungsPF := make([]float64, len(rungs))
+	for i, f := range rungs {
+		rungsPF[i] = f.EnteredPF
+	}
+	cleared := map[int]bool{}
+	strayCleared := false
+	for _, rc := range refs {
+		if rc.DevPF != nil && math.Abs(*rc.DevPF) <= rc.AllowedDevPF {
+			strayCleared = true
+			for _, r := range rc.Covers {
+				cleared[r] = true
+			}
+		}
+	}
+	var faults []string
+	for _, rc := range refs {
+		for _, f := range rc.Faults {
+			if rc.Suspects != "" && strings.HasPrefix(f, "reference unit "+rc.Serial+": trip") {
+				var left []int
+				for _, r := range rc.SuspectRungs {
+					if !cleared[r] {
+						left = append(left, r)
+					}
+				}
+				stray := !strayCleared
+				switch {
+				case len(left) == 1 && !stray:
+					f += fmt.Sprintf(": rung %d (%.2f pF) drifted, or the reference unit itself (the other reference units clear the stray and the other rungs near this trip)", left[0], rungsPF[left[0]])
+					rungs[left[0]].Status = RungDrifted
+				case len(left) == 0 && !stray:
+					f += ": the reference unit itself has drifted (the other reference units clear the stray and every rung near its trip)"
+				default:
+					f += ": drift of " + describeRungs(rungsPF, left, stray) + " (these reference units cannot tell them apart), or of the reference unit itself"
+					for _, r := range left {
+						if rank[RungDriftSuspect] > rank[rungs[r].Status] {
+							rungs[r].Status = RungDriftSuspect
+						}
+					}
+				}
+			}
+			faults = append(faults, f)
+		}
+	}
+	return rungs, faults
+}
+
+// normCDF is the standard normal distribution function.
+func normCDF(z float64) float64 { return 0.5 * math.Erfc(-z/math.Sqrt2) }

@@ -101,7 +101,6 @@ func TestCheckFaults(t *testing.T) {
 	cases := []tc{
 		{"pad pin", func(m *sim.FixtureModel) { m.Faults.PadPinOpen = true }, "pad or latch pogo pin open", false},
 		{"latch pin", func(m *sim.FixtureModel) { m.Faults.LatchPinOpen = true }, "pad or latch pogo pin open", false},
-		{"closed 0", func(m *sim.FixtureModel) { m.Faults.RungStuckClosed = []int{0} }, "rung 0 (0.51 pF) stuck closed", false},
 		{"closed 1", func(m *sim.FixtureModel) { m.Faults.RungStuckClosed = []int{1} }, "rung 1 (1.02 pF) stuck closed", false},
 		{"closed 2", func(m *sim.FixtureModel) { m.Faults.RungStuckClosed = []int{2} }, "rung 2 (1.98 pF) stuck closed", false},
 		{"closed 3", func(m *sim.FixtureModel) { m.Faults.RungStuckClosed = []int{3} }, "rung 3 (4.03 pF) stuck closed", false},
@@ -149,11 +148,18 @@ func TestCheckFaults(t *testing.T) {
 func TestCheckKnownGaps(t *testing.T) {
 	base := newSimStation(t, sim.DefaultFixtureModel(), 1)
 	ref := register(t, base)
-	for _, r := range []int{0, 1} {
+	for _, c := range []struct {
+		r      int
+		closed bool
+	}{{0, false}, {1, false}, {0, true}} {
 		fm := sim.DefaultFixtureModel()
-		fm.Faults.RungStuckOpen = []int{r}
+		if c.closed {
+			fm.Faults.RungStuckClosed = []int{c.r}
+		} else {
+			fm.Faults.RungStuckOpen = []int{c.r}
+		}
 		if res := newSimStation(t, fm, 1).check(t, ref); !res.OK {
-			t.Errorf("rung %d stuck open is now caught (%q): move it to TestCheckFaults", r, res.Faults)
+			t.Errorf("rung %d stuck (closed %v) is now caught (%q): move it to TestCheckFaults", c.r, c.closed, res.Faults)
 		}
 	}
 }

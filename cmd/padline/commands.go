@@ -11,5 +11,6 @@ func (a *app) subcommands() []func() *cobra.Command {
 		a.historyCmd,
 		a.driftCmd,
 		a.runCmd,
+		a.stationCmd,
 	}
 }

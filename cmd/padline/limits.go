@@ -22,6 +22,7 @@ const defaultUncertaintyPF = 0.3
 func (a *app) limitsCmd() *cobra.Command {
 	var (
 		variant string
+		station string
 		u       float64
 		draws   int
 		seed    uint64
@@ -49,10 +50,16 @@ Warnings say plainly when the design cannot meet its spec window.
 
 --variant takes a file path (anything ending in .yaml/.yml, or an existing
 file) or the name of a built-in demo variant (QM-205, QM-212). The
-same --seed always gives the same numbers.`,
+same --seed always gives the same numbers.
+
+U comes from --uncertainty-pf when given; else, with --station, from the
+station's uncertainty stored in its shift log by 'padline station study'
+(GUM: ladder resolution, rung calibration, repeatability), else the station
+file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 		Example: `  padline limits --variant QM-205
   padline limits --variant testdata/variants/QM-212.yaml --uncertainty-pf 0.5
-  padline limits --variant QM-205 --draws 100000 --seed 7 --json`,
+  padline limits --variant QM-205 --draws 100000 --seed 7 --json
+  padline limits --variant QM-205 --station demo-sim --db shift.db`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if variant == "" {
@@ -65,19 +72,37 @@ same --seed always gives the same numbers.`,
 			if err != nil {
 				return err
 			}
+			uFrom := "stand-in (no --station, no --uncertainty-pf)"
+			switch {
+			case cmd.Flags().Changed("uncertainty-pf"):
+				uFrom = "--uncertainty-pf"
+			case station != "":
+				st, err := loadStation(station)
+				if err != nil {
+					return err
+				}
+				dbPath, err := shiftLogPath(cmd, station)
+				if err != nil {
+					return err
+				}
+				u, uFrom = stationUncertainty(cmd.Context(), dbPath, st)
+			}
 			rep, err := v.Limits(timing.Options{Draws: draws, Seed: seed, UncertaintyPF: u})
 			if err != nil {
 				return err
 			}
 			if asJSON {
-				return writeLimitsJSON(a.stdout, v, rep)
+				return writeLimitsJSON(a.stdout, v, rep, uFrom)
 			}
 			writeLimits(a.stdout, v, rep)
+			fmt.Fprintf(a.stdout, "U from      %s\n", uFrom)
 			return nil
 		},
 	}
 	f := cmd.Flags()
 	f.StringVar(&variant, "variant", "", "variant: a .yaml file or a built-in name ("+strings.Join(builtinNames("variants"), ", ")+")")
+	f.StringVar(&station, "station", "", "station file: take U from its shift log (stored by 'padline station study'), else its uncertainty_pf, else the stand-in")
+	f.String("db", "", "shift log for --station (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
 	f.Float64Var(&u, "uncertainty-pf", defaultUncertaintyPF, "station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U")
 	f.IntVar(&draws, "draws", timing.DefaultDraws, "Monte Carlo draws")
 	f.Uint64Var(&seed, "seed", 1, "Monte Carlo seed (same seed, same numbers)")
@@ -91,13 +116,15 @@ type limitsJSON struct {
 	Variant    string `json:"variant"`
 	Source     string `json:"source"`
 	ConfigHash string `json:"config_hash"`
+	// USource says where the guard band U came from.
+	USource string `json:"uncertainty_source"`
 	timing.Report
 }
 
-func writeLimitsJSON(w io.Writer, v *Variant, rep timing.Report) error {
+func writeLimitsJSON(w io.Writer, v *Variant, rep timing.Report, uFrom string) error {
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
-	if err := enc.Encode(limitsJSON{Variant: v.Name, Source: v.Source.Name, ConfigHash: v.Source.Hash, Report: rep}); err != nil {
+	if err := enc.Encode(limitsJSON{Variant: v.Name, Source: v.Source.Name, ConfigHash: v.Source.Hash, USource: uFrom, Report: rep}); err != nil {
 		return fmt.Errorf("limits: write json: %w", err)
 	}
 	return nil

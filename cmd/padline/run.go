@@ -111,7 +111,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 	if err != nil {
 		return err
 	}
-	u, uFrom := stationU(st)
+	u, uFrom := stationUncertainty(ctx, dbPath, st)
 	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
 	if err != nil {
 		return err
@@ -178,6 +178,11 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		fmt.Fprintln(a.stdout, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
 	}
 
+	// The station gate (station_cmd.go): no production unit without a
+	// current, passing reference check; asked again before every unit.
+	if err := stationReady(ctx, db, st, time.Now()); err != nil {
+		return a.stationRefused(err, v.Name, st, dbPath, o.asJSON)
+	}
 	next := serialSource(ctx, a.stdin, o.serial)
 	tested := 0
 	for {
@@ -201,6 +206,9 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		if err != nil {
 			a.refused(o.asJSON, raw, fmt.Sprintf("%v (unit not tested; scan again)", err))
 			continue
+		}
+		if err := stationReady(ctx, db, st, time.Now()); err != nil {
+			return a.stationRefused(err, v.Name, st, dbPath, o.asJSON)
 		}
 		if line != nil {
 			line.Load(serial)

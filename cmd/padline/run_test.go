@@ -21,6 +21,7 @@ func runPadline(t *testing.T, ctx context.Context, stdin string, args ...string)
 
 func TestRunSimulatedStation(t *testing.T) {
 	db := filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db) // the station gate wants a passing reference check
 	in := "QM205-000001\r\nnot-a-serial\n\nQM205-000002\n"
 	out, errs, code := runPadline(t, context.Background(), in,
 		"run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--operator", "ana", "--lot", "L7")
@@ -69,6 +70,7 @@ func TestRunSimulatedStation(t *testing.T) {
 
 func TestRunJSONAndStop(t *testing.T) {
 	db := filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db)
 	out, errs, code := runPadline(t, context.Background(), "",
 		"run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--serial", "QM205-000042", "--json")
 	if code != 0 {

@@ -19,6 +19,9 @@ type Station struct {
 	// UncertaintyPF is the station's expanded measurement uncertainty U
 	// (k = 2) in pF; 0 when the file does not state it.
 	UncertaintyPF float64
+	// Trust is how the station proves it still measures right: its
+	// reference units and how often they must be checked.
+	Trust StationTrust
 	// Source is where the file came from, its exact bytes and their sha256.
 	Source source
 }
@@ -43,6 +46,24 @@ type StationLadder struct {
 	Operate, Bounce time.Duration
 	// RatedOperations is the relays' rated life in operations.
 	RatedOperations float64
+	// CalUncertaintyPF is one rung's calibration standard uncertainty (the
+	// LCR meter's), pF; default 0.05.
+	CalUncertaintyPF float64
+}
+
+// StationTrust is the station file's reference units and check schedule
+// (station_cmd.go uses them).
+type StationTrust struct {
+	// References are the kept reference units, each with the trip point
+	// this station measured for it and the allowed deviation.
+	References []StationRef
+	// CheckEveryUnits and CheckEveryHours require a new check after that
+	// many production units or hours (0: no such limit).
+	CheckEveryUnits int
+	CheckEveryHours float64
+	// RelayWarnFraction is the fraction of rated relay life at which
+	// 'padline station status' warns (default 0.8).
+	RelayWarnFraction float64
 }
 
 // maxRungs is the most rungs a ladder may have (DESIGN.md §5).
@@ -126,7 +147,9 @@ func parseStation(src source) (*Station, error) {
 			d.fail("ladder.operate_ms", "must be at least 1 µs")
 		}
 		l.RatedOperations = d.positive("ladder.rated_operations", true, 0)
+		l.CalUncertaintyPF = d.nonNegative("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF)
 	}
+	s.Trust = readStationTrust(d)
 	s.Sim = readStationSim(d)
 	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
 	if err := d.finish(); err != nil {

@@ -349,6 +349,7 @@ func TestSIGTERMMidUnit(t *testing.T) {
 	hits, between := 0, 0
 	for attempt := 0; attempt < maxAttempts && hits < wantHits; attempt++ {
 		db := filepath.Join(t.TempDir(), fmt.Sprintf("shift-%d.db", attempt))
+		checkStation(t, db)
 		p := startPadline(t, bin, &input, "run", "--variant", variant, "--station", "demo-sim", "--db", db, "--json")
 		after := 1 + rng.IntN(3)
 		delay := time.Duration(rng.IntN(1000)) * time.Microsecond
@@ -413,6 +414,7 @@ func TestSIGTERMMidUnit(t *testing.T) {
 func TestSIGTERMWhileWaitingForScan(t *testing.T) {
 	bin := padlineBinary(t)
 	db := filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db)
 	p := startPadline(t, bin, nil, "run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--json")
 	defer p.stdin.Close()
 	if _, err := io.WriteString(p.stdin, "QM205-000001\n"); err != nil {
@@ -456,6 +458,7 @@ func TestCrashTorture(t *testing.T) {
 	}
 	bin := padlineBinary(t)
 	db := filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db)
 	serials := serialRange(1, units)
 	rng := rand.New(rand.NewPCG(*tortureSeed, 0x4b494c4c))
 
