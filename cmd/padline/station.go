@@ -1,6 +1,7 @@
 package main
 
 import (
+	"slices"
 	"time"
 )
 
@@ -137,6 +138,11 @@ func parseStation(src source) (*Station, error) {
 			for i, c := range l.RungsPF {
 				if c <= 0 {
 					d.fail(fmtIndex("ladder.rungs_pf", i), "must be > 0, got %g", c)
+				}
+				// Each rung is measured on its own: two identical readings
+				// are almost always one line pasted twice.
+				if j := slices.Index(l.RungsPF[:i], c); j >= 0 {
+					d.fail(fmtIndex("ladder.rungs_pf", i), "repeats rungs_pf[%d] (%g pF) exactly: measure each rung and enter its own reading", j, c)
 				}
 			}
 		}
