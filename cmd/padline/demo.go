@@ -489,8 +489,9 @@ func writeDemoSummary(w io.Writer, v *Variant, st *Station, rep timing.Report, d
 	}
 	fmt.Fprintf(w, "\ntrip accuracy on good units against the simulator's ground truth\n")
 	fmt.Fprintf(w, "  RMS error %.3f pF   max %.3f pF   bias %+.3f pF\n", s.TripRMSErrPF, s.TripMaxErrPF, s.TripBiasPF)
-	fmt.Fprintf(w, "  RMS about the bias %.3f pF (the bias is this fixture's stray calibration error, true %.2f pF vs entered %.2f pF:\n", s.TripRMSLessBiasPF, trueStray, st.Ladder.StrayPF)
-	fmt.Fprintf(w, "  the same for every unit of the shift; a reference unit of known trip point shows it as a deviation)\n")
+	fmt.Fprintf(w, "  RMS about the bias %.3f pF; the bias is this fixture's calibration error where units trip: its stray\n", s.TripRMSLessBiasPF)
+	fmt.Fprintf(w, "  (true %.2f pF, entered %.2f pF) plus the errors of the rungs closed there; the same for every unit,\n", trueStray, st.Ladder.StrayPF)
+	fmt.Fprintf(w, "  it differs from fixture to fixture (--seed) and a reference unit of known trip point shows it\n")
 	fmt.Fprintf(w, "  transition (10–90 %%) median: fitted %.2f pF, simulator's noise model %.2f pF\n", s.SpreadMedianPF, s.TrueSpreadMedian)
 
 	fmt.Fprintf(w, "\nfixture time per unit (mean, ms)")
