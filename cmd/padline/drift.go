@@ -22,6 +22,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"padline/fixture/sim"
+	"padline/sequences"
 	"padline/sequences/timing"
 	"padline/store"
 	"padline/store/drift"
@@ -56,6 +57,7 @@ type driftOptions struct {
 	uncertaintyFrom          string
 	lsl, usl                 float64 // NaN = from the variant
 	alarms                   int
+	allVerdicts              bool // chart failed units' trip points too
 	o                        drift.Options
 }
 
@@ -195,6 +197,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
 	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift")
+	fl.BoolVar(&o.allVerdicts, "all-verdicts", false, "chart failed units' trip points too (default: passing units only; yield always counts every unit)")
 	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
 	fl.StringVar(&o.rules, "rules", "", "run rules on the individuals/X̄ chart: we, nelson or limits (default: we; limits for watch)")
 	fl.IntVar(&o.subgroup, "subgroup", 5, "subgroup size for xbar-r and xbar-s (2…10)")
@@ -458,7 +461,7 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 			whole = startCounts(ctx, db, o.filter, sem)
 		}
 		var err error
-		if groups, err = driftGroups(ctx, db, o.filter, o.by); err != nil {
+		if groups, err = driftGroups(ctx, db, o.filter, o.by, o.allVerdicts); err != nil {
 			return fmt.Errorf("drift: %w", err)
 		}
 		if len(groups) == 0 {
@@ -545,7 +548,15 @@ func driftVariant(ctx context.Context, db *store.DB, ref string) (*Variant, stri
 // driftGroups reads the trip series and splits it by the --by key, groups
 // in key order (shift keys sort by time). The store's points are copied to
 // compact arrays and dropped.
-func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string) ([]driftSeries, error) {
+func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string, allVerdicts bool) ([]driftSeries, error) {
+	// A unit that failed has a defect, a special cause the limits already
+	// caught: by default only passing units feed the charts, so one bad
+	// unit does not read as the process moving. f itself (every verdict)
+	// stays the groups' filter, for their yield.
+	sf := f
+	if !allVerdicts {
+		sf.Verdict = sequences.Pass
+	}
 	// Ask for the last driftFirstAsk points first: the store sizes its
 	// slice for them at once instead of growing it (a million points are
 	// 100 MB; growing briefly holds the old array and the new). Only when
@@ -555,10 +566,10 @@ func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string) (
 	if by == "" || by == "shift" {
 		series = db.TripValues
 	}
-	pts, err := series(ctx, f, driftFirstAsk)
+	pts, err := series(ctx, sf, driftFirstAsk)
 	if err == nil && len(pts) == driftFirstAsk {
 		pts = nil
-		pts, err = series(ctx, f, 0)
+		pts, err = series(ctx, sf, 0)
 	}
 	if err != nil {
 		return nil, err

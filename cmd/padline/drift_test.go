@@ -479,3 +479,50 @@ func TestDriftScale(t *testing.T) {
 		t.Logf("padline %s: %v, %d bytes out", strings.Join(args[1:], " "), el.Round(time.Millisecond), out.Len())
 	}
 }
+
+// TestDriftChartsPassingUnitsByDefault: a failed unit's trip point (a
+// defect the limits caught) stays off the charts unless --all-verdicts,
+// while yield counts every unit either way.
+func TestDriftChartsPassingUnitsByDefault(t *testing.T) {
+	db := filepath.Join(t.TempDir(), "shift.db")
+	// 300 units of the demo shift: the seed-1 line has failing units among
+	// them (the demo's defect rates), some with a trip point.
+	if _, errs, code := runPadline(t, context.Background(), "", "demo", "--units", "300", "--db", db); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	s, err := store.Open(db)
+	if err != nil {
+		t.Fatal(err)
+	}
+	all, err := s.TripValues(context.Background(), store.Filter{Variant: "QM-205"}, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pass, err := s.TripValues(context.Background(), store.Filter{Variant: "QM-205", Verdict: sequences.Pass}, 0)
+	s.Close()
+	if err != nil || len(pass) >= len(all) {
+		t.Fatalf("the demo shift should hold failed units with trip points: %d of %d pass (%v)", len(pass), len(all), err)
+	}
+	points := func(args ...string) (n, runs int) {
+		out, errs, code := runPadline(t, context.Background(), "", append([]string{"drift", "--db", db, "--variant", "QM-205", "--json"}, args...)...)
+		if code != 0 {
+			t.Fatalf("drift %v: %s", args, errs)
+		}
+		var rep struct {
+			Groups []struct {
+				Points int `json:"points"`
+				Runs   int `json:"runs"`
+			} `json:"groups"`
+		}
+		if err := json.Unmarshal([]byte(out), &rep); err != nil || len(rep.Groups) != 1 {
+			t.Fatalf("drift json: %v\n%s", err, out)
+		}
+		return rep.Groups[0].Points, rep.Groups[0].Runs
+	}
+	n, runs := points()
+	nAll, runsAll := points("--all-verdicts")
+	if n != len(pass) || nAll != len(all) || runs != runsAll || runs < 300 {
+		t.Errorf("charted %d (want %d passing) and %d with --all-verdicts (want %d); yield over %d and %d runs",
+			n, len(pass), nAll, len(all), runs, runsAll)
+	}
+}
