@@ -302,41 +302,46 @@ type CheckConfig struct {
 	// PowerSettle is the wait after power-up; Period the latch sample
 	// period without a clock pin.
 	PowerSettle, Period time.Duration
-	// GuardPF is the least distance of a go/no-go level from the reference
-	// trip (default 0.9 pF, about 5σ of a 0.44 pF transition). The check
-	// widens it to 2× the reference unit's measured 10–90 % transition
-	// (≈ 5σ) when that is wider, so a go/no-go reading is certain.
-	GuardPF float64
-	// K is the samples per go/no-go level (default 8).
-	K int
-	// Fine pairs: a rung too small for a go/no-go pair gets a pair
-	// straddling the measured trip (without the rung just below it, with it
-	// just above), judged by how many more samples latch with the rung than
-	// without it. With the unit's measured σ the healthy difference of the
-	// latch-high probabilities is Δp = Φ(m/σ) − Φ(−m/σ) at the pair's
-	// margin m; a stuck rung gives 0. A pair is used when Δp ≥ FineMinDP
-	// (default 0.3); it takes k = 64·2p(1−p)/Δp² samples per level (4
-	// standard deviations between the two outcomes and the threshold
-	// Δp·k/2), at least 32 and at most FineMaxK (default 256).
-	FineMinDP float64
-	FineMaxK  int
+	// CalPF is one rung's calibration standard uncertainty (default 0.05
+	// pF, the LCR meter's at these values, DESIGN.md §12). A level's offset
+	// from the reference trip is known to ±CalPF·√(rungs it does not share
+	// with the trip's level).
+	CalPF float64
+	// K is the first samples per level of a rung pair (default 8; 32 for
+	// a pair that straddles the trip by less than 4σ); MaxK the most
+	// samples one level gets by re-probing (default 512).
+	K, MaxK int
+	// DecideNats is the log likelihood ratio by which a stuck rung must
+	// explain the pair readings better than the healthy ladder before it is
+	// named (default ln 10⁶); AcceptNats the ratio by which the healthy
+	// ladder must beat every stuck rung to end re-probing (default ln 10³).
+	DecideNats, AcceptNats float64
+	// MaxSearches is how many trip searches are pooled when the first
+	// deviation lies within 3 standard errors of the allowance (default 4).
+	MaxSearches int
 	// Search tunes the trip search (defaults: SE target 0.03 pF, 96
 	// refinement samples).
 	Search SearchOptions
 }
 
 func (c CheckConfig) withDefaults() CheckConfig {
-	if c.GuardPF <= 0 {
-		c.GuardPF = 0.9
+	if c.CalPF <= 0 {
+		c.CalPF = 0.05
 	}
 	if c.K <= 0 {
 		c.K = 8
 	}
-	if c.FineMinDP <= 0 {
-		c.FineMinDP = 0.3
+	if c.MaxK <= 0 {
+		c.MaxK = 512
 	}
-	if c.FineMaxK <= 0 {
-		c.FineMaxK = 256
+	if c.DecideNats <= 0 {
+		c.DecideNats = math.Log(1e6)
+	}
+	if c.AcceptNats <= 0 {
+		c.AcceptNats = math.Log(1e3)
+	}
+	if c.MaxSearches <= 0 {
+		c.MaxSearches = 4
 	}
 	if c.Search.SETargetPF == 0 {
 		c.Search.SETargetPF = 0.03
@@ -352,14 +357,14 @@ const (
 	RungOK          = "ok"
 	RungStuckOpen   = "stuck_open"
 	RungStuckClosed = "stuck_closed"
-	// RungDrifted: a reference deviation that, across every reference
-	// unit, only this rung explains (CombineChecks).
+	// RungDrifted: the reference deviations, taken together, point at this
+	// rung alone (CombineChecks).
 	RungDrifted = "drifted"
-	// RungDriftSuspect: one of a group of rungs a reference deviation
-	// points at that the reference units cannot tell apart.
+	// RungDriftSuspect: one of several rungs (or the stray) the reference
+	// deviations fit equally well.
 	RungDriftSuspect = "drift_suspect"
-	// RungUnmeasured: this reference unit has no go/no-go or fine pair for
-	// the rung (its trip sits badly on the rung's grid).
+	// RungUnmeasured: the pair readings of this reference unit could not
+	// tell the rung stuck from healthy within the sample budget.
 	RungUnmeasured = "not_measured"
 )
 
@@ -376,61 +381,74 @@ type RungFinding struct {
 // RefCheck is the result of checking one reference unit.
 type RefCheck struct {
 	Reference
+	// MeasuredPF is the mean of the pooled trip searches, SEPF its
+	// standard error (twice the searches' own, which understate it when the
+	// trip falls between widely spaced levels), DevPF MeasuredPF − TripPF.
 	MeasuredPF *float64 `json:"measured_pf"`
 	SEPF       *float64 `json:"se_pf"`
 	DevPF      *float64 `json:"dev_pf"`
-	// SpreadPF is the measured 10–90 % transition; GuardPF the go/no-go
-	// distance used (GuardPF of the config, or 2× the spread).
+	// SpreadPF is the measured 10–90 % transition (first search).
 	SpreadPF *float64      `json:"spread_pf"`
-	GuardPF  float64       `json:"guard_pf"`
 	OK       bool          `json:"ok"`
 	Rungs    []RungFinding `json:"rungs"`
 	// Faults name every problem found, one line each; empty when OK.
 	Faults []string `json:"faults"`
-	// Suspects, for a deviation no rung test explains: what could cause it.
+	// Suspects, for a deviation beyond the allowance: the rungs this
+	// reference's trip mostly rests on (CombineChecks narrows it with the
+	// other reference units).
 	Suspects string `json:"suspects,omitempty"`
-	// SuspectRungs are the rungs closed at every level near the reference
-	// trip, which a deviation of this reference cannot tell apart (nor
-	// from the stray); Covers is the same set for a reference within its
-	// allowance: the rungs (and the stray) it vouches for. CombineChecks
-	// narrows one by the other.
-	SuspectRungs []int         `json:"suspect_rungs,omitempty"`
-	Covers       []int         `json:"covers_rungs,omitempty"`
-	FixtureTime  time.Duration `json:"fixture_time_ns"`
-	Searches     int           `json:"searches"`
+	// RungWeights[r] is how much of a drift of rung r this reference's
+	// measured trip takes up (0–1): the share of the trip searches' Fisher
+	// information on levels with rung r closed. A drift of the stray moves
+	// every reference by its full size. Empty when no trip was measured.
+	RungWeights []float64 `json:"rung_weights,omitempty"`
+	// StuckFound is true when the pair readings named a stuck rung: the
+	// deviation then says nothing about drift.
+	StuckFound bool `json:"stuck_found,omitempty"`
+	// StuckLLR is the log likelihood ratio (nats) of the best single stuck
+	// rung against the healthy ladder on the pair readings: named from
+	// CheckConfig.DecideNats up, the healthy ladder accepted from
+	// −AcceptNats down.
+	StuckLLR    float64       `json:"stuck_llr"`
+	FixtureTime time.Duration `json:"fixture_time_ns"`
+	Searches    int           `json:"searches"`
+	// PairSamples counts the latch samples of the rung pairs and pogo
+	// levels, re-probes included.
+	PairSamples int `json:"pair_samples"`
 }
 
 // checker drives one reference check.
 type checker struct {
-	ctx context.Context
-	st  Station
-	cfg CheckConfig
-	all []Level // every pattern of the ladder, by entered pF, ascending
-	g   float64 // the go/no-go guard in force
+	ctx  context.Context
+	st   Station
+	cfg  CheckConfig
+	all  []Level // every pattern of the ladder, by entered pF, ascending
+	memo map[llKey]float64
 }
 
 // CheckReference powers the reference unit already in the fixture, measures
-// its trip point and compares it with ref, and self-tests the ladder on it:
-//   - pogo pins: a latch that never reads high, even with every rung
-//     closed, is an open pad or latch pin (the two read the same: nothing
-//     of the fixture reaches the unit, or nothing of the unit the fixture);
-//   - go/no-go: every rung large enough gets a pair, a level at least the
-//     guard below the trip without the rung and the same level with it at
-//     least the guard above; the readings are tested against the healthy
-//     ladder and against every single stuck-open or stuck-closed rung;
-//   - fine pairs: a rung too small for that gets a pair straddling the
-//     measured trip by at least FineMinPF each side, FineK samples each: a
-//     working rung latches clearly more often with it than without it; a
-//     stuck one reads the same both ways;
-//   - deviation: a reference trip beyond its allowance that no rung test
-//     explains points at the rungs closed at every level near the trip,
-//     the stray, or the reference unit itself (CombineChecks narrows this
-//     with the other reference units).
+// its trip point and compares it with ref, and self-tests the ladder on it.
 //
-// A binary ladder has no level sets with and without a rung (other than the
-// smallest) close enough together around one trip to measure the rung's
-// value by a difference of two trips, so a drifted rung is found only
-// through the deviation of a reference unit whose trip needs it.
+//   - Pogo pins: a latch that never reads high, even with every rung
+//     closed, is an open pad or latch pin (the two read the same: nothing
+//     of the fixture reaches the unit, or nothing of the unit the fixture).
+//   - Trip: a trip search on the whole ladder near the registered trip.
+//   - Rung pairs: for every rung r, the level q without r and q + r that
+//     best straddle the trip. With a healthy ladder the two sit C_r apart
+//     across the trip; with r stuck they are the same circuit and read
+//     alike; a stuck rung s ≠ r moves both by C_s. Every reading is scored
+//     against the healthy ladder and against each single stuck rung by its
+//     likelihood under a probit transition, integrated over what the
+//     station cannot know: the levels' calibration errors relative to the
+//     trip's level (CalPF·√(rungs not shared), normal) and the reference's
+//     allowed deviation, and maximised over the transition's σ. A stuck
+//     rung is named only when it explains the readings DecideNats better
+//     than the healthy ladder; until one side wins, the pairs that tell
+//     them apart are re-probed with twice the samples (at most MaxK).
+//   - Deviation: the trip is compared with the allowance; when it lies
+//     within 3 standard errors of it, further searches are pooled (at most
+//     MaxSearches). CombineChecks names the drifted rung (or the group the
+//     reference units cannot tell apart) from every reference's deviation.
 //
 // The station is left with power off and every rung open. An error means
 // the station could not finish (pin error, lid): no verdict.
@@ -448,15 +466,9 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 		}
 		res.FixtureTime = clk.Now().Sub(start)
 	}()
-	c := &checker{ctx: ctx, st: st, cfg: cfg, g: cfg.GuardPF}
+	c := &checker{ctx: ctx, st: st, cfg: cfg}
 	for p := range 1 << n {
-		pf := cfg.StrayPF
-		for i := range n {
-			if p&(1<<i) != 0 {
-				pf += cfg.RungsPF[i]
-			}
-		}
-		c.all = append(c.all, Level{PF: pf, Pattern: uint16(p)})
+		c.all = append(c.all, Level{PF: c.pf(uint16(p)), Pattern: uint16(p)})
 	}
 	sort.SliceStable(c.all, func(i, j int) bool { return c.all[i].PF < c.all[j].PF })
 
@@ -489,144 +501,183 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 	if err != nil {
 		return res, err
 	}
-	if highAll == 0 && c.all[len(c.all)-1].PF > T+cfg.GuardPF {
-		fault("pad or latch pogo pin open: the latch never read high, not even with every rung closed (%.1f pF)", c.all[len(c.all)-1].PF)
-		res.GuardPF = c.g
+	res.PairSamples += 2 * cfg.K
+	if top := c.pf(allClosed); highAll == 0 && top > T+2 {
+		fault("pad or latch pogo pin open: the latch never read high, not even with every rung closed (%.1f pF)", top)
 		return res, nil
 	}
 
 	// The reference trip on the whole ladder.
-	full, err := c.tripNear(func(uint16) bool { return true }, T)
+	first, err := c.tripNear(T)
 	if err != nil {
 		return res, err
 	}
 	res.Searches++
-	center := T
-	if full.Found && !full.Below {
-		res.MeasuredPF, res.SEPF = ptrF(full.TripPF), ptrF(full.SEPF)
-		res.DevPF = ptrF(full.TripPF - T)
-		if sp := full.SpreadPF; sp > 0 && !math.IsInf(sp, 0) {
+	sigma := 0.25 // no transition measured: a typical one
+	center, uT := T, math.Max(ref.AllowedDevPF/2, 0.05)
+	if first.Found && !first.Below && !math.IsNaN(first.TripPF) {
+		if sp := first.SpreadPF; sp > 0 && !math.IsInf(sp, 0) {
 			res.SpreadPF = ptrF(sp)
-			c.g = math.Max(c.g, 2*math.Min(sp, 3))
+			sigma = first.SigmaPF
 		}
-		if math.Abs(full.TripPF-T) <= c.g {
-			center = full.TripPF
+		// The pairs are judged against this session's trip when it lies
+		// within 1 pF (or the allowance) of the registered one: a drifted
+		// rung under every level near the trip moves the trip, not the
+		// pairs' places around it, and a stuck small rung moves it by less
+		// than its value toward where the pair still tells. A trip further
+		// off is a stuck rung the search followed: the registered trip
+		// (within its allowance) is the better centre then.
+		if math.Abs(first.TripPF-T) <= math.Max(ref.AllowedDevPF, 1) {
+			center, uT = first.TripPF, math.Max(2*first.SEPF, 0.03)
 		}
 	}
-	res.GuardPF = c.g
+	sigma = math.Min(math.Max(sigma, 0.1), 1.5)
 
-	// Go/no-go pairs for every rung large enough.
-	obs := []observation{{0, lowAll}, {allClosed, highAll}}
+	// Rung pairs, scored against the healthy ladder and each stuck rung.
+	pt := c.nearest(center)
+	rd := []reading{
+		{lo: 0, nlo: cfg.K, hlo: lowAll, rung: -1},
+		{lo: allClosed, nlo: cfg.K, hlo: highAll, rung: -1},
+	}
 	for r := range n {
-		bit := uint16(1) << r
-		q, ok := c.pairBase(r, T)
-		if !ok {
+		q := c.straddle(r, center)
+		k := cfg.K
+		m := math.Min(center-c.pf(q), c.pf(q)+cfg.RungsPF[r]-center)
+		if m < 4*sigma+3*c.u(q, pt, uT) {
+			k = max(k, 32)
+		}
+		x := reading{lo: q, hi: q | 1<<r, pair: true, rung: r}
+		if err := c.sample(&x, k); err != nil {
+			return res, err
+		}
+		res.PairSamples += 2 * k
+		rd = append(rd, x)
+	}
+	var sc scores
+	for {
+		sc = c.score(rd, center, uT, pt)
+		best, llr := sc.bestFault()
+		if llr >= cfg.DecideNats || llr <= -cfg.AcceptNats {
+			break
+		}
+		// Re-probe the pairs whose readings the best fault and the healthy
+		// ladder predict differently and that are not yet decisive.
+		more := false
+		for i := range rd {
+			x := &rd[i]
+			if x.nlo >= cfg.MaxK || sc.per[best][i]-sc.per[0][i] <= -cfg.AcceptNats || !c.differs(*x, best, center, sigma) {
+				continue
+			}
+			k := min(x.nlo, cfg.MaxK-x.nlo)
+			if err := c.sample(x, k); err != nil {
+				return res, err
+			}
+			res.PairSamples += k
+			if x.pair {
+				res.PairSamples += k
+			}
+			more = true
+		}
+		if !more {
+			break
+		}
+	}
+	best, llr := sc.bestFault()
+	res.StuckLLR = llr
+	for _, x := range rd {
+		if !x.pair {
 			continue
 		}
-		lo, err := c.highs(q, cfg.K)
-		if err != nil {
-			return res, err
+		f := &res.Rungs[x.rung]
+		f.Test = fmt.Sprintf("%s (trip %.2f pF)", c.describeReading(x), center)
+		if sc.llrOf(c.hyp(x.rung, false)) <= -cfg.AcceptNats && sc.llrOf(c.hyp(x.rung, true)) <= -cfg.AcceptNats {
+			f.Status = RungOK
 		}
-		hi, err := c.highs(q|bit, cfg.K)
-		if err != nil {
-			return res, err
-		}
-		obs = append(obs, observation{q, lo}, observation{q | bit, hi})
-		f := &res.Rungs[r]
-		f.Status = RungOK
-		f.Test = fmt.Sprintf("go/no-go %.2f → %.2f pF: %d and %d of %d high", c.pf(q), c.pf(q|bit), lo, hi, cfg.K)
 	}
-	// The single-fault hypotheses the go/no-go readings allow.
-	healthy, sOpen, sClosed := c.explain(obs, T)
-	if !healthy {
+	if llr >= cfg.DecideNats {
+		res.StuckFound = true
 		for r := range res.Rungs {
 			if res.Rungs[r].Status == RungOK {
 				res.Rungs[r].Status = RungUnmeasured
 			}
 		}
+		// Every stuck rung that fits about as well is named with it.
+		var alts []string
+		for h := 1; h < len(sc.total); h++ {
+			if sc.total[h] < sc.total[best]-math.Log(100) {
+				continue
+			}
+			r, closed := c.hypRung(h)
+			status, word := RungStuckOpen, "open"
+			if closed {
+				status, word = RungStuckClosed, "closed"
+			}
+			res.Rungs[r].Status = status
+			alts = append(alts, fmt.Sprintf("rung %d (%.2f pF) stuck %s", r, cfg.RungsPF[r], word))
+		}
 		switch {
-		case len(sOpen)+len(sClosed) == 0:
-			fault("the go/no-go readings fit no single stuck rung: several ladder faults, or the reference unit is not the registered one")
+		case sc.poor[best] >= 0:
+			fault("the pair readings fit no single stuck rung (nearest: %s; worst: %s): several ladder faults, or the reference unit is not the registered one", joinList(alts), c.describeReading(rd[sc.poor[best]]))
+		case len(alts) == 1:
+			fault("%s", alts[0])
 		default:
-			var alts []string
-			for _, r := range sOpen {
-				alts = append(alts, fmt.Sprintf("rung %d (%.2f pF) stuck open", r, cfg.RungsPF[r]))
-				res.Rungs[r].Status = RungStuckOpen
-			}
-			for _, r := range sClosed {
-				alts = append(alts, fmt.Sprintf("rung %d (%.2f pF) stuck closed", r, cfg.RungsPF[r]))
-				res.Rungs[r].Status = RungStuckClosed
-			}
-			if len(alts) == 1 {
-				fault("%s", alts[0])
-			} else {
-				fault("%s (this reference unit cannot tell them apart)", joinList(alts))
-			}
+			fault("%s (this reference unit cannot tell them apart)", joinList(alts))
 		}
 		return res, nil
 	}
-
-	// Fine pairs for the rungs too small for a go/no-go pair. When the
-	// reference trip deviates too, a drifted larger rung in the pair's
-	// base level reads the same as a stuck small rung: both are named.
-	confound := ""
-	if res.DevPF != nil && math.Abs(*res.DevPF) > ref.AllowedDevPF {
-		confound = ", or a drifted rung in the levels near the trip (the reference trip deviates too)"
+	if i := sc.poor[0]; i >= 0 {
+		cause := "several ladder faults, or an intermittent or damaged reference unit"
+		if x := rd[i]; x.pair {
+			cause = fmt.Sprintf("rung %d (%.2f pF) far from its entered value (its pair reads another step), %s", x.rung, cfg.RungsPF[x.rung], cause)
+			res.Rungs[x.rung].Status = RungDriftSuspect
+		}
+		fault("reference unit %s: the pair readings fit neither a healthy ladder nor a single stuck rung (worst: %s): %s", ref.Serial, c.describeReading(rd[i]), cause)
+		return res, nil
 	}
 
-	for r := range n {
-		f := &res.Rungs[r]
-		if f.Status != RungUnmeasured {
-			continue
+	// Deviation: pool further searches while it is too close to call.
+	trips := []search{first}
+	if !first.Found || first.Below || math.IsNaN(first.TripPF) {
+		fault("reference unit %s: no trip point found near the registered %.2f pF", ref.Serial, T)
+		return res, nil
+	}
+	var mean, se float64
+	for {
+		var sum, ss float64
+		for _, t := range trips {
+			sum += t.TripPF
+			s := math.Max(2*t.SEPF, 0.02)
+			ss += s * s
 		}
-		bit := uint16(1) << r
-		// Centred on the registered trip, not the measured one: a stuck
-		// rung biases the measurement, and the pair must not follow it.
-		q, m := c.finePair(r, T)
-		sigma := c.g / 5 // the guard is 2× the 10–90 % width, about 5σ
-		if res.SpreadPF != nil {
-			sigma = *res.SpreadPF / 2.5631 // 10–90 % = 2·1.2816σ
+		k := float64(len(trips))
+		mean, se = sum/k, math.Sqrt(ss)/k
+		d := math.Abs(mean - T)
+		if len(trips) >= cfg.MaxSearches || d <= ref.AllowedDevPF-3*se || d >= ref.AllowedDevPF+3*se {
+			break
 		}
-		p := normCDF(m / sigma)
-		dp := 2*p - 1
-		if dp < cfg.FineMinDP {
-			f.Test = fmt.Sprintf("no level pair straddles the trip enough (best ±%.2f pF, σ %.2f pF)", m, sigma)
-			continue
-		}
-		k := int(math.Ceil(64 * 2 * p * (1 - p) / (dp * dp)))
-		k = min(max(k, 32), cfg.FineMaxK)
-		lo, err := c.highs(q, k)
+		t, err := c.tripNear(T)
 		if err != nil {
 			return res, err
 		}
-		hi, err := c.highs(q|bit, k)
-		if err != nil {
-			return res, err
-		}
-		f.Test = fmt.Sprintf("fine pair %.2f → %.2f pF (±%.2f pF about %.2f): %d and %d of %d high", c.pf(q), c.pf(q|bit), m, T, lo, hi, k)
-		switch {
-		case float64(hi-lo) >= dp*float64(k)/2:
-			f.Status = RungOK
-		case lo+hi < k:
-			f.Status = RungStuckOpen
-			fault("rung %d (%.2f pF) stuck open%s", r, cfg.RungsPF[r], confound)
-		default:
-			f.Status = RungStuckClosed
-			fault("rung %d (%.2f pF) stuck closed%s", r, cfg.RungsPF[r], confound)
+		res.Searches++
+		if t.Found && !t.Below && !math.IsNaN(t.TripPF) {
+			trips = append(trips, t)
+		} else {
+			break
 		}
 	}
-
-	always := c.always(center)
-	switch {
-	case res.DevPF == nil && len(res.Faults) == 0:
-		fault("reference unit %s: no trip point found (registered %.2f pF)", ref.Serial, T)
-	case res.DevPF != nil && math.Abs(*res.DevPF) > ref.AllowedDevPF:
+	res.MeasuredPF, res.SEPF, res.DevPF = ptrF(mean), ptrF(se), ptrF(mean-T)
+	res.RungWeights = c.weights(trips)
+	if math.Abs(mean-T) > ref.AllowedDevPF {
 		fault("reference unit %s: trip %.2f pF, registered %.2f pF: deviation %+.2f pF beyond ±%.2f pF",
-			ref.Serial, *res.MeasuredPF, T, *res.DevPF, ref.AllowedDevPF)
-		res.SuspectRungs = always
-		res.Suspects = "drift of " + c.describe(always, true) + " (closed at every level near the reference trip), or of the reference unit itself"
-	case res.DevPF != nil:
-		res.Covers = always
+			ref.Serial, mean, T, mean-T, ref.AllowedDevPF)
+		var heavy []int
+		for r, w := range res.RungWeights {
+			if w >= 0.5 {
+				heavy = append(heavy, r)
+			}
+		}
+		res.Suspects = "drift of " + describeRungs(cfg.RungsPF, heavy, true) + " (closed at the levels this trip rests on), or of the reference unit itself"
 	}
 	res.OK = len(res.Faults) == 0
 	return res, nil
@@ -643,71 +694,353 @@ func (c *checker) pf(p uint16) float64 {
 	return pf
 }
 
-// observation is one go/no-go reading: K samples at a pattern.
-type observation struct {
-	pattern uint16
-	highs   int
+// nearest is the pattern whose level is nearest T.
+func (c *checker) nearest(T float64) uint16 {
+	i := sort.Search(len(c.all), func(i int) bool { return c.all[i].PF >= T })
+	switch {
+	case i == len(c.all):
+		return c.all[i-1].Pattern
+	case i > 0 && T-c.all[i-1].PF < c.all[i].PF-T:
+		return c.all[i-1].Pattern
+	}
+	return c.all[i].Pattern
 }
 
-// explain tests the single-fault hypotheses against the go/no-go readings:
-// whether the healthy ladder explains them, and which single stuck-open or
-// stuck-closed rung would. A reading explains a hypothesis when the
-// hypothesis puts the pattern at least half the guard on the side the
-// reading shows (all samples high, or none), or within half the guard of
-// the trip (where any reading fits).
-func (c *checker) explain(obs []observation, T float64) (healthy bool, open, closed []int) {
-	fits := func(stuck func(r int, on bool) bool) bool {
-		for _, o := range obs {
-			pf := c.cfg.StrayPF
-			for r, v := range c.cfg.RungsPF {
-				if stuck(r, o.pattern&(1<<r) != 0) {
-					pf += v
-				}
-			}
-			switch {
-			case math.Abs(pf-T) < c.g/2:
-			case pf > T && o.highs != c.cfg.K:
-				return false
-			case pf < T && o.highs != 0:
-				return false
-			}
+// u is the standard uncertainty of level p's offset from the trip: the
+// calibration errors of the rungs p does not share with the trip's level pt,
+// and uT, the trip's own.
+func (c *checker) u(p, pt uint16, uT float64) float64 {
+	d := float64(bits.OnesCount16(p ^ pt))
+	return math.Sqrt(c.cfg.CalPF*c.cfg.CalPF*d + uT*uT)
+}
+
+// straddle finds the pattern q without rung r whose pair (q, q + r) best
+// straddles T: it maximises min(T − q, q + r − T), fewest rungs on ties.
+func (c *checker) straddle(r int, T float64) uint16 {
+	bit := uint16(1) << r
+	best, bestM := uint16(0), math.Inf(-1)
+	for _, lv := range c.all {
+		if lv.Pattern&bit != 0 {
+			continue
 		}
+		m := math.Min(T-lv.PF, lv.PF+c.cfg.RungsPF[r]-T)
+		if m > bestM+1e-9 || (math.Abs(m-bestM) <= 1e-9 && bits.OnesCount16(lv.Pattern) < bits.OnesCount16(best)) {
+			best, bestM = lv.Pattern, m
+		}
+	}
+	return best
+}
+
+// reading is what was read at one level (a pogo level) or at a rung's pair
+// of levels lo = q and hi = q + rung.
+type reading struct {
+	lo, hi   uint16
+	pair     bool
+	rung     int
+	nlo, hlo int
+	nhi, hhi int
+}
+
+// describeReading says what a reading read.
+func (c *checker) describeReading(x reading) string {
+	if !x.pair {
+		return fmt.Sprintf("%.2f pF: %d of %d high", c.pf(x.lo), x.hlo, x.nlo)
+	}
+	return fmt.Sprintf("rung %d pair %.2f → %.2f pF: %d of %d and %d of %d high", x.rung, c.pf(x.lo), c.pf(x.hi), x.hlo, x.nlo, x.hhi, x.nhi)
+}
+
+// sample takes k more samples at the reading's level(s).
+func (c *checker) sample(x *reading, k int) error {
+	h, err := c.highs(x.lo, k)
+	if err != nil {
+		return err
+	}
+	x.nlo, x.hlo = x.nlo+k, x.hlo+h
+	if !x.pair {
+		return nil
+	}
+	if h, err = c.highs(x.hi, k); err != nil {
+		return err
+	}
+	x.nhi, x.hhi = x.nhi+k, x.hhi+h
+	return nil
+}
+
+// Hypotheses: 0 is the healthy ladder, 1 + r rung r stuck open, 1 + n + r
+// rung r stuck closed.
+func (c *checker) hyp(r int, closed bool) int {
+	if closed {
+		return 1 + len(c.cfg.RungsPF) + r
+	}
+	return 1 + r
+}
+
+func (c *checker) hypRung(h int) (int, bool) {
+	n := len(c.cfg.RungsPF)
+	if h > n {
+		return h - 1 - n, true
+	}
+	return h - 1, false
+}
+
+// effPF is the capacitance pattern p puts on the pad under hypothesis h, on
+// the entered values.
+func (c *checker) effPF(h int, p uint16) float64 {
+	if h > 0 {
+		r, closed := c.hypRung(h)
+		if closed {
+			p |= 1 << r
+		} else {
+			p &^= 1 << r
+		}
+	}
+	return c.pf(p)
+}
+
+// differs reports whether hypothesis h and the healthy ladder put one of the
+// reading's levels on different sides of the trip, or the pair's two levels
+// at different distances apart.
+func (c *checker) differs(x reading, h int, T, sigma float64) bool {
+	side := func(p uint16) bool {
+		a, b := (c.effPF(0, p)-T)/sigma, (c.effPF(h, p)-T)/sigma
+		return math.Abs(normCDF(a)-normCDF(b)) > 0.02
+	}
+	if side(x.lo) || x.pair && side(x.hi) {
 		return true
 	}
-	healthy = fits(func(_ int, on bool) bool { return on })
-	for x := range c.cfg.RungsPF {
-		if fits(func(r int, on bool) bool { return on && r != x }) {
-			open = append(open, x)
-		}
-		if fits(func(r int, on bool) bool { return on || r == x }) {
-			closed = append(closed, x)
-		}
-	}
-	return healthy, open, closed
+	return x.pair && math.Abs((c.effPF(0, x.hi)-c.effPF(0, x.lo))-(c.effPF(h, x.hi)-c.effPF(h, x.lo))) > 1e-9
 }
 
-// always returns the rungs closed at every level the trip search can use
-// within half the guard of T: a drift of any of them (or of the stray)
-// moves this reference's measured trip by the drift.
-func (c *checker) always(T float64) []int {
-	mask := ^uint16(0)
-	for _, lv := range c.subset(func(uint16) bool { return true }, T) {
-		if math.Abs(lv.PF-T) <= c.g/2 {
-			mask &= lv.Pattern
-		}
-	}
-	var out []int
-	for r := range c.cfg.RungsPF {
-		if mask&(1<<r) != 0 {
-			out = append(out, r)
-		}
-	}
-	return out
+// llKey identifies one reading likelihood: reading, its counts (the upper
+// level has as many samples as the lower), σ, and where the hypothesis puts
+// its levels.
+type llKey struct {
+	i, n, hlo, hhi int
+	sigma, a0, d   float64
 }
 
-// describe names rungs (and the stray).
-func (c *checker) describe(rungs []int, stray bool) string {
-	return describeRungs(c.cfg.RungsPF, rungs, stray)
+// scores are the log likelihoods of the readings per hypothesis.
+type scores struct {
+	total []float64   // per hypothesis, profiled over σ
+	per   [][]float64 // per hypothesis and reading, at that hypothesis' σ
+	poor  []int       // a reading the hypothesis fits very badly, or −1
+}
+
+// bestFault returns the best stuck-rung hypothesis and its log likelihood
+// ratio against the healthy ladder.
+func (s scores) bestFault() (int, float64) {
+	best := 1
+	for h := 2; h < len(s.total); h++ {
+		if s.total[h] > s.total[best] {
+			best = h
+		}
+	}
+	return best, s.total[best] - s.total[0]
+}
+
+func (s scores) llrOf(h int) float64 { return s.total[h] - s.total[0] }
+
+// lapse is the chance of a sample reading the wrong way whatever the
+// capacitance (a glitch): one wrong sample must not outweigh everything.
+const lapse = 1e-4
+
+// poorNats is the misfit of one reading (log likelihood below its
+// saturated value) taken as "this hypothesis cannot explain it".
+const poorNats = 30.0
+
+// score computes the log likelihood of every hypothesis. A reading's
+// likelihood integrates its level's unknown offset a ~ N(effPF − T, u²)
+// over P(high) = Φ(a/σ) (the pair's upper level at a + effPF(hi) −
+// effPF(lo), with the rung's own calibration error folded into its σ); σ is
+// profiled over a grid around the measured one.
+func (c *checker) score(rd []reading, T, uT float64, pt uint16) scores {
+	nh := 1 + 2*len(c.cfg.RungsPF)
+	s := scores{total: make([]float64, nh), per: make([][]float64, nh), poor: make([]int, nh)}
+	// Many hypotheses put a reading's levels at the same places, and a
+	// re-probe changes few readings: memoise across calls.
+	if c.memo == nil {
+		c.memo = map[llKey]float64{}
+	}
+	memo := c.memo
+	for h := range nh {
+		best := math.Inf(-1)
+		var bestPer []float64
+		for _, f := range sigmaGrid {
+			sigma := f
+			per := make([]float64, len(rd))
+			var tot float64
+			for i, x := range rd {
+				a0 := c.effPF(h, x.lo) - T
+				var d float64
+				if x.pair {
+					d = c.effPF(h, x.hi) - c.effPF(h, x.lo)
+				}
+				k := llKey{i, x.nlo, x.hlo, x.hhi, f, a0, d}
+				ll, ok := memo[k]
+				if !ok {
+					ll = c.readingLL(x, a0, d, c.u(x.lo, pt, uT), sigma)
+					memo[k] = ll
+				}
+				per[i] = ll
+				tot += ll
+			}
+			if tot > best {
+				best, bestPer = tot, per
+			}
+		}
+		s.total[h], s.per[h], s.poor[h] = best, bestPer, -1
+		worst := float64(poorNats)
+		for i, x := range rd {
+			if m := satLL(x) - bestPer[i]; m > worst {
+				s.poor[h], worst = i, m
+			}
+		}
+	}
+	return s
+}
+
+// sigmaGrid are the transition σ (pF) over which the likelihood is
+// profiled, in steps of √2: the first search's σ is too rough to fix it
+// (it ranges over a factor of 4 for one unit when the trip falls between
+// widely spaced levels), and the pair readings measure it themselves.
+var sigmaGrid = []float64{0.113, 0.16, 0.226, 0.32, 0.45, 0.64, 0.9, 1.28}
+
+// satLL is a reading's log likelihood at its own observed fractions.
+func satLL(x reading) float64 {
+	ll := func(h, n int) float64 {
+		if n == 0 {
+			return 0
+		}
+		p := math.Min(math.Max(float64(h)/float64(n), lapse), 1-lapse)
+		return float64(h)*math.Log(p) + float64(n-h)*math.Log(1-p)
+	}
+	return ll(x.hlo, x.nlo) + ll(x.hhi, x.nhi)
+}
+
+// readingLL is the log likelihood of reading x when its lower level sits
+// a0 ± u from the trip and its upper level d above the lower.
+func (c *checker) readingLL(x reading, a0, d, u, sigma float64) float64 {
+	sigHi := sigma
+	if d != 0 {
+		sigHi = math.Hypot(sigma, c.cfg.CalPF)
+	}
+	logP := func(z float64, hi, n int) float64 {
+		p := lapse + (1-2*lapse)*normCDF(z)
+		return float64(hi)*math.Log(p) + float64(n-hi)*math.Log(1-p)
+	}
+	// Levels beyond 9σ of the trip for every offset read with the lapse
+	// rate alone: no integral needed (Φ(−9) ≈ 1e-19 ≪ lapse).
+	far := func(a float64) (bool, float64) {
+		switch {
+		case a-5*u > 9*sigHi:
+			return true, 9
+		case a+5*u < -9*sigHi:
+			return true, -9
+		}
+		return false, 0
+	}
+	if f1, z1 := far(a0); f1 {
+		if !x.pair {
+			return logP(z1, x.hlo, x.nlo)
+		}
+		if f2, z2 := far(a0 + d); f2 {
+			return logP(z1, x.hlo, x.nlo) + logP(z2, x.hhi, x.nhi)
+		}
+	}
+	// ∫ N(e) L(a0 + e·u) de over e ∈ [−5, 5] by the trapezoid rule in
+	// log space: a coarse grid, refined 16-fold on the two intervals around
+	// its largest point, where a reading of many samples makes the
+	// integrand much narrower than the coarse step.
+	g := func(e float64) float64 {
+		a := a0 + e*u
+		t := logP(a/sigma, x.hlo, x.nlo) - e*e/2
+		if x.pair {
+			t += logP((a+d)/sigHi, x.hhi, x.nhi)
+		}
+		return t
+	}
+	const n, fine = 25, 16
+	h := 10.0 / (n - 1)
+	var coarse [n]float64
+	jm := 0
+	for j := range n {
+		coarse[j] = g(-5 + h*float64(j))
+		if coarse[j] > coarse[jm] {
+			jm = j
+		}
+	}
+	lo, hi := max(jm-1, 0), min(jm+1, n-1)
+	terms := make([]float64, 0, 2*(n+2*fine))
+	add := func(t, w float64) { terms = append(terms, t+math.Log(w)) }
+	for j := range n - 1 { // coarse intervals [j, j+1] outside [lo, hi]
+		if j >= lo && j < hi {
+			continue
+		}
+		add(coarse[j], h/2)
+		add(coarse[j+1], h/2)
+	}
+	hf := h / fine
+	prev := coarse[lo]
+	for k := 1; k <= (hi-lo)*fine; k++ {
+		next := g(-5 + h*float64(lo) + hf*float64(k))
+		add(prev, hf/2)
+		add(next, hf/2)
+		prev = next
+	}
+	mx := math.Inf(-1)
+	for _, t := range terms {
+		mx = math.Max(mx, t)
+	}
+	var sum float64
+	for _, t := range terms {
+		sum += math.Exp(t - mx)
+	}
+	return mx + math.Log(sum) - 0.5*math.Log(2*math.Pi)
+}
+
+// search is one trip search and the pattern and entered pF of each of its
+// levels.
+type search struct {
+	TripResult
+	pats []uint16
+	pfs  []float64
+}
+
+// weights returns, per rung, how much of a drift of that rung the measured
+// trip takes up: the share of the Fisher information one sample would give
+// on the search's levels with the rung closed, at the mean fitted trip and
+// σ (at least 0.15 pF) of the pooled searches. The information of the
+// levels the trip rests on dominates, so this follows the refinement's
+// choice of levels without its randomness.
+func (c *checker) weights(trips []search) []float64 {
+	w := make([]float64, len(c.cfg.RungsPF))
+	var mu, sig float64
+	for _, t := range trips {
+		mu += t.TripPF / float64(len(trips))
+		sig += math.Max(t.SigmaPF, 0.15) / float64(len(trips))
+	}
+	if math.IsNaN(sig) {
+		sig = 0.25
+	}
+	var tot float64
+	t := trips[0]
+	for i, pf := range t.pfs {
+		z := (pf - mu) / sig
+		dens := math.Exp(-z*z/2) / math.Sqrt(2*math.Pi)
+		f := dens * dens / math.Max(normCDF(z)*normCDF(-z), 1e-300)
+		tot += f
+		for r := range w {
+			if t.pats[i]&(1<<r) != 0 {
+				w[r] += f
+			}
+		}
+	}
+	if tot > 0 {
+		for r := range w {
+			w[r] /= tot
+		}
+	}
+	return w
 }
 
 func describeRungs(rungsPF []float64, rungs []int, stray bool) string {
@@ -728,18 +1061,7 @@ func joinList(s []string) string {
 	case 1:
 		return s[0]
 	}
-	out := ""
-	for i, x := range s {
-		switch {
-		case i == 0:
-			out = x
-		case i == len(s)-1:
-			out += " or " + x
-		default:
-			out += ", " + x
-		}
-	}
-	return out
+	return strings.Join(s[:len(s)-1], ", ") + " or " + s[len(s)-1]
 }
 
 func ptrF(f float64) *float64 { return &f }
@@ -762,62 +1084,23 @@ func (c *checker) highs(p uint16, k int) (int, error) {
 // checkWindowPF is how far from the reference trip the search looks.
 const checkWindowPF = 2.5
 
-// subset returns the strictly ascending levels of the patterns keep accepts,
-// within the window around T (on equal values, the first in c.all).
-func (c *checker) subset(keep func(uint16) bool, T float64) []Level {
-	var out []Level
-	for _, lv := range c.all {
-		if !keep(lv.Pattern) || math.Abs(lv.PF-T) > math.Max(checkWindowPF, c.g) {
+// tripNear searches the reference trip on the strictly ascending levels
+// within checkWindowPF of T (on equal values, the first in c.all).
+func (c *checker) tripNear(T float64) (search, error) {
+	var lv []Level
+	for _, l := range c.all {
+		if math.Abs(l.PF-T) > checkWindowPF {
 			continue
 		}
-		if k := len(out); k > 0 && lv.PF <= out[k-1].PF {
+		if k := len(lv); k > 0 && l.PF <= lv[k-1].PF {
 			continue
 		}
-		out = append(out, lv)
+		lv = append(lv, l)
 	}
-	return out
-}
-
-// pairBase finds a pattern q without rung r with q below T − guard and q + r
-// above T + guard, preferring q closest to T − guard.
-func (c *checker) pairBase(r int, T float64) (uint16, bool) {
-	bit := uint16(1) << r
-	best, found := uint16(0), false
-	bestPF := math.Inf(-1)
-	for _, lv := range c.all {
-		if lv.Pattern&bit != 0 || lv.PF > T-c.g || lv.PF+c.cfg.RungsPF[r] < T+c.g {
-			continue
-		}
-		if lv.PF > bestPF {
-			best, bestPF, found = lv.Pattern, lv.PF, true
-		}
-	}
-	return best, found
-}
-
-// finePair finds the pattern q without rung r whose pair (q, q + r) best
-// straddles T: it maximises m = min(T − q, q + r − T), fewest rungs on ties.
-func (c *checker) finePair(r int, T float64) (uint16, float64) {
-	bit := uint16(1) << r
-	best, bestM := uint16(0), math.Inf(-1)
-	for _, lv := range c.all {
-		if lv.Pattern&bit != 0 {
-			continue
-		}
-		m := math.Min(T-lv.PF, lv.PF+c.cfg.RungsPF[r]-T)
-		if m > bestM+1e-9 || (math.Abs(m-bestM) <= 1e-9 && bits.OnesCount16(lv.Pattern) < bits.OnesCount16(best)) {
-			best, bestM = lv.Pattern, m
-		}
-	}
-	return best, bestM
-}
-
-// tripNear searches the reference trip on the patterns keep accepts, near T.
-func (c *checker) tripNear(keep func(uint16) bool, T float64) (TripResult, error) {
-	lv := c.subset(keep, T)
 	pf := make([]float64, len(lv))
+	pats := make([]uint16, len(lv))
 	for i, l := range lv {
-		pf[i] = l.PF
+		pf[i], pats[i] = l.PF, l.Pattern
 	}
 	pr := ProberFunc(func(level, k int) (int, error) {
 		if err := c.ctx.Err(); err != nil {
@@ -830,22 +1113,45 @@ func (c *checker) tripNear(keep func(uint16) bool, T float64) (TripResult, error
 	})
 	res, err := FindTrip(pr, pf, c.cfg.Search)
 	if err != nil {
-		return res, fmt.Errorf("reference check: trip search: %w", err)
+		return search{TripResult: res, pats: pats, pfs: pf}, fmt.Errorf("reference check: trip search: %w", err)
 	}
-	return res, nil
+	return search{TripResult: res, pats: pats, pfs: pf}, nil
+}
+
+// driftHyp is one explanation of the reference deviations: a drift of one
+// rung, of the stray, or of one reference unit itself, with the weight
+// each reference's trip gives it.
+type driftHyp struct {
+	name  string
+	rung  int // −1: not a rung
+	a     []float64
+	delta float64
+	chi2  float64
+	self  bool // a reference unit's own drift
 }
 
 // CombineChecks merges the checks of a station's reference units into one
 // ladder verdict and one fault list. A rung's status is the worst any
-// reference found; a reference deviation no rung test explains is narrowed
-// by the references within their allowance: a rung (or the stray) that such
-// a reference needs at its own trip is cleared. What is left is named: one
-// rung is "drifted", several are "drift_suspect" (these reference units
-// cannot tell them apart).
+// reference found. When a reference deviates beyond its allowance and no
+// reference found a stuck rung, the deviations of all references are
+// explained jointly by least squares: each reference i measured d_i =
+// a_i·δ + noise (noise σ = a third of its allowance, or its standard error
+// if larger), with a_i its RungWeights for a drift of one rung, 1 for every
+// reference for a drift of the stray, and 1 for one reference and 0 for the
+// others for a drift of that reference unit itself. Every explanation
+// within χ² 4 of the best (and with χ² ≤ 16) is named: one rung alone is
+// "drifted"; several are "drift_suspect" (these reference units cannot
+// tell them apart). The drift is stated as true − entered for a rung or
+// the stray, and as the trip's move for a reference unit.
 func CombineChecks(refs []RefCheck) ([]RungFinding, []string) {
 	var rungs []RungFinding
 	rank := map[string]int{RungUnmeasured: 0, RungOK: 1, RungDriftSuspect: 2, RungDrifted: 3, RungStuckClosed: 4, RungStuckOpen: 4}
+	stuck, deviates := false, false
 	for _, rc := range refs {
+		stuck = stuck || rc.StuckFound
+		if rc.DevPF != nil && math.Abs(*rc.DevPF) > rc.AllowedDevPF {
+			deviates = true
+		}
 		for _, f := range rc.Rungs {
 			for len(rungs) <= f.Rung {
 				rungs = append(rungs, RungFinding{Rung: len(rungs), Status: RungUnmeasured})
@@ -863,50 +1169,197 @@ func CombineChecks(refs []RefCheck) ([]RungFinding, []string) {
 			}
 		}
 	}
-	rungsPF := make([]float64, len(rungs))
-	for i, f := range rungs {
-		rungsPF[i] = f.EnteredPF
-	}
-	cleared := map[int]bool{}
-	strayCleared := false
-	for _, rc := range refs {
-		if rc.DevPF != nil && math.Abs(*rc.DevPF) <= rc.AllowedDevPF {
-			strayCleared = true
-			for _, r := range rc.Covers {
-				cleared[r] = true
-			}
-		}
-	}
 	var faults []string
 	for _, rc := range refs {
 		for _, f := range rc.Faults {
-			if rc.Suspects != "" && strings.HasPrefix(f, "reference unit "+rc.Serial+": trip") {
-				var left []int
-				for _, r := range rc.SuspectRungs {
-					if !cleared[r] {
-						left = append(left, r)
-					}
-				}
-				stray := !strayCleared
-				switch {
-				case len(left) == 1 && !stray:
-					f += fmt.Sprintf(": rung %d (%.2f pF) drifted, or the reference unit itself (the other reference units clear the stray and the other rungs near this trip)", left[0], rungsPF[left[0]])
-					rungs[left[0]].Status = RungDrifted
-				case len(left) == 0 && !stray:
-					f += ": the reference unit itself has drifted (the other reference units clear the stray and every rung near its trip)"
-				default:
-					f += ": drift of " + describeRungs(rungsPF, left, stray) + " (these reference units cannot tell them apart), or of the reference unit itself"
-					for _, r := range left {
-						if rank[RungDriftSuspect] > rank[rungs[r].Status] {
-							rungs[r].Status = RungDriftSuspect
-						}
-					}
-				}
+			if !slices.Contains(faults, f) {
+				faults = append(faults, f)
 			}
-			faults = append(faults, f)
+		}
+	}
+	if stuck {
+		return combineStuck(refs, rungs, faults)
+	}
+	if !deviates {
+		return rungs, faults
+	}
+	// The references with a measured trip.
+	var d, s []float64
+	var serials []string
+	var w [][]float64
+	for _, rc := range refs {
+		if rc.DevPF == nil || len(rc.RungWeights) == 0 {
+			continue
+		}
+		d = append(d, *rc.DevPF)
+		sd := rc.AllowedDevPF / 3
+		if rc.SEPF != nil {
+			sd = math.Max(sd, *rc.SEPF)
+		}
+		s = append(s, sd)
+		serials = append(serials, rc.Serial)
+		w = append(w, rc.RungWeights)
+	}
+	var hyps []driftHyp
+	for r := range rungs {
+		a := make([]float64, len(d))
+		for i := range d {
+			if r < len(w[i]) {
+				a[i] = w[i][r]
+			}
+		}
+		hyps = append(hyps, driftHyp{name: fmt.Sprintf("rung %d (%.2f pF)", r, rungs[r].EnteredPF), rung: r, a: a})
+	}
+	ones := make([]float64, len(d))
+	for i := range ones {
+		ones[i] = 1
+	}
+	hyps = append(hyps, driftHyp{name: "the stray", rung: -1, a: ones})
+	for j := range d {
+		a := make([]float64, len(d))
+		a[j] = 1
+		hyps = append(hyps, driftHyp{name: "reference unit " + serials[j] + " itself", rung: -1, a: a, self: true})
+	}
+	best := math.Inf(1)
+	for k := range hyps {
+		h := &hyps[k]
+		var sad, saa float64
+		for i := range d {
+			sad += h.a[i] * d[i] / (s[i] * s[i])
+			saa += h.a[i] * h.a[i] / (s[i] * s[i])
+		}
+		if saa < 1e-3 {
+			h.chi2 = math.Inf(1) // this reference set does not see it
+			continue
+		}
+		h.delta = sad / saa
+		for i := range d {
+			r := (d[i] - h.a[i]*h.delta) / s[i]
+			h.chi2 += r * r
+		}
+		best = math.Min(best, h.chi2)
+	}
+	var names []string
+	var fit []int
+	var by float64
+	for _, h := range hyps {
+		if h.chi2 <= best+4 && h.chi2 <= 16 {
+			// A rung (or the stray) larger than entered makes every trip
+			// read low on the entered values: its drift is −δ.
+			by = -h.delta
+			if h.self {
+				by = h.delta
+			}
+			names = append(names, fmt.Sprintf("%s by %+.2f pF", h.name, by))
+			if h.rung >= 0 {
+				fit = append(fit, h.rung)
+			}
+		}
+	}
+	switch {
+	case len(names) == 0:
+		faults = append(faults, "the reference deviations fit no single drift (of one rung, the stray or one reference unit): several causes")
+	case len(names) == 1 && len(fit) == 1:
+		r := fit[0]
+		faults = append(faults, fmt.Sprintf("rung %d (%.2f pF) drifted by %+.2f pF (the reference deviations, taken together, point at it alone)", r, rungs[r].EnteredPF, by))
+		rungs[r].Status = RungDrifted
+	case len(names) == 1:
+		faults = append(faults, fmt.Sprintf("drift of %s (the reference deviations, taken together, point at it alone)", names[0]))
+	default:
+		faults = append(faults, fmt.Sprintf("drift of %s (these reference units cannot tell them apart)", joinList(names)))
+		for _, r := range fit {
+			if rank[RungDriftSuspect] > rank[rungs[r].Status] {
+				rungs[r].Status = RungDriftSuspect
+			}
 		}
 	}
 	return rungs, faults
+}
+
+// combineStuck narrows the stuck rungs the references named to those every
+// reference that found one allows and none found working, and says so in
+// one more fault line.
+func combineStuck(refs []RefCheck, rungs []RungFinding, faults []string) ([]RungFinding, []string) {
+	type stuck struct {
+		rung   int
+		status string
+	}
+	var inter []stuck
+	first := true
+	ok := map[int]bool{}
+	for _, rc := range refs {
+		for _, f := range rc.Rungs {
+			if f.Status == RungOK {
+				ok[f.Rung] = true
+			}
+		}
+		if !rc.StuckFound {
+			continue
+		}
+		var named []stuck
+		for _, f := range rc.Rungs {
+			if f.Status == RungStuckOpen || f.Status == RungStuckClosed {
+				named = append(named, stuck{f.Rung, f.Status})
+			}
+		}
+		if first {
+			inter, first = named, false
+			continue
+		}
+		inter = slices.DeleteFunc(inter, func(s stuck) bool { return !slices.Contains(named, s) })
+	}
+	inter = slices.DeleteFunc(inter, func(s stuck) bool { return ok[s.rung] })
+	if len(inter) == 0 {
+		// The references may agree on the rung but not on open or closed
+		// (a small rung's fault moves the trip onto the side where the two
+		// read alike).
+		var common []int
+		first := true
+		for _, rc := range refs {
+			if !rc.StuckFound {
+				continue
+			}
+			var named []int
+			for _, f := range rc.Rungs {
+				if f.Status == RungStuckOpen || f.Status == RungStuckClosed {
+					named = append(named, f.Rung)
+				}
+			}
+			if first {
+				common, first = named, false
+				continue
+			}
+			common = slices.DeleteFunc(common, func(r int) bool { return !slices.Contains(named, r) })
+		}
+		common = slices.DeleteFunc(common, func(r int) bool { return ok[r] })
+		if len(common) == 1 {
+			r := common[0]
+			faults = append(faults, fmt.Sprintf("ladder: rung %d (%.2f pF) stuck, open or closed (the one rung every reference unit's readings allow; they differ on which way)", r, rungs[r].EnteredPF))
+		}
+		return rungs, faults
+	}
+	var names []string
+	for i := range rungs {
+		if g := &rungs[i]; g.Status == RungStuckOpen || g.Status == RungStuckClosed {
+			g.Status = RungUnmeasured
+			if ok[i] {
+				g.Status = RungOK
+			}
+		}
+	}
+	for _, s := range inter {
+		rungs[s.rung].Status = s.status
+		word := "open"
+		if s.status == RungStuckClosed {
+			word = "closed"
+		}
+		names = append(names, fmt.Sprintf("rung %d (%.2f pF) stuck %s", s.rung, rungs[s.rung].EnteredPF, word))
+	}
+	line := "ladder: " + names[0] + " (the one stuck rung every reference unit's readings allow)"
+	if len(names) > 1 {
+		line = "ladder: " + joinList(names) + " (these reference units cannot tell them apart)"
+	}
+	return rungs, append(faults, line)
 }
 
 // normCDF is the standard normal distribution function.

@@ -3,6 +3,7 @@ package sequences_test
 import (
 	"errors"
 	"math"
+	"strings"
 	"testing"
 
 	"padline/sequences"
@@ -108,5 +109,57 @@ func TestGUMCombination(t *testing.T) {
 	sb := sequences.StationBudget(sequences.StationBudgetInput{StepPF: 0.5, CalPF: 0.05, ClosedRungs: 4, RepeatPF: 0.08, RepeatSource: "type-1"})
 	if len(sb.Components) != 3 || !near(sb.UC, 0.192959, 1e-6) || !near(sb.U, 0.385918, 1e-6) {
 		t.Errorf("station budget %+v", sb)
+	}
+}
+
+// TestCombineChecksDrift: constructed deviations of three reference units
+// with known rung weights (our own numbers, no outside source), explained
+// by least squares over single drifts.
+func TestCombineChecksDrift(t *testing.T) {
+	ref := func(serial string, dev, allowed float64, w ...float64) sequences.RefCheck {
+		rc := sequences.RefCheck{Reference: sequences.Reference{Serial: serial, AllowedDevPF: allowed}, DevPF: &dev, RungWeights: w}
+		for r := range w {
+			rc.Rungs = append(rc.Rungs, sequences.RungFinding{Rung: r, EnteredPF: float64(int(1) << r), Status: sequences.RungOK})
+		}
+		if math.Abs(dev) > allowed {
+			rc.Faults = []string{"reference unit " + serial + ": deviation"}
+		}
+		return rc
+	}
+	for _, c := range []struct {
+		name    string
+		refs    []sequences.RefCheck
+		want    string
+		drifted int // rung marked drifted, −1 none
+	}{
+		// Rung 1 carries A and B fully, C not: only a rung-1 drift (true −
+		// entered = −δ) moves A and B alike and leaves C.
+		{"one rung", []sequences.RefCheck{
+			ref("A", -0.5, 0.3, 0, 1, 0),
+			ref("B", -0.5, 0.3, 1, 1, 0),
+			ref("C", 0, 0.3, 0, 0, 1)}, "rung 1 (2.00 pF) drifted by +0.50 pF", 1},
+		// Every reference rests on rung 1: it reads like the stray.
+		{"like the stray", []sequences.RefCheck{
+			ref("A", -0.5, 0.3, 0, 1, 0),
+			ref("B", -0.5, 0.3, 1, 1, 0),
+			ref("C", -0.5, 0.3, 0, 1, 1)}, "drift of rung 1 (2.00 pF) by +0.50 pF or the stray by +0.50 pF", -1},
+		// Only C rests on rung 2: C's own drift fits as well.
+		{"one reference", []sequences.RefCheck{
+			ref("A", 0, 0.3, 0, 1, 0),
+			ref("B", 0, 0.3, 1, 1, 0),
+			ref("C", 0.5, 0.3, 0, 0, 1)}, "drift of rung 2 (4.00 pF) by -0.50 pF or reference unit C itself by +0.50 pF", -1},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			rungs, faults := sequences.CombineChecks(c.refs)
+			all := strings.Join(faults, "; ")
+			if !strings.Contains(all, c.want) {
+				t.Errorf("faults %q, want %q", faults, c.want)
+			}
+			for _, f := range rungs {
+				if (f.Status == sequences.RungDrifted) != (f.Rung == c.drifted) {
+					t.Errorf("rung %d: %s", f.Rung, f.Status)
+				}
+			}
+		})
 	}
 }

@@ -153,9 +153,11 @@ func parseStation(src source) (*Station, error) {
 			d.fail("ladder.operate_ms", "must be at least 1 µs")
 		}
 		l.RatedOperations = d.positive("ladder.rated_operations", true, 0)
-		l.CalUncertaintyPF = d.nonNegative("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF)
+		// > 0: no LCR meter reads a rung exactly, and the reference check
+		// takes this as the levels' calibration uncertainty.
+		l.CalUncertaintyPF = d.positive("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF)
 	}
-	s.Trust = readStationTrust(d)
+	s.Trust = readStationTrust(d, s.Ladder)
 	s.Sim = readStationSim(d)
 	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
 	if err := d.finish(); err != nil {

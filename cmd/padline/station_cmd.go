@@ -52,8 +52,10 @@ type StationRef struct {
 }
 
 // readStationTrust reads reference_units, check_every_units,
-// check_every_hours and relay_warn_fraction.
-func readStationTrust(d *doc) StationTrust {
+// check_every_hours and relay_warn_fraction. A reference trip must lie at
+// least refMarginPF inside the ladder's range (stray to stray + every
+// rung), where the check can search it.
+func readStationTrust(d *doc, lad StationLadder) StationTrust {
 	tr := StationTrust{RelayWarnFraction: defaultRelayWarnFraction}
 	if v, ok := d.lookup("reference_units"); ok {
 		items, isList := v.([]any)
@@ -104,6 +106,9 @@ func readStationTrust(d *doc) StationTrust {
 			}
 			r.TripPF = num("trip_pf")
 			r.AllowedDevPF = num("allowed_dev_pf")
+			if lo, hi := lad.StrayPF+refMarginPF, lad.StrayPF+sumPF(lad.RungsPF)-refMarginPF; len(lad.RungsPF) > 0 && r.TripPF > 0 && (r.TripPF < lo || r.TripPF > hi) {
+				d.fail(key+".trip_pf", "%g pF is outside the ladder's reach for a check (%.2f to %.2f pF: %g pF inside stray and full ladder)", r.TripPF, lo, hi, refMarginPF)
+			}
 			if x, present := m["sim_defects"]; present {
 				l, isList := x.([]any)
 				if !isList {
@@ -129,6 +134,18 @@ func readStationTrust(d *doc) StationTrust {
 		tr.RelayWarnFraction = f
 	}
 	return tr
+}
+
+// refMarginPF is how far inside the ladder's range a reference trip must
+// lie: the check searches ±2.5 pF around it.
+const refMarginPF = 2.5
+
+func sumPF(xs []float64) float64 {
+	var s float64
+	for _, x := range xs {
+		s += x
+	}
+	return s
 }
 
 // stationRefArg is how a command line names the station: the path, or the
@@ -344,7 +361,7 @@ func waitLidOpen(ctx context.Context, fx *fixture.Fixture, clk fixture.Clock) er
 // checkConfig is the reference check's configuration on this station.
 func (r *rig) checkConfig() sequences.CheckConfig {
 	return sequences.CheckConfig{
-		RungsPF: r.st.Ladder.RungsPF, StrayPF: r.st.Ladder.StrayPF,
+		RungsPF: r.st.Ladder.RungsPF, StrayPF: r.st.Ladder.StrayPF, CalPF: r.st.Ladder.CalUncertaintyPF,
 		PowerSettle: r.plan.PowerSettle, Period: r.plan.Period,
 	}
 }
@@ -373,11 +390,17 @@ func (a *app) stationCheckCmd() *cobra.Command {
 		Short: "Test the reference units and self-test the ladder; refuse the station on any fault",
 		Long: `check tests every reference unit the station file registers (reference_units):
 it measures each one's trip point and compares it with the registered value,
-and self-tests the ladder on it: a go/no-go pair per rung (a level just below
-the trip without the rung must stay low, the same level with it must latch)
-finds a rung stuck open or stuck closed; a latch that never reads high finds
-an open pad or latch pogo pin; a deviation of the reference trip names the
-rungs (and the stray) it can come from, narrowed by the other reference units.
+and self-tests the ladder on it. Per rung, a pair of levels that straddles
+the trip (without the rung and with it) must read apart by the rung's value;
+a stuck rung makes them one circuit. Readings are scored against the healthy
+ladder and every single stuck rung, allowing for the rungs' calibration
+uncertainty (ladder.cal_uncertainty_pf); unclear pairs are re-probed, and a
+stuck rung is named only when it explains the readings a million times
+better than a healthy ladder. A latch that never reads high finds an open pad
+or latch pogo pin. A deviation beyond the allowance (close calls pool more
+searches) is explained by least squares over all reference units: the rung,
+the stray or the reference unit that fits, or the group they cannot tell
+apart.
 
 The result is recorded in the shift log. Any fault puts the station in the
 refused state: 'padline run' tests no production unit until a check passes.

@@ -6,8 +6,10 @@ import (
 	"errors"
 	"flag"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -17,10 +19,10 @@ import (
 	"padline/store"
 )
 
-// trustSim opts in to the simulator targets of issue 6 that the check does
-// not meet yet (every fault named; 1,000 of 1,000 healthy checks over
-// varied seeds): go test ./cmd/padline -run 'TestStationCheck' -trust-sim.
-var trustSim = flag.Bool("trust-sim", false, "run the station-check simulator targets not yet met")
+// trustSim runs the full simulator targets of issue 6 (1,000 healthy
+// checks over 100 sim seeds, about 40 s): go test ./cmd/padline -run
+// 'TestStationCheck' -trust-sim. Without it a seeded tenth runs.
+var trustSim = flag.Bool("trust-sim", false, "run the full 1,000-check healthy-station target")
 
 // checkStation runs a passing 'padline station check' of the built-in
 // demo-sim station into the shift log db, so production units may run on
@@ -126,41 +128,62 @@ func TestStationGate(t *testing.T) {
 // TestStationCheckFaults injects every fixture fault into the demo station
 // and wants the check to refuse and name it. Stuck rungs and pogo pins are
 // injected into the simulator (station file sim.faults); a drifted rung is a
-// rung whose true value moved 0.6 pF away from the value entered in the
-// station file, so the test enters the old value + 0.6 pF for the rung while
-// the simulator keeps its truth.
+// rung whose true value moved 0.5 pF above the value entered in the station
+// file, so the test enters the rung 0.5 pF low while the simulator keeps its
+// truth.
+//
+// A drift shows only as reference deviations, and CombineChecks names every
+// single cause that fits them (rung weights of the demo's three reference
+// units, seed 1: REF-01 at 31.9 pF rests on rungs 1, 2, 4, 5; REF-36 at
+// 67.4 pF on rungs 2–6; REF-17 at 70.9 pF on rungs 2 and 7). So a drift of
+// rung 2 reads like one of the stray (every reference rests on it); rungs 3
+// and 6 only REF-36 rests on, like its own drift; rungs 4 and 5 both REF-01
+// and REF-36 rest on; rung 7 only REF-17; rung 1 REF-01 fully and REF-36
+// half. Rung 0 carries half the weight of every reference: its 0.5 pF drift
+// moves each trip by about 0.25 pF, inside the allowances, but its pair
+// then reads a step unlike the entered one, which no hypothesis explains.
 func TestStationCheckFaults(t *testing.T) {
-	if !*trustSim {
-		t.Skip("target not met yet (small-rung faults and drift groups); run with -trust-sim")
+	if testing.Short() && !*trustSim {
+		t.Skip("short mode")
 	}
 	type tc struct {
 		name  string
-		sim   string // sim.faults YAML
-		drift int    // rung whose entered value is off, -1 none
-		want  string // fragment the faults must contain
+		sim   string   // sim.faults YAML
+		drift int      // rung whose entered value is off, -1 none
+		want  []string // fragments the faults must contain
 	}
 	cases := []tc{
-		{"pad pin", "pad_pin_open: true", -1, "pad or latch pogo pin open"},
-		{"latch pin", "latch_pin_open: true", -1, "pad or latch pogo pin open"},
+		{"pad pin", "pad_pin_open: true", -1, []string{"pad or latch pogo pin open"}},
+		{"latch pin", "latch_pin_open: true", -1, []string{"pad or latch pogo pin open"}},
 	}
 	rungs := []float64{0.51, 1.02, 1.98, 4.03, 7.96, 16.05, 31.9, 64.2}
+	// The combined line names the one stuck rung all references allow. On
+	// rungs 0 and 1 they differ on open or closed: the fault moves the
+	// measured trip (which the pairs centre on) by up to the rung's value,
+	// onto the side where the pair's two levels read alike either way.
 	for r, v := range rungs {
+		open := fmt.Sprintf("ladder: rung %d (%.2f pF) stuck open (", r, v)
+		closed := fmt.Sprintf("ladder: rung %d (%.2f pF) stuck closed (", r, v)
+		if r <= 1 {
+			open = fmt.Sprintf("ladder: rung %d (%.2f pF) stuck, open or closed", r, v)
+			closed = open
+		}
 		cases = append(cases,
-			tc{fmt.Sprintf("open %d", r), fmt.Sprintf("rung_stuck_open: [%d]", r), -1, fmt.Sprintf("rung %d (%.2f pF) stuck open", r, v)},
-			tc{fmt.Sprintf("closed %d", r), fmt.Sprintf("rung_stuck_closed: [%d]", r), -1, fmt.Sprintf("rung %d (%.2f pF) stuck closed", r, v)})
+			tc{fmt.Sprintf("open %d", r), fmt.Sprintf("rung_stuck_open: [%d]", r), -1, []string{open}},
+			tc{fmt.Sprintf("closed %d", r), fmt.Sprintf("rung_stuck_closed: [%d]", r), -1, []string{closed}})
 	}
-	// Drift is seen through a reference whose trip needs the rung; groups
-	// are the rungs no reference unit can tell apart (see the report).
 	for _, d := range []struct {
 		rung int
-		want string
+		want []string
 	}{
-		{2, "drift of rung 2 (1.98 pF), rung 3 (4.03 pF) or rung 6 (31.90 pF)"},
-		{3, "drift of rung 2 (1.98 pF), rung 3 (4.03 pF) or rung 6 (31.90 pF)"},
-		{4, "drift of rung 4"},
-		{5, "drift of rung 4"},
-		{6, "drift of rung 2 (1.98 pF), rung 3 (4.03 pF) or rung 6 (31.90 pF)"},
-		{7, "rung 7 (64.80 pF) drifted"},
+		{0, []string{"rung 0 (0.01 pF) far from its entered value"}},
+		{1, []string{"rung 1 (0.52 pF)"}},
+		{2, []string{"rung 2 (1.48 pF) by +0.", "the stray", "cannot tell them apart"}},
+		{3, []string{"drift of rung 3 (3.53 pF)", "rung 6", "reference unit QM205-REF-36 itself"}},
+		{4, []string{"drift of rung 4 (7.46 pF)", "rung 5"}},
+		{5, []string{"drift of rung 4", "rung 5 (15.55 pF)"}},
+		{6, []string{"drift of rung 3", "rung 6 (31.40 pF)", "reference unit QM205-REF-36 itself"}},
+		{7, []string{"drift of rung 7 (63.70 pF)", "reference unit QM205-REF-17 itself"}},
 	} {
 		cases = append(cases, tc{fmt.Sprintf("drift %d", d.rung), "", d.rung, d.want})
 	}
@@ -173,15 +196,25 @@ func TestStationCheckFaults(t *testing.T) {
 			}
 			rep := simCheck(t, ctx, stationVariant(t, nil, extra), c.drift)
 			all := strings.Join(rep.Faults, "; ")
-			if rep.OK || !strings.Contains(all, c.want) {
-				t.Errorf("ok %v, faults %q; want %q named", rep.OK, rep.Faults, c.want)
+			t.Logf("%.1f s: %s", rep.FixtureS, all)
+			for _, w := range c.want {
+				if rep.OK || !strings.Contains(all, w) {
+					t.Errorf("ok %v, faults %q; want %q named", rep.OK, rep.Faults, w)
+				}
+			}
+			if rep.FixtureS > 30 {
+				t.Errorf("check took %.1f s of fixture time, target < 30 s", rep.FixtureS)
 			}
 		})
 	}
 }
 
+// driftPF is the simulated drift of a rung: its true value this much above
+// the entered one.
+const driftPF = 0.5
+
 // simCheck runs the station check in-process on station; drift ≥ 0
-// enters that rung 0.6 pF above its true value.
+// enters that rung driftPF below its true value.
 func simCheck(t testing.TB, ctx context.Context, station string, drift int) checkReport {
 	t.Helper()
 	r, err := (&app{}).openRig(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), true)
@@ -193,7 +226,7 @@ func simCheck(t testing.TB, ctx context.Context, station string, drift int) chec
 	fx := r.fx
 	if drift >= 0 {
 		cfg.RungsPF = append([]float64(nil), cfg.RungsPF...)
-		cfg.RungsPF[drift] += 0.6
+		cfg.RungsPF[drift] -= driftPF
 		lad, err := fixture.NewLadder(cfg.RungsPF, cfg.StrayPF)
 		if err != nil {
 			t.Fatal(err)
@@ -221,18 +254,25 @@ func simCheck(t testing.TB, ctx context.Context, station string, drift int) chec
 	return rep
 }
 
-// TestStationCheckHealthy1000 checks a healthy demo station 1,000 times:
-// 100 simulated lines (sim seeds 1–100: each its own fixture calibration
-// errors, reference units and noise streams), each registering its
-// reference units from 10 checks and then checked over 10 shifts.
+// TestStationCheckHealthy1000 checks a healthy demo station 1,000 times
+// (issue 6: "a healthy fixture passes the check 1,000 times out of 1,000
+// simulated shifts (seeded)"): 100 simulated lines (sim seeds 1–100: each
+// its own fixture calibration errors, reference units and noise streams),
+// each registering its reference units from 10 checks and then checked over
+// 10 shifts. Without -trust-sim, seeds 1–10 over 5 shifts.
 func TestStationCheckHealthy1000(t *testing.T) {
+	seeds, shifts := 100, 10
 	if !*trustSim {
-		t.Skip("target not met yet over varied seeds; run with -trust-sim")
+		seeds, shifts = 10, 5
+	}
+	if testing.Short() && !*trustSim {
+		t.Skip("short mode")
 	}
 	ctx := context.Background()
 	var worst time.Duration
 	refused := 0
-	for seed := 1; seed <= 100; seed++ {
+	maxLLR, maxDev := math.Inf(-1), 0.0
+	for seed := 1; seed <= seeds; seed++ {
 		path := stationVariant(t, nil, fmt.Sprintf("sim:\n  seed: %d\n", seed))
 		r, err := (&app{}).openRig(ctx, "QM-205", path, filepath.Join(t.TempDir(), "x.db"), true)
 		if err != nil {
@@ -253,11 +293,22 @@ func TestStationCheckHealthy1000(t *testing.T) {
 		for i := range refs {
 			// Registration: a kept unit is a good one; its trip is the mean
 			// of 10 checks with a wide allowance.
+			// The simulator draws every serial with the line's defect rates,
+			// so a serial may come out defective (intermittent, sticky
+			// latch, ...): a line keeps only a unit that is good apart from
+			// what it was built with, so the next serial is taken.
 			reg := refs[i]
 			reg.AllowedDevPF = 50
-			if err := r.line.ForceDefects(reg.Serial, reg.SimDefects...); err != nil {
-				t.Fatal(err)
+			for n := 2; ; n++ {
+				if err := r.line.ForceDefects(reg.Serial, reg.SimDefects...); err != nil {
+					t.Fatal(err)
+				}
+				if slices.Equal(r.line.Draw(reg.Serial).Truth().Defects, reg.SimDefects) {
+					break
+				}
+				reg.Serial = fmt.Sprintf("%s-%d", refs[i].Serial, n)
 			}
+			refs[i].Serial = reg.Serial
 			reg.TripPF = r.line.Draw(reg.Serial).Truth().TripPF // a first estimate
 			var sum float64
 			for range 10 {
@@ -269,7 +320,7 @@ func TestStationCheckHealthy1000(t *testing.T) {
 			}
 			refs[i].TripPF = sum / 10
 		}
-		for shift := range 10 {
+		for shift := range shifts {
 			var checks []sequences.RefCheck
 			var total time.Duration
 			for _, ref := range refs {
@@ -278,6 +329,12 @@ func TestStationCheckHealthy1000(t *testing.T) {
 				total += res.FixtureTime
 			}
 			worst = max(worst, total)
+			for _, c := range checks {
+				maxLLR = max(maxLLR, c.StuckLLR)
+				if c.DevPF != nil {
+					maxDev = max(maxDev, math.Abs(*c.DevPF)/c.AllowedDevPF)
+				}
+			}
 			if _, faults := sequences.CombineChecks(checks); len(faults) > 0 {
 				refused++
 				t.Errorf("seed %d shift %d: healthy station refused: %q", seed, shift, faults)
@@ -285,7 +342,8 @@ func TestStationCheckHealthy1000(t *testing.T) {
 		}
 		r.close(ctx)
 	}
-	t.Logf("1,000 checks of a healthy station: %d refused; slowest check %v of fixture time", refused, worst)
+	t.Logf("%d checks of a healthy station: %d refused; slowest check %v of fixture time; largest stuck-rung log LR %.1f nats (named from %.1f); largest |deviation| %.2f of the allowance",
+		seeds*shifts, refused, worst, maxLLR, math.Log(1e6), maxDev)
 	if worst > 30*time.Second {
 		t.Errorf("a check took %v of fixture time, target < 30 s", worst)
 	}
