@@ -1,0 +1,202 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"strings"
+
+	"padline/fixture/sim"
+	"padline/store/drift"
+)
+
+// demoDrift is the drift the demo puts into its shift: from unit at on, the
+// pad laminate changes and the pad capacitance mean drops by stepPF (units
+// trip stepPF higher: the node needs the same total capacitance to trip);
+// a ramp drops it a further rampPF per 1000 units from unit at (or 1).
+type demoDrift struct {
+	at             int
+	stepPF, rampPF float64
+}
+
+func (d demoDrift) active() bool { return d.at > 0 || d.stepPF != 0 || d.rampPF != 0 }
+
+// check validates the drift flags against the shift length.
+func (d demoDrift) check(units int) error {
+	switch {
+	case !d.active():
+		return nil
+	case math.IsNaN(d.stepPF) || math.IsInf(d.stepPF, 0) || math.IsNaN(d.rampPF) || math.IsInf(d.rampPF, 0):
+		return errors.New("demo: --drift-pf and --ramp-pf-per-1000 must be finite numbers")
+	case d.at < 0:
+		return fmt.Errorf("demo: --drift-at must be ≥ 0, got %d", d.at)
+	case d.at == 0 && d.stepPF != 0:
+		return errors.New("demo: --drift-pf needs --drift-at N, the unit the step starts at")
+	case d.at == 1:
+		return errors.New("demo: --drift-at must be 0 (a ramp from unit 1) or at least 2: the watch takes its baseline from the units before the step")
+	case d.at > units:
+		return fmt.Errorf("demo: --drift-at %d is past the shift's %d units", d.at, units)
+	}
+	return nil
+}
+
+// offset is the trip-point shift of unit n (1-based), pF.
+func (d demoDrift) offset(n int) float64 {
+	var off float64
+	if d.at > 0 && n >= d.at {
+		off += d.stepPF
+	}
+	if start := max(d.at, 1); d.rampPF != 0 && n >= start {
+		off += d.rampPF * float64(n-start) / 1000
+	}
+	return off
+}
+
+// apply sets the line's unit model for unit n when the drift changes it.
+func (d demoDrift) apply(line *sim.Line, base sim.UnitModel, n int) error {
+	if !d.active() {
+		return nil
+	}
+	off := d.offset(n)
+	prev := 0.0
+	if n > 1 {
+		prev = d.offset(n - 1)
+	}
+	if off == prev {
+		return nil
+	}
+	um := base
+	um.PadPF.Mean -= off
+	if um.PadPF.Min != 0 || um.PadPF.Max != 0 {
+		um.PadPF.Min -= off
+		um.PadPF.Max -= off
+	}
+	if um.PadPF.Mean-3*um.PadPF.SD < 0 {
+		return fmt.Errorf("demo: drift of %+.2f pF at unit %d would leave the pad %.2f ± %.2f pF (3σ): the pad cannot lose more than it has",
+			off, n, um.PadPF.Mean, 3*um.PadPF.SD)
+	}
+	if err := line.SetUnitModel(um); err != nil {
+		return fmt.Errorf("demo: drift at unit %d: %w", n, err)
+	}
+	return nil
+}
+
+// demoDriftWatch is the drift part of the demo summary.
+type demoDriftWatch struct {
+	StepAtUnit    int     `json:"step_at_unit"`
+	StepPF        float64 `json:"step_pf"`
+	RampPFPer1000 float64 `json:"ramp_pf_per_1000"`
+	Charts        string  `json:"charts"`
+	GoodUnits     int     `json:"good_units_watched"`
+	Baseline      string  `json:"baseline"`
+	BaselineUnits [2]int  `json:"baseline_units"`
+	TargetPF      float64 `json:"target_pf"`
+	SigmaPF       float64 `json:"sigma_pf"`
+	AlarmsBefore  int     `json:"alarms_before_step"`
+	Alarms        int     `json:"alarms"`
+	// First is the first alarm at or after the step; nil when none.
+	First *demoAlarm `json:"first_alarm"`
+}
+
+// demoAlarm is one alarm in shift terms.
+type demoAlarm struct {
+	Seq         int    `json:"seq"`
+	Chart       string `json:"chart"`
+	Rule        string `json:"rule"`
+	Description string `json:"description"`
+	Unit        int    `json:"unit"` // shift unit number, 1-based
+	Serial      string `json:"serial"`
+	// LagUnits counts the units from the step to the alarm, both included
+	// (an alarm on the step's own unit has lag 1); LagGoodUnits counts only
+	// the good units the watch saw.
+	LagUnits     int    `json:"lag_units"`
+	LagGoodUnits int    `json:"lag_good_units"`
+	Note         string `json:"note,omitempty"`
+}
+
+// watch runs the default drift watch over the good units' trip points
+// (no injected defect, trip measured), in test order, with limits from the
+// units before the step (at most 50); nil when the demo has no drift.
+func (d demoDrift) watch(us []demoUnit) (*demoDriftWatch, error) {
+	if !d.active() {
+		return nil, nil
+	}
+	baseUnits := driftDefaultBaseline
+	if d.at > 0 {
+		baseUnits = min(driftDefaultBaseline, d.at-1)
+	}
+	var x []float64
+	var unitNo []int
+	var serials []string
+	basePts := 0
+	for i, u := range us {
+		if len(u.Defects) > 0 || u.TripPF == nil {
+			continue
+		}
+		x = append(x, *u.TripPF)
+		unitNo = append(unitNo, i+1)
+		serials = append(serials, u.Serial)
+		if i+1 <= baseUnits {
+			basePts++
+		}
+	}
+	win := drift.Window{Start: 0, End: basePts}
+	w, err := drift.WatchSeries(x, win, drift.Options{}, drift.DefaultSet)
+	if err != nil {
+		return nil, fmt.Errorf("demo: drift watch over %d good units, baseline units 1–%d (%d good): %w", len(x), baseUnits, basePts, err)
+	}
+	from := max(d.at, 1)
+	out := &demoDriftWatch{StepAtUnit: d.at, StepPF: d.stepPF, RampPFPer1000: d.rampPF,
+		Charts:    fmt.Sprintf("individuals (3σ limit) + tabular CUSUM (k %gσ, h %gσ)", float64(drift.DefaultK), float64(drift.DefaultH)),
+		GoodUnits: len(x), Baseline: fmt.Sprintf("units 1–%d (%d good units)", baseUnits, basePts),
+		BaselineUnits: [2]int{1, baseUnits}, Alarms: len(w.Alarms)}
+	if len(w.Charts) > 0 {
+		out.TargetPF, out.SigmaPF = w.Charts[0].Target, w.Charts[0].Sigma
+	}
+	first := len(x)
+	for i, n := range unitNo {
+		if n >= from {
+			first = i
+			break
+		}
+	}
+	for _, al := range w.Alarms {
+		if al.Unit < first {
+			out.AlarmsBefore++
+		}
+	}
+	if al, ok := w.First(first); ok {
+		out.First = &demoAlarm{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
+			Unit: unitNo[al.Unit], Serial: serials[al.Unit], LagUnits: unitNo[al.Unit] - from + 1,
+			LagGoodUnits: al.Unit - first + 1, Note: al.Note}
+	}
+	return out, nil
+}
+
+// writeDemoDrift prints the drift lines of the demo summary.
+func writeDemoDrift(w io.Writer, d *demoDriftWatch) {
+	if d == nil {
+		return
+	}
+	var what []string
+	if d.StepAtUnit > 0 {
+		what = append(what, fmt.Sprintf("step %+.2f pF of trip point at unit %d (pad capacitance mean %.2f pF lower: another pad laminate)", d.StepPF, d.StepAtUnit, d.StepPF))
+	}
+	if d.RampPFPer1000 != 0 {
+		what = append(what, fmt.Sprintf("ramp %+.2f pF per 1000 units from unit %d", d.RampPFPer1000, max(d.StepAtUnit, 1)))
+	}
+	fmt.Fprintf(w, "\ndrift            %s\n", strings.Join(what, "; "))
+	fmt.Fprintf(w, "drift watch      %s over %d good units' trip points\n", d.Charts, d.GoodUnits)
+	fmt.Fprintf(w, "  baseline       %s: target %.2f pF, σ %.2f pF\n", d.Baseline, d.TargetPF, d.SigmaPF)
+	if f := d.First; f != nil {
+		fmt.Fprintf(w, "  first alarm    #%d %s %s (%s) at unit %d (%s): lag %d units from unit %d (%d good units)\n",
+			f.Seq, f.Chart, f.Rule, f.Description, f.Unit, f.Serial, f.LagUnits, max(d.StepAtUnit, 1), f.LagGoodUnits)
+		if f.Note != "" {
+			fmt.Fprintf(w, "                 %s\n", f.Note)
+		}
+	} else {
+		fmt.Fprintf(w, "  first alarm    none at or after unit %d\n", max(d.StepAtUnit, 1))
+	}
+	fmt.Fprintf(w, "  alarms         %d in all, %d before unit %d (false alarms)\n", d.Alarms, d.AlarmsBefore, max(d.StepAtUnit, 1))
+}

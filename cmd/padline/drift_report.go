@@ -1,0 +1,258 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+	"time"
+
+	"padline/store/drift"
+)
+
+// jnum is a float that encodes NaN and ±Inf as JSON null.
+type jnum float64
+
+// MarshalJSON writes the number, or null when it is not finite.
+func (f jnum) MarshalJSON() ([]byte, error) {
+	v := float64(f)
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return []byte("null"), nil
+	}
+	return strconv.AppendFloat(nil, v, 'g', -1, 64), nil
+}
+
+// driftReport is the whole answer; --json prints it as one object.
+type driftReport struct {
+	Source        string             `json:"source"`
+	Variant       string             `json:"variant,omitempty"`
+	Since         string             `json:"since,omitempty"`
+	Until         string             `json:"until,omitempty"`
+	Station       string             `json:"station,omitempty"`
+	Fixture       string             `json:"fixture,omitempty"`
+	Lot           string             `json:"lot,omitempty"`
+	By            string             `json:"by,omitempty"`
+	Chart         string             `json:"chart"`
+	Baseline      int                `json:"baseline_points"`
+	Limits        [2]jnum            `json:"limits"`
+	LimitsFrom    string             `json:"limits_from,omitempty"`
+	UncertaintyPF jnum               `json:"uncertainty_pf"`
+	Groups        []driftGroupReport `json:"groups"`
+}
+
+type driftGroupReport struct {
+	Key            string           `json:"key,omitempty"`
+	Points         int              `json:"points"`
+	First          *time.Time       `json:"first,omitempty"`
+	Last           *time.Time       `json:"last,omitempty"`
+	Baseline       driftWindowJSON  `json:"baseline"`
+	Charts         []driftChartJSON `json:"charts"`
+	AlarmCount     int              `json:"alarm_count"`
+	Alarms         []driftAlarmJSON `json:"alarms"`
+	Capability     *capabilityJSON  `json:"capability,omitempty"`
+	CapabilityNote string           `json:"capability_note,omitempty"`
+	Runs           int64            `json:"runs,omitempty"`
+	Yield          *yieldJSON       `json:"first_pass_yield,omitempty"`
+	ChartFile      string           `json:"chart_file,omitempty"`
+}
+
+type driftWindowJSON struct {
+	FirstUnit int        `json:"first_unit"` // 1-based
+	LastUnit  int        `json:"last_unit"`  // 1-based, inclusive
+	Points    int        `json:"points"`
+	From      *time.Time `json:"from,omitempty"`
+	To        *time.Time `json:"to,omitempty"`
+	Text      string     `json:"text"`
+}
+
+type driftChartJSON struct {
+	Kind   string `json:"kind"`
+	Title  string `json:"title"`
+	Size   int    `json:"size"`
+	Points int    `json:"points"`
+	Center jnum   `json:"center"`
+	// Lower and Upper are the limits at the last point (EWMA limits widen
+	// towards their steady value; the others are constant).
+	Lower  jnum   `json:"lower"`
+	Upper  jnum   `json:"upper"`
+	Target jnum   `json:"target"`
+	Sigma  jnum   `json:"sigma"`
+	Method string `json:"method"`
+	Alarms int    `json:"alarms"`
+}
+
+func chartJSON(c drift.Chart) driftChartJSON {
+	j := driftChartJSON{Kind: string(c.Kind), Title: c.Kind.Title(), Size: c.Size, Points: len(c.Stat),
+		Center: jnum(c.Center), Lower: jnum(math.NaN()), Upper: jnum(math.NaN()),
+		Target: jnum(c.Target), Sigma: jnum(c.Sigma), Method: c.Method, Alarms: len(c.Alarms)}
+	if n := len(c.Upper); n > 0 {
+		j.Upper = jnum(c.Upper[n-1])
+	}
+	if n := len(c.Lower); n > 0 {
+		j.Lower = jnum(c.Lower[n-1])
+	}
+	return j
+}
+
+type driftAlarmJSON struct {
+	Seq         int        `json:"seq"`
+	Chart       string     `json:"chart"`
+	Rule        string     `json:"rule"`
+	Description string     `json:"description"`
+	Unit        int        `json:"unit"`  // 1-based series index
+	Point       int        `json:"point"` // 1-based chart point
+	Side        int        `json:"side"`
+	OnsetUnit   int        `json:"onset_unit,omitempty"`
+	Note        string     `json:"note,omitempty"`
+	RunID       int64      `json:"run_id,omitempty"`
+	Time        *time.Time `json:"time,omitempty"`
+	Serial      string     `json:"serial,omitempty"`
+}
+
+type capabilityJSON struct {
+	N            int    `json:"n"`
+	Low          jnum   `json:"low"`
+	High         jnum   `json:"high"`
+	Mean         jnum   `json:"mean"`
+	SigmaWithin  jnum   `json:"sigma_within"`
+	SigmaOverall jnum   `json:"sigma_overall"`
+	Method       string `json:"sigma_within_method"`
+	Cp           jnum   `json:"cp"`
+	Cpk          jnum   `json:"cpk"`
+	Pp           jnum   `json:"pp"`
+	Ppk          jnum   `json:"ppk"`
+}
+
+type yieldJSON struct {
+	Pass       int     `json:"first_pass"`
+	Total      int     `json:"first_units"`
+	Rate       jnum    `json:"rate"`
+	Low        jnum    `json:"low"`
+	High       jnum    `json:"high"`
+	Confidence float64 `json:"confidence"`
+}
+
+// writeDriftReport prints the report for people.
+func writeDriftReport(w io.Writer, r driftReport) {
+	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
+	head := r.Source
+	if r.Variant != "" {
+		head = r.Variant + " trip points, " + head
+	}
+	var sel []string
+	for _, s := range [][2]string{{"since", r.Since}, {"until", r.Until}, {"station", r.Station}, {"fixture", r.Fixture}, {"lot", r.Lot}} {
+		if s[1] != "" {
+			sel = append(sel, s[0]+" "+s[1])
+		}
+	}
+	if len(sel) > 0 {
+		head += " (" + strings.Join(sel, ", ") + ")"
+	}
+	p("drift            %s", head)
+	p("chart            %s", driftChartDesc(r.Chart))
+	lim := "none"
+	if !math.IsNaN(float64(r.Limits[0])) || !math.IsNaN(float64(r.Limits[1])) {
+		lim = fmt.Sprintf("%s … %s", fmtNum(float64(r.Limits[0]), "-inf"), fmtNum(float64(r.Limits[1]), "+inf"))
+	}
+	p("test limits      %s  (%s)", lim, dashIfEmpty(r.LimitsFrom))
+	for _, g := range r.Groups {
+		p("")
+		if g.Key != "" {
+			p("── %s %s ──", r.By, g.Key)
+		}
+		span := ""
+		if g.First != nil {
+			span = fmt.Sprintf(", %s … %s", fmtTime(*g.First), fmtTime(*g.Last))
+		}
+		p("series           %d points%s", g.Points, span)
+		base := g.Baseline.Text
+		if g.Baseline.From != nil {
+			base = fmt.Sprintf("units %d–%d (%d points), %s … %s", g.Baseline.FirstUnit, g.Baseline.LastUnit,
+				g.Baseline.Points, fmtTime(*g.Baseline.From), fmtTime(*g.Baseline.To))
+		}
+		p("baseline         %s (phase I: limits from these points, applied to all)", base)
+		p("%-16s %10s %10s %10s   %s", "chart", "centre", "lower", "upper", "target, σ from")
+		for _, c := range g.Charts {
+			p("%-16s %10s %10s %10s   %s", c.Kind, fmtNum(float64(c.Center), "-"), fmtNum(float64(c.Lower), "-"),
+				fmtNum(float64(c.Upper), "-"), fmt.Sprintf("target %s, σ %s: %s", fmtNum(float64(c.Target), "-"), fmtNum(float64(c.Sigma), "-"), c.Method))
+		}
+		switch {
+		case g.AlarmCount == 0:
+			p("alarms           none")
+		default:
+			more := ""
+			if len(g.Alarms) < g.AlarmCount {
+				more = fmt.Sprintf(", the last %d listed (--alarms)", len(g.Alarms))
+			}
+			p("alarms           %d%s", g.AlarmCount, more)
+			p("  %4s  %-12s %-8s %8s  %-19s  %-14s  %s", "#", "chart", "rule", "unit", "time", "serial", "description")
+			for _, al := range g.Alarms {
+				when := "-"
+				if al.Time != nil {
+					when = fmtTime(*al.Time)
+				}
+				desc := al.Description
+				if al.Note != "" {
+					desc += "; " + al.Note
+				}
+				p("  %4d  %-12s %-8s %8d  %-19s  %-14s  %s", al.Seq, al.Chart, al.Rule, al.Unit, when, dashIfEmpty(al.Serial), desc)
+			}
+		}
+		if c := g.Capability; c != nil {
+			p("capability       n %d, mean %s, σ within %s (%s), σ overall %s", c.N, fmtNum(float64(c.Mean), "-"),
+				fmtNum(float64(c.SigmaWithin), "-"), c.Method, fmtNum(float64(c.SigmaOverall), "-"))
+			p("                 Cp %s  Cpk %s  Pp %s  Ppk %s", fmtIdx(c.Cp), fmtIdx(c.Cpk), fmtIdx(c.Pp), fmtIdx(c.Ppk))
+		} else {
+			p("capability       not computed: %s", g.CapabilityNote)
+		}
+		if y := g.Yield; y != nil {
+			p("first-pass yield %.2f %% (%d of %d serials passed their first test), 95 %% CI %.2f … %.2f %% (Clopper–Pearson)",
+				100*float64(y.Rate), y.Pass, y.Total, 100*float64(y.Low), 100*float64(y.High))
+		} else if r.Variant != "" && !strings.HasPrefix(r.Source, "CSV") {
+			p("first-pass yield no unit verdicts in the selection")
+		}
+		if g.ChartFile != "" {
+			p("chart file       %s", g.ChartFile)
+		}
+	}
+}
+
+func driftChartDesc(kind string) string {
+	switch kind {
+	case "watch":
+		return "default watch: individuals (3σ limit) + tabular CUSUM"
+	case "imr":
+		return "individuals / moving range"
+	case "xbar-r":
+		return "X̄ / R"
+	case "xbar-s":
+		return "X̄ / s"
+	case "ewma":
+		return "EWMA"
+	}
+	return "tabular CUSUM"
+}
+
+func fmtNum(v float64, none string) string {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return none
+	}
+	return strconv.FormatFloat(v, 'f', 3, 64)
+}
+
+func fmtIdx(v jnum) string {
+	if math.IsNaN(float64(v)) || math.IsInf(float64(v), 0) {
+		return "-"
+	}
+	return strconv.FormatFloat(float64(v), 'f', 2, 64)
+}
+
+func fmtTime(t time.Time) string { return t.Local().Format("2006-01-02 15:04:05") }
+
+func dashIfEmpty(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return s
+}
