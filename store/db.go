@@ -134,8 +134,8 @@ func checkHeader(path string) error {
 	}
 	defer f.Close()
 	buf := make([]byte, len(sqliteMagic))
-	n, err := io.ReadFull(f, buf)
-	if n == 0 && (err == io.EOF) {
+	_, err = io.ReadFull(f, buf)
+	if err == io.EOF {
 		return nil // empty file: SQLite treats it as a new database
 	}
 	if err != nil || string(buf) != sqliteMagic {
@@ -240,6 +240,15 @@ func classifyOpen(err error) error {
 func isFull(err error) bool {
 	var se sqlite3.Error
 	return errors.As(err, &se) && se.Code == sqlite3.ErrFull
+}
+
+// markFull wraps err in ErrDiskFull when it is SQLite's "database or disk
+// is full", and returns it unchanged otherwise.
+func markFull(err error) error {
+	if isFull(err) {
+		return fmt.Errorf("%w: %w", ErrDiskFull, err)
+	}
+	return err
 }
 
 // Close closes the shift log. Runs already recorded stay committed.

@@ -63,10 +63,7 @@ func (db *DB) SaveRelayOps(ctx context.Context, fixture string, counts []uint64)
 		}
 	}
 	if err := tx.Commit(); err != nil {
-		if isFull(err) {
-			err = fmt.Errorf("%w: %w", ErrDiskFull, err)
-		}
-		return fmt.Errorf("save relay ops of %s: %w", fixture, err)
+		return fmt.Errorf("save relay ops of %s: %w", fixture, markFull(err))
 	}
 	db.ids.merge(w.pending)
 	return nil

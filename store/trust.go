@@ -82,7 +82,8 @@ func checkPayload(what string, station, fixture string, t time.Time, payload jso
 }
 
 // insertTrust interns station and fixture and runs one INSERT whose first
-// four arguments are time, station id, fixture id; it returns the new id.
+// three arguments are time, station id and fixture id, followed by args; it
+// returns the new id.
 func (db *DB) insertTrust(ctx context.Context, what, station, fixture, q string, t time.Time, args ...any) (int64, error) {
 	db.wmu.Lock()
 	defer db.wmu.Unlock()
@@ -109,10 +110,7 @@ func (db *DB) insertTrust(ctx context.Context, what, station, fixture, q string,
 		return 0, fmt.Errorf("record %s: %w", what, err)
 	}
 	if err := tx.Commit(); err != nil {
-		if isFull(err) {
-			err = fmt.Errorf("%w: %w", ErrDiskFull, err)
-		}
-		return 0, fmt.Errorf("record %s: %w", what, err)
+		return 0, fmt.Errorf("record %s: %w", what, markFull(err))
 	}
 	db.ids.merge(w.pending)
 	return id, nil

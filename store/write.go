@@ -76,6 +76,7 @@ type NotSavedError struct {
 	Err    error
 }
 
+// Error implements error.
 func (e *NotSavedError) Error() string {
 	return fmt.Sprintf("run of %s not saved: %v", e.Serial, e.Err)
 }
@@ -87,10 +88,7 @@ func (e *NotSavedError) Unwrap() error { return e.Err }
 func (e *NotSavedError) Is(target error) bool { return target == ErrNotSaved }
 
 func notSaved(serial string, err error) error {
-	if isFull(err) {
-		err = fmt.Errorf("%w: %w", ErrDiskFull, err)
-	}
-	return &NotSavedError{Serial: serial, Err: err}
+	return &NotSavedError{Serial: serial, Err: markFull(err)}
 }
 
 // Record commits r and all its measurements in one transaction and returns
@@ -166,10 +164,7 @@ func (db *DB) Import(ctx context.Context, runs iter.Seq[*sequences.Run], perTx i
 		if _, err := w.put(ctx, r); err != nil {
 			w.close()
 			w.tx.Rollback()
-			if isFull(err) {
-				err = fmt.Errorf("%w: %w", ErrDiskFull, err)
-			}
-			return done, fmt.Errorf("import run %d: %w", done+int64(n)+1, err)
+			return done, fmt.Errorf("import run %d: %w", done+int64(n)+1, markFull(err))
 		}
 		n++
 		if n == perTx {

@@ -45,9 +45,10 @@ func fixedCircuit(p timing.Point) timing.Circuit {
 }
 
 func TestNominalDemoFigures(t *testing.T) {
-	// Demo numbers worked by hand from DESIGN.md §4 (team notes): QM-205
-	// C_total = 3.0 µs − 40 ns over 100 kΩ·ln 2 ≈ 42.7 pF → C_ext,trip ≈
-	// 29.7 pF; clock 1/(2·22 kΩ·100 nF·ln(0.62/0.38)) ≈ 465 Hz.
+	// Demo numbers worked by hand with DESIGN.md §4 from the typical values
+	// of testdata/variants/QM-205.yaml: C_total = (3.0 µs − 40 ns) /
+	// (100 kΩ·ln 2) ≈ 42.7 pF → C_ext,trip ≈ 42.7 − 13 = 29.7 pF; clock
+	// 1/(2·22 kΩ·100 nF·ln(0.62/0.38)) ≈ 465 Hz.
 	p := qm205().Nominal()
 	trip, err := timing.TripPF(p)
 	if err != nil {
