@@ -48,16 +48,23 @@ type Limits struct {
 
 // PlanConfig is a variant's plan with its parameters.
 type PlanConfig struct {
-	PowerSettle    time.Duration
-	ClockPeriods   int // 0: no clock step (no clock pin wired)
+	// PowerSettle is the wait after unit power-up.
+	PowerSettle time.Duration
+	// ClockPeriods is how many periods the clock measurement spans; 0: no
+	// clock step (no clock pin wired).
+	ClockPeriods int
+	// IdlePeriods and ReleasePeriods are how many periods the latch must
+	// read 0 in the idle and release checks (at least 1 each).
 	IdlePeriods    int
 	ReleasePeriods int
 	// Period is the wait for one latch sample when no clock pin is wired:
 	// the unit's slowest clock period.
-	Period      time.Duration
+	Period time.Duration
+	// StepTimeout is each step's fixture-time budget (default 5 s).
 	StepTimeout time.Duration
-	Search      SearchOptions
-	Limits      Limits
+	// Search tunes the trip search; Limits are what the plan judges against.
+	Search SearchOptions
+	Limits Limits
 }
 
 // Plan is the ordered steps run on every unit of a variant.

@@ -261,13 +261,16 @@ func deviance(data []Tally, mu, sigma float64) (float64, int) {
 // phi is the standard normal density.
 func phi(z float64) float64 { return math.Exp(-z*z/2) / math.Sqrt(2*math.Pi) }
 
+// normCDF is the standard normal distribution function Φ.
+func normCDF(z float64) float64 { return 0.5 * math.Erfc(-z/math.Sqrt2) }
+
 // bigZ is where the direct forms give way to the asymptotic ones.
 const bigZ = 30
 
 // logPhi is ln Φ(z), accurate in the far lower tail.
 func logPhi(z float64) float64 {
 	if z > -bigZ {
-		return math.Log(0.5 * math.Erfc(-z/math.Sqrt2))
+		return math.Log(normCDF(z))
 	}
 	// Φ(z) ≈ φ(z)/(−z)·(1 − 1/z² + 3/z⁴ − 15/z⁶), z → −∞.
 	z2 := z * z
@@ -278,7 +281,7 @@ func logPhi(z float64) float64 {
 // lower tail.
 func millsInv(z float64) float64 {
 	if z > -bigZ {
-		return phi(z) / (0.5 * math.Erfc(-z/math.Sqrt2))
+		return phi(z) / normCDF(z)
 	}
 	z2 := z * z
 	return -z / (1 - 1/z2 + 3/(z2*z2) - 15/(z2*z2*z2))
@@ -290,8 +293,7 @@ func fisher(pf, mu, sigma float64) [2][2]float64 {
 	z := (pf - mu) / sigma
 	var w float64
 	if math.Abs(z) < 37 {
-		p := 0.5 * math.Erfc(-z/math.Sqrt2)
-		q := 0.5 * math.Erfc(z/math.Sqrt2)
+		p, q := normCDF(z), normCDF(-z)
 		if p > 0 && q > 0 {
 			ph := phi(z)
 			w = ph * ph / (p * q)

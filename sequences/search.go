@@ -138,7 +138,7 @@ type ProbeRecord struct {
 	PF    float64 // the level's capacitance
 	K     int     // samples taken
 	Highs int     // samples that read high
-	Phase string  // PhaseBracket, PhaseClimb or PhaseRefine
+	Phase string  // PhaseBracket, PhaseClimb, PhaseRefine or PhaseGuard
 }
 
 // TripResult is the outcome of one trip search.
@@ -188,8 +188,10 @@ type TripResult struct {
 // maximum-a-posteriori probit fit over every sample taken, probing where the
 // next samples most shrink the trip point's standard error, in batches of
 // opt.BatchK, until the standard error reaches opt.SETargetPF or
-// opt.MaxRefineSamples are spent. On a probe error it returns the result so
-// far with the error.
+// opt.MaxRefineSamples are spent; last (unless opt.GuardK is −1) it takes
+// opt.GuardK samples at the nearest levels at least opt.GuardPF below and
+// above the fitted trip point. On a probe error it returns the result so far
+// with the error.
 func FindTrip(p Prober, levels []float64, opt SearchOptions) (TripResult, error) {
 	opt, err := opt.withDefaults()
 	if err != nil {

@@ -29,6 +29,7 @@ type UnitFailure struct {
 	Detail string
 }
 
+// Error says the unit fails, with the code and the detail.
 func (e *UnitFailure) Error() string {
 	if e.Detail == "" {
 		return "unit fails: " + e.Code

@@ -38,7 +38,7 @@ type Trial struct {
 	period   time.Duration
 
 	// Phases is the fixture time spent per phase: the step names, and
-	// "bracket"/"climb"/"refine" inside the trip search.
+	// "bracket"/"climb"/"refine"/"guard" inside the trip search.
 	Phases map[string]time.Duration
 	// Trip is the trip search's result, when the search ran.
 	Trip *TripResult

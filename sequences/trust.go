@@ -457,7 +457,7 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 	res.Reference = ref
 	n := len(cfg.RungsPF)
 	if n == 0 || n > 16 {
-		return res, fmt.Errorf("reference check: %d rungs", n)
+		return res, fmt.Errorf("reference check: ladder has %d rungs, want 1 to 16", n)
 	}
 	start := clk.Now()
 	defer func() {
@@ -1026,7 +1026,7 @@ func (c *checker) weights(trips []search) []float64 {
 	t := trips[0]
 	for i, pf := range t.pfs {
 		z := (pf - mu) / sig
-		dens := math.Exp(-z*z/2) / math.Sqrt(2*math.Pi)
+		dens := phi(z)
 		f := dens * dens / math.Max(normCDF(z)*normCDF(-z), 1e-300)
 		tot += f
 		for r := range w {
@@ -1361,6 +1361,3 @@ func combineStuck(refs []RefCheck, rungs []RungFinding, faults []string) ([]Rung
 	}
 	return rungs, append(faults, line)
 }
-
-// normCDF is the standard normal distribution function.
-func normCDF(z float64) float64 { return 0.5 * math.Erfc(-z/math.Sqrt2) }

@@ -52,8 +52,7 @@ type source struct {
 // file exists or ref ends in .yaml/.yml, else a built-in from dir (the
 // embedded defaults/<dir>/NAME.yaml). kind names the thing for errors.
 func openConfig(ref, dir, kind string) (source, error) {
-	ext := strings.ToLower(filepath.Ext(ref))
-	if st, err := os.Stat(ref); (err == nil && !st.IsDir()) || ext == ".yaml" || ext == ".yml" {
+	if isConfigPath(ref) {
 		raw, err := os.ReadFile(ref)
 		if err != nil {
 			return source{}, fmt.Errorf("read %s: %w", kind, err)
@@ -66,6 +65,14 @@ func openConfig(ref, dir, kind string) (source, error) {
 			kind, ref, kind, strings.Join(builtinNames(dir), ", "))
 	}
 	return newSource("built-in "+ref, raw), nil
+}
+
+// isConfigPath reports whether ref names a config file rather than a
+// built-in: an existing file, or anything ending in .yaml or .yml.
+func isConfigPath(ref string) bool {
+	ext := strings.ToLower(filepath.Ext(ref))
+	st, err := os.Stat(ref)
+	return (err == nil && !st.IsDir()) || ext == ".yaml" || ext == ".yml"
 }
 
 func newSource(name string, raw []byte) source {

@@ -18,7 +18,6 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"padline/fixture"
 	"padline/fixture/sim"
 	"padline/sequences"
 	"padline/sequences/timing"
@@ -209,13 +208,19 @@ type discard struct{}
 
 func (discard) Record(context.Context, *sequences.Run) (int64, error) { return 0, nil }
 
-// demoSerials makes the shift's serials from the variant name (QM-205 →
-// QM205-000001) and checks them against the variant's own pattern.
+// demoSerial is serial number i (from 1) of the variant's simulated units:
+// the variant name without dashes, a dash and six digits (QM-205, 1 →
+// QM205-000001).
+func demoSerial(v *Variant, i int) string {
+	return fmt.Sprintf("%s-%06d", strings.ReplaceAll(v.Name, "-", ""), i)
+}
+
+// demoSerials makes the shift's serials (see demoSerial) and checks them
+// against the variant's own pattern.
 func demoSerials(v *Variant, n int) ([]string, error) {
-	prefix := strings.ReplaceAll(v.Name, "-", "")
 	out := make([]string, n)
 	for i := range out {
-		out[i] = fmt.Sprintf("%s-%06d", prefix, i+1)
+		out[i] = demoSerial(v, i+1)
 		if !v.Serial.MatchString(out[i]) {
 			return nil, fmt.Errorf("demo: serial %s does not match variant %s's serial_pattern %q; the demo numbers serials NAME-000001",
 				out[i], v.Name, v.SerialPattern)
@@ -536,5 +541,3 @@ func writeDemoSummary(w io.Writer, v *Variant, st *Station, rep timing.Report, d
 		fmt.Fprintf(w, "shift log        %s (see 'padline history --db %s --variant %s')\n", dbPath, dbPath, v.Name)
 	}
 }
-
-var _ fixture.Clock = (*sim.Clock)(nil)

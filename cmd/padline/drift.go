@@ -93,7 +93,9 @@ Capability Cp/Cpk (σ within subgroups) and Pp/Ppk (overall σ) are against
 the variant's test limits, computed as 'padline limits' does from the
 variant's configuration (the latest one in the shift log, else the built-in
 or file of that name) with the station's uncertainty U (--uncertainty-pf,
-else the --station-file's, else the stand-in 0.3 pF); --lsl/--usl override
+else the --station-file station's: the budget its last study stored in the
+shift log, else its file's uncertainty_pf; else the stand-in 0.3 pF), the
+same U 'padline run' judged with; --lsl/--usl override
 them. First-pass yield (each serial's first unit verdict) comes with its
 exact Clopper–Pearson 95 % interval.
 
@@ -127,7 +129,9 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 				if err != nil {
 					return fmt.Errorf("drift: %w", err)
 				}
-				o.uncertainty, o.uncertaintyFrom = stationU(st)
+				// The same U padline run judged with: the station's stored
+				// budget, else its file, else the stand-in.
+				o.uncertainty, o.uncertaintyFrom = stationUncertainty(cmd.Context(), o.db, st)
 			}
 			if fl.Changed("uncertainty-pf") {
 				o.uncertaintyFrom = "--uncertainty-pf"
@@ -184,7 +188,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	}
 	fl := cmd.Flags()
 	fl.StringVar(&dbFlag, "db", "", "shift log file (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
-	fl.StringVar(&o.stationFile, "station-file", "", "station file (or built-in name): its shift_log and uncertainty_pf")
+	fl.StringVar(&o.stationFile, "station-file", "", "station file (or built-in name): its shift_log and its uncertainty U")
 	fl.StringVar(&o.variant, "variant", "", "variant whose trip points to watch, e.g. QM-205 (or a .yaml file)")
 	fl.StringVar(&o.since, "since", "", "from this time on (inclusive): 8h, 2d, 2026-11-30, \"2026-11-30 14:00\"")
 	fl.StringVar(&o.until, "until", "", "before this time (exclusive); same forms as --since")
@@ -207,7 +211,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.Float64Var(&k, "k", drift.DefaultK, "CUSUM reference value k, in σ")
 	fl.Float64Var(&h, "h", drift.DefaultH, "CUSUM decision interval h, in σ")
 	fl.Float64Var(&lambda, "lambda", drift.DefaultLambda, "EWMA weight λ")
-	fl.Float64Var(&wid, "width", 3, "limit half-width in σ (Shewhart; for --chart ewma its L, default 2.86)")
+	fl.Float64Var(&wid, "width", 3, fmt.Sprintf("limit half-width in σ (Shewhart; for --chart ewma its L, default %g)", float64(drift.DefaultL)))
 	fl.Float64Var(&o.uncertainty, "uncertainty-pf", defaultUncertaintyPF, "station's expanded uncertainty U (k = 2), pF: the guard band of the test limits")
 	fl.Float64Var(&o.lsl, "lsl", 0, "lower limit for capability instead of the variant's test limit")
 	fl.Float64Var(&o.usl, "usl", 0, "upper limit for capability instead of the variant's test limit")
@@ -508,8 +512,7 @@ func describeFilter(o driftOptions) string {
 // one, else the latest configuration the shift log holds for that name (the
 // limits the line judged against), else the built-in.
 func driftVariant(ctx context.Context, db *store.DB, ref string) (*Variant, string, error) {
-	ext := strings.ToLower(filepath.Ext(ref))
-	if st, err := os.Stat(ref); (err == nil && !st.IsDir()) || ext == ".yaml" || ext == ".yml" {
+	if isConfigPath(ref) {
 		v, err := loadVariant(ref)
 		if err != nil {
 			return nil, "", err

@@ -250,6 +250,7 @@ func fmtIdx(v jnum) string {
 
 func fmtTime(t time.Time) string { return t.Local().Format("2006-01-02 15:04:05") }
 
+// dashIfEmpty shows an empty text field as "-".
 func dashIfEmpty(s string) string {
 	if s == "" {
 		return "-"

@@ -64,13 +64,13 @@ its limits) changed: each distinct config hash and when it was first seen.
 The shift log is, first found: --db PATH, the environment variable
 PADLINE_DB, the shift_log of --station-file, else ./` + defaultShiftLog + `.
 history never creates a shift log.`,
-		Example: `  padline history --serial QM205-0001234
+		Example: `  padline history --serial QM205-001234
   padline history --variant QM-205 --since 8h
   padline history --variant QM-205 --since 2026-11-30 --until 2026-12-01 --verdict fail
   padline history --variant QM-205 --station L2-S1 --lot LOT-17 --format csv > lot17.csv
   padline history --variant QM-205 --json | jq .trip_pf
   padline history --limits-history --variant QM-205
-  PADLINE_DB=/var/lib/padline/L2-S1.db padline history --serial QM205-0001234`,
+  PADLINE_DB=/var/lib/padline/L2-S1.db padline history --serial QM205-001234`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			db, err := shiftLogPath(cmd, stationFile)
@@ -186,7 +186,7 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 			flagged++
 		}
 		fmt.Fprintf(w, row, strconv.FormatInt(e.ID, 10), e.Finished.Local().Format("2006-01-02 15:04:05"),
-			e.Serial, e.Station, e.Fixture, e.Lot, verdict, histDash(e.FailCode), histPF(e.TripPF))
+			e.Serial, e.Station, e.Fixture, e.Lot, verdict, dashIfEmpty(e.FailCode), histPF(e.TripPF))
 		if opts.filter.Serial != "" {
 			writeDetail(w, e)
 		}
@@ -220,10 +220,10 @@ func passAfterFail(e *store.Entry) bool {
 // writeDetail prints a run's traceability and measurements under its line.
 func writeDetail(w io.Writer, e *store.Entry) {
 	fmt.Fprintf(w, "    variant %s  config %s  operator %s  software %s\n",
-		e.Variant, histShortHash(e.ConfigHash), histDash(e.Operator), histDash(e.Software))
+		e.Variant, histShortHash(e.ConfigHash), dashIfEmpty(e.Operator), dashIfEmpty(e.Software))
 	for _, m := range e.Measurements {
-		fmt.Fprintf(w, "    %-14s %-16s %12s %-4s  [%s, %s]  %s\n", m.Step, m.Name, histNum(m.Value), m.Unit,
-			histLimit(m.Low, "-inf"), histLimit(m.High, "+inf"), m.Verdict)
+		fmt.Fprintf(w, "    %-14s %-16s %12s %-4s  [%s, %s]  %s\n", m.Step, m.Name, histNum(m.Value, "-"), m.Unit,
+			histNum(m.Low, "-inf"), histNum(m.High, "+inf"), m.Verdict)
 	}
 }
 
@@ -294,13 +294,6 @@ func parseWhen(s string, now time.Time) (time.Time, error) {
 	return time.Time{}, fmt.Errorf("%q is neither a duration (8h, 2d) nor a date/time (2026-11-30, \"2026-11-30 14:00\", RFC 3339)", s)
 }
 
-func histDash(s string) string {
-	if s == "" {
-		return "-"
-	}
-	return s
-}
-
 func histPF(v float64) string {
 	if math.IsNaN(v) {
 		return "-"
@@ -308,14 +301,9 @@ func histPF(v float64) string {
 	return strconv.FormatFloat(v, 'f', 3, 64)
 }
 
-func histNum(v float64) string {
-	if math.IsNaN(v) {
-		return "-"
-	}
-	return strconv.FormatFloat(v, 'g', 6, 64)
-}
-
-func histLimit(v float64, none string) string {
+// histNum shows a measured value or limit to six significant digits, or
+// none when it is NaN (no value, no limit).
+func histNum(v float64, none string) string {
 	if math.IsNaN(v) {
 		return none
 	}
@@ -326,7 +314,7 @@ func histShortHash(h string) string {
 	if len(h) > 12 {
 		return h[:12]
 	}
-	return histDash(h)
+	return dashIfEmpty(h)
 }
 
 func histCSVField(s string) string {

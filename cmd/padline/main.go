@@ -1,13 +1,10 @@
-// Command padline runs end-of-line tests of firmware-free capacitive touch
-// switches: it finds each unit's trip capacitance on a relay-switched
-// capacitor ladder, judges it against limits from the circuit's timing model,
-// and logs every serial's result to a SQLite shift log.
 package main
 
 import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"os/signal"
 	"syscall"
@@ -43,6 +40,6 @@ func exitCode(err error) int {
 }
 
 // reportError prints err as one line on w, prefixed with the program name.
-func reportError(w interface{ Write([]byte) (int, error) }, err error) {
+func reportError(w io.Writer, err error) {
 	fmt.Fprintf(w, "padline: %v\n", err)
 }

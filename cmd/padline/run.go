@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"strings"
 	"time"
 
@@ -365,8 +366,9 @@ func unitJSON(oc *sequences.Outcome) map[string]any {
 	return m
 }
 
+// jsonNum is f for JSON, or nil (null) when f is NaN.
 func jsonNum(f float64) any {
-	if f != f {
+	if math.IsNaN(f) {
 		return nil
 	}
 	return f
@@ -377,7 +379,7 @@ func writeVerdict(w io.Writer, oc *sequences.Outcome, lim sequences.Limits) {
 	r := oc.Run
 	trip := "no trip point"
 	for _, x := range r.Measurements {
-		if x.Name == "trip_pf" && x.Value == x.Value {
+		if x.Name == "trip_pf" && !math.IsNaN(x.Value) {
 			trip = fmt.Sprintf("trip %.2f pF (limits %.2f … %.2f pF)", x.Value, lim.TripLowPF, lim.TripHighPF)
 		}
 	}

@@ -14,6 +14,8 @@ import (
 // simulator's realism-floor default (DESIGN.md §12); a file that changes one
 // says so in its own text.
 type StationSim struct {
+	// Seed seeds the simulated units and fixture (default 1; 'padline demo
+	// --seed' overrides it).
 	Seed uint64
 	// NoiseMVAt5V is the σ of the D-input comparison noise at 5 V, mV.
 	NoiseMVAt5V float64

@@ -25,14 +25,15 @@ func levels(l *fixture.Ladder) []sequences.Level {
 }
 
 // planConfig turns a variant's plan section and its computed limits into
-// the plan's parameters. clockWired says whether the station has a clock pin.
+// the plan's parameters. clockWired says whether the station has a clock pin;
+// strategy, when not empty, is --search and overrides plan.search.strategy.
 func planConfig(v *Variant, rep timing.Report, clockWired bool, strategy string) (sequences.PlanConfig, error) {
 	p := v.Plan
 	if strategy == "" {
 		strategy = p.Search.Strategy
 	}
 	if strategy != string(sequences.Bracket) && strategy != string(sequences.Staircase) {
-		return sequences.PlanConfig{}, fmt.Errorf("search strategy %q: want bracket or staircase", strategy)
+		return sequences.PlanConfig{}, fmt.Errorf("--search %q: want bracket or staircase", strategy)
 	}
 	if rep.TestLimits.Low >= rep.TestLimits.High {
 		return sequences.PlanConfig{}, fmt.Errorf("variant %s: test limits %.2f … %.2f pF leave nothing to pass: see 'padline limits --variant %s'",

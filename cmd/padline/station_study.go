@@ -233,16 +233,13 @@ func (a *app) stationStudy(ctx context.Context, o studyOptions, dbPath string) (
 	return nil
 }
 
-// goodSerials returns the first n serials of the variant's numbering whose
+// goodSerials returns the first n serials of the demo numbering whose
 // simulated units carry no defect: the parts of a GRR study (a real study
 // picks good parts spread over the process range).
 func goodSerials(line *sim.Line, v *Variant, n int) []string {
 	var out []string
 	for i := 1; len(out) < n && i < 100000; i++ {
-		s := fmt.Sprintf("QM205-%06d", i)
-		if v.Name != "QM-205" {
-			s = fmt.Sprintf("%s-%06d", strings.ReplaceAll(v.Name, "-", ""), i)
-		}
+		s := demoSerial(v, i)
 		if validSerial(v.Serial, s) != nil {
 			continue
 		}

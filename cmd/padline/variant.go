@@ -58,7 +58,8 @@ type PlanSearch struct {
 
 // PlanRetest says what happens after a fail (`plan.retest`).
 type PlanRetest struct {
-	// Max is how many retests a failing unit gets (default 1; 0 = none).
+	// Max is how many times a serial may be tested again after its first
+	// unit verdict, pass or fail (default 1; 0 = none).
 	Max int
 	// FlagPassAfterFail marks a unit that passes only on retest (default true).
 	FlagPassAfterFail bool
