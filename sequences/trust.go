@@ -1081,15 +1081,17 @@ func (c *checker) highs(p uint16, k int) (int, error) {
 	return h, nil
 }
 
-// checkWindowPF is how far from the reference trip the search looks.
-const checkWindowPF = 2.5
+// CheckWindowPF is how far either side of a reference unit's registered trip
+// point the check searches; the trip must lie at least this far inside the
+// ladder's range.
+const CheckWindowPF = 2.5
 
 // tripNear searches the reference trip on the strictly ascending levels
-// within checkWindowPF of T (on equal values, the first in c.all).
+// within CheckWindowPF of T (on equal values, the first in c.all).
 func (c *checker) tripNear(T float64) (search, error) {
 	var lv []Level
 	for _, l := range c.all {
-		if math.Abs(l.PF-T) > checkWindowPF {
+		if math.Abs(l.PF-T) > CheckWindowPF {
 			continue
 		}
 		if k := len(lv); k > 0 && l.PF <= lv[k-1].PF {

@@ -43,7 +43,7 @@ func BenchmarkSimulatedUnit(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			plan, err := sequences.NewPlan(cfg, levels(fx.Ladder()))
+			plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
 			if err != nil {
 				b.Fatal(err)
 			}

@@ -245,7 +245,7 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 	if err != nil {
 		return nil, err
 	}
-	lv := levels(fx.Ladder())
+	lv := fx.Ladder().Distinct()
 	plan, err := sequences.NewPlan(cfg, lv)
 	if err != nil {
 		return nil, err

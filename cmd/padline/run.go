@@ -135,7 +135,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 	if err != nil {
 		return err
 	}
-	plan, err := sequences.NewPlan(cfg, levels(fx.Ladder()))
+	plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
 	if err != nil {
 		return err
 	}
@@ -218,7 +218,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		if o.asJSON {
 			lidMsg = a.stderr
 		}
-		if err := waitLid(ctx, fx, clk, o.lidTimeout, lidMsg); err != nil {
+		if err := waitLid(ctx, fx, o.lidTimeout, lidMsg); err != nil {
 			if line != nil {
 				line.Unload()
 			}
@@ -325,30 +325,13 @@ func serialSource(ctx context.Context, r io.Reader, one string) func() (string, 
 	}
 }
 
-// waitLid waits until the lid is closed, polling on the station's clock.
-func waitLid(ctx context.Context, fx *fixture.Fixture, clk fixture.Clock, timeout time.Duration, msg io.Writer) error {
-	start := clk.Now()
-	asked := false
-	for {
-		closed, err := fx.LidClosed()
-		if err != nil {
-			return err
-		}
-		if closed {
-			return nil
-		}
-		if !asked {
-			fmt.Fprintln(msg, "close the lid to start the test")
-			asked = true
-		}
-		if ctx.Err() != nil {
-			return ctx.Err()
-		}
-		if timeout > 0 && clk.Now().Sub(start) > timeout {
-			return fmt.Errorf("lid still open after %s", timeout)
-		}
-		clk.Sleep(50 * time.Millisecond)
+// waitLid asks for the lid to be closed, once, and waits until it is.
+func waitLid(ctx context.Context, fx *fixture.Fixture, timeout time.Duration, msg io.Writer) error {
+	if closed, err := fx.LidClosed(); err != nil || closed {
+		return err
 	}
+	fmt.Fprintln(msg, "close the lid to start the test")
+	return fx.WaitLid(ctx, true, 50*time.Millisecond, timeout)
 }
 
 // unitJSON is one tested unit for --json.

@@ -51,7 +51,7 @@ type StationRef struct {
 
 // readStationTrust reads reference_units, check_every_units,
 // check_every_hours and relay_warn_fraction. A reference trip must lie at
-// least refMarginPF inside the ladder's range (stray to stray + every
+// least sequences.CheckWindowPF inside the ladder's range (stray to stray + every
 // rung), where the check can search it.
 func readStationTrust(d *doc, lad StationLadder) StationTrust {
 	tr := StationTrust{RelayWarnFraction: defaultRelayWarnFraction}
@@ -104,8 +104,8 @@ func readStationTrust(d *doc, lad StationLadder) StationTrust {
 			}
 			r.TripPF = num("trip_pf")
 			r.AllowedDevPF = num("allowed_dev_pf")
-			if lo, hi := lad.StrayPF+refMarginPF, lad.StrayPF+sumPF(lad.RungsPF)-refMarginPF; len(lad.RungsPF) > 0 && r.TripPF > 0 && (r.TripPF < lo || r.TripPF > hi) {
-				d.fail(key+".trip_pf", "%g pF is outside the ladder's reach for a check (%.2f to %.2f pF: %g pF inside stray and full ladder)", r.TripPF, lo, hi, refMarginPF)
+			if lo, hi := lad.StrayPF+sequences.CheckWindowPF, lad.StrayPF+sumPF(lad.RungsPF)-sequences.CheckWindowPF; len(lad.RungsPF) > 0 && r.TripPF > 0 && (r.TripPF < lo || r.TripPF > hi) {
+				d.fail(key+".trip_pf", "%g pF is outside the ladder's reach for a check (%.2f to %.2f pF: %g pF inside stray and full ladder)", r.TripPF, lo, hi, sequences.CheckWindowPF)
 			}
 			if x, present := m["sim_defects"]; present {
 				l, isList := x.([]any)
@@ -133,10 +133,6 @@ func readStationTrust(d *doc, lad StationLadder) StationTrust {
 	}
 	return tr
 }
-
-// refMarginPF is how far inside the ladder's range a reference trip must
-// lie: the check searches ±2.5 pF around it.
-const refMarginPF = 2.5
 
 func sumPF(xs []float64) float64 {
 	var s float64
@@ -334,26 +330,12 @@ func (r *rig) load(ctx context.Context, serial string, simDefects []string, what
 	}
 	fmt.Fprintf(r.msg(), "load %s into fixture %s and close the lid\n", what, r.st.Fixture)
 	if r.loaded {
-		if err := waitLidOpen(ctx, r.fx, r.clk); err != nil {
+		if err := r.fx.WaitLid(ctx, false, 50*time.Millisecond, 0); err != nil {
 			return err
 		}
 	}
 	r.loaded = true
-	return waitLid(ctx, r.fx, r.clk, 0, r.msg())
-}
-
-// waitLidOpen waits until the lid opens (the operator takes a unit out).
-func waitLidOpen(ctx context.Context, fx *fixture.Fixture, clk fixture.Clock) error {
-	for {
-		closed, err := fx.LidClosed()
-		if err != nil || !closed {
-			return err
-		}
-		if ctx.Err() != nil {
-			return ctx.Err()
-		}
-		clk.Sleep(50 * time.Millisecond)
-	}
+	return waitLid(ctx, r.fx, 0, r.msg())
 }
 
 // checkConfig is the reference check's configuration on this station.

@@ -5,24 +5,9 @@ import (
 	"math"
 	"time"
 
-	"padline/fixture"
 	"padline/sequences"
 	"padline/sequences/timing"
 )
-
-// levels returns the ladder's reachable values, strictly ascending: of
-// several patterns with the same capacitance, the one with fewest closed
-// rungs (fewest relays to wear).
-func levels(l *fixture.Ladder) []sequences.Level {
-	var out []sequences.Level
-	for _, lv := range l.Levels() {
-		if n := len(out); n > 0 && lv.PF <= out[n-1].PF {
-			continue
-		}
-		out = append(out, lv)
-	}
-	return out
-}
 
 // planConfig turns a variant's plan section and its computed limits into
 // the plan's parameters. clockWired says whether the station has a clock pin;

@@ -135,7 +135,7 @@ func (a *app) stationStudy(ctx context.Context, o studyOptions, dbPath string) (
 			err = cerr
 		}
 	}()
-	pl, err := sequences.NewPlan(r.plan, levels(r.fx.Ladder()))
+	pl, err := sequences.NewPlan(r.plan, r.fx.Ladder().Distinct())
 	if err != nil {
 		return err
 	}
@@ -259,7 +259,7 @@ func (r *rig) budgetInput(ctx context.Context) (sequences.StationBudgetInput, st
 	}
 	// Rungs closed at the level nearest the variant's nominal trip.
 	best := math.Inf(1)
-	for _, lv := range levels(r.fx.Ladder()) {
+	for _, lv := range r.fx.Ladder().Distinct() {
 		if d := math.Abs(lv.PF - r.rep.Trip.Nominal); d < best {
 			best, in.ClosedRungs = d, bits.OnesCount16(lv.Pattern)
 		}

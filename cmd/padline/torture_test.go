@@ -695,7 +695,7 @@ func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			plan, err := sequences.NewPlan(cfg, levels(fx.Ladder()))
+			plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
 			if err != nil {
 				t.Fatal(err)
 			}
