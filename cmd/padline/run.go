@@ -70,7 +70,7 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f := cmd.Flags()
 	f.StringVar(&o.variant, "variant", "", "variant to test: a .yaml file or a built-in name (required)")
 	f.StringVar(&o.station, "station", "", "station file: a .yaml file or a built-in name (required)")
-	f.String("db", "", "shift log (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
+	addShiftLogFlag(f)
 	f.StringVar(&o.serial, "serial", "", "test this one serial instead of reading serials from stdin")
 	f.StringVar(&o.operator, "operator", "", "operator name recorded with every run")
 	f.StringVar(&o.lot, "lot", "", "lot recorded with every run")

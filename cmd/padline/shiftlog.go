@@ -2,6 +2,7 @@ package main
 
 import (
 	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
 	"github.com/spf13/viper"
 )
 
@@ -33,4 +34,9 @@ func shiftLogPath(cmd *cobra.Command, stationRef string) (string, error) {
 		}
 	}
 	return defaultShiftLog, nil
+}
+
+// addShiftLogFlag adds the --db flag that shiftLogPath reads.
+func addShiftLogFlag(f *pflag.FlagSet) {
+	f.String("db", "", "shift log (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
 }

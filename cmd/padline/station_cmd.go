@@ -402,7 +402,7 @@ driver: gpio the operator is asked to load each one and close the lid.`,
 	f := cmd.Flags()
 	f.StringVar(&variant, "variant", "", "variant whose plan timing the check uses: a .yaml file or a built-in name (required)")
 	f.StringVar(&station, "station", "", "station file: a .yaml file or a built-in name (required)")
-	f.String("db", "", "shift log (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
+	addShiftLogFlag(f)
 	f.BoolVar(&asJSON, "json", false, "print the check as one JSON object")
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")

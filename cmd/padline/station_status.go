@@ -77,7 +77,7 @@ with a WARNING from relay_warn_fraction (default 0.8) of rated life.`,
 	}
 	f := cmd.Flags()
 	f.StringVar(&station, "station", "", "station file: a .yaml file or a built-in name (required)")
-	f.String("db", "", "shift log (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
+	addShiftLogFlag(f)
 	f.BoolVar(&asJSON, "json", false, "print the status as one JSON object")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd

@@ -74,7 +74,7 @@ band from then on.`,
 	f := cmd.Flags()
 	f.StringVar(&o.variant, "variant", "", "variant whose plan and test limits the study uses (required)")
 	f.StringVar(&o.station, "station", "", "station file: a .yaml file or a built-in name (required)")
-	f.String("db", "", "shift log (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
+	addShiftLogFlag(f)
 	f.BoolVar(&o.type1, "type1", false, "type-1 study of one reference unit")
 	f.IntVar(&o.n, "n", 25, "type-1: measurements of the reference unit")
 	f.StringVar(&o.ref, "ref", "", "type-1: the reference unit's serial (default: the first in the station file)")
