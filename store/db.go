@@ -43,6 +43,12 @@ var (
 	ErrInvalidRun = errors.New("store: invalid run")
 	// ErrNotFound: a looked-up item is not in the log.
 	ErrNotFound = errors.New("store: not found")
+	// ErrMoved: the file at the log's path is no longer the file this DB
+	// has open (deleted, renamed or replaced while running): what is
+	// written now would not be found at the path next time.
+	ErrMoved = errors.New("store: shift log moved or deleted while open")
+	// ErrCorrupt: SQLite's quick_check found damaged pages.
+	ErrCorrupt = errors.New("store: shift log damaged")
 )
 
 //go:embed migrations/*.sql
@@ -88,6 +94,9 @@ type DB struct {
 	sql  *sql.DB
 	path string
 	now  func() time.Time
+	// file identifies the file opened at path (device and inode), so
+	// CheckPath can tell when the path no longer leads to it.
+	file os.FileInfo
 
 	wmu sync.Mutex // serialises this process's write transactions
 	ids idCache    // committed name → id lookups
@@ -119,16 +128,63 @@ func open(path string, target int) (*DB, error) {
 		sdb.Close()
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)
 	}
+	// prepare wrote the file (WAL mode at least), so it exists now.
+	fi, err := os.Stat(path)
+	if err != nil {
+		sdb.Close()
+		return nil, fmt.Errorf("open shift log %s: %w", path, err)
+	}
+	db.file = fi
 	return db, nil
 }
 
-// checkHeader refuses a non-empty file that does not start with the SQLite
-// magic string, before SQLite touches it.
+// CheckPath returns ErrMoved unless the log's path still leads to the file
+// this DB has open. A station calls it before showing a verdict: a log
+// deleted or renamed under a running station would otherwise take every
+// run into a file nobody will find again.
+func (db *DB) CheckPath() error {
+	fi, err := os.Stat(db.path)
+	if err != nil {
+		return fmt.Errorf("%w: %s: %w", ErrMoved, db.path, err)
+	}
+	if !os.SameFile(fi, db.file) {
+		return fmt.Errorf("%w: %s is now another file", ErrMoved, db.path)
+	}
+	return nil
+}
+
+// QuickCheck runs SQLite's PRAGMA quick_check, which reads every page and
+// finds damaged ones (it skips the index-content cross-checks of
+// integrity_check, so it is fast enough for every station start), and
+// returns ErrCorrupt with SQLite's findings when it reports anything but
+// "ok".
+func (db *DB) QuickCheck(ctx context.Context) error {
+	msgs, err := db.pragmaList(ctx, "PRAGMA quick_check")
+	if err != nil {
+		return fmt.Errorf("quick check %s: %w", db.path, classifyOpen(err))
+	}
+	if len(msgs) == 1 && msgs[0] == "ok" {
+		return nil
+	}
+	return fmt.Errorf("%w: %s: %v", ErrCorrupt, db.path, msgs)
+}
+
+// checkHeader refuses anything at path that is not a regular file (a FIFO
+// would block the open for ever, a directory or device is no log), and a
+// non-empty file that does not start with the SQLite magic string, before
+// SQLite touches it. A path that does not exist yet is a new log.
 func checkHeader(path string) error {
-	f, err := os.Open(path)
+	fi, err := os.Stat(path)
 	if errors.Is(err, fs.ErrNotExist) {
 		return nil
 	}
+	if err != nil {
+		return err
+	}
+	if !fi.Mode().IsRegular() {
+		return fmt.Errorf("%w: %s is a %s, not a regular file", ErrNotShiftLog, path, fileKind(fi.Mode()))
+	}
+	f, err := os.Open(path)
 	if err != nil {
 		return err
 	}
@@ -142,6 +198,23 @@ func checkHeader(path string) error {
 		return fmt.Errorf("%w: not a SQLite database file", ErrNotShiftLog)
 	}
 	return nil
+}
+
+// fileKind names a non-regular file mode for an error message.
+func fileKind(m fs.FileMode) string {
+	switch {
+	case m.IsDir():
+		return "directory"
+	case m&fs.ModeNamedPipe != 0:
+		return "named pipe (FIFO)"
+	case m&fs.ModeSocket != 0:
+		return "socket"
+	case m&fs.ModeDevice != 0:
+		return "device"
+	case m&fs.ModeSymlink != 0:
+		return "symbolic link"
+	}
+	return "special file"
 }
 
 // prepare checks the file's identity and version, switches it to WAL and
@@ -171,6 +244,9 @@ func (db *DB) prepare(ctx context.Context, target int) error {
 	default:
 		return fmt.Errorf("%w: application_id %#x (want %#x), user_version %d, %d schema objects",
 			ErrNotShiftLog, appID, ApplicationID, version, objects)
+	}
+	if version < 0 {
+		return fmt.Errorf("%w: schema version %d is negative; padline never writes that", ErrNotShiftLog, version)
 	}
 	if version > int64(len(all)) {
 		return fmt.Errorf("%w: file has schema version %d, this padline knows versions up to %d",
@@ -269,26 +345,32 @@ func (db *DB) Version(ctx context.Context) (int, error) {
 // IntegrityCheck runs PRAGMA integrity_check and returns nil when SQLite
 // reports "ok".
 func (db *DB) IntegrityCheck(ctx context.Context) error {
-	rows, err := db.sql.QueryContext(ctx, "PRAGMA integrity_check")
+	msgs, err := db.pragmaList(ctx, "PRAGMA integrity_check")
 	if err != nil {
-		return fmt.Errorf("integrity check: %w", err)
-	}
-	defer rows.Close()
-	var msgs []string
-	for rows.Next() {
-		var s string
-		if err := rows.Scan(&s); err != nil {
-			return fmt.Errorf("integrity check: %w", err)
-		}
-		msgs = append(msgs, s)
-	}
-	if err := rows.Err(); err != nil {
 		return fmt.Errorf("integrity check: %w", err)
 	}
 	if len(msgs) == 1 && msgs[0] == "ok" {
 		return nil
 	}
 	return fmt.Errorf("integrity check: %v", msgs)
+}
+
+// pragmaList runs a PRAGMA that returns one text column and collects it.
+func (db *DB) pragmaList(ctx context.Context, q string) ([]string, error) {
+	rows, err := db.sql.QueryContext(ctx, q)
+	if err != nil {
+		return nil, err
+	}
+	defer rows.Close()
+	var msgs []string
+	for rows.Next() {
+		var s string
+		if err := rows.Scan(&s); err != nil {
+			return nil, err
+		}
+		msgs = append(msgs, s)
+	}
+	return msgs, rows.Err()
 }
 
 // idCache remembers committed name → id mappings of the small lookup tables.

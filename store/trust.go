@@ -133,7 +133,9 @@ func (db *DB) RecordCheck(ctx context.Context, c StationCheck) (int64, error) {
 		 VALUES (?, ?, ?, ?, ?, ?, ?)`, c.Time, c.StationHash, ok, c.LastRunID, string(c.Details))
 }
 
-// LastCheck returns the latest check of station's fixture, or ErrNotFound.
+// LastCheck returns the check of station's fixture recorded last, or
+// ErrNotFound. "Last" is by insertion, never by timestamp: a check stamped
+// in the future by a wrong clock must not hide a later failed one.
 func (db *DB) LastCheck(ctx context.Context, station, fixture string) (StationCheck, error) {
 	c := StationCheck{Station: station, Fixture: fixture}
 	var t int64
@@ -142,7 +144,7 @@ func (db *DB) LastCheck(ctx context.Context, station, fixture string) (StationCh
 	err := db.sql.QueryRowContext(ctx,
 		`SELECT c.id, c.time, c.station_hash, c.ok, c.last_run_id, c.details
 		 FROM station_checks c JOIN stations s ON s.id = c.station_id JOIN fixtures f ON f.id = c.fixture_id
-		 WHERE s.name = ? AND f.name = ? ORDER BY c.time DESC, c.id DESC LIMIT 1`, station, fixture).
+		 WHERE s.name = ? AND f.name = ? ORDER BY c.id DESC LIMIT 1`, station, fixture).
 		Scan(&c.ID, &t, &c.StationHash, &ok, &c.LastRunID, &details)
 	if errors.Is(err, sql.ErrNoRows) {
 		return c, fmt.Errorf("last check of %s/%s: %w", station, fixture, ErrNotFound)
@@ -167,7 +169,7 @@ func (db *DB) RecordStudy(ctx context.Context, s Study) (int64, error) {
 		s.Time, s.Kind, string(s.Results))
 }
 
-// LastStudy returns the latest study of kind (StudyType1, StudyGRR, or ""
+// LastStudy returns the last recorded (by insertion) study of kind (StudyType1, StudyGRR, or ""
 // for either) of station's fixture, or ErrNotFound.
 func (db *DB) LastStudy(ctx context.Context, station, fixture, kind string) (Study, error) {
 	s := Study{Station: station, Fixture: fixture}
@@ -176,7 +178,7 @@ func (db *DB) LastStudy(ctx context.Context, station, fixture, kind string) (Stu
 	err := db.sql.QueryRowContext(ctx,
 		`SELECT x.id, x.kind, x.time, x.results
 		 FROM studies x JOIN stations s ON s.id = x.station_id JOIN fixtures f ON f.id = x.fixture_id
-		 WHERE s.name = ? AND f.name = ? AND (? = '' OR x.kind = ?) ORDER BY x.time DESC, x.id DESC LIMIT 1`,
+		 WHERE s.name = ? AND f.name = ? AND (? = '' OR x.kind = ?) ORDER BY x.id DESC LIMIT 1`,
 		station, fixture, kind, kind).Scan(&s.ID, &s.Kind, &t, &results)
 	if errors.Is(err, sql.ErrNoRows) {
 		return s, fmt.Errorf("last %s study of %s/%s: %w", kind, station, fixture, ErrNotFound)
@@ -201,8 +203,8 @@ func (db *DB) SaveUncertainty(ctx context.Context, u Uncertainty) (int64, error)
 		 VALUES (?, ?, ?, ?, ?, ?, ?)`, u.Time, u.UPF, u.UCPF, string(u.Components), u.Source)
 }
 
-// LastUncertainty returns station's fixture's latest stored uncertainty,
-// or ErrNotFound.
+// LastUncertainty returns station's fixture's last stored (by insertion)
+// uncertainty, or ErrNotFound.
 func (db *DB) LastUncertainty(ctx context.Context, station, fixture string) (Uncertainty, error) {
 	u := Uncertainty{Station: station, Fixture: fixture}
 	var t int64
@@ -210,7 +212,7 @@ func (db *DB) LastUncertainty(ctx context.Context, station, fixture string) (Unc
 	err := db.sql.QueryRowContext(ctx,
 		`SELECT x.id, x.time, x.u_pf, x.uc_pf, x.components, x.source
 		 FROM station_uncertainty x JOIN stations s ON s.id = x.station_id JOIN fixtures f ON f.id = x.fixture_id
-		 WHERE s.name = ? AND f.name = ? ORDER BY x.time DESC, x.id DESC LIMIT 1`, station, fixture).
+		 WHERE s.name = ? AND f.name = ? ORDER BY x.id DESC LIMIT 1`, station, fixture).
 		Scan(&u.ID, &t, &u.UPF, &u.UCPF, &comps, &u.Source)
 	if errors.Is(err, sql.ErrNoRows) {
 		return u, fmt.Errorf("uncertainty of %s/%s: %w", station, fixture, ErrNotFound)
@@ -242,4 +244,24 @@ func (db *DB) RunsSince(ctx context.Context, station, fixture string, runID int6
 		return 0, fmt.Errorf("runs since %d on %s/%s: %w", runID, station, fixture, err)
 	}
 	return n, nil
+}
+
+// LatestTime returns the latest time stamped on anything in the log (runs,
+// checks, studies, uncertainties), or the zero time for an empty log. A
+// station whose wall clock reads earlier than this has had its clock set
+// back: its gate cannot trust "hours since the check".
+func (db *DB) LatestTime(ctx context.Context) (time.Time, error) {
+	var t sql.NullInt64
+	err := db.sql.QueryRowContext(ctx, `SELECT max(t) FROM (
+		SELECT max(finished) AS t FROM runs
+		UNION ALL SELECT max(time) FROM station_checks
+		UNION ALL SELECT max(time) FROM studies
+		UNION ALL SELECT max(time) FROM station_uncertainty)`).Scan(&t)
+	if err != nil {
+		return time.Time{}, fmt.Errorf("latest time in the log: %w", err)
+	}
+	if !t.Valid {
+		return time.Time{}, nil
+	}
+	return time.Unix(0, t.Int64).UTC(), nil
 }
