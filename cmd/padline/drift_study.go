@@ -21,12 +21,14 @@ func (a *app) driftStudyCmd() *cobra.Command {
 	)
 	cmd := &cobra.Command{
 		Use:   "study",
-		Short: "Simulate the average run lengths of the drift charts against published figures",
+		Short: "Simulate the average run lengths of the drift charts against reference figures",
 		Long: `study simulates each chart set on independent normal values (known μ and σ,
 zero-state: the step from the first point) --runs times per step size (0,
 0.5, 1 and 2 σ) and prints the average run length (ARL: units up to and
 including the first alarm), its standard error, median and 10/90 %
-percentiles, beside the published ARL where there is one. The same --seed
+percentiles, beside a reference ARL where there is one: exact for the
+individuals chart, computed with the R package spc (xcusum.arl, xewma.arl)
+for the CUSUM and EWMA charts; the source column names it. The same --seed
 gives the same table.`,
 		Example: `  padline drift study
   padline drift study --runs 20000 --seed 7 --json`,
@@ -64,7 +66,7 @@ gives the same table.`,
 			}
 			w := bufio.NewWriter(a.stdout)
 			fmt.Fprintf(w, "zero-state run lengths, known μ and σ, %d runs per cell, seed %d\n\n", runs, seed)
-			fmt.Fprintf(w, "%-44s %6s %9s %7s %7s %6s %7s %10s  %s\n", "chart set", "shift", "ARL", "±SE", "median", "p10", "p90", "published", "source")
+			fmt.Fprintf(w, "%-44s %6s %9s %7s %7s %6s %7s %10s  %s\n", "chart set", "shift", "ARL", "±SE", "median", "p10", "p90", "reference", "source")
 			for _, r := range rows {
 				pub := "-"
 				if !math.IsNaN(r.Published) {

@@ -175,18 +175,32 @@ type studyCase struct {
 
 var nan = math.NaN()
 
-// studyCases: Shewhart 3σ ARLs are exact (1/p for a geometric run length);
-// CUSUM figures are Montgomery, Introduction to SQC, Table 9.3 (h = 4 and
-// h = 5, k = 0.5, from memory); Western Electric ARL0 91.75 is Champ &
-// Woodall, Technometrics 29(4), 1987 (from memory).
+// RSpcVersion is the version of the R package spc that computed the
+// reference run lengths below (R spc: Knoth, "spc: Statistical Process
+// Control — Calculation of ARL and Other Control Chart Performance
+// Measures", CRAN). The test TestStudyMatchesRSpc recomputes them with R.
+const RSpcVersion = "0.6.7"
+
+// studyCases pairs each chart set with reference zero-state ARLs (known
+// parameters) at shifts 0, 0.5, 1, 2 σ:
+//   - Shewhart 3σ: exact, the run length is geometric with
+//     p = P(|Z+δ| > 3);
+//   - two-sided tabular CUSUM (two one-sided sums, k = 0.5, no head start):
+//     R spc xcusum.arl(k = 0.5, h, mu = δ, sided = "two");
+//   - EWMA with exact (time-varying) limits, z_0 = target: R spc
+//     xewma.arl(l = 0.2, c = 2.86, mu = δ, zr = 0, sided = "two",
+//     limits = "vacl").
+//
+// The Western Electric and Nelson sets have no reference here (R spc's
+// runs-rule functions do not cover rules 1–4 together), and print none.
 var studyCases = []studyCase{
 	{"default (individuals 3σ + CUSUM k=0.5 h=5)", DefaultSet, Options{}, [4]float64{nan, nan, nan, nan}, ""},
-	{"individuals 3σ only", Set{Rules: LimitsOnly}, Options{}, [4]float64{370.4, 155.2, 43.9, 6.3}, "exact: 1/P(|Z+δ| > 3)"},
-	{"individuals + Western Electric 1–4", Set{Rules: WesternElectric}, Options{}, [4]float64{91.75, nan, nan, nan}, "Champ & Woodall 1987 (from memory)"},
+	{"individuals 3σ only", Set{Rules: LimitsOnly}, Options{}, [4]float64{370.4, 155.2, 43.89, 6.303}, "exact: 1/P(|Z+δ| > 3)"},
+	{"individuals + Western Electric 1–4", Set{Rules: WesternElectric}, Options{}, [4]float64{nan, nan, nan, nan}, ""},
 	{"individuals + Nelson 1–8", Set{Rules: NelsonRules}, Options{}, [4]float64{nan, nan, nan, nan}, ""},
-	{"CUSUM k=0.5 h=4", Set{CUSUM: true}, Options{H: 4}, [4]float64{168, 26.6, 8.38, 3.34}, "Montgomery Table 9.3 (from memory)"},
-	{"CUSUM k=0.5 h=5", Set{CUSUM: true}, Options{H: 5}, [4]float64{465, 38.0, 10.4, 4.01}, "Montgomery Table 9.3 (from memory)"},
-	{"EWMA λ=0.2 L=2.86 (exact limits)", Set{EWMA: true}, Options{}, [4]float64{nan, nan, nan, nan}, ""},
+	{"CUSUM k=0.5 h=4", Set{CUSUM: true}, Options{H: 4}, [4]float64{167.68, 26.630, 8.3831, 3.3428}, "R spc xcusum.arl, two-sided"},
+	{"CUSUM k=0.5 h=5", Set{CUSUM: true}, Options{H: 5}, [4]float64{465.44, 37.996, 10.376, 4.0089}, "R spc xcusum.arl, two-sided"},
+	{"EWMA λ=0.2 L=2.86 (exact limits)", Set{EWMA: true}, Options{}, [4]float64{365.86, 34.751, 8.7946, 2.7132}, "R spc xewma.arl, vacl limits"},
 }
 
 // StudyShifts are the step sizes Study measures, in σ.

@@ -26,10 +26,11 @@ func TestSimulatedARLMatchesPublished(t *testing.T) {
 		{"shewhart ARL0", drift.Set{Rules: drift.LimitsOnly}, drift.Options{}, 0, 370.4, "exact"},
 		// Exact: p = Φ(−2) + Φ(−4) = 0.022782.
 		{"shewhart 1σ", drift.Set{Rules: drift.LimitsOnly}, drift.Options{}, 1, 43.89, "exact"},
-		// Champ & Woodall, Technometrics 29(4), 1987: 91.75 (from memory).
+		// Champ & Woodall, Technometrics 29(4), 1987: 91.75 (from memory;
+		// a test-only check, never printed).
 		{"western electric ARL0", drift.Set{Rules: drift.WesternElectric}, drift.Options{}, 0, 91.75, "Champ & Woodall 1987"},
-		// Montgomery, Introduction to SQC, Table 9.3, k = 0.5, h = 4 (from
-		// memory; REFERENCES/issue 5: ARL0 ≈ 168).
+		// Montgomery, Introduction to SQC, Table 9.3, k = 0.5, h = 4: ARL0
+		// 168 (from memory; R spc gives 167.68, see rspc_test.go).
 		{"cusum h=4 ARL0", drift.Set{CUSUM: true}, drift.Options{H: 4}, 0, 168, "Montgomery Table 9.3"},
 		{"cusum h=4 1σ", drift.Set{CUSUM: true}, drift.Options{H: 4}, 1, 8.38, "Montgomery Table 9.3"},
 		{"cusum h=5 1σ", drift.Set{CUSUM: true}, drift.Options{H: 5}, 1, 10.4, "Montgomery Table 9.3"},
