@@ -48,7 +48,7 @@ func QueryInt(db *DB, q string, args ...any) (int64, error) {
 func RunsPlan(db *DB, f Filter) (string, error) {
 	cond, args := f.where()
 	rows, err := db.sql.QueryContext(context.Background(),
-		"EXPLAIN QUERY PLAN "+fmt.Sprintf(runsSQL, cond), args...)
+		"EXPLAIN QUERY PLAN "+fmt.Sprintf(runsSQL, cond, "r.finished, r.id, m.seq"), args...)
 	if err != nil {
 		return "", err
 	}

@@ -24,6 +24,11 @@ type Filter struct {
 	Verdict sequences.Verdict
 	Since   time.Time
 	Until   time.Time
+	// Line and Site select by the station's line and the run's panel site:
+	// only the plant store knows them; a shift log matches no run when
+	// either is set.
+	Line string
+	Site string
 }
 
 // where returns the SQL condition (on runs aliased r) and its arguments.
@@ -60,6 +65,9 @@ func (f Filter) where() (string, []any) {
 	if !f.Until.IsZero() {
 		add("r.finished < ?", f.Until.UnixNano())
 	}
+	if f.Line != "" || f.Site != "" {
+		conds = append(conds, "0")
+	}
 	if len(conds) == 0 {
 		return "1", nil
 	}
@@ -90,7 +98,7 @@ CROSS JOIN fixtures fx ON fx.id = r.fixture_id
 LEFT JOIN measurements m ON m.run_id = r.id
 LEFT JOIN quantities q ON q.id = m.quantity_id
 WHERE %s
-ORDER BY r.finished, r.id, m.seq`
+ORDER BY %s`
 
 // Runs streams the runs matching f, oldest first (by finish time, then
 // id), each with its measurements in recorded order. It reads from one
@@ -98,9 +106,14 @@ ORDER BY r.finished, r.id, m.seq`
 // connection writes, and it never holds more than one run in memory.
 // Stop early by breaking out of the loop.
 func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
+	cond, args := f.where()
+	return db.runsQuery(ctx, fmt.Sprintf(runsSQL, cond, "r.finished, r.id, m.seq"), args...)
+}
+
+// runsQuery streams the runs of q (a runsSQL), one Entry per run.
+func (db *DB) runsQuery(ctx context.Context, q string, args ...any) iter.Seq2[*Entry, error] {
 	return func(yield func(*Entry, error) bool) {
-		cond, args := f.where()
-		rows, err := db.sql.QueryContext(ctx, fmt.Sprintf(runsSQL, cond), args...)
+		rows, err := db.sql.QueryContext(ctx, q, args...)
 		if err != nil {
 			yield(nil, fmt.Errorf("query runs: %w", err))
 			return
@@ -183,6 +196,10 @@ type TripPoint struct {
 	Fixture  string
 	Lot      string
 	Verdict  sequences.Verdict
+	// Line and Site are filled by the plant store (the station's line, the
+	// run's panel site); the shift log leaves them empty.
+	Line string
+	Site string
 }
 
 // TripSeries returns the trip points of the runs matching f (usually with

@@ -1,0 +1,233 @@
+package store
+
+import (
+	"context"
+	"database/sql"
+	"encoding/json"
+	"fmt"
+	"time"
+)
+
+// This file is the plant outbox (migration 0004): what the forwarder reads
+// from the shift log and the cursors it advances. The log itself is never
+// changed by forwarding: runs stay the source of truth.
+
+// Outbox is the forwarding state of the shift log.
+type Outbox struct {
+	// LogUUID names this shift log in the plant store (32 hex digits).
+	LogUUID string
+	// RunCursor, CheckCursor and StudyCursor are the highest ids already
+	// forwarded to (or refused by) the plant store.
+	RunCursor, CheckCursor, StudyCursor int64
+	// Forwarded counts the runs the plant store accepted from this log.
+	Forwarded int64
+	// LastTime is when a batch last landed (zero: never).
+	LastTime time.Time
+	// LastError is the last forwarding error ("" after a batch lands) and
+	// LastErrorTime when it happened.
+	LastError     string
+	LastErrorTime time.Time
+	// Backlog counts runs, checks and studies not yet forwarded.
+	BacklogRuns, BacklogChecks, BacklogStudies int64
+	// Refused counts rows the plant store refused.
+	Refused int64
+}
+
+// OutboxState returns the forwarding state, backlog included.
+func (db *DB) OutboxState(ctx context.Context) (Outbox, error) {
+	var (
+		o           Outbox
+		last, errAt sql.NullInt64
+	)
+	err := db.sql.QueryRowContext(ctx, `
+		SELECT o.log_uuid, o.run_cursor, o.check_cursor, o.study_cursor, o.forwarded,
+		       o.last_time, o.last_error, o.last_error_time,
+		       (SELECT count(*) FROM runs WHERE id > o.run_cursor),
+		       (SELECT count(*) FROM station_checks WHERE id > o.check_cursor),
+		       (SELECT count(*) FROM studies WHERE id > o.study_cursor),
+		       (SELECT count(*) FROM plant_refused)
+		FROM plant_outbox o WHERE o.id = 1`).Scan(&o.LogUUID, &o.RunCursor, &o.CheckCursor, &o.StudyCursor,
+		&o.Forwarded, &last, &o.LastError, &errAt, &o.BacklogRuns, &o.BacklogChecks, &o.BacklogStudies, &o.Refused)
+	if err != nil {
+		return o, fmt.Errorf("outbox state: %w", err)
+	}
+	if last.Valid {
+		o.LastTime = time.Unix(0, last.Int64).UTC()
+	}
+	if errAt.Valid {
+		o.LastErrorTime = time.Unix(0, errAt.Int64).UTC()
+	}
+	return o, nil
+}
+
+// PendingRuns returns up to limit runs with an id above after, in id
+// order, each with its measurements; Entry.ID is the run's id in this log.
+func (db *DB) PendingRuns(ctx context.Context, after int64, limit int) ([]*Entry, error) {
+	q := fmt.Sprintf(runsSQL, "r.id IN (SELECT id FROM runs WHERE id > ? ORDER BY id LIMIT ?)", "r.id, m.seq")
+	var out []*Entry
+	for e, err := range db.runsQuery(ctx, q, after, limit) {
+		if err != nil {
+			return nil, fmt.Errorf("pending runs: %w", err)
+		}
+		out = append(out, e)
+	}
+	return out, nil
+}
+
+// PendingChecks returns up to limit station checks with an id above after.
+func (db *DB) PendingChecks(ctx context.Context, after int64, limit int) ([]StationCheck, error) {
+	rows, err := db.sql.QueryContext(ctx, `
+		SELECT c.id, c.time, s.name, f.name, c.station_hash, c.ok, c.last_run_id, c.details
+		FROM station_checks c JOIN stations s ON s.id = c.station_id JOIN fixtures f ON f.id = c.fixture_id
+		WHERE c.id > ? ORDER BY c.id LIMIT ?`, after, limit)
+	if err != nil {
+		return nil, fmt.Errorf("pending checks: %w", err)
+	}
+	defer rows.Close()
+	var out []StationCheck
+	for rows.Next() {
+		var (
+			c       StationCheck
+			t       int64
+			ok      int
+			details string
+		)
+		if err := rows.Scan(&c.ID, &t, &c.Station, &c.Fixture, &c.StationHash, &ok, &c.LastRunID, &details); err != nil {
+			return nil, fmt.Errorf("pending checks: %w", err)
+		}
+		c.Time, c.OK, c.Details = time.Unix(0, t).UTC(), ok == 1, json.RawMessage(details)
+		out = append(out, c)
+	}
+	return out, rows.Err()
+}
+
+// PendingStudies returns up to limit studies with an id above after.
+func (db *DB) PendingStudies(ctx context.Context, after int64, limit int) ([]Study, error) {
+	rows, err := db.sql.QueryContext(ctx, `
+		SELECT x.id, x.kind, x.time, s.name, f.name, x.results
+		FROM studies x JOIN stations s ON s.id = x.station_id JOIN fixtures f ON f.id = x.fixture_id
+		WHERE x.id > ? ORDER BY x.id LIMIT ?`, after, limit)
+	if err != nil {
+		return nil, fmt.Errorf("pending studies: %w", err)
+	}
+	defer rows.Close()
+	var out []Study
+	for rows.Next() {
+		var (
+			s       Study
+			t       int64
+			results string
+		)
+		if err := rows.Scan(&s.ID, &s.Kind, &t, &s.Station, &s.Fixture, &results); err != nil {
+			return nil, fmt.Errorf("pending studies: %w", err)
+		}
+		s.Time, s.Results = time.Unix(0, t).UTC(), json.RawMessage(results)
+		out = append(out, s)
+	}
+	return out, rows.Err()
+}
+
+// RelayCount is one rung's persisted relay operation count.
+type RelayCount struct {
+	Fixture string
+	Rung    int
+	Count   uint64
+}
+
+// RelayCounts returns every persisted relay count of the log.
+func (db *DB) RelayCounts(ctx context.Context) ([]RelayCount, error) {
+	rows, err := db.sql.QueryContext(ctx, `SELECT f.name, o.rung, o.count FROM relay_ops o
+		JOIN fixtures f ON f.id = o.fixture_id ORDER BY f.name, o.rung`)
+	if err != nil {
+		return nil, fmt.Errorf("relay counts: %w", err)
+	}
+	defer rows.Close()
+	var out []RelayCount
+	for rows.Next() {
+		var (
+			c RelayCount
+			n int64
+		)
+		if err := rows.Scan(&c.Fixture, &c.Rung, &n); err != nil {
+			return nil, fmt.Errorf("relay counts: %w", err)
+		}
+		c.Count = uint64(n)
+		out = append(out, c)
+	}
+	return out, rows.Err()
+}
+
+// Refusal is one row the plant store refused, with the database's reason.
+type Refusal struct {
+	Kind    string // "run", "check" or "study"
+	LocalID int64
+	Reason  string
+}
+
+// Advance records a landed batch: the new cursors (each only moves
+// forward), the runs accepted, and the refused rows, in one transaction.
+type Advance struct {
+	Runs, Checks, Studies int64 // new cursors
+	Accepted              int64
+	Refused               []Refusal
+	At                    time.Time
+}
+
+// AdvanceOutbox commits a. A crash before it commits makes the forwarder
+// send the batch again; the plant store drops what it already has.
+func (db *DB) AdvanceOutbox(ctx context.Context, a Advance) error {
+	db.wmu.Lock()
+	defer db.wmu.Unlock()
+	tx, err := db.sql.BeginTx(ctx, nil)
+	if err != nil {
+		return fmt.Errorf("advance outbox: %w", err)
+	}
+	defer tx.Rollback()
+	if _, err := tx.ExecContext(ctx, `UPDATE plant_outbox SET
+		run_cursor = max(run_cursor, ?), check_cursor = max(check_cursor, ?), study_cursor = max(study_cursor, ?),
+		forwarded = forwarded + ?, last_time = ?, last_error = '' WHERE id = 1`,
+		a.Runs, a.Checks, a.Studies, a.Accepted, a.At.UnixNano()); err != nil {
+		return fmt.Errorf("advance outbox: %w", err)
+	}
+	for _, r := range a.Refused {
+		if _, err := tx.ExecContext(ctx, `INSERT INTO plant_refused (kind, local_id, time, reason) VALUES (?, ?, ?, ?)
+			ON CONFLICT (kind, local_id) DO UPDATE SET time = excluded.time, reason = excluded.reason`,
+			r.Kind, r.LocalID, a.At.UnixNano(), r.Reason); err != nil {
+			return fmt.Errorf("advance outbox: refused %s %d: %w", r.Kind, r.LocalID, err)
+		}
+	}
+	if err := tx.Commit(); err != nil {
+		return fmt.Errorf("advance outbox: %w", markFull(err))
+	}
+	return nil
+}
+
+// NoteOutboxError records the last forwarding error.
+func (db *DB) NoteOutboxError(ctx context.Context, msg string, at time.Time) error {
+	db.wmu.Lock()
+	defer db.wmu.Unlock()
+	_, err := db.sql.ExecContext(ctx, `UPDATE plant_outbox SET last_error = ?, last_error_time = ? WHERE id = 1`,
+		msg, at.UnixNano())
+	if err != nil {
+		return fmt.Errorf("note outbox error: %w", err)
+	}
+	return nil
+}
+
+// RefusedRows returns the rows the plant store refused, newest first.
+func (db *DB) RefusedRows(ctx context.Context, limit int) ([]Refusal, error) {
+	rows, err := db.sql.QueryContext(ctx, `SELECT kind, local_id, reason FROM plant_refused ORDER BY time DESC, local_id DESC LIMIT ?`, limit)
+	if err != nil {
+		return nil, fmt.Errorf("refused rows: %w", err)
+	}
+	defer rows.Close()
+	var out []Refusal
+	for rows.Next() {
+		var r Refusal
+		if err := rows.Scan(&r.Kind, &r.LocalID, &r.Reason); err != nil {
+			return nil, fmt.Errorf("refused rows: %w", err)
+		}
+		out = append(out, r)
+	}
+	return out, rows.Err()
+}

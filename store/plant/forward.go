@@ -1,0 +1,246 @@
+package plant
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"math/rand/v2"
+	"time"
+
+	"padline/store"
+)
+
+// Forwarder moves a station's committed runs, station checks, studies and
+// relay counts from its shift log to the plant store, batch by batch, in
+// the order they were committed. The shift log's outbox cursor advances
+// only after the plant store has committed a batch; a batch sent twice
+// (after a crash or a lost reply) is dropped by the plant store's keys, so
+// every run arrives exactly once. It never writes the station's runs and
+// never holds the shift log's write lock for longer than advancing the
+// cursor, so it does not slow the test of the next unit.
+type Forwarder struct {
+	Log     *store.DB
+	Plant   *DB
+	Station string
+	// Profile is the station facts the line board shows (JSON object):
+	// check intervals and relay ratings from the station file.
+	Profile json.RawMessage
+	// BatchSize is the most runs per batch (default 500).
+	BatchSize int
+	// Poll is how often an idle forwarder looks for new runs (default
+	// 1 s); Kick wakes it at once.
+	Poll time.Duration
+	// MinBackoff and MaxBackoff bound the wait after a failure (default
+	// 1 s and 2 min); see Backoff.
+	MinBackoff, MaxBackoff time.Duration
+	// Now is the station's clock (default time.Now).
+	Now func() time.Time
+	// OnBatch, when set, is called after each batch lands.
+	OnBatch func(Result)
+
+	kick    chan struct{}
+	configs map[[2]string]bool // configurations the plant store has
+}
+
+// Kick wakes the forwarder (a run was committed). It never blocks.
+func (f *Forwarder) Kick() {
+	f.init()
+	select {
+	case f.kick <- struct{}{}:
+	default:
+	}
+}
+
+func (f *Forwarder) init() {
+	if f.kick == nil {
+		f.kick = make(chan struct{}, 1)
+	}
+	if f.configs == nil {
+		f.configs = map[[2]string]bool{}
+	}
+}
+
+func (f *Forwarder) now() time.Time {
+	if f.Now != nil {
+		return f.Now()
+	}
+	return time.Now()
+}
+
+// Backoff is the wait before retry attempt n (n ≥ 1) after failures:
+// exponential from min, capped at max, with "equal jitter" — half the
+// step fixed, half uniformly random (AWS Architecture Blog, M. Brooker,
+// "Exponential Backoff And Jitter", 2015) — so stations that lost the
+// server together do not return together. u is uniform in [0, 1).
+func Backoff(n int, min, max time.Duration, u float64) time.Duration {
+	d := min
+	for i := 1; i < n && d < max; i++ {
+		d *= 2
+	}
+	if d > max {
+		d = max
+	}
+	return d/2 + time.Duration(u*float64(d/2))
+}
+
+// Run forwards until ctx ends, backing off while the plant store is
+// unreachable. It returns ctx's error.
+func (f *Forwarder) Run(ctx context.Context) error {
+	f.init()
+	minB, maxB := f.MinBackoff, f.MaxBackoff
+	if minB <= 0 {
+		minB = time.Second
+	}
+	if maxB < minB {
+		maxB = max(2*time.Minute, minB)
+	}
+	poll := f.Poll
+	if poll <= 0 {
+		poll = time.Second
+	}
+	fails := 0
+	for {
+		n, err := f.Step(ctx)
+		var wait time.Duration
+		switch {
+		case ctx.Err() != nil:
+			return ctx.Err()
+		case err != nil:
+			fails++
+			wait = Backoff(fails, minB, maxB, rand.Float64())
+		case n > 0:
+			fails = 0
+			continue // more may be waiting
+		default:
+			fails = 0
+			wait = poll
+		}
+		t := time.NewTimer(wait)
+		kick := f.kick
+		if err != nil {
+			kick = nil // a new run does not cut a back-off short
+		}
+		select {
+		case <-ctx.Done():
+			t.Stop()
+			return ctx.Err()
+		case <-kick:
+			t.Stop()
+		case <-t.C:
+		}
+	}
+}
+
+// Step sends one batch, if there is anything to send, and returns how many
+// rows it held. An error leaves the cursor where it was and is noted in the
+// shift log for 'padline plant status'.
+func (f *Forwarder) Step(ctx context.Context) (int, error) {
+	f.init()
+	n, err := f.step(ctx)
+	if err != nil && ctx.Err() == nil {
+		_ = f.Log.NoteOutboxError(context.WithoutCancel(ctx), err.Error(), f.now())
+	}
+	return n, err
+}
+
+func (f *Forwarder) step(ctx context.Context) (int, error) {
+	size := f.BatchSize
+	if size <= 0 {
+		size = 500
+	}
+	st, err := f.Log.OutboxState(ctx)
+	if err != nil {
+		return 0, err
+	}
+	runs, err := f.Log.PendingRuns(ctx, st.RunCursor, size)
+	if err != nil {
+		return 0, err
+	}
+	checks, err := f.Log.PendingChecks(ctx, st.CheckCursor, 100)
+	if err != nil {
+		return 0, err
+	}
+	studies, err := f.Log.PendingStudies(ctx, st.StudyCursor, 100)
+	if err != nil {
+		return 0, err
+	}
+	if len(runs)+len(checks)+len(studies) == 0 && !st.LastTime.IsZero() {
+		return 0, nil
+	}
+	relays, err := f.Log.RelayCounts(ctx)
+	if err != nil {
+		return 0, err
+	}
+	b := &Batch{Log: st.LogUUID, Station: f.Station, Runs: runs, Checks: checks, Studies: studies,
+		Relays: relays, Backlog: st.BacklogRuns - int64(len(runs)), Profile: f.Profile}
+	var cfgKeys [][2]string
+	for _, r := range runs {
+		k := [2]string{r.Variant, r.ConfigHash}
+		if f.configs[k] {
+			continue
+		}
+		f.configs[k] = true // only once per batch; confirmed after Put
+		cfgKeys = append(cfgKeys, k)
+		snap, err := f.Log.Snapshot(ctx, r.Variant, r.ConfigHash)
+		if err != nil {
+			delete(f.configs, k)
+			return 0, err
+		}
+		c := Config{Variant: r.Variant, Hash: r.ConfigHash, Snapshot: snap}
+		if hist, err := f.Log.ConfigHistory(ctx, r.Variant); err == nil {
+			for _, h := range hist {
+				if h.Hash == r.ConfigHash {
+					c.FirstSeen = h.FirstSeen
+				}
+			}
+		}
+		b.Configs = append(b.Configs, c)
+	}
+	b.Sent = f.now()
+	res, err := f.Plant.Put(ctx, b)
+	if err != nil {
+		for _, k := range cfgKeys {
+			delete(f.configs, k)
+		}
+		return 0, err
+	}
+	a := store.Advance{Runs: st.RunCursor, Checks: st.CheckCursor, Studies: st.StudyCursor, Refused: res.Refused, At: f.now()}
+	for _, r := range runs {
+		a.Runs = max(a.Runs, r.ID)
+	}
+	for _, c := range checks {
+		a.Checks = max(a.Checks, c.ID)
+	}
+	for _, s := range studies {
+		a.Studies = max(a.Studies, s.ID)
+	}
+	refusedRuns := 0
+	for _, r := range res.Refused {
+		if r.Kind == "run" {
+			refusedRuns++
+		}
+	}
+	a.Accepted = int64(len(runs) - refusedRuns)
+	// The plant has committed: advance even if this context has just been
+	// cancelled, or the batch is sent again for nothing.
+	if err := f.Log.AdvanceOutbox(context.WithoutCancel(ctx), a); err != nil {
+		return 0, fmt.Errorf("plant batch landed but the outbox cursor did not advance (it will be resent): %w", err)
+	}
+	if f.OnBatch != nil {
+		f.OnBatch(res)
+	}
+	return len(runs) + len(checks) + len(studies), nil
+}
+
+// Drain forwards until the outbox is empty or an error occurs.
+func (f *Forwarder) Drain(ctx context.Context) error {
+	for {
+		n, err := f.Step(ctx)
+		if err != nil {
+			return err
+		}
+		if n == 0 {
+			return nil
+		}
+	}
+}

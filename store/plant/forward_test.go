@@ -1,0 +1,405 @@
+package plant_test
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"math"
+	"reflect"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"padline/sequences"
+	"padline/store"
+	"padline/store/plant"
+)
+
+func forwarder(log *store.DB, p *plant.DB, station string) *plant.Forwarder {
+	return &plant.Forwarder{Log: log, Plant: p, Station: station, BatchSize: 200,
+		MinBackoff: 20 * time.Millisecond, MaxBackoff: 200 * time.Millisecond, Poll: 20 * time.Millisecond}
+}
+
+func register(t testing.TB, p *plant.DB, stations ...plant.Station) {
+	t.Helper()
+	for _, s := range stations {
+		if err := p.AddStation(context.Background(), s); err != nil {
+			t.Fatal(err)
+		}
+	}
+}
+
+func entries(t testing.TB, seq func(func(*store.Entry, error) bool)) []*store.Entry {
+	t.Helper()
+	var out []*store.Entry
+	for e, err := range seq {
+		if err != nil {
+			t.Fatal(err)
+		}
+		out = append(out, e)
+	}
+	return out
+}
+
+// sameFloat treats NaN as equal to NaN.
+func sameEntries(a, b []*store.Entry) string {
+	if len(a) != len(b) {
+		return fmt.Sprintf("%d runs vs %d", len(a), len(b))
+	}
+	norm := func(e *store.Entry) string {
+		j, _ := json.Marshal(e.JSON())
+		return string(j)
+	}
+	for i := range a {
+		if norm(a[i]) != norm(b[i]) {
+			return fmt.Sprintf("run %d:\n%s\n%s", i, norm(a[i]), norm(b[i]))
+		}
+	}
+	return ""
+}
+
+// The plant store answers for a station's runs exactly what the station's
+// shift log answers: runs with measurements, trip series, verdict counts
+// and first-pass yield, configuration history.
+func TestForwardSameNumbers(t *testing.T) {
+	url, _ := newSchema(t, baseURL())
+	ctx := context.Background()
+	p := openPlant(t, url)
+	register(t, p, plant.Station{Name: "L1-S1", Line: "L1"}, plant.Station{Name: "L1-S2", Line: "L1"})
+	start := time.Date(2026, 11, 30, 21, 0, 0, 0, time.UTC) // crosses a month boundary
+	logs := map[string]*store.DB{}
+	for i, st := range []string{"L1-S1", "L1-S2"} {
+		log := stationLog(t, tempLog(t, st), st, 1200, start, uint64(i+1))
+		logs[st] = log
+		if _, err := log.RecordCheck(ctx, store.StationCheck{Time: start, Station: st, Fixture: "FX-" + st, StationHash: "abc", OK: true, Details: json.RawMessage(`{"faults":[]}`)}); err != nil {
+			t.Fatal(err)
+		}
+		if _, err := log.RecordStudy(ctx, store.Study{Kind: store.StudyType1, Time: start, Station: st, Fixture: "FX-" + st, Results: json.RawMessage(`{"n":50}`)}); err != nil {
+			t.Fatal(err)
+		}
+		if err := log.SaveRelayOps(ctx, "FX-"+st, []uint64{10, 20, 30}); err != nil {
+			t.Fatal(err)
+		}
+		if err := forwarder(log, p, st).Drain(ctx); err != nil {
+			t.Fatal(err)
+		}
+		o, err := log.OutboxState(ctx)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if o.BacklogRuns != 0 || o.BacklogChecks != 0 || o.BacklogStudies != 0 || o.Forwarded != 1200 || o.LastError != "" {
+			t.Fatalf("%s outbox after drain: %+v", st, o)
+		}
+	}
+	for st, log := range logs {
+		filters := []store.Filter{
+			{Station: st},
+			{Station: st, Variant: "QM-205", Verdict: sequences.Pass},
+			{Station: st, Since: start.Add(time.Hour), Until: start.Add(2 * time.Hour)},
+			{Serial: fmt.Sprintf("QM205-%s-%06d", st, 42)},
+		}
+		for _, f := range filters {
+			if d := sameEntries(entries(t, log.Runs(ctx, f)), entries(t, p.Runs(ctx, f))); d != "" {
+				t.Fatalf("%s runs %+v differ: %s", st, f, d)
+			}
+			a, err := log.TripSeries(ctx, f, 0)
+			if err != nil {
+				t.Fatal(err)
+			}
+			b, err := p.TripSeries(ctx, f, 0)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for i := range b {
+				b[i].Line = "" // the shift log knows no lines
+			}
+			if !reflect.DeepEqual(a, b) {
+				t.Fatalf("%s trip series %+v differ: %d vs %d points", st, f, len(a), len(b))
+			}
+			last, err := p.TripValues(ctx, f, 100)
+			if err != nil {
+				t.Fatal(err)
+			}
+			want, _ := log.TripValues(ctx, f, 100)
+			if !reflect.DeepEqual(last, want) {
+				t.Fatalf("%s last 100 trip values differ", st)
+			}
+			ca, err := log.Counts(ctx, f)
+			if err != nil {
+				t.Fatal(err)
+			}
+			cb, err := p.Counts(ctx, f)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if ca != cb || ca.Runs == 0 && f.Serial == "" {
+				t.Fatalf("%s counts %+v: log %+v plant %+v", st, f, ca, cb)
+			}
+		}
+		ha, _ := log.ConfigHistory(ctx, "QM-205")
+		hb, err := p.ConfigHistory(ctx, "QM-205")
+		// The plant keeps the first sighting anywhere in the plant: the
+		// configurations and their order are the station's.
+		for i := range hb {
+			if i < len(ha) && hb[i].FirstSeen.After(ha[i].FirstSeen) {
+				t.Fatalf("plant first sighting %v after the station's %v", hb[i].FirstSeen, ha[i].FirstSeen)
+			}
+			hb[i].FirstSeen = ha[min(i, len(ha)-1)].FirstSeen
+		}
+		if err != nil || !reflect.DeepEqual(ha, hb) {
+			t.Fatalf("config history: %v\n%+v\n%+v", err, ha, hb)
+		}
+	}
+	// Line grouping and the trust rows arrived.
+	pts, err := p.TripSeries(ctx, store.Filter{Line: "L1"}, 0)
+	if err != nil || len(pts) == 0 || pts[0].Line != "L1" {
+		t.Fatalf("line L1: %d points, err %v", len(pts), err)
+	}
+	board, err := p.Board(ctx, "L1", start, start.Add(5*time.Hour))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(board) != 2 || board[0].LastCheck == nil || !board[0].LastCheck.OK || len(board[0].Relays) != 3 || board[0].Relays[2].Count != 30 {
+		t.Fatalf("board: %+v", board)
+	}
+}
+
+// A batch sent again (a lost reply, a crash before the cursor advanced)
+// changes nothing in the plant store.
+func TestReplayIsIdempotent(t *testing.T) {
+	url, _ := newSchema(t, baseURL())
+	ctx := context.Background()
+	p := openPlant(t, url)
+	register(t, p, plant.Station{Name: "S1"})
+	log := stationLog(t, tempLog(t, "s1"), "S1", 300, time.Date(2026, 12, 1, 6, 0, 0, 0, time.UTC), 3)
+	o, _ := log.OutboxState(ctx)
+	runs, err := log.PendingRuns(ctx, 0, 300)
+	if err != nil {
+		t.Fatal(err)
+	}
+	snap, _ := log.Snapshot(ctx, "QM-205", runs[0].ConfigHash)
+	b := &plant.Batch{Log: o.LogUUID, Station: "S1", Sent: time.Now(), Runs: runs,
+		Configs: []plant.Config{{Variant: "QM-205", Hash: runs[0].ConfigHash, Snapshot: snap}}}
+	for i, want := range []int{300, 0, 0} {
+		res, err := p.Put(ctx, b)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if res.RunsLanded != want || res.Landed+res.Duplicates != 300 {
+			t.Fatalf("put %d: %+v, want %d landed", i, res, want)
+		}
+	}
+	n := countRuns(t, p, store.Filter{})
+	if n != 300 {
+		t.Fatalf("%d runs in the plant, want 300", n)
+	}
+}
+
+func countRuns(t testing.TB, p *plant.DB, f store.Filter) int64 {
+	t.Helper()
+	c, err := p.Counts(context.Background(), f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return c.Runs
+}
+
+// A station logs in as its own role: rows under another station's id, and
+// a measurement whose limits are inverted, are refused by the database and
+// reported; the rest of the batch lands.
+func TestBadRowsRefusedRestLands(t *testing.T) {
+	url, schema := newSchema(t, baseURL())
+	ctx := context.Background()
+	admin := openPlant(t, url)
+	roleA, roleB := schema+"_a", schema+"_b"
+	register(t, admin, plant.Station{Name: "L2-S1", Line: "L2", Role: roleA}, plant.Station{Name: "L2-S2", Line: "L2", Role: roleB})
+
+	path := tempLog(t, "a")
+	log := stationLog(t, path, "L2-S1", 100, time.Date(2026, 12, 1, 7, 0, 0, 0, time.UTC), 4)
+	hash := store.HashConfig([]byte("name: QM-205\n# demo variant of the tests\n"))
+	forged := simRun("L2-S2", "QM205-FORGED-1", hash, time.Date(2026, 12, 1, 8, 0, 0, 0, time.UTC), 30, false, false)
+	badLimit := simRun("L2-S1", "QM205-BADLIM-1", hash, time.Date(2026, 12, 1, 8, 0, 1, 0, time.UTC), 30, false, false)
+	badLimit.Measurements[2].Low, badLimit.Measurements[2].High = 34, 25 // low above high
+	var forgedID, badID int64
+	var err error
+	if forgedID, err = log.Record(ctx, forged); err != nil {
+		t.Fatal(err)
+	}
+	if badID, err = log.Record(ctx, badLimit); err != nil {
+		t.Fatal(err)
+	}
+	for i := range 20 {
+		if _, err := log.Record(ctx, simRun("L2-S1", fmt.Sprintf("QM205-AFTER-%d", i), hash, time.Date(2026, 12, 1, 8, 1, i, 0, time.UTC), 30, false, false)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	pa := openPlant(t, asRole(url, roleA))
+	var refused []store.Refusal
+	f := forwarder(log, pa, "L2-S1")
+	f.OnBatch = func(r plant.Result) { refused = append(refused, r.Refused...) }
+	if err := f.Drain(ctx); err != nil {
+		t.Fatal(err)
+	}
+	if len(refused) != 2 || refused[0].LocalID != forgedID || refused[1].LocalID != badID {
+		t.Fatalf("refused %+v, want runs %d and %d", refused, forgedID, badID)
+	}
+	if !strings.Contains(refused[0].Reason, "row-level security") || !strings.Contains(refused[1].Reason, "check constraint") {
+		t.Fatalf("reasons: %q / %q", refused[0].Reason, refused[1].Reason)
+	}
+	o, _ := log.OutboxState(ctx)
+	if o.Refused != 2 || o.BacklogRuns != 0 || o.Forwarded != 120 {
+		t.Fatalf("outbox %+v", o)
+	}
+	if n := countRuns(t, admin, store.Filter{}); n != 120 {
+		t.Fatalf("plant holds %d runs, want 120", n)
+	}
+	if n := countRuns(t, admin, store.Filter{Station: "L2-S2"}); n != 0 {
+		t.Fatalf("a forged run landed under L2-S2")
+	}
+	// Station A cannot pose as station B for a whole batch either, nor
+	// read B's rows.
+	other := stationLog(t, tempLog(t, "b"), "L2-S2", 10, time.Date(2026, 12, 1, 7, 0, 0, 0, time.UTC), 5)
+	if err := forwarder(other, pa, "L2-S2").Drain(ctx); err == nil {
+		t.Fatal("station A's role forwarded station B's log")
+	}
+	pb := openPlant(t, asRole(url, roleB))
+	if err := forwarder(other, pb, "L2-S2").Drain(ctx); err != nil {
+		t.Fatal(err)
+	}
+	if n := countRuns(t, pa, store.Filter{}); n != 120 {
+		t.Fatalf("station A's role sees %d runs, want its own 120", n)
+	}
+}
+
+// 20 simulated stations forward a shift each into one database at once.
+func TestTwentyStationsConcurrently(t *testing.T) {
+	url, _ := newSchema(t, baseURL())
+	ctx := context.Background()
+	p := openPlant(t, url)
+	const stations, perShift = 20, 600
+	start := time.Date(2026, 12, 1, 6, 0, 0, 0, time.UTC)
+	logs := make([]*store.DB, stations)
+	for i := range stations {
+		name := fmt.Sprintf("L%d-S%d", i/5+1, i%5+1)
+		register(t, p, plant.Station{Name: name, Line: fmt.Sprintf("L%d", i/5+1)})
+		logs[i] = stationLog(t, tempLog(t, name), name, perShift, start, uint64(100+i))
+	}
+	var wg sync.WaitGroup
+	errs := make([]error, stations)
+	for i := range stations {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			name := fmt.Sprintf("L%d-S%d", i/5+1, i%5+1)
+			f := forwarder(logs[i], p, name)
+			f.BatchSize = 50
+			errs[i] = f.Drain(ctx)
+		}()
+	}
+	wg.Wait()
+	for i, err := range errs {
+		if err != nil {
+			t.Fatalf("station %d: %v", i, err)
+		}
+	}
+	if n := countRuns(t, p, store.Filter{}); n != stations*perShift {
+		t.Fatalf("plant holds %d runs, want %d", n, stations*perShift)
+	}
+	for i := range stations {
+		name := fmt.Sprintf("L%d-S%d", i/5+1, i%5+1)
+		a, _ := logs[i].Counts(ctx, store.Filter{Station: name})
+		b, _ := p.Counts(ctx, store.Filter{Station: name})
+		if a != b {
+			t.Fatalf("%s: log %+v plant %+v", name, a, b)
+		}
+	}
+}
+
+// A station whose clock is 5 hours slow: its runs are placed by the
+// server's measure of its clock, so they interleave correctly with a good
+// station's and fall in the right shift; both times are kept.
+func TestClockWrongByHours(t *testing.T) {
+	url, _ := newSchema(t, baseURL())
+	ctx := context.Background()
+	p := openPlant(t, url)
+	register(t, p, plant.Station{Name: "GOOD"}, plant.Station{Name: "SLOW"})
+	const skew = 5 * time.Hour
+	start := time.Now().UTC().Add(-time.Hour).Truncate(time.Second)
+	good := stationLog(t, tempLog(t, "good"), "GOOD", 200, start, 1)
+	slow := stationLog(t, tempLog(t, "slow"), "SLOW", 200, start.Add(2*time.Second-skew), 2) // true times interleave
+	if err := forwarder(good, p, "GOOD").Drain(ctx); err != nil {
+		t.Fatal(err)
+	}
+	fs := forwarder(slow, p, "SLOW")
+	fs.Now = func() time.Time { return time.Now().Add(-skew) }
+	var off time.Duration
+	fs.OnBatch = func(r plant.Result) { off = r.Offset }
+	if err := fs.Drain(ctx); err != nil {
+		t.Fatal(err)
+	}
+	if d := off - skew; d < -time.Second || d > time.Second {
+		t.Fatalf("measured offset %v, want about %v", off, skew)
+	}
+	pts, err := p.TripSeries(ctx, store.Filter{}, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(pts) == 0 {
+		t.Fatal("no points")
+	}
+	// Alternating stations, in true order.
+	for i := 1; i < len(pts); i++ {
+		if pts[i].Station == pts[i-1].Station {
+			t.Fatalf("points %d and %d both from %s: order follows the wrong clock", i-1, i, pts[i].Station)
+		}
+	}
+	// The slow station's first run sits 2 s after the good one's, not 5 h
+	// before it: within the good one's shift.
+	var g, s time.Time
+	for _, pt := range pts {
+		if pt.Station == "GOOD" && g.IsZero() {
+			g = pt.Finished
+		}
+		if pt.Station == "SLOW" && s.IsZero() {
+			s = pt.Finished
+		}
+	}
+	if d := s.Sub(g) - 2*time.Second; d < -time.Second || d > time.Second {
+		t.Fatalf("slow station's first run placed %v after the good one's, want 2 s", s.Sub(g))
+	}
+	// The station's own time is kept beside the server's receive time.
+	ent := entries(t, p.Runs(ctx, store.Filter{Station: "SLOW", Serial: "QM205-SLOW-000000"}))
+	if len(ent) != 1 || !ent[0].Finished.Equal(start.Add(2*time.Second-skew)) {
+		t.Fatalf("slow station's own finish time not kept: %+v", ent)
+	}
+	times, err := p.RunTimes(ctx, "SLOW", ent[0].ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d := times.Received.Sub(time.Now()); d > time.Minute || d < -time.Minute || times.At.Sub(times.Finished)-skew > time.Second {
+		t.Fatalf("times %+v", times)
+	}
+}
+
+func TestBackoff(t *testing.T) {
+	// Equal jitter: attempt n waits between half and all of min·2^(n−1),
+	// capped at max.
+	for _, c := range []struct {
+		n      int
+		u      float64
+		want   time.Duration
+		reason string
+	}{
+		{1, 0, 500 * time.Millisecond, "first retry, no jitter: half of min"},
+		{1, 0.999999999, time.Second, "first retry, full jitter: min"},
+		{4, 0, 4 * time.Second, "fourth: half of 8 s"},
+		{20, 0.5, 90 * time.Second, "capped at 2 min: 60 s + 30 s"},
+	} {
+		got := plant.Backoff(c.n, time.Second, 2*time.Minute, c.u)
+		if d := got - c.want; d < -time.Millisecond || d > time.Millisecond {
+			t.Errorf("%s: Backoff(%d, u=%g) = %v, want %v", c.reason, c.n, c.u, got, c.want)
+		}
+	}
+	_ = math.Inf
+}

@@ -1,0 +1,339 @@
+package plant
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"iter"
+	"math"
+	"strconv"
+	"strings"
+	"time"
+
+	"github.com/jackc/pgx/v5"
+
+	"padline/sequences"
+	"padline/store"
+)
+
+// The read side mirrors store.DB's queries (same filters, types and
+// order), so history and drift give on the plant store the numbers a
+// station's shift log gives for that station's runs. Times filter and
+// order by at (the station's finish time corrected by its clock offset);
+// a run's id is its id in its station's shift log.
+
+// where returns the SQL condition on runs r, with arguments from $1.
+func where(f store.Filter) (string, []any) {
+	var (
+		conds []string
+		args  []any
+	)
+	add := func(cond string, arg any) {
+		args = append(args, arg)
+		conds = append(conds, strings.ReplaceAll(cond, "?", "$"+strconv.Itoa(len(args))))
+	}
+	if f.Serial != "" {
+		add("r.serial = ?", f.Serial)
+	}
+	if f.Variant != "" {
+		add("r.variant_id = (SELECT id FROM variants WHERE name = ?)", f.Variant)
+	}
+	if f.Station != "" {
+		add("r.station_id = (SELECT id FROM stations WHERE name = ?)", f.Station)
+	}
+	if f.Line != "" {
+		add("r.station_id IN (SELECT id FROM stations WHERE line = ?)", f.Line)
+	}
+	if f.Fixture != "" {
+		add("r.fixture_id = (SELECT id FROM fixtures WHERE name = ?)", f.Fixture)
+	}
+	if f.Lot != "" {
+		add("r.lot = ?", f.Lot)
+	}
+	if f.Site != "" {
+		add("r.site = ?", f.Site)
+	}
+	if f.Verdict != "" {
+		add("r.verdict = ?", string(f.Verdict))
+	}
+	if !f.Since.IsZero() {
+		add("r.at >= ?", f.Since.UnixNano())
+	}
+	if !f.Until.IsZero() {
+		add("r.at < ?", f.Until.UnixNano())
+	}
+	if len(conds) == 0 {
+		return "true", nil
+	}
+	return strings.Join(conds, " AND "), args
+}
+
+const runsSQL = `
+SELECT r.log_id, r.local_id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf,
+       m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
+FROM runs r
+JOIN variants v ON v.id = r.variant_id
+JOIN configs c ON c.id = r.config_id
+JOIN stations s ON s.id = r.station_id
+JOIN fixtures fx ON fx.id = r.fixture_id
+LEFT JOIN measurements m ON m.log_id = r.log_id AND m.local_id = r.local_id AND m.finished = r.finished
+LEFT JOIN quantities q ON q.id = m.quantity_id
+WHERE %s
+ORDER BY r.at, r.log_id, r.local_id, m.seq`
+
+func orNaN(v *float64) float64 {
+	if v == nil {
+		return math.NaN()
+	}
+	return *v
+}
+
+// Runs streams the runs matching f, oldest first, each with its
+// measurements in recorded order; Entry.ID is the run's id in its
+// station's shift log.
+func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, error] {
+	return func(yield func(*store.Entry, error) bool) {
+		cond, args := where(f)
+		rows, err := db.pool.Query(ctx, fmt.Sprintf(runsSQL, cond), args...)
+		if err != nil {
+			yield(nil, fmt.Errorf("query plant runs: %w", err))
+			return
+		}
+		defer rows.Close()
+		var (
+			cur     *store.Entry
+			curLog  int32
+			logID   int32
+			e       store.Entry
+			started *int64
+			fin     int64
+			verdict string
+			trip    *float64
+			seq     *int32
+			step    *string
+			name    *string
+			unit    *string
+			mv      *string
+			val     *float64
+			low     *float64
+			high    *float64
+		)
+		for rows.Next() {
+			e = store.Entry{}
+			if err := rows.Scan(&logID, &e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
+				&e.Operator, &e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip,
+				&seq, &step, &name, &unit, &val, &low, &high, &mv); err != nil {
+				yield(nil, fmt.Errorf("read plant run: %w", err))
+				return
+			}
+			if cur == nil || cur.ID != e.ID || curLog != logID {
+				if cur != nil && !yield(cur, nil) {
+					return
+				}
+				ne := e
+				if started != nil {
+					ne.Started = time.Unix(0, *started).UTC()
+				}
+				ne.Finished = time.Unix(0, fin).UTC()
+				ne.Verdict = sequences.Verdict(verdict)
+				ne.TripPF = orNaN(trip)
+				cur, curLog = &ne, logID
+			}
+			if seq != nil {
+				cur.Measurements = append(cur.Measurements, sequences.Measurement{
+					Step: *step, Name: *name, Unit: *unit,
+					Value: orNaN(val), Low: orNaN(low), High: orNaN(high),
+					Verdict: sequences.Verdict(*mv),
+				})
+			}
+		}
+		if err := rows.Err(); err != nil {
+			yield(nil, fmt.Errorf("query plant runs: %w", err))
+			return
+		}
+		if cur != nil {
+			yield(cur, nil)
+		}
+	}
+}
+
+// RunsBySerial returns every run of one serial across the plant, oldest
+// first, with measurements.
+func (db *DB) RunsBySerial(ctx context.Context, serial string) ([]*store.Entry, error) {
+	var out []*store.Entry
+	for e, err := range db.Runs(ctx, store.Filter{Serial: serial}) {
+		if err != nil {
+			return nil, err
+		}
+		out = append(out, e)
+	}
+	return out, nil
+}
+
+// TripSeries returns the trip points of the runs matching f in time order
+// (last > 0: only the last that many), with station, fixture, lot,
+// verdict, line and site.
+func (db *DB) TripSeries(ctx context.Context, f store.Filter, last int) ([]store.TripPoint, error) {
+	return db.tripSeries(ctx, f, last, true)
+}
+
+// TripValues is TripSeries with only RunID, Finished and TripPF filled.
+func (db *DB) TripValues(ctx context.Context, f store.Filter, last int) ([]store.TripPoint, error) {
+	return db.tripSeries(ctx, f, last, false)
+}
+
+func (db *DB) tripSeries(ctx context.Context, f store.Filter, last int, full bool) ([]store.TripPoint, error) {
+	cond, args := where(f)
+	names := map[string]map[int32]string{}
+	if full {
+		for _, t := range []string{"stations", "fixtures"} {
+			m, err := db.names(ctx, t, "name")
+			if err != nil {
+				return nil, fmt.Errorf("plant trip series: %w", err)
+			}
+			names[t] = m
+		}
+		m, err := db.names(ctx, "stations", "line")
+		if err != nil {
+			return nil, fmt.Errorf("plant trip series: %w", err)
+		}
+		names["lines"] = m
+	}
+	cols := "r.local_id, r.at, r.trip_pf"
+	if full {
+		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict, r.site"
+	}
+	q := `SELECT ` + cols + ` FROM runs r WHERE ` + cond + ` AND r.trip_pf IS NOT NULL
+ORDER BY r.at DESC, r.log_id DESC, r.local_id DESC`
+	if last > 0 {
+		args = append(args, last)
+		q += " LIMIT $" + strconv.Itoa(len(args))
+	}
+	rows, err := db.pool.Query(ctx, q, args...)
+	if err != nil {
+		return nil, fmt.Errorf("plant trip series: %w", err)
+	}
+	defer rows.Close()
+	var out []store.TripPoint
+	if last > 0 {
+		out = make([]store.TripPoint, 0, min(last, 1<<20))
+	}
+	var (
+		id, at                  int64
+		trip                    float64
+		sid, fid                int32
+		lot, verdict, site      string
+		lastLot, lastV, lastSit string
+	)
+	dst := []any{&id, &at, &trip}
+	if full {
+		dst = append(dst, &sid, &fid, &lot, &verdict, &site)
+	}
+	for rows.Next() {
+		if err := rows.Scan(dst...); err != nil {
+			return nil, fmt.Errorf("plant trip series: %w", err)
+		}
+		p := store.TripPoint{RunID: id, Finished: time.Unix(0, at).UTC(), TripPF: trip}
+		if full {
+			if lot != lastLot {
+				lastLot = lot
+			}
+			if verdict != lastV {
+				lastV = verdict
+			}
+			if site != lastSit {
+				lastSit = site
+			}
+			p.Station, p.Fixture, p.Line = names["stations"][sid], names["fixtures"][fid], names["lines"][sid]
+			p.Lot, p.Verdict, p.Site = lastLot, sequences.Verdict(lastV), lastSit
+		}
+		out = append(out, p)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("plant trip series: %w", err)
+	}
+	for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
+		out[i], out[j] = out[j], out[i]
+	}
+	return out, nil
+}
+
+// names reads one column of a small (id, …) table whole.
+func (db *DB) names(ctx context.Context, table, col string) (map[int32]string, error) {
+	rows, err := db.pool.Query(ctx, "SELECT id, "+col+" FROM "+table)
+	if err != nil {
+		return nil, err
+	}
+	m := map[int32]string{}
+	var id int32
+	var n string
+	_, err = pgx.ForEachRow(rows, []any{&id, &n}, func() error { m[id] = n; return nil })
+	return m, err
+}
+
+// Counts returns the verdict totals of the runs matching f; first-pass
+// counts look at each serial's first unit verdict anywhere in the plant.
+func (db *DB) Counts(ctx context.Context, f store.Filter) (store.Counts, error) {
+	cond, args := where(f)
+	q := `SELECT count(*), count(*) FILTER (WHERE verdict = 'pass'), count(*) FILTER (WHERE verdict = 'fail'),
+       count(*) FILTER (WHERE verdict = 'station-fault'), count(*) FILTER (WHERE first),
+       count(*) FILTER (WHERE first AND verdict = 'pass')
+FROM (
+  SELECT r.verdict,
+         r.verdict <> 'station-fault' AND NOT EXISTS (
+           SELECT 1 FROM runs e
+           WHERE e.serial = r.serial AND e.verdict <> 'station-fault'
+             AND (e.at < r.at OR (e.at = r.at AND (e.log_id, e.local_id) < (r.log_id, r.local_id)))
+         ) AS first
+  FROM runs r WHERE ` + cond + `
+) x`
+	var c store.Counts
+	if err := db.pool.QueryRow(ctx, q, args...).Scan(&c.Runs, &c.Pass, &c.Fail, &c.StationFault, &c.FirstUnits, &c.FirstPass); err != nil {
+		return store.Counts{}, fmt.Errorf("plant counts: %w", err)
+	}
+	return c, nil
+}
+
+// ConfigHistory returns the configurations variant has had, in the order
+// the plant first saw them.
+func (db *DB) ConfigHistory(ctx context.Context, variant string) ([]store.ConfigChange, error) {
+	rows, err := db.pool.Query(ctx, `SELECT c.hash, c.first_seen, length(c.snapshot) FROM configs c
+		JOIN variants v ON v.id = c.variant_id WHERE v.name = $1 ORDER BY c.first_seen, c.id`, variant)
+	if err != nil {
+		return nil, fmt.Errorf("plant config history of %s: %w", variant, err)
+	}
+	var (
+		out  []store.ConfigChange
+		c    store.ConfigChange
+		seen int64
+		size int32
+	)
+	_, err = pgx.ForEachRow(rows, []any{&c.Hash, &seen, &size}, func() error {
+		c.FirstSeen, c.Size = time.Unix(0, seen).UTC(), int(size)
+		out = append(out, c)
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("plant config history of %s: %w", variant, err)
+	}
+	return out, nil
+}
+
+// Snapshot returns the exact configuration bytes of variant under hash;
+// ErrNotFound (also store.ErrNotFound) if the plant has none.
+func (db *DB) Snapshot(ctx context.Context, variant, hash string) ([]byte, error) {
+	var b []byte
+	err := db.pool.QueryRow(ctx, `SELECT c.snapshot FROM configs c JOIN variants v ON v.id = c.variant_id
+		WHERE v.name = $1 AND c.hash = $2`, variant, hash).Scan(&b)
+	if errors.Is(err, pgx.ErrNoRows) {
+		return nil, fmt.Errorf("snapshot of %s %s: %w: %w", variant, hash, ErrNotFound, store.ErrNotFound)
+	}
+	if err != nil {
+		return nil, fmt.Errorf("snapshot of %s %s: %w", variant, hash, err)
+	}
+	if b == nil {
+		b = []byte{}
+	}
+	return b, nil
+}
