@@ -7,6 +7,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"iter"
 	"math"
 	"strconv"
 	"time"
@@ -27,13 +28,19 @@ var CSVHeader = []string{
 // back exactly; a missing value or limit is an empty field. It returns the
 // number of runs written.
 func (db *DB) WriteCSV(ctx context.Context, w io.Writer, f Filter) (int64, error) {
+	return WriteRunsCSV(w, db.Runs(ctx, f))
+}
+
+// WriteRunsCSV writes runs as WriteCSV does, from any source of entries
+// (the shift log, or the plant store).
+func WriteRunsCSV(w io.Writer, runs iter.Seq2[*Entry, error]) (int64, error) {
 	cw := csv.NewWriter(w)
 	if err := cw.Write(CSVHeader); err != nil {
 		return 0, fmt.Errorf("write csv: %w", err)
 	}
 	var n int64
 	rec := make([]string, len(CSVHeader))
-	for e, err := range db.Runs(ctx, f) {
+	for e, err := range runs {
 		if err != nil {
 			return n, fmt.Errorf("write csv: %w", err)
 		}
@@ -141,10 +148,16 @@ func numPtr(v float64) *float64 {
 // JSONRun object per line with its measurements in an array. It returns the
 // number of runs written.
 func (db *DB) WriteJSONL(ctx context.Context, w io.Writer, f Filter) (int64, error) {
+	return WriteRunsJSONL(w, db.Runs(ctx, f))
+}
+
+// WriteRunsJSONL writes runs as WriteJSONL does, from any source of
+// entries.
+func WriteRunsJSONL(w io.Writer, runs iter.Seq2[*Entry, error]) (int64, error) {
 	bw := bufio.NewWriter(w)
 	enc := json.NewEncoder(bw)
 	var n int64
-	for e, err := range db.Runs(ctx, f) {
+	for e, err := range runs {
 		if err != nil {
 			return n, fmt.Errorf("write json lines: %w", err)
 		}

@@ -12,5 +12,7 @@ func (a *app) subcommands() []func() *cobra.Command {
 		a.driftCmd,
 		a.runCmd,
 		a.stationCmd,
+		a.plantCmd,
+		a.lineCmd,
 	}
 }

@@ -6,7 +6,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io/fs"
 	"math"
 	"os"
 	"path/filepath"
@@ -100,7 +99,8 @@ them. First-pass yield (each serial's first unit verdict) comes with its
 exact Clopper–Pearson 95 % interval.
 
 --by station|fixture|lot|shift reports each group on its own (shifts: early
-06–14, late 14–22, night 22–06 local time, named by the day they start).
+06–14, late 14–22, night 22–06 local time, named by the day they start);
+on the plant store also --by line|site.
 
 --csv FILE --column NAME analyses a column of numbers from a CSV file with a
 header row instead (blank cells are skipped); --target, --sigma, --k, --h,
@@ -110,12 +110,16 @@ header row instead (blank cells are skipped); --target, --sigma, --k, --h,
 group's name added to FILE). --json prints one JSON object.
 
 The shift log is found as 'padline history' finds it: --db, $PADLINE_DB,
-the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
+the --station-file's shift_log, else ./` + defaultShiftLog + `. --db
+postgres://… reads the plant store: every station's forwarded runs, ordered
+by the plant's clock; for one station's runs the numbers are that station's
+own log's.`,
 		Example: `  padline drift --variant QM-205
   padline drift --variant QM-205 --since 8h --svg drift.svg
   padline drift --variant QM-205 --by fixture --chart xbar-r --subgroup 5
   padline drift --variant QM-205 --chart ewma --lambda 0.1 --json
   padline drift --csv bench.csv --column trip_pf --target 29.7 --sigma 4.2
+  padline drift --db postgres://quality@plant-db/plant --variant QM-205 --by station
   padline drift study --runs 5000`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
@@ -195,7 +199,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.StringVar(&station, "station", "", "only runs of this station")
 	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
-	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift")
+	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift (plant store: also line, site)")
 	fl.BoolVar(&o.allVerdicts, "all-verdicts", false, "chart failed units' trip points too (default: passing units only; yield always counts every unit)")
 	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
 	fl.StringVar(&o.rules, "rules", "", "run rules on the individuals/X̄ chart: we, nelson or limits (default: we; limits for watch)")
@@ -240,8 +244,12 @@ func (o *driftOptions) check() error {
 	}
 	switch o.by {
 	case "", "station", "fixture", "lot", "shift":
+	case "line", "site":
+		if !isPlantURL(o.db) {
+			return fmt.Errorf("drift: --by %s needs the plant store (--db postgres://…): a station's shift log knows no %ss", o.by, o.by)
+		}
 	default:
-		return fmt.Errorf("drift: --by must be station, fixture, lot or shift, got %q", o.by)
+		return fmt.Errorf("drift: --by must be station, fixture, line, lot, site or shift, got %q", o.by)
 	}
 	switch o.chart {
 	case "watch", "imr", "ewma", "cusum":
@@ -300,7 +308,7 @@ const driftCountWorkers = 4
 // startCounts runs db.Counts(f) in the background, at most
 // driftCountWorkers at a time (sem), so the first-pass yield query overlaps
 // the trip series read and the charts.
-func startCounts(ctx context.Context, db *store.DB, f store.Filter, sem chan struct{}) <-chan countsResult {
+func startCounts(ctx context.Context, db runLog, f store.Filter, sem chan struct{}) <-chan countsResult {
 	ch := make(chan countsResult, 1)
 	go func() {
 		sem <- struct{}{}
@@ -395,7 +403,7 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 	rep := driftReport{Chart: o.chart, Baseline: o.baseline, UncertaintyPF: jnum(math.NaN())}
 	low, high := o.lsl, o.usl
 	var groups []driftSeries
-	var db *store.DB
+	var db runLog
 	if o.csvFile != "" {
 		x, err := readSeriesCSV(o.csvFile, o.column)
 		if err != nil {
@@ -404,16 +412,13 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 		rep.Source = fmt.Sprintf("CSV %s, column %s", o.csvFile, o.column)
 		groups = []driftSeries{{x: x}}
 	} else {
-		if _, err := os.Stat(o.db); errors.Is(err, fs.ErrNotExist) {
-			return fmt.Errorf("drift: no shift log at %s (give --db PATH, set PADLINE_DB, or --station-file)", o.db)
-		}
-		var err error
-		db, err = store.Open(o.db)
+		rl, err := openRunLog(ctx, o.db)
 		if err != nil {
 			return fmt.Errorf("drift: %w", err)
 		}
-		defer db.Close()
-		rep.Source = "shift log " + o.db
+		defer rl.Close()
+		db = rl
+		rep.Source = runLogName(o.db)
 		rep.Since, rep.Until = o.since, o.until
 		rep.Station, rep.Fixture, rep.Lot, rep.By = o.filter.Station, o.filter.Fixture, o.filter.Lot, o.by
 	}
@@ -511,7 +516,7 @@ func describeFilter(o driftOptions) string {
 // driftVariant finds the variant's configuration: a file when ref names
 // one, else the latest configuration the shift log holds for that name (the
 // limits the line judged against), else the built-in.
-func driftVariant(ctx context.Context, db *store.DB, ref string) (*Variant, string, error) {
+func driftVariant(ctx context.Context, db runLog, ref string) (*Variant, string, error) {
 	if isConfigPath(ref) {
 		v, err := loadVariant(ref)
 		if err != nil {
@@ -546,7 +551,7 @@ func driftVariant(ctx context.Context, db *store.DB, ref string) (*Variant, stri
 // driftGroups reads the trip series and splits it by the --by key, groups
 // in key order (shift keys sort by time). The store's points are copied to
 // compact arrays and dropped.
-func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string, allVerdicts bool) ([]driftSeries, error) {
+func driftGroups(ctx context.Context, db runLog, f store.Filter, by string, allVerdicts bool) ([]driftSeries, error) {
 	// A unit that failed has a defect, a special cause the limits already
 	// caught: by default only passing units feed the charts, so one bad
 	// unit does not read as the process moving. f itself (every verdict)
@@ -611,6 +616,12 @@ func driftKey(p store.TripPoint, by string, f store.Filter) (string, store.Filte
 	case "lot":
 		f.Lot = p.Lot
 		return p.Lot, f
+	case "line":
+		f.Line = p.Line
+		return p.Line, f
+	case "site":
+		f.Site = p.Site
+		return p.Site, f
 	}
 	name, start, end := shiftOf(p.Finished.Local())
 	if f.Since.IsZero() || f.Since.Before(start) {
@@ -643,7 +654,7 @@ func shiftOf(t time.Time) (name string, start, end time.Time) {
 }
 
 // driftGroup analyses one group and assembles its report.
-func (a *app) driftGroup(ctx context.Context, db *store.DB, o driftOptions, g driftSeries, low, high float64) (driftGroupReport, error) {
+func (a *app) driftGroup(ctx context.Context, db runLog, o driftOptions, g driftSeries, low, high float64) (driftGroupReport, error) {
 	gr := driftGroupReport{Key: g.key, Points: len(g.x)}
 	if len(g.times) > 0 {
 		gr.First, gr.Last = tptr(g.times[0]), tptr(g.times[len(g.times)-1])
@@ -759,7 +770,7 @@ func driftChartPath(o driftOptions, key string) string {
 
 // runSerial looks up the serial of one run (found by its finish time, an
 // indexed range of one nanosecond); "" when it cannot be found.
-func runSerial(ctx context.Context, db *store.DB, variant string, id int64, at time.Time) string {
+func runSerial(ctx context.Context, db runLog, variant string, id int64, at time.Time) string {
 	for e, err := range db.Runs(ctx, store.Filter{Variant: variant, Since: at, Until: at.Add(1)}) {
 		if err != nil {
 			return ""

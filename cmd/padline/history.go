@@ -6,9 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"io/fs"
 	"math"
-	"os"
 	"strconv"
 	"strings"
 	"time"
@@ -63,13 +61,16 @@ its limits) changed: each distinct config hash and when it was first seen.
 
 The shift log is, first found: --db PATH, the environment variable
 PADLINE_DB, the shift_log of --station-file, else ./` + defaultShiftLog + `.
-history never creates a shift log.`,
+history never creates a shift log. --db postgres://… reads the plant store
+instead: every station's forwarded runs, with the same filters and the same
+numbers as each station's own log (see 'padline plant --help').`,
 		Example: `  padline history --serial QM205-001234
   padline history --variant QM-205 --since 8h
   padline history --variant QM-205 --since 2026-11-30 --until 2026-12-01 --verdict fail
   padline history --variant QM-205 --station L2-S1 --lot LOT-17 --format csv > lot17.csv
   padline history --variant QM-205 --json | jq .trip_pf
   padline history --limits-history --variant QM-205
+  padline history --db postgres://quality@plant-db/plant --serial QM205-001234
   PADLINE_DB=/var/lib/padline/L2-S1.db padline history --serial QM205-001234`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
@@ -132,10 +133,7 @@ history never creates a shift log.`,
 
 // history opens the shift log and prints what opts asks for.
 func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
-	if _, err := os.Stat(opts.db); errors.Is(err, fs.ErrNotExist) {
-		return fmt.Errorf("history: no shift log at %s (give --db PATH, set PADLINE_DB, or --station-file)", opts.db)
-	}
-	db, err := store.Open(opts.db)
+	db, err := openRunLog(cmd.Context(), opts.db)
 	if err != nil {
 		return fmt.Errorf("history: %w", err)
 	}
@@ -149,9 +147,9 @@ func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
 	}
 	switch opts.format {
 	case "csv":
-		_, err = db.WriteCSV(ctx, out, opts.filter)
+		_, err = store.WriteRunsCSV(out, db.Runs(ctx, opts.filter))
 	case "json":
-		_, err = db.WriteJSONL(ctx, out, opts.filter)
+		_, err = store.WriteRunsJSONL(out, db.Runs(ctx, opts.filter))
 	default:
 		err = writeHistoryTable(out, db, cmd, opts)
 	}
@@ -163,7 +161,7 @@ func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
 
 // writeHistoryTable prints one line per run as the runs stream in (no
 // column sizing pass, so memory stays flat on long ranges), then totals.
-func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts historyOptions) error {
+func writeHistoryTable(w io.Writer, db runLog, cmd *cobra.Command, opts historyOptions) error {
 	const row = "%-8s %-19s %-16s %-8s %-7s %-10s %-13s %-14s %8s\n"
 	fmt.Fprintf(w, row, "ID", "FINISHED", "SERIAL", "STATION", "FIXTURE", "LOT", "VERDICT", "FAIL CODE", "TRIP pF")
 	var n, pass, fail, sf, flagged int
@@ -228,7 +226,7 @@ func writeDetail(w io.Writer, e *store.Entry) {
 }
 
 // writeConfigHistory prints the variant's configuration changes.
-func writeConfigHistory(w io.Writer, db *store.DB, cmd *cobra.Command, opts historyOptions) error {
+func writeConfigHistory(w io.Writer, db runLog, cmd *cobra.Command, opts historyOptions) error {
 	hist, err := db.ConfigHistory(cmd.Context(), opts.filter.Variant)
 	if err != nil {
 		return fmt.Errorf("history: %w", err)

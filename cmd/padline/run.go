@@ -28,6 +28,7 @@ type runOptions struct {
 	search           string
 	asJSON           bool
 	lidTimeout       time.Duration
+	plantURL         string // forward to this plant store (station_plant.go)
 }
 
 // runCmd builds `padline run`.
@@ -77,6 +78,7 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f.StringVar(&o.search, "search", "", "trip search: bracket or staircase (default: the variant's plan)")
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per tested unit instead of the verdict banner")
 	f.DurationVar(&o.lidTimeout, "lid-timeout", 0, "give up on a unit whose lid stays open this long (0: wait until stopped)")
+	f.StringVar(&o.plantURL, "plant-url", "", "forward every committed run to this plant store, postgres://… (default: the station file's plant.url)")
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
@@ -144,6 +146,8 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		return err
 	}
 	defer db.Close()
+	fwd := a.startForwarding(ctx, db, st, o.plantURL)
+	defer fwd.stop()
 	// Setting up is quick and must not be cut half-way by a stop request;
 	// the loop below checks for one before every unit.
 	setup := context.WithoutCancel(ctx)
@@ -245,6 +249,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		}
 		tested++
 		saveOps()
+		fwd.kick()
 		if o.asJSON {
 			if err := json.NewEncoder(a.stdout).Encode(unitJSON(oc)); err != nil {
 				return err

@@ -23,6 +23,9 @@ type Station struct {
 	// Trust is how the station proves it still measures right: its
 	// reference units and how often they must be checked.
 	Trust StationTrust
+	// Plant is the optional `plant:` section: the plant store this station
+	// forwards its runs to (station_plant.go).
+	Plant StationPlant
 	// Source is where the file came from, its exact bytes and their sha256.
 	Source source
 }
@@ -159,6 +162,7 @@ func parseStation(src source) (*Station, error) {
 	}
 	s.Trust = readStationTrust(d, s.Ladder)
 	s.Sim = readStationSim(d)
+	s.Plant = readStationPlant(d)
 	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
 	if err := d.finish(); err != nil {
 		return nil, err
