@@ -1,0 +1,163 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/jackc/pgx/v5"
+)
+
+// plantSchema makes a schema of the test's own on the test PostgreSQL
+// server (PADLINE_TEST_PG, else 127.0.0.1:5432 database test), initialised
+// with 'padline plant init', and drops it after. It skips (or fails under
+// PADLINE_REQUIRE_PARTS=1) when no server answers.
+func plantSchema(t *testing.T) string {
+	t.Helper()
+	base := os.Getenv("PADLINE_TEST_PG")
+	if base == "" {
+		base = "postgres://root@127.0.0.1:5432/test?sslmode=disable"
+	}
+	ctx := context.Background()
+	conn, err := pgx.Connect(ctx, base)
+	if err != nil {
+		reason := "no PostgreSQL at " + base + ": " + err.Error()
+		if os.Getenv("PADLINE_REQUIRE_PARTS") == "1" {
+			t.Fatal(reason)
+		}
+		t.Skip(reason)
+	}
+	defer conn.Close(ctx)
+	schema := fmt.Sprintf("plant_cmd%d_%d", time.Now().UnixNano()%1e9, rand.IntN(1e6))
+	if _, err := conn.Exec(ctx, "CREATE SCHEMA "+schema); err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() {
+		c, err := pgx.Connect(context.Background(), base)
+		if err == nil {
+			c.Exec(context.Background(), "DROP SCHEMA "+schema+" CASCADE")
+			c.Close(context.Background())
+		}
+	})
+	sep := "?"
+	if strings.Contains(base, "?") {
+		sep = "&"
+	}
+	url := base + sep + "search_path=" + schema
+	if code, out, errOut := runCLI(t, "plant", "init", "--db", url); code != 0 || !strings.Contains(out, "schema version") {
+		t.Fatalf("plant init: exit %d: %s%s", code, out, errOut)
+	}
+	return url
+}
+
+func mustCLI(t *testing.T, args ...string) string {
+	t.Helper()
+	code, out, errOut := runCLI(t, args...)
+	if code != 0 {
+		t.Fatalf("padline %s: exit %d: %s", strings.Join(args, " "), code, errOut)
+	}
+	return out
+}
+
+// history and drift give on the plant store the numbers the station's own
+// shift log gives for its runs: a demo shift with an injected drift,
+// forwarded, then asked both ways.
+func TestPlantSameNumbersAsShiftLog(t *testing.T) {
+	url := plantSchema(t)
+	db := filepath.Join(t.TempDir(), "shift.db")
+	demoJSONSummary(t, "--units", "400", "--drift-at", "200", "--drift-pf", "4", "--db", db)
+	mustCLI(t, "plant", "add-station", "L2-S1", "--line", "L2", "--db", url)
+
+	// Before forwarding, status shows the whole shift as backlog.
+	var st plantStatus
+	if err := json.Unmarshal([]byte(mustCLI(t, "plant", "status", "--db", db, "--json")), &st); err != nil {
+		t.Fatal(err)
+	}
+	if st.BacklogRuns < 400 || st.LastRunID != 0 || st.LastTime != nil {
+		t.Fatalf("status before forwarding: %+v", st)
+	}
+	out := mustCLI(t, "plant", "forward", "--station", "demo-sim", "--db", db, "--plant-url", url)
+	if !strings.Contains(out, fmt.Sprintf("%d runs forwarded", st.BacklogRuns)) {
+		t.Fatalf("forward: %s", out)
+	}
+	if err := json.Unmarshal([]byte(mustCLI(t, "plant", "status", "--db", db, "--json")), &st); err != nil {
+		t.Fatal(err)
+	}
+	if st.BacklogRuns != 0 || st.LastRunID == 0 || st.LastTime == nil || st.LastError != "" {
+		t.Fatalf("status after forwarding: %+v", st)
+	}
+	text := mustCLI(t, "plant", "status", "--db", db)
+	if !strings.Contains(text, "backlog       0 runs") || !strings.Contains(text, fmt.Sprintf("runs up to id %d forwarded", st.LastRunID)) {
+		t.Fatalf("status text:\n%s", text)
+	}
+
+	for _, args := range [][]string{
+		{"drift", "--variant", "QM-205", "--json"},
+		{"drift", "--variant", "QM-205", "--by", "station", "--json"},
+		{"drift", "--variant", "QM-205", "--chart", "xbar-r", "--by", "fixture", "--json"},
+		{"drift", "--variant", "QM-205", "--all-verdicts", "--chart", "ewma", "--json"},
+		{"history", "--variant", "QM-205", "--format", "csv"},
+		{"history", "--variant", "QM-205", "--verdict", "fail"},
+		{"history", "--serial", "QM205-000201", "--json"},
+		{"history", "--limits-history", "--variant", "QM-205", "--format", "csv"},
+	} {
+		a := mustCLI(t, append(args, "--db", db)...)
+		b := mustCLI(t, append(args, "--db", url)...)
+		a = strings.Replace(a, "shift log "+db, "SOURCE", 1)
+		b = strings.Replace(b, "plant store "+url, "SOURCE", 1)
+		b = strings.Replace(b, "plant store "+strings.ReplaceAll(url, "&", `\u0026`), "SOURCE", 1) // as JSON writes it
+		if a != b {
+			t.Errorf("padline %s differs:\nshift log:\n%.2000s\nplant store:\n%.2000s", strings.Join(args, " "), a, b)
+		}
+	}
+	// The drift is found on the plant store too.
+	rep := driftJSON(t, "drift", "--variant", "QM-205", "--db", url, "--by", "line")
+	if len(rep.Groups) != 1 || rep.Groups[0].Key != "L2" || rep.Groups[0].AlarmCount == 0 {
+		t.Fatalf("--by line: %+v", rep.Groups)
+	}
+	if code, _, errOut := runCLI(t, "drift", "--variant", "QM-205", "--db", db, "--by", "line"); code == 0 || !strings.Contains(errOut, "needs the plant store") {
+		t.Fatalf("--by line on a shift log: exit %d %s", code, errOut)
+	}
+}
+
+// 'padline run --plant-url' forwards while it tests; a plant store that
+// does not answer never stops the station: the runs wait in the outbox
+// and 'padline plant status' names the error.
+func TestRunForwardsToPlant(t *testing.T) {
+	url := plantSchema(t)
+	mustCLI(t, "plant", "add-station", "L2-S1", "--db", url)
+	db := filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db)
+	in := "QM205-000001\nQM205-000002\nQM205-000003\n"
+	out, errs, code := runPadline(t, context.Background(), in, "run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--plant-url", url)
+	if code != 0 {
+		t.Fatalf("exit %d\n%s\n%s", code, out, errs)
+	}
+	// The forwarder had the whole run to send; what was left goes now.
+	mustCLI(t, "plant", "forward", "--station", "demo-sim", "--db", db, "--plant-url", url)
+	h := mustCLI(t, "history", "--variant", "QM-205", "--db", url)
+	if !strings.Contains(h, "3 runs: 3 pass") {
+		t.Fatalf("plant history:\n%s", h)
+	}
+	// A plant store that is down.
+	db2 := filepath.Join(t.TempDir(), "shift2.db")
+	checkStation(t, db2)
+	dead := "postgres://root@127.0.0.1:1/test?sslmode=disable&connect_timeout=1"
+	out, errs, code = runPadline(t, context.Background(), "QM205-000004\n", "run", "--variant", "QM-205", "--station", "demo-sim", "--db", db2, "--plant-url", dead)
+	if code != 0 || !strings.Contains(out, "PASS") {
+		t.Fatalf("a dead plant store stopped the station: exit %d\n%s\n%s", code, out, errs)
+	}
+	var st plantStatus
+	if err := json.Unmarshal([]byte(mustCLI(t, "plant", "status", "--db", db2, "--json")), &st); err != nil {
+		t.Fatal(err)
+	}
+	if st.BacklogRuns != 1 || st.LastError == "" {
+		t.Fatalf("status with the plant down: %+v", st)
+	}
+}
