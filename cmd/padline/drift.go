@@ -52,6 +52,7 @@ type driftOptions struct {
 	lsl, usl                 float64 // NaN = from the variant
 	alarms                   int
 	allVerdicts              bool // chart failed units' trip points too
+	last                     int  // only the last N trip points (0: all)
 	o                        drift.Options
 }
 
@@ -70,7 +71,7 @@ of sense resistors, another pad laminate, a humid afternoon or a wearing relay
 moves them long before units start to fail.
 
 It reads the trip-point series of --variant (oldest first, narrowed by
---since/--until, --station, --fixture, --lot), estimates the centre and σ
+--since/--until, --station, --fixture, --lot, --last N), estimates the centre and σ
 from a baseline window (phase I: the first --baseline points, always
 printed), applies those limits to the whole series (phase II), and lists the
 alarms numbered as on the chart, with the unit index, run time and serial.
@@ -200,6 +201,7 @@ own log's.`,
 	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
 	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift (plant store: also line, site)")
+	fl.IntVar(&o.last, "last", 0, "only the last N trip points (and the runs since the first of them, for yield)")
 	fl.BoolVar(&o.allVerdicts, "all-verdicts", false, "chart failed units' trip points too (default: passing units only; yield always counts every unit)")
 	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
 	fl.StringVar(&o.rules, "rules", "", "run rules on the individuals/X̄ chart: we, nelson or limits (default: we; limits for watch)")
@@ -237,6 +239,10 @@ func (o *driftOptions) check() error {
 		return errors.New("drift: --by works on the shift log, not on --csv")
 	case o.svg != "" && o.png != "":
 		return errors.New("drift: give --svg or --png, not both")
+	case o.last < 0:
+		return fmt.Errorf("drift: --last must be ≥ 0, got %d", o.last)
+	case o.last > 0 && o.csvFile != "":
+		return errors.New("drift: --last works on the shift log, not on --csv")
 	case o.baseline < 2:
 		return fmt.Errorf("drift: --baseline must be at least 2 points, got %d", o.baseline)
 	case o.alarms < 0:
@@ -461,12 +467,15 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 		defer cancel() // stops Counts queries nobody waits for after an error
 		sem := make(chan struct{}, driftCountWorkers)
 		var whole <-chan countsResult
-		if o.by == "" {
+		if o.by == "" && o.last == 0 {
 			whole = startCounts(ctx, db, o.filter, sem)
 		}
 		var err error
-		if groups, err = driftGroups(ctx, db, o.filter, o.by, o.allVerdicts); err != nil {
+		if groups, err = driftGroups(ctx, db, o.filter, o.by, o.allVerdicts, o.last); err != nil {
 			return fmt.Errorf("drift: %w", err)
+		}
+		if o.by == "" && o.last > 0 && len(groups) == 1 {
+			whole = startCounts(ctx, db, groups[0].filter, sem)
 		}
 		if len(groups) == 0 {
 			return fmt.Errorf("drift: no trip points of %s in %s%s", rep.Variant, o.db, describeFilter(o))
@@ -551,7 +560,7 @@ func driftVariant(ctx context.Context, db runLog, ref string) (*Variant, string,
 // driftGroups reads the trip series and splits it by the --by key, groups
 // in key order (shift keys sort by time). The store's points are copied to
 // compact arrays and dropped.
-func driftGroups(ctx context.Context, db runLog, f store.Filter, by string, allVerdicts bool) ([]driftSeries, error) {
+func driftGroups(ctx context.Context, db runLog, f store.Filter, by string, allVerdicts bool, last int) ([]driftSeries, error) {
 	// A unit that failed has a defect, a special cause the limits already
 	// caught: by default only passing units feed the charts, so one bad
 	// unit does not read as the process moving. f itself (every verdict)
@@ -569,10 +578,23 @@ func driftGroups(ctx context.Context, db runLog, f store.Filter, by string, allV
 	if by == "" || by == "shift" {
 		series = db.TripValues
 	}
-	pts, err := series(ctx, sf, driftFirstAsk)
-	if err == nil && len(pts) == driftFirstAsk {
-		pts = nil
-		pts, err = series(ctx, sf, 0)
+	var (
+		pts []store.TripPoint
+		err error
+	)
+	if last > 0 {
+		// --last N: the last N points, and for yield the runs since the
+		// first of them.
+		pts, err = series(ctx, sf, last)
+		if err == nil && len(pts) > 0 && pts[0].Finished.After(f.Since) {
+			f.Since = pts[0].Finished
+		}
+	} else {
+		pts, err = series(ctx, sf, driftFirstAsk)
+		if err == nil && len(pts) == driftFirstAsk {
+			pts = nil
+			pts, err = series(ctx, sf, 0)
+		}
 	}
 	if err != nil {
 		return nil, err
