@@ -12,6 +12,8 @@ import (
 	"time"
 
 	"github.com/jackc/pgx/v5"
+
+	"padline/store/plant"
 )
 
 // plantSchema makes a schema of the test's own on the test PostgreSQL
@@ -19,6 +21,17 @@ import (
 // with 'padline plant init', and drops it after. It skips (or fails under
 // PADLINE_REQUIRE_PARTS=1) when no server answers.
 func plantSchema(t *testing.T) string {
+	t.Helper()
+	url := plantSchemaB(t)
+	if code, out, errOut := runCLI(t, "plant", "init", "--db", url); code != 0 || !strings.Contains(out, "schema version") {
+		t.Fatalf("plant init: exit %d: %s%s", code, out, errOut)
+	}
+	return url
+}
+
+// plantSchemaB is plantSchema for tests and benchmarks, migrated through
+// the library.
+func plantSchemaB(t testing.TB) string {
 	t.Helper()
 	base := os.Getenv("PADLINE_TEST_PG")
 	if base == "" {
@@ -50,8 +63,13 @@ func plantSchema(t *testing.T) string {
 		sep = "&"
 	}
 	url := base + sep + "search_path=" + schema
-	if code, out, errOut := runCLI(t, "plant", "init", "--db", url); code != 0 || !strings.Contains(out, "schema version") {
-		t.Fatalf("plant init: exit %d: %s%s", code, out, errOut)
+	p, err := plant.Open(ctx, url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Close()
+	if err := p.Migrate(ctx); err != nil {
+		t.Fatal(err)
 	}
 	return url
 }

@@ -67,6 +67,11 @@ func (f *Forwarder) now() time.Time {
 	return time.Now()
 }
 
+// Heartbeat is how often an idle forwarder still reports to the plant
+// store (backlog, relay counts, station facts), so the line board can tell
+// an idle station from one that lost the network.
+const Heartbeat = 30 * time.Second
+
 // Backoff is the wait before retry attempt n (n ≥ 1) after failures:
 // exponential from min, capped at max, with "equal jitter" — half the
 // step fixed, half uniformly random (AWS Architecture Blog, M. Brooker,
@@ -164,7 +169,7 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 	if err != nil {
 		return 0, err
 	}
-	if len(runs)+len(checks)+len(studies) == 0 && !st.LastTime.IsZero() {
+	if len(runs)+len(checks)+len(studies) == 0 && !st.LastTime.IsZero() && f.now().Sub(st.LastTime) < Heartbeat {
 		return 0, nil
 	}
 	relays, err := f.Log.RelayCounts(ctx)

@@ -24,7 +24,7 @@ SELECT s, l, s, 'SN' || lpad(g::text, 8, '0'), v, v, s, 'op', 'LOT-' || (l / 500
 FROM (
 	SELECT g, g % 20 + 1 AS s, g / 20 + 1 AS l, (g / 20 / 1000 + g % 20) % 10 + 1 AS v,
 		1780272000000000000 + g * 1555200000 AS t, random() AS u
-	FROM generate_series(0, 9999999) g
+	FROM generate_series(0::bigint, 9999999) g
 ) x;
 INSERT INTO measurements (log_id, local_id, finished, seq, station_id, quantity_id, value, low, high, verdict)
 SELECT r.log_id, r.local_id, r.finished, q.seq, r.station_id, q.seq + 1,

@@ -1,0 +1,102 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"path/filepath"
+	"testing"
+
+	"padline/sequences"
+	"padline/sequences/timing"
+	"padline/store"
+	"padline/store/plant"
+)
+
+// BenchmarkUnitForwarding measures the station's time per simulated QM-205
+// unit with the shift log (commit with synchronous=FULL), without and with
+// a forwarder running to the plant store and kicked after every commit, as
+// 'padline run --plant-url' does. Target: forwarding adds ≤ 1 ms per unit.
+// Needs the test PostgreSQL server.
+//
+//	go test ./cmd/padline -run '^$' -bench UnitForwarding -benchtime 2000x -count 3
+func BenchmarkUnitForwarding(b *testing.B) {
+	for _, fwd := range []bool{false, true} {
+		name := "log-only"
+		if fwd {
+			name = "log+forwarding"
+		}
+		b.Run(name, func(b *testing.B) {
+			v, err := loadVariant("QM-205")
+			if err != nil {
+				b.Fatal(err)
+			}
+			st, err := loadStation("demo-sim")
+			if err != nil {
+				b.Fatal(err)
+			}
+			rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: defaultUncertaintyPF})
+			if err != nil {
+				b.Fatal(err)
+			}
+			line, err := newSimLine(st, v)
+			if err != nil {
+				b.Fatal(err)
+			}
+			fx, err := newFixture(st, line.Pins(), line.Clock())
+			if err != nil {
+				b.Fatal(err)
+			}
+			cfg, err := planConfig(v, rep, true, "")
+			if err != nil {
+				b.Fatal(err)
+			}
+			plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
+			if err != nil {
+				b.Fatal(err)
+			}
+			db, err := store.Open(filepath.Join(b.TempDir(), "shift.db"))
+			if err != nil {
+				b.Fatal(err)
+			}
+			defer db.Close()
+			ctx := context.Background()
+			hash, err := db.PutVariant(ctx, v.Name, v.Source.Raw)
+			if err != nil {
+				b.Fatal(err)
+			}
+			var fw *forwarding
+			if fwd {
+				url := plantSchemaB(b)
+				a := &app{}
+				p, err := plant.Open(ctx, url)
+				if err != nil {
+					b.Fatal(err)
+				}
+				if err := p.AddStation(ctx, plant.Station{Name: st.Name}); err != nil {
+					b.Fatal(err)
+				}
+				p.Close()
+				fw = a.startForwarding(ctx, db, st, url)
+				defer fw.stop()
+			}
+			sess := &sequences.Session{Plan: plan, Station: fx, Clock: line.Clock(), Recorder: db,
+				Template: sequences.Run{Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture}}
+			b.ResetTimer()
+			for i := range b.N {
+				serial := fmt.Sprintf("QM205-%06d", i%100000+1)
+				line.Load(serial)
+				oc, err := sess.Test(ctx, serial)
+				line.Unload()
+				if oc == nil {
+					b.Fatal(err)
+				}
+				fw.kick()
+			}
+			b.StopTimer()
+			if fw != nil {
+				o, _ := db.OutboxState(ctx)
+				b.ReportMetric(float64(o.BacklogRuns), "backlog-at-end")
+			}
+		})
+	}
+}
