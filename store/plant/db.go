@@ -194,7 +194,7 @@ func (db *DB) AddStation(ctx context.Context, s Station) error {
 		sc := pgx.Identifier{schema}.Sanitize()
 		stmts := []string{
 			"GRANT USAGE ON SCHEMA " + sc + " TO " + r,
-			"GRANT SELECT ON plant_schema, stations, variants, fixtures, quantities, configs TO " + r,
+			"GRANT SELECT ON plant_schema, stations, variants, fixtures, quantities, configs, serial_first TO " + r,
 			"GRANT INSERT ON variants, fixtures, quantities, configs TO " + r,
 			"GRANT SELECT, INSERT, UPDATE ON logs, relay_wear TO " + r,
 			"GRANT SELECT, INSERT ON runs, measurements, station_checks, studies TO " + r,

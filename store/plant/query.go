@@ -276,18 +276,12 @@ func (db *DB) names(ctx context.Context, table, col string) (map[int32]string, e
 // counts look at each serial's first unit verdict anywhere in the plant.
 func (db *DB) Counts(ctx context.Context, f store.Filter) (store.Counts, error) {
 	cond, args := where(f)
-	q := `SELECT count(*), count(*) FILTER (WHERE verdict = 'pass'), count(*) FILTER (WHERE verdict = 'fail'),
-       count(*) FILTER (WHERE verdict = 'station-fault'), count(*) FILTER (WHERE first),
-       count(*) FILTER (WHERE first AND verdict = 'pass')
-FROM (
-  SELECT r.verdict,
-         r.verdict <> 'station-fault' AND NOT EXISTS (
-           SELECT 1 FROM runs e
-           WHERE e.serial = r.serial AND e.verdict <> 'station-fault'
-             AND (e.at < r.at OR (e.at = r.at AND (e.log_id, e.local_id) < (r.log_id, r.local_id)))
-         ) AS first
-  FROM runs r WHERE ` + cond + `
-) x`
+	q := `SELECT count(*), count(*) FILTER (WHERE r.verdict = 'pass'), count(*) FILTER (WHERE r.verdict = 'fail'),
+       count(*) FILTER (WHERE r.verdict = 'station-fault'),
+       count(*) FILTER (WHERE f.log_id = r.log_id AND f.local_id = r.local_id),
+       count(*) FILTER (WHERE f.log_id = r.log_id AND f.local_id = r.local_id AND r.verdict = 'pass')
+FROM runs r LEFT JOIN serial_first f ON f.serial = r.serial
+WHERE ` + cond
 	var c store.Counts
 	if err := db.pool.QueryRow(ctx, q, args...).Scan(&c.Runs, &c.Pass, &c.Fail, &c.StationFault, &c.FirstUnits, &c.FirstPass); err != nil {
 		return store.Counts{}, fmt.Errorf("plant counts: %w", err)

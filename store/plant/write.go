@@ -11,6 +11,7 @@ import (
 	"github.com/jackc/pgx/v5"
 	"github.com/jackc/pgx/v5/pgconn"
 
+	"padline/sequences"
 	"padline/store"
 )
 
@@ -449,6 +450,21 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 	var id int64
 	if _, err := pgx.ForEachRow(rows, []any{&id}, func() error { fresh = append(fresh, id); return nil }); err != nil {
 		return 0, 0, err
+	}
+	var (
+		fSerial     []string
+		fAt, fLocal []int64
+		fLog        []int32
+	)
+	for _, id := range fresh {
+		if r := byID[id]; r.Verdict != sequences.StationFault {
+			fSerial, fAt, fLog, fLocal = append(fSerial, r.Serial), append(fAt, r.Finished.UnixNano()+x.offset), append(fLog, x.log), append(fLocal, id)
+		}
+	}
+	if len(fSerial) > 0 {
+		if _, err := tx.Exec(ctx, `SELECT plant_note_first($1, $2, $3, $4)`, fSerial, fAt, fLog, fLocal); err != nil {
+			return 0, 0, err
+		}
 	}
 	var (
 		mLocal, mFin         []int64
