@@ -6,8 +6,9 @@
 //
 // It is, with store, the only padline package that runs SQL; it talks to
 // PostgreSQL through github.com/jackc/pgx/v5. Of padline it imports store
-// (the run, filter and trip-point types, and the station's outbox) and
-// sequences; it must not import fixture or cmd.
+// (the run, filter and trip-point types, and the station's outbox),
+// sequences, and store/drift (the line board's open alarms); it must not
+// import fixture or cmd.
 //
 // # Schema
 //
@@ -15,7 +16,8 @@
 // transaction each, under an advisory lock, with the version in the table
 // plant_schema. Runs and measurements are partitioned by calendar month
 // (UTC) of the station's finish time; partitions are created on demand by
-// plant_ensure_month. A run is identified across the plant by its shift
+// plant_ensure_month. Each serial's first unit verdict is kept as runs
+// arrive (serial_first), for first-pass yield. A run is identified across the plant by its shift
 // log's uuid and its id in that log, so a replayed batch never duplicates.
 //
 // # Who may write what
