@@ -157,8 +157,7 @@ func TestRunForwardsToPlant(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d\n%s\n%s", code, out, errs)
 	}
-	// The forwarder had the whole run to send; what was left goes now.
-	mustCLI(t, "plant", "forward", "--station", "demo-sim", "--db", db, "--plant-url", url)
+	// Every run is in the plant store when run returns.
 	h := mustCLI(t, "history", "--variant", "QM-205", "--db", url)
 	if !strings.Contains(h, "3 runs: 3 pass") {
 		t.Fatalf("plant history:\n%s", h)

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"os"
 	"sync"
+	"time"
 
 	"padline/store"
 	"padline/store/plant"
@@ -88,12 +89,19 @@ func (fw *forwarding) kick() {
 	}
 }
 
-// stop ends forwarding; what is not sent stays in the outbox for next time.
+// forwardOnExit bounds the last attempt to send the backlog when run ends.
+const forwardOnExit = 2 * time.Second
+
+// stop ends forwarding after one last attempt (at most forwardOnExit) to
+// send what is left; what is not sent stays in the outbox for next time.
 func (fw *forwarding) stop() {
 	if fw == nil {
 		return
 	}
 	fw.cancel()
 	fw.wg.Wait()
+	ctx, cancel := context.WithTimeout(context.Background(), forwardOnExit)
+	defer cancel()
+	_ = fw.f.Drain(ctx)
 	fw.p.Close()
 }
