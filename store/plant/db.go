@@ -113,6 +113,10 @@ func (db *DB) Migrate(ctx context.Context) error {
 	}
 	defer conn.Exec(context.Background(), `SELECT pg_advisory_unlock(hashtext(current_schema() || '.plant_schema'))`)
 	if _, err := conn.Exec(ctx, `CREATE TABLE IF NOT EXISTS plant_schema (version int NOT NULL)`); err != nil {
+		var pe *pgconn.PgError
+		if errors.As(err, &pe) && pe.Code == "3F000" {
+			return fmt.Errorf("migrate plant store: the schema named by search_path does not exist (CREATE SCHEMA it first): %w", err)
+		}
 		return fmt.Errorf("migrate plant store: %w", err)
 	}
 	var v int
