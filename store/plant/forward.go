@@ -40,6 +40,15 @@ type Forwarder struct {
 
 	kick    chan struct{}
 	configs map[[2]string]bool // configurations the plant store has
+	pre     *prefetch          // the next batch's runs, read while this one is sent
+}
+
+// prefetch reads the runs after an id in the background.
+type prefetch struct {
+	after int64
+	runs  []*store.Entry
+	err   error
+	done  chan struct{}
 }
 
 // Kick wakes the forwarder (a run was committed). It never blocks.
@@ -157,9 +166,27 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 	if err != nil {
 		return 0, err
 	}
-	runs, err := f.Log.PendingRuns(ctx, st.RunCursor, size)
+	var runs []*store.Entry
+	if pre := f.pre; pre != nil && pre.after == st.RunCursor {
+		<-pre.done
+		runs, err = pre.runs, pre.err
+	} else {
+		runs, err = f.Log.PendingRuns(ctx, st.RunCursor, size)
+	}
+	f.pre = nil
 	if err != nil {
 		return 0, err
+	}
+	if len(runs) == size {
+		// A full batch: more are waiting (a catch-up). Read the next batch
+		// from the shift log while this one goes to the plant store; it is
+		// used only if this one lands and the cursor moves to its end.
+		pre := &prefetch{after: runs[len(runs)-1].ID, done: make(chan struct{})}
+		f.pre = pre
+		go func() {
+			defer close(pre.done)
+			pre.runs, pre.err = f.Log.PendingRuns(context.WithoutCancel(ctx), pre.after, size)
+		}()
 	}
 	checks, err := f.Log.PendingChecks(ctx, st.CheckCursor, 100)
 	if err != nil {
