@@ -63,7 +63,28 @@ type DB struct {
 	url  string
 
 	mu     sync.Mutex
-	months map[int64]bool // month partitions known to exist (by first ns)
+	months map[int64]bool   // month partitions known to exist (by first ns)
+	known  map[string]int32 // committed ids of names, keyed by kind and name
+}
+
+// cached returns the committed id of key.
+func (db *DB) cached(key string) (int32, bool) {
+	db.mu.Lock()
+	defer db.mu.Unlock()
+	id, ok := db.known[key]
+	return id, ok
+}
+
+// remember keeps ids that a committed transaction resolved.
+func (db *DB) remember(m map[string]int32) {
+	db.mu.Lock()
+	defer db.mu.Unlock()
+	if db.known == nil {
+		db.known = map[string]int32{}
+	}
+	for k, v := range m {
+		db.known[k] = v
+	}
 }
 
 // Open connects to the plant store at url (a postgres:// URL; a

@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"math/rand/v2"
+	"slices"
 	"time"
 
 	"padline/store"
@@ -41,6 +42,7 @@ type Forwarder struct {
 	kick    chan struct{}
 	configs map[[2]string]bool // configurations the plant store has
 	pre     *prefetch          // the next batch's runs, read while this one is sent
+	relays  []store.RelayCount // the relay counts the plant store has
 }
 
 // prefetch reads the runs after an id in the background.
@@ -204,7 +206,10 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 		return 0, err
 	}
 	b := &Batch{Log: st.LogUUID, Station: f.Station, Runs: runs, Checks: checks, Studies: studies,
-		Relays: relays, Backlog: st.BacklogRuns - int64(len(runs)), Profile: f.Profile}
+		Backlog: st.BacklogRuns - int64(len(runs)), Profile: f.Profile}
+	if !slices.Equal(relays, f.relays) {
+		b.Relays = relays // only when they changed
+	}
 	var cfgKeys [][2]string
 	for _, r := range runs {
 		k := [2]string{r.Variant, r.ConfigHash}
@@ -258,6 +263,7 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 	if err := f.Log.AdvanceOutbox(context.WithoutCancel(ctx), a); err != nil {
 		return 0, fmt.Errorf("plant batch landed but the outbox cursor did not advance (it will be resent): %w", err)
 	}
+	f.relays = relays
 	if f.OnBatch != nil {
 		f.OnBatch(res)
 	}

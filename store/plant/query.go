@@ -93,6 +93,9 @@ func orNaN(v *float64) float64 {
 // measurements in recorded order; Entry.ID is the run's id in its
 // station's shift log.
 func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, error] {
+	if f.Serial != "" {
+		return db.serialRuns(ctx, f)
+	}
 	return func(yield func(*store.Entry, error) bool) {
 		cond, args := where(f)
 		rows, err := db.pool.Query(ctx, fmt.Sprintf(runsSQL, cond), args...)
@@ -330,4 +333,115 @@ func (db *DB) Snapshot(ctx context.Context, variant, hash string) ([]byte, error
 		b = []byte{}
 	}
 	return b, nil
+}
+
+// serialRuns is Runs for one serial: a handful of runs, so the plan matters
+// more than the reading. The runs are read without joins (names come from
+// the small tables) and their measurements by exact key, which prunes the
+// month partitions when the query is planned.
+func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, error] {
+	return func(yield func(*store.Entry, error) bool) {
+		fail := func(err error) { yield(nil, fmt.Errorf("query plant runs of %s: %w", f.Serial, err)) }
+		cond, args := where(f)
+		rows, err := db.pool.Query(ctx, `SELECT r.log_id, r.local_id, r.variant_id, r.config_id, r.station_id, r.fixture_id,
+			r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf
+			FROM runs r WHERE `+cond+` ORDER BY r.at, r.log_id, r.local_id`, args...)
+		if err != nil {
+			fail(err)
+			return
+		}
+		type key struct {
+			log      int32
+			local    int64
+			finished int64
+		}
+		var (
+			out  []*store.Entry
+			keys []key
+			ids  [][4]int32 // variant, config, station, fixture
+		)
+		for rows.Next() {
+			var (
+				e            store.Entry
+				k            key
+				v, c, st, fx int32
+				started      *int64
+				verdict      string
+				trip         *float64
+			)
+			if err := rows.Scan(&k.log, &k.local, &v, &c, &st, &fx, &e.Operator, &e.Lot, &e.Software, &started,
+				&k.finished, &verdict, &e.FailCode, &trip); err != nil {
+				rows.Close()
+				fail(err)
+				return
+			}
+			e.ID, e.Serial, e.Verdict, e.TripPF = k.local, f.Serial, sequences.Verdict(verdict), orNaN(trip)
+			if started != nil {
+				e.Started = time.Unix(0, *started).UTC()
+			}
+			e.Finished = time.Unix(0, k.finished).UTC()
+			out, keys, ids = append(out, &e), append(keys, k), append(ids, [4]int32{v, c, st, fx})
+		}
+		rows.Close()
+		if err := rows.Err(); err != nil {
+			fail(err)
+			return
+		}
+		if len(out) == 0 {
+			return
+		}
+		names := map[string]map[int32]string{}
+		for _, t := range []string{"variants", "stations", "fixtures"} {
+			if names[t], err = db.names(ctx, t, "name"); err != nil {
+				fail(err)
+				return
+			}
+		}
+		if names["configs"], err = db.names(ctx, "configs", "hash"); err != nil {
+			fail(err)
+			return
+		}
+		for i, e := range out {
+			e.Variant, e.ConfigHash = names["variants"][ids[i][0]], names["configs"][ids[i][1]]
+			e.Station, e.Fixture = names["stations"][ids[i][2]], names["fixtures"][ids[i][3]]
+		}
+		logs, locals, fins := make([]int32, len(keys)), make([]int64, len(keys)), make([]int64, len(keys))
+		for i, k := range keys {
+			logs[i], locals[i], fins[i] = k.log, k.local, k.finished
+		}
+		mrows, err := db.pool.Query(ctx, `SELECT m.log_id, m.local_id, m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
+			FROM measurements m JOIN quantities q ON q.id = m.quantity_id
+			WHERE m.finished = ANY($3) AND (m.log_id, m.local_id, m.finished) IN (SELECT * FROM unnest($1::int[], $2::bigint[], $3::bigint[]))
+			ORDER BY m.log_id, m.local_id, m.seq`, logs, locals, fins)
+		if err != nil {
+			fail(err)
+			return
+		}
+		byKey := map[[2]int64]*store.Entry{}
+		for i, k := range keys {
+			byKey[[2]int64{int64(k.log), k.local}] = out[i]
+		}
+		var (
+			lg                  int32
+			lc                  int64
+			seq                 int32
+			step, name, unit, v string
+			val, low, high      *float64
+		)
+		if _, err := pgx.ForEachRow(mrows, []any{&lg, &lc, &seq, &step, &name, &unit, &val, &low, &high, &v}, func() error {
+			if e := byKey[[2]int64{int64(lg), lc}]; e != nil {
+				e.Measurements = append(e.Measurements, sequences.Measurement{Step: step, Name: name, Unit: unit,
+					Value: orNaN(val), Low: orNaN(low), High: orNaN(high), Verdict: sequences.Verdict(v)})
+			}
+			return nil
+		}); err != nil {
+			fail(err)
+			return
+		}
+		for _, e := range out {
+			if !yield(e, nil) {
+				return
+			}
+		}
+	}
 }

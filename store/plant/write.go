@@ -114,26 +114,31 @@ func (db *DB) Put(ctx context.Context, b *Batch) (Result, error) {
 	if err := db.ensureMonths(ctx, b.Runs); err != nil {
 		return Result{}, fmt.Errorf("put batch of %s: %w", b.Station, err)
 	}
-	var res Result
+	var (
+		res Result
+		x   *ids
+	)
 	err := pgx.BeginFunc(ctx, db.pool, func(tx pgx.Tx) error {
 		var err error
-		res, err = db.put(ctx, tx, b, false)
+		res, x, err = db.put(ctx, tx, b, false)
 		return err
 	})
 	if err == nil || !rowError(err) {
 		if err != nil {
 			return Result{}, fmt.Errorf("put batch of %s: %w", b.Station, err)
 		}
+		db.remember(x.resolved)
 		return res, nil
 	}
 	err = pgx.BeginFunc(ctx, db.pool, func(tx pgx.Tx) error {
 		var err error
-		res, err = db.put(ctx, tx, b, true)
+		res, x, err = db.put(ctx, tx, b, true)
 		return err
 	})
 	if err != nil {
 		return Result{}, fmt.Errorf("put batch of %s: %w", b.Station, err)
 	}
+	db.remember(x.resolved)
 	return res, nil
 }
 
@@ -147,12 +152,19 @@ type ids struct {
 	quantities   map[[3]string]int32
 	now          int64
 	offset       int64
+	resolved     map[string]int32 // to remember once the batch commits
 }
 
-func (db *DB) put(ctx context.Context, tx pgx.Tx, b *Batch, oneByOne bool) (Result, error) {
-	var res Result
+// put stores b in tx and returns what it did and the ids it resolved.
+func (db *DB) put(ctx context.Context, tx pgx.Tx, b *Batch, oneByOne bool) (Result, *ids, error) {
 	x := &ids{stations: map[string]int32{}, variants: map[string]int32{}, fixtures: map[string]int32{},
-		configs: map[[2]string]int32{}, quantities: map[[3]string]int32{}}
+		configs: map[[2]string]int32{}, quantities: map[[3]string]int32{}, resolved: map[string]int32{}}
+	res, err := db.putIn(ctx, tx, b, oneByOne, x)
+	return res, x, err
+}
+
+func (db *DB) putIn(ctx context.Context, tx pgx.Tx, b *Batch, oneByOne bool, x *ids) (Result, error) {
+	var res Result
 	if err := tx.QueryRow(ctx, `SELECT (extract(epoch FROM clock_timestamp()) * 1e9)::bigint`).Scan(&x.now); err != nil {
 		return res, err
 	}
@@ -259,10 +271,25 @@ func (db *DB) resolve(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
 	if measured := x.now - b.Sent.UnixNano(); time.Duration(abs(measured-offset)) > offsetHysteresis {
 		x.offset = measured
 	}
-	names := func(table string, m map[string]int32, want []string) error {
+	names := func(table string, m map[string]int32, all []string) error {
+		var want []string
+		for _, n := range all {
+			if id, ok := db.cached(table + "\x00" + n); ok {
+				m[n] = id
+			} else {
+				want = append(want, n)
+			}
+		}
 		if len(want) == 0 {
 			return nil
 		}
+		defer func() {
+			for _, n := range want {
+				if id, ok := m[n]; ok {
+					x.resolved[table+"\x00"+n] = id
+				}
+			}
+		}()
 		if table != "stations" {
 			if _, err := tx.Exec(ctx, `INSERT INTO `+table+` (name) SELECT unnest($1::text[]) ON CONFLICT DO NOTHING`, want); err != nil {
 				return fmt.Errorf("%s: %w", table, err)
@@ -334,11 +361,24 @@ func (db *DB) resolve(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
 			return fmt.Errorf("config %s %s: %w", c.Variant, c.Hash, err)
 		}
 	}
+	for k := range cf {
+		if id, ok := db.cached("configs\x00" + k[0] + "\x00" + k[1]); ok {
+			x.configs[k] = id
+			delete(cf, k)
+		}
+	}
 	if len(cf) > 0 {
 		var vs, hs []string
 		for k := range cf {
 			vs, hs = append(vs, k[0]), append(hs, k[1])
 		}
+		defer func() {
+			for k := range cf {
+				if id, ok := x.configs[k]; ok {
+					x.resolved["configs\x00"+k[0]+"\x00"+k[1]] = id
+				}
+			}
+		}()
 		rows, err := tx.Query(ctx, `SELECT c.id, v.name, c.hash FROM configs c JOIN variants v ON v.id = c.variant_id
 			JOIN unnest($1::text[], $2::text[]) AS u(v, h) ON u.v = v.name AND u.h = c.hash`, vs, hs)
 		if err != nil {
@@ -350,7 +390,20 @@ func (db *DB) resolve(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
 			return fmt.Errorf("configs: %w", err)
 		}
 	}
+	for k := range qs {
+		if id, ok := db.cached("quantities\x00" + k[0] + "\x00" + k[1] + "\x00" + k[2]); ok {
+			x.quantities[k] = id
+			delete(qs, k)
+		}
+	}
 	if len(qs) > 0 {
+		defer func() {
+			for k := range qs {
+				if id, ok := x.quantities[k]; ok {
+					x.resolved["quantities\x00"+k[0]+"\x00"+k[1]+"\x00"+k[2]] = id
+				}
+			}
+		}()
 		var a, bb, c []string
 		for k := range qs {
 			a, bb, c = append(a, k[0]), append(bb, k[1]), append(c, k[2])
@@ -565,17 +618,23 @@ func (db *DB) putTrust(ctx context.Context, tx pgx.Tx, b *Batch, checks []store.
 	return landed, dup, nil
 }
 
-// putRelays stores the station's latest relay counts.
+// putRelays stores the station's latest relay counts in one statement.
 func (db *DB) putRelays(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
-	for _, r := range b.Relays {
+	if len(b.Relays) == 0 {
+		return nil
+	}
+	fix, rung, count := make([]int32, len(b.Relays)), make([]int32, len(b.Relays)), make([]int64, len(b.Relays))
+	for i, r := range b.Relays {
 		if r.Count > math.MaxInt64 {
 			return fmt.Errorf("relay count of %s rung %d too large", r.Fixture, r.Rung)
 		}
-		if _, err := tx.Exec(ctx, `INSERT INTO relay_wear (station_id, fixture_id, rung, count, updated) VALUES ($1, $2, $3, $4, $5)
-			ON CONFLICT (station_id, fixture_id, rung) DO UPDATE SET count = EXCLUDED.count, updated = EXCLUDED.updated`,
-			x.station, x.fixtures[r.Fixture], r.Rung, int64(r.Count), x.now); err != nil {
-			return fmt.Errorf("relay wear of %s rung %d: %w", r.Fixture, r.Rung, err)
-		}
+		fix[i], rung[i], count[i] = x.fixtures[r.Fixture], int32(r.Rung), int64(r.Count)
+	}
+	if _, err := tx.Exec(ctx, `INSERT INTO relay_wear (station_id, fixture_id, rung, count, updated)
+		SELECT $1, f, r, c, $2 FROM unnest($3::int[], $4::int[], $5::bigint[]) AS u(f, r, c)
+		ON CONFLICT (station_id, fixture_id, rung) DO UPDATE SET count = EXCLUDED.count, updated = EXCLUDED.updated`,
+		x.station, x.now, fix, rung, count); err != nil {
+		return fmt.Errorf("relay wear: %w", err)
 	}
 	return nil
 }
