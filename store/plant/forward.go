@@ -43,7 +43,12 @@ type Forwarder struct {
 	configs map[[2]string]bool // configurations the plant store has
 	pre     *prefetch          // the next batch's runs, read while this one is sent
 	relays  []store.RelayCount // the relay counts the plant store has
+	// relaysRead is when the relay counts were last read from the log.
+	relaysRead time.Time
 }
+
+// relayEvery is how often the forwarder reads the relay counts.
+const relayEvery = 10 * time.Second
 
 // prefetch reads the runs after an id in the background.
 type prefetch struct {
@@ -190,20 +195,31 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 			pre.runs, pre.err = f.Log.PendingRuns(context.WithoutCancel(ctx), pre.after, size)
 		}()
 	}
-	checks, err := f.Log.PendingChecks(ctx, st.CheckCursor, 100)
-	if err != nil {
-		return 0, err
+	var (
+		checks  []store.StationCheck
+		studies []store.Study
+	)
+	if st.BacklogChecks > 0 {
+		if checks, err = f.Log.PendingChecks(ctx, st.CheckCursor, 100); err != nil {
+			return 0, err
+		}
 	}
-	studies, err := f.Log.PendingStudies(ctx, st.StudyCursor, 100)
-	if err != nil {
-		return 0, err
+	if st.BacklogStudies > 0 {
+		if studies, err = f.Log.PendingStudies(ctx, st.StudyCursor, 100); err != nil {
+			return 0, err
+		}
 	}
 	if len(runs)+len(checks)+len(studies) == 0 && !st.LastTime.IsZero() && f.now().Sub(st.LastTime) < Heartbeat {
 		return 0, nil
 	}
-	relays, err := f.Log.RelayCounts(ctx)
-	if err != nil {
-		return 0, err
+	// Relay counts change with every unit; the board needs them to the
+	// minute, not to the unit.
+	relays := f.relays
+	if f.relaysRead.IsZero() || f.now().Sub(f.relaysRead) >= relayEvery {
+		if relays, err = f.Log.RelayCounts(ctx); err != nil {
+			return 0, err
+		}
+		f.relaysRead = f.now()
 	}
 	b := &Batch{Log: st.LogUUID, Station: f.Station, Runs: runs, Checks: checks, Studies: studies,
 		Backlog: st.BacklogRuns - int64(len(runs)), Profile: f.Profile}

@@ -487,31 +487,21 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 		at[i] = finished[i] + x.offset
 		trip[i] = nullF(r.TripPF)
 	}
-	// COPY into a temporary table, then one INSERT … ON CONFLICT DO
-	// NOTHING, which applies the row-level policies and skips runs the
-	// plant already has.
-	if _, err := tx.Exec(ctx, `CREATE TEMP TABLE IF NOT EXISTS runs_in (
-		local_id bigint, station_id int, serial text, variant_id int, config_id int, fixture_id int,
-		operator text, lot text, software text, started bigint, finished bigint, at bigint,
-		verdict text, fail_code text, trip_pf float8) ON COMMIT DELETE ROWS`); err != nil {
-		return 0, 0, err
+	var rows pgx.Rows
+
+	if n <= smallBatch {
+		rows, err = tx.Query(ctx, `INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
+			operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf)
+			SELECT $1, u.local, u.station, u.serial, u.variant, u.cfg, u.fix, u.op, u.lot, u.sw, u.started, u.finished, u.at,
+				$2, u.verdict, u.code, u.trip
+			FROM unnest($3::bigint[], $4::int[], $5::text[], $6::int[], $7::int[], $8::int[], $9::text[], $10::text[],
+				$11::text[], $12::bigint[], $13::bigint[], $14::bigint[], $15::text[], $16::text[], $17::float8[])
+				AS u(local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip)
+			ON CONFLICT DO NOTHING RETURNING local_id`,
+			x.log, x.now, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip)
+	} else {
+		rows, err = db.copyRuns(ctx, tx, x, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip)
 	}
-	in := make([][]any, n)
-	for i := range n {
-		in[i] = []any{local[i], station[i], serial[i], variant[i], cfg[i], fix[i], op[i], lot[i], sw[i],
-			started[i], finished[i], at[i], verdict[i], code[i], trip[i]}
-	}
-	if _, err := tx.CopyFrom(ctx, pgx.Identifier{"runs_in"}, []string{"local_id", "station_id", "serial", "variant_id",
-		"config_id", "fixture_id", "operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf"},
-		pgx.CopyFromRows(in)); err != nil {
-		return 0, 0, err
-	}
-	rows, err := tx.Query(ctx, `WITH ins AS (INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf)
-		SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-			started, finished, at, $2, verdict, fail_code, trip_pf FROM runs_in
-		ON CONFLICT DO NOTHING RETURNING local_id)
-		SELECT local_id FROM ins`, x.log, x.now)
 	if err != nil {
 		return 0, 0, err
 	}
@@ -520,8 +510,10 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 	if _, err := pgx.ForEachRow(rows, []any{&id}, func() error { fresh = append(fresh, id); return nil }); err != nil {
 		return 0, 0, err
 	}
-	if _, err := tx.Exec(ctx, `TRUNCATE runs_in`); err != nil {
-		return 0, 0, err
+	if n > smallBatch {
+		if _, err := tx.Exec(ctx, `TRUNCATE runs_in`); err != nil {
+			return 0, 0, err
+		}
 	}
 	var (
 		fSerial     []string
@@ -561,7 +553,13 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 			mVerdict = append(mVerdict, string(m.Verdict))
 		}
 	}
-	if len(mLocal) > 0 {
+	if len(mLocal) > 0 && len(mLocal) <= 4*smallBatch {
+		if _, err := tx.Exec(ctx, `INSERT INTO measurements (log_id, local_id, finished, seq, station_id, quantity_id, value, low, high, verdict)
+			SELECT $1, * FROM unnest($2::bigint[], $3::bigint[], $4::int[], $5::int[], $6::int[], $7::float8[], $8::float8[], $9::float8[], $10::text[])`,
+			x.log, mLocal, mFin, mSeq, mStation, mQty, mVal, mLow, mHigh, mVerdict); err != nil {
+			return 0, 0, err
+		}
+	} else if len(mLocal) > 0 {
 		// COPY into a temporary table, then one INSERT: COPY is the fast
 		// way in, and the INSERT applies the row-level policies, which
 		// COPY into the table itself does not support. The runs are new in
@@ -637,4 +635,40 @@ func (db *DB) putRelays(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error 
 		return fmt.Errorf("relay wear: %w", err)
 	}
 	return nil
+}
+
+// smallBatch is the most rows written with one INSERT from arrays; larger
+// batches go through COPY into a temporary table, which is faster per row
+// but costs more round trips.
+const smallBatch = 64
+
+// copyRuns inserts many runs through COPY into a temporary table and one
+// INSERT … ON CONFLICT DO NOTHING (which applies the row-level policies and
+// skips runs the plant already has); it returns the new runs' local ids.
+func (db *DB) copyRuns(ctx context.Context, tx pgx.Tx, x *ids, local []int64, station []*int32, serial []string,
+	variant, cfg, fix []*int32, op, lot, sw []string, started []*int64, finished, at []int64,
+	verdict, code []string, trip []*float64) (pgx.Rows, error) {
+	n := len(local)
+	if _, err := tx.Exec(ctx, `CREATE TEMP TABLE IF NOT EXISTS runs_in (
+		local_id bigint, station_id int, serial text, variant_id int, config_id int, fixture_id int,
+		operator text, lot text, software text, started bigint, finished bigint, at bigint,
+		verdict text, fail_code text, trip_pf float8) ON COMMIT DELETE ROWS`); err != nil {
+		return nil, err
+	}
+	in := make([][]any, n)
+	for i := range n {
+		in[i] = []any{local[i], station[i], serial[i], variant[i], cfg[i], fix[i], op[i], lot[i], sw[i],
+			started[i], finished[i], at[i], verdict[i], code[i], trip[i]}
+	}
+	if _, err := tx.CopyFrom(ctx, pgx.Identifier{"runs_in"}, []string{"local_id", "station_id", "serial", "variant_id",
+		"config_id", "fixture_id", "operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf"},
+		pgx.CopyFromRows(in)); err != nil {
+		return nil, err
+	}
+	return tx.Query(ctx, `WITH ins AS (INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
+		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf)
+		SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
+			started, finished, at, $2, verdict, fail_code, trip_pf FROM runs_in
+		ON CONFLICT DO NOTHING RETURNING local_id)
+		SELECT local_id FROM ins`, x.log, x.now)
 }
