@@ -279,12 +279,12 @@ func (db *DB) names(ctx context.Context, table, col string) (map[int32]string, e
 // counts look at each serial's first unit verdict anywhere in the plant.
 func (db *DB) Counts(ctx context.Context, f store.Filter) (store.Counts, error) {
 	cond, args := where(f)
-	q := `SELECT count(*), count(*) FILTER (WHERE r.verdict = 'pass'), count(*) FILTER (WHERE r.verdict = 'fail'),
-       count(*) FILTER (WHERE r.verdict = 'station-fault'),
-       count(*) FILTER (WHERE f.log_id = r.log_id AND f.local_id = r.local_id),
-       count(*) FILTER (WHERE f.log_id = r.log_id AND f.local_id = r.local_id AND r.verdict = 'pass')
-FROM runs r LEFT JOIN serial_first f ON f.serial = r.serial
-WHERE ` + cond
+	// First-pass counts come from serial_first, which holds each serial's
+	// first run with the columns the filter reads (the same names as runs).
+	q := `SELECT a.*, b.* FROM
+  (SELECT count(*), count(*) FILTER (WHERE r.verdict = 'pass'), count(*) FILTER (WHERE r.verdict = 'fail'),
+          count(*) FILTER (WHERE r.verdict = 'station-fault') FROM runs r WHERE ` + cond + `) a,
+  (SELECT count(*), count(*) FILTER (WHERE r.verdict = 'pass') FROM serial_first r WHERE ` + cond + `) b`
 	var c store.Counts
 	if err := db.pool.QueryRow(ctx, q, args...).Scan(&c.Runs, &c.Pass, &c.Fail, &c.StationFault, &c.FirstUnits, &c.FirstPass); err != nil {
 		return store.Counts{}, fmt.Errorf("plant counts: %w", err)

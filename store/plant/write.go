@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"time"
 
 	"github.com/jackc/pgx/v5"
@@ -516,17 +517,27 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 		}
 	}
 	var (
-		fSerial     []string
-		fAt, fLocal []int64
-		fLog        []int32
+		fSerial, fLot, fSite, fVerdict []string
+		fAt, fLocal                    []int64
+		fLog, fSt, fVa, fFx            []int32
 	)
-	for _, id := range fresh {
-		if r := byID[id]; r.Verdict != sequences.StationFault {
-			fSerial, fAt, fLog, fLocal = append(fSerial, r.Serial), append(fAt, r.Finished.UnixNano()+x.offset), append(fLog, x.log), append(fLocal, id)
+	deref := func(p *int32) int32 {
+		if p == nil {
+			return 0
 		}
+		return *p
+	}
+	for i, r := range runs {
+		if !slices.Contains(fresh, r.ID) || r.Verdict == sequences.StationFault {
+			continue
+		}
+		fSerial, fAt, fLog, fLocal = append(fSerial, r.Serial), append(fAt, at[i]), append(fLog, x.log), append(fLocal, r.ID)
+		fSt, fVa, fFx = append(fSt, deref(station[i])), append(fVa, deref(variant[i])), append(fFx, deref(fix[i]))
+		fLot, fSite, fVerdict = append(fLot, r.Lot), append(fSite, ""), append(fVerdict, string(r.Verdict))
 	}
 	if len(fSerial) > 0 {
-		if _, err := tx.Exec(ctx, `SELECT plant_note_first($1, $2, $3, $4)`, fSerial, fAt, fLog, fLocal); err != nil {
+		if _, err := tx.Exec(ctx, `SELECT plant_note_first($1, $2, $3, $4, $5, $6, $7, $8, $9, $10)`,
+			fSerial, fAt, fLog, fLocal, fSt, fVa, fFx, fLot, fSite, fVerdict); err != nil {
 			return 0, 0, err
 		}
 	}
