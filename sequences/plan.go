@@ -67,11 +67,26 @@ type PlanConfig struct {
 	Limits Limits
 }
 
+// Step names: every run's measurements carry one, and a StepObserver is
+// told each as it finishes.
+const (
+	StepPowerUp    = "power_up"
+	StepClock      = "clock"
+	StepIdle       = "idle"
+	StepRelease    = "release"
+	StepTripSearch = "trip_search"
+	StepPowerDown  = "power_down"
+	// StepRetest is the pseudo-step of the measurement that flags a pass
+	// after fails (MeasPriorFails).
+	StepRetest = "retest"
+)
+
 // Plan is the ordered steps run on every unit of a variant.
 type Plan struct {
 	cfg       PlanConfig
 	levels    []Level
 	steps     []Step
+	names     []string
 	powerDown Step
 }
 
@@ -101,15 +116,16 @@ func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	p := &Plan{cfg: cfg, levels: levels}
 	add := func(name string, s Step) {
 		p.steps = append(p.steps, Wrap(s, Named(name), Timeout(cfg.StepTimeout)))
+		p.names = append(p.names, name)
 	}
-	add("power_up", StepFunc(p.powerUp))
+	add(StepPowerUp, StepFunc(p.powerUp))
 	if cfg.ClockPeriods > 0 {
-		add("clock", StepFunc(p.clock))
+		add(StepClock, StepFunc(p.clock))
 	}
-	add("idle", StepFunc(p.idle))
-	add("release", StepFunc(p.release))
-	add("trip_search", StepFunc(p.tripSearch))
-	p.powerDown = Wrap(StepFunc(powerDown), Named("power_down"), Timeout(cfg.StepTimeout))
+	add(StepIdle, StepFunc(p.idle))
+	add(StepRelease, StepFunc(p.release))
+	add(StepTripSearch, StepFunc(p.tripSearch))
+	p.powerDown = Wrap(StepFunc(powerDown), Named(StepPowerDown), Timeout(cfg.StepTimeout))
 	return p, nil
 }
 
@@ -121,6 +137,25 @@ func (p *Plan) Levels() []Level { return p.levels }
 // every rung open on every path: a step's error, a panic (re-raised after
 // halting) or the context ending (ErrAborted; run gets no verdict).
 func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t *Trial, err error) {
+	return p.ExecuteObserved(ctx, st, clk, run, nil)
+}
+
+// StepDone is one finished step as an observer sees it: its name, the
+// measurements it added, its fixture time and its error (nil when it passed).
+type StepDone struct {
+	Step         string
+	Measurements []Measurement
+	FixtureTime  time.Duration
+	Err          error
+}
+
+// StepObserver is told about every step as it finishes, power-down
+// included. It runs on the unit's goroutine: it must return quickly.
+type StepObserver func(StepDone)
+
+// ExecuteObserved is Execute with obs (when not nil) told about every
+// finished step.
+func (p *Plan) ExecuteObserved(ctx context.Context, st Station, clk Clock, run *Run, obs StepObserver) (t *Trial, err error) {
 	t = &Trial{ctx: ctx, st: st, clock: clk, run: run, period: p.cfg.Period, Phases: map[string]time.Duration{}}
 	defer func() {
 		if r := recover(); r != nil {
@@ -130,8 +165,17 @@ func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t 
 	}()
 	run.Started = clk.Now()
 	var stepErr error
+	observe := func(name string, s Step) error {
+		n0, t0 := len(run.Measurements), clk.Now()
+		err := s.Do(t.ctx, t)
+		if obs != nil {
+			obs(StepDone{Step: name, Measurements: run.Measurements[n0:len(run.Measurements):len(run.Measurements)],
+				FixtureTime: clk.Now().Sub(t0), Err: err})
+		}
+		return err
+	}
 	for i, s := range p.steps {
-		if stepErr = s.Do(ctx, t); stepErr != nil {
+		if stepErr = observe(p.names[i], s); stepErr != nil {
 			break
 		}
 		// The lid must stay closed the whole test: opening it mid-test
@@ -144,7 +188,7 @@ func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t 
 	// Power down even after a failure; it may not be cut short by the
 	// caller's context, only by its own budget.
 	t.ctx = context.WithoutCancel(ctx)
-	downErr := p.powerDown.Do(t.ctx, t)
+	downErr := observe(StepPowerDown, p.powerDown)
 	t.ctx = ctx
 	run.Finished = clk.Now()
 
@@ -192,7 +236,7 @@ func (t *Trial) timed(phase string, fn func() error) error {
 }
 
 func (p *Plan) powerUp(ctx context.Context, t *Trial) error {
-	return t.timed("power_up", func() error {
+	return t.timed(StepPowerUp, func() error {
 		closed, err := t.LidClosed()
 		if err != nil {
 			return err
@@ -211,7 +255,7 @@ func (p *Plan) powerUp(ctx context.Context, t *Trial) error {
 }
 
 func (p *Plan) clock(ctx context.Context, t *Trial) error {
-	return t.timed("clock", func() error {
+	return t.timed(StepClock, func() error {
 		hz, err := t.MeasureClock(p.cfg.ClockPeriods)
 		if err != nil {
 			if errors.Is(err, fixture.ErrNoClockEdges) {
@@ -231,7 +275,7 @@ func (p *Plan) clock(ctx context.Context, t *Trial) error {
 }
 
 func (p *Plan) idle(ctx context.Context, t *Trial) error {
-	return t.timed("idle", func() error {
+	return t.timed(StepIdle, func() error {
 		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
 			return err
 		}
@@ -311,7 +355,7 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 // read 0 again for ReleasePeriods periods. A unit that does not latch at the
 // touch level is left for the trip search to judge.
 func (p *Plan) release(ctx context.Context, t *Trial) error {
-	return t.timed("release", func() error {
+	return t.timed(StepRelease, func() error {
 		touch := len(p.levels) - 1
 		for i, l := range p.levels {
 			if l.PF >= p.cfg.Limits.TripHighPF {
@@ -342,7 +386,7 @@ func (p *Plan) release(ctx context.Context, t *Trial) error {
 }
 
 func powerDown(ctx context.Context, t *Trial) error {
-	return t.timed("power_down", func() error {
+	return t.timed(StepPowerDown, func() error {
 		return errors.Join(t.SetPattern(0), t.Power(false))
 	})
 }

@@ -56,6 +56,9 @@ type Session struct {
 	// clock still measures its duration): a simulated station runs on
 	// virtual time, but its shift log must say when the test happened.
 	WallClock func() time.Time
+	// OnStep, when set, is told about every step of every unit as it
+	// finishes (see StepObserver).
+	OnStep StepObserver
 }
 
 // Outcome is one tested unit: its committed run, its id in the shift log and
@@ -97,7 +100,7 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 	run := s.Template
 	run.Serial = serial
 	run.Measurements = nil
-	trial, runErr := s.Plan.Execute(ctx, s.Station, s.Clock, &run)
+	trial, runErr := s.Plan.ExecuteObserved(ctx, s.Station, s.Clock, &run, s.OnStep)
 	if errors.Is(runErr, ErrAborted) {
 		return nil, runErr
 	}

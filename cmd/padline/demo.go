@@ -20,6 +20,7 @@ import (
 
 	"padline/fixture/sim"
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/timing"
 	"padline/store"
 )
@@ -116,19 +117,19 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 	if err := o.drift.check(o.units); err != nil {
 		return err
 	}
-	v, err := loadVariant(o.variant)
+	v, err := session.LoadVariant(o.variant)
 	if err != nil {
 		return err
 	}
-	st, err := loadStation(o.station)
+	st, err := session.LoadStation(o.station)
 	if err != nil {
 		return err
 	}
-	if st.Driver != "sim" {
+	if st.Driver != session.DriverSim {
 		return fmt.Errorf("demo: station %s has driver %q; the demo needs driver: sim", st.Source.Name, st.Driver)
 	}
 	st.Sim.Seed = o.seed
-	u, _ := stationU(st)
+	u, _ := session.StatedUncertainty(st)
 	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
 	if err != nil {
 		return err
@@ -194,7 +195,7 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 	if err != nil {
 		return err
 	}
-	line, err := newSimLine(st, v)
+	line, err := session.NewSimLine(st, v)
 	if err != nil {
 		return err
 	}
@@ -211,13 +212,13 @@ func (discard) Record(context.Context, *sequences.Run) (int64, error) { return 0
 // demoSerial is serial number i (from 1) of the variant's simulated units:
 // the variant name without dashes, a dash and six digits (QM-205, 1 →
 // QM205-000001).
-func demoSerial(v *Variant, i int) string {
+func demoSerial(v *session.Variant, i int) string {
 	return fmt.Sprintf("%s-%06d", strings.ReplaceAll(v.Name, "-", ""), i)
 }
 
 // demoSerials makes the shift's serials (see demoSerial) and checks them
 // against the variant's own pattern.
-func demoSerials(v *Variant, n int) ([]string, error) {
+func demoSerials(v *session.Variant, n int) ([]string, error) {
 	out := make([]string, n)
 	for i := range out {
 		out[i] = demoSerial(v, i+1)
@@ -230,28 +231,17 @@ func demoSerials(v *Variant, n int) ([]string, error) {
 }
 
 // demoShift tests every serial on a fresh simulated line.
-func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing.Report, hash, strategy string,
+func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Station, rep timing.Report, hash, strategy string,
 	serials []string, rec sequences.Recorder, quiet bool, dr demoDrift) ([]demoUnit, error) {
-	line, err := newSimLine(st, v)
+	u, uFrom := session.StatedUncertainty(st)
+	r, err := session.NewRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: strategy})
 	if err != nil {
 		return nil, err
 	}
-	fx, err := newFixture(st, line.Pins(), line.Clock())
-	if err != nil {
-		return nil, err
-	}
-	defer fx.Halt()
-	cfg, err := planConfig(v, rep, st.Pins.Clock != "", strategy)
-	if err != nil {
-		return nil, err
-	}
-	lv := fx.Ladder().Distinct()
-	plan, err := sequences.NewPlan(cfg, lv)
-	if err != nil {
-		return nil, err
-	}
+	defer r.Halt()
+	line, fx, lv := r.Line, r.Fixture, r.Plan.Levels()
 	sess := &sequences.Session{
-		Plan: plan, Station: fx, Clock: line.Clock(), Recorder: rec, WallClock: time.Now,
+		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: time.Now,
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
 			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: softwareVersion(),
@@ -261,7 +251,7 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 	bisect := math.Ceil(math.Log2(float64(len(lv))))
 	prog := newProgress(a.stderr, len(serials), "testing ("+strategy+")", quiet)
 	out := make([]demoUnit, 0, len(serials))
-	base := unitModel(v, st.Sim)
+	base := session.UnitModel(v, st.Sim)
 	for i, serial := range serials {
 		if err := dr.apply(line, base, i+1); err != nil {
 			prog.done()
@@ -449,7 +439,7 @@ type demoSummary struct {
 	Drift *demoDriftWatch `json:"drift,omitempty"`
 }
 
-func demoSummaryJSON(v *Variant, st *Station, rep timing.Report, strategies []string, results [][]demoUnit, cpu, wall []time.Duration) demoSummary {
+func demoSummaryJSON(v *session.Variant, st *session.Station, rep timing.Report, strategies []string, results [][]demoUnit, cpu, wall []time.Duration) demoSummary {
 	s := demoSummary{Summary: true, Variant: v.Name, Station: st.Name,
 		TestLimitsPF: [2]float64{rep.TestLimits.Low, rep.TestLimits.High},
 		NoiseMVAt5V:  st.Sim.NoiseMVAt5V, JitterNs: st.Sim.JitterNs, RungErrSDPF: st.Sim.RungErrSDPF}
@@ -459,7 +449,7 @@ func demoSummaryJSON(v *Variant, st *Station, rep timing.Report, strategies []st
 	return s
 }
 
-func writeDemoSummary(w io.Writer, v *Variant, st *Station, rep timing.Report, dbPath string, keep bool,
+func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep timing.Report, dbPath string, keep bool,
 	strategies []string, results [][]demoUnit, cpu, wall []time.Duration, trueStray float64) {
 	var ss []demoStats
 	for i, us := range results {

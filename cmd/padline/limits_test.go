@@ -7,6 +7,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"padline/sequences/session"
 )
 
 // runCLI runs padline in-process and returns its exit status and output.
@@ -43,8 +45,8 @@ func TestLimitsJSON(t *testing.T) {
 					t.Errorf("%s missing or not a number: %v", path, cur)
 				}
 			}
-			if got["guard_band_pf"] != defaultUncertaintyPF {
-				t.Errorf("guard band %v, want default %v", got["guard_band_pf"], defaultUncertaintyPF)
+			if got["guard_band_pf"] != session.DefaultUncertaintyPF {
+				t.Errorf("guard band %v, want default %v", got["guard_band_pf"], session.DefaultUncertaintyPF)
 			}
 		})
 	}

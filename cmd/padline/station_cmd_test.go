@@ -16,6 +16,7 @@ import (
 
 	"padline/fixture"
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/store"
 )
 
@@ -68,7 +69,7 @@ func TestStationGate(t *testing.T) {
 
 	// No check yet: refused, with what to do.
 	out, errs, code := runUnits("demo-sim", "QM205-000001")
-	if code != exitStationRefused || !strings.Contains(out, "STATION REFUSED") ||
+	if code != exitStationRefused || !strings.Contains(out, "STATION LOCKED") ||
 		!strings.Contains(errs, "run 'padline station check --variant QM-205 --station demo-sim --db "+db+"'") {
 		t.Fatalf("run without a check: exit %d\n%s\n%s", code, out, errs)
 	}
@@ -101,7 +102,7 @@ func TestStationGate(t *testing.T) {
 	}
 
 	// Age and unit count, through the gate itself.
-	st, err := loadStation("demo-sim")
+	st, err := session.LoadStation("demo-sim")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -110,17 +111,17 @@ func TestStationGate(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer s.Close()
-	if err := stationReady(ctx, s, st, time.Now()); err != nil {
+	if err := session.Ready(ctx, s, st, time.Now()); err != nil {
 		t.Fatalf("gate after a passing check: %v", err)
 	}
-	if err := stationReady(ctx, s, st, time.Now().Add(8*time.Hour+time.Minute)); !errors.Is(err, errNotReady) || !strings.Contains(err.Error(), "older than 8 h") {
+	if err := session.Ready(ctx, s, st, time.Now().Add(8*time.Hour+time.Minute)); !errors.Is(err, session.ErrNotReady) || !strings.Contains(err.Error(), "older than 8 h") {
 		t.Errorf("gate 8 h 1 min after the check: %v", err)
 	}
 	st.Trust.CheckEveryUnits = 2
 	if _, errs, code := runUnits("demo-sim", "QM205-000004", "QM205-000005"); code != 0 {
 		t.Fatalf("two units after the check: exit %d\n%s", code, errs)
 	}
-	if err := stationReady(ctx, s, st, time.Now()); !errors.Is(err, errNotReady) || !strings.Contains(err.Error(), "2 units tested since") {
+	if err := session.Ready(ctx, s, st, time.Now()); !errors.Is(err, session.ErrNotReady) || !strings.Contains(err.Error(), "2 units tested since") {
 		t.Errorf("gate after 2 of every 2 units: %v", err)
 	}
 }
@@ -215,14 +216,14 @@ const driftPF = 0.5
 
 // simCheck runs the station check in-process on station; drift ≥ 0
 // enters that rung driftPF below its true value.
-func simCheck(t testing.TB, ctx context.Context, station string, drift int) checkReport {
+func simCheck(t testing.TB, ctx context.Context, station string, drift int) session.CheckReport {
 	t.Helper()
 	r, err := (&app{}).openRig(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), true)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer r.close(ctx)
-	cfg := r.checkConfig()
+	cfg := r.CheckConfig()
 	fx := r.fx
 	if drift >= 0 {
 		cfg.RungsPF = append([]float64(nil), cfg.RungsPF...)
@@ -231,11 +232,11 @@ func simCheck(t testing.TB, ctx context.Context, station string, drift int) chec
 		if err != nil {
 			t.Fatal(err)
 		}
-		if fx, err = fixture.New(r.line.Pins(), lad, fixture.Config{Operate: r.st.Ladder.Operate, Bounce: r.st.Ladder.Bounce, LatchDelay: latchDelay}, r.clk); err != nil {
+		if fx, err = fixture.New(r.line.Pins(), lad, fixture.Config{Operate: r.st.Ladder.Operate, Bounce: r.st.Ladder.Bounce, LatchDelay: session.LatchDelay}, r.clk); err != nil {
 			t.Fatal(err)
 		}
 	}
-	var rep checkReport
+	var rep session.CheckReport
 	var total time.Duration
 	for _, ref := range r.st.Trust.References {
 		if err := r.load(ctx, ref.Serial, ref.SimDefects, ref.Serial); err != nil {
@@ -278,9 +279,9 @@ func TestStationCheckHealthy1000(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		cfg := r.checkConfig()
+		cfg := r.CheckConfig()
 		refs := r.st.Trust.References
-		measure := func(ref StationRef) sequences.RefCheck {
+		measure := func(ref session.StationRef) sequences.RefCheck {
 			if err := r.load(ctx, ref.Serial, ref.SimDefects, ref.Serial); err != nil {
 				t.Fatal(err)
 			}

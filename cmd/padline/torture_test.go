@@ -35,6 +35,7 @@ import (
 
 	"padline/fixture/sim"
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/timing"
 	"padline/store"
 )
@@ -319,11 +320,11 @@ func serialRange(from, n int) []string {
 // each of the clock, idle and release steps: a unit then takes a few
 // milliseconds of CPU instead of a fraction of one, so a signal sent just
 // after a verdict line lands inside the next unit's plan. 1500 periods stay
-// inside the 5 s step budget (station_setup.go planConfig) down to 300 Hz;
+// inside the 5 s step budget (station_setup.go session.PlanConfig) down to 300 Hz;
 // the slowest QM-205 clock corner is ≈ 400 Hz ('padline limits --variant QM-205').
 func slowVariant(t *testing.T) string {
 	t.Helper()
-	v, err := loadVariant("QM-205")
+	v, err := session.LoadVariant("QM-205")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -499,7 +500,7 @@ func TestCrashTorture(t *testing.T) {
 		// The process works through its input in order.
 		for i, s := range p.got {
 			serial := remaining[i]
-			if rest, ok := strings.CutPrefix(s, "REFUSED  "); ok {
+			if rest, ok := strings.CutPrefix(s, "NOT TESTED  "); ok {
 				// The retest limit: the serial was logged (and not
 				// shown) by enough killed processes already.
 				refused[serial] = rest
@@ -637,20 +638,20 @@ var errStepPanic = errors.New("torture: a step panicked")
 // and every rung pin must be low, every contact open once the relays had
 // their operate + bounce time, and nothing of the unit logged.
 func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
-	v, err := loadVariant("QM-205")
+	v, err := session.LoadVariant("QM-205")
 	if err != nil {
 		t.Fatal(err)
 	}
-	st, err := loadStation("demo-sim")
+	st, err := session.LoadStation("demo-sim")
 	if err != nil {
 		t.Fatal(err)
 	}
-	u, _ := stationU(st)
+	u, _ := session.StatedUncertainty(st)
 	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg, err := planConfig(v, rep, st.Pins.Clock != "", "")
+	cfg, err := session.PlanConfig(v, rep, st.Pins.Clock != "", "")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -687,11 +688,11 @@ func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
 			how = "panic"
 		}
 		t.Run(fmt.Sprintf("%s_after_%s_%d", how, c.op, c.n), func(t *testing.T) {
-			line, err := newSimLine(st, v)
+			line, err := session.NewSimLine(st, v)
 			if err != nil {
 				t.Fatal(err)
 			}
-			fx, err := newFixture(st, line.Pins(), line.Clock())
+			fx, err := session.NewFixture(st, line.Pins(), line.Clock())
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"fmt"
@@ -106,10 +106,10 @@ func spread(v timing.Value) sim.Spread {
 	return sim.Spread{Mean: v.Typ, SD: sd, Min: v.Min, Max: v.Max}
 }
 
-// unitModel describes the variant's units to the simulator. This is the one
+// UnitModel describes the variant's units to the simulator. This is the one
 // place the variant file and the simulator meet; the simulator computes its
 // own physics from these component values.
-func unitModel(v *Variant, s StationSim) sim.UnitModel {
+func UnitModel(v *Variant, s StationSim) sim.UnitModel {
 	c := v.Circuit
 	return sim.UnitModel{
 		SupplyV: spread(c.SupplyV), OscR: spread(c.OscROhm), OscC: spread(c.OscCF),
@@ -139,28 +139,28 @@ func fixtureModel(st *Station) sim.FixtureModel {
 	}
 }
 
-// latchDelay is how long after the unit's falling clock edge the fixture
+// LatchDelay is how long after the unit's falling clock edge the fixture
 // reads the latch: past the clock-path delay and the flip-flop's output
 // delay, with margin.
-const latchDelay = 20 * time.Microsecond
+const LatchDelay = 20 * time.Microsecond
 
-// newSimLine builds the simulated line for a station and a variant.
-func newSimLine(st *Station, v *Variant) (*sim.Line, error) {
-	line, err := sim.NewLine(fixtureModel(st), unitModel(v, st.Sim), st.Sim.Seed)
+// NewSimLine builds the simulated line for a station and a variant.
+func NewSimLine(st *Station, v *Variant) (*sim.Line, error) {
+	line, err := sim.NewLine(fixtureModel(st), UnitModel(v, st.Sim), st.Sim.Seed)
 	if err != nil {
 		return nil, fmt.Errorf("station %s: simulated line: %w", st.Source.Name, err)
 	}
 	return line, nil
 }
 
-// newFixture builds the fixture over pins with the station's ladder.
-func newFixture(st *Station, pins fixture.Pins, clk fixture.Clock) (*fixture.Fixture, error) {
+// NewFixture builds the fixture over pins with the station's ladder.
+func NewFixture(st *Station, pins fixture.Pins, clk fixture.Clock) (*fixture.Fixture, error) {
 	lad, err := fixture.NewLadder(st.Ladder.RungsPF, st.Ladder.StrayPF)
 	if err != nil {
 		return nil, fmt.Errorf("station %s: ladder: %w", st.Source.Name, err)
 	}
 	fx, err := fixture.New(pins, lad, fixture.Config{
-		Operate: st.Ladder.Operate, Bounce: st.Ladder.Bounce, LatchDelay: latchDelay,
+		Operate: st.Ladder.Operate, Bounce: st.Ladder.Bounce, LatchDelay: LatchDelay,
 	}, clk)
 	if err != nil {
 		return nil, fmt.Errorf("station %s: fixture: %w", st.Source.Name, err)
