@@ -14,7 +14,7 @@ import (
 )
 
 // Test limits for the fake QM-205 unit of newFake (trip 29.7 pF, 465 Hz,
-// 10–90 % width 0.64 pF, from testdata/variants/QM-205.yaml by DESIGN.md §4). The limits themselves are
+// 10–90 % width 0.64 pF, from testdata/variants/QM-205.yaml by DEVELOPERS.md "Physics"). The limits themselves are
 // this test's choice, inside the variant's 10–60 pF spec window
 // (testdata/variants/QM-205.yaml).
 const (

@@ -47,6 +47,12 @@ type Run struct {
 	Verdict      Verdict
 	FailCode     string
 	Measurements []Measurement
+	// Driver is the station driver that produced the run ("sim" for the
+	// simulated line, "gpio" for real pins).
+	Driver string
+	// Fault is the station fault's message on a station-fault verdict
+	// (the pin or step at fault), "" otherwise.
+	Fault string
 }
 
 // Recorder commits a finished run to durable storage. It returns only after

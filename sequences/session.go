@@ -104,6 +104,9 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 	if errors.Is(runErr, ErrAborted) {
 		return nil, runErr
 	}
+	if runErr != nil && run.Verdict == StationFault {
+		run.Fault = runErr.Error()
+	}
 	if s.WallClock != nil {
 		d := run.Finished.Sub(run.Started)
 		run.Finished = s.WallClock()

@@ -303,7 +303,7 @@ type CheckConfig struct {
 	// period without a clock pin.
 	PowerSettle, Period time.Duration
 	// CalPF is one rung's calibration standard uncertainty (default 0.05
-	// pF, the LCR meter's at these values, DESIGN.md §12). A level's offset
+	// pF, the LCR meter's at these values, DEVELOPERS.md "Simulator realism floor"). A level's offset
 	// from the reference trip is known to ±CalPF·√(rungs it does not share
 	// with the trip's level).
 	CalPF float64

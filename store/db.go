@@ -11,6 +11,7 @@ import (
 	"os"
 	"path"
 	"sort"
+	"strings"
 	"sync"
 	"time"
 
@@ -98,6 +99,11 @@ type DB struct {
 	// CheckPath can tell when the path no longer leads to it.
 	file os.FileInfo
 
+	// runColumns is true when runs has the driver and fault columns
+	// (migration 0004); a log opened at an older version for a test
+	// writes without them.
+	runColumns bool
+
 	wmu sync.Mutex // serialises this process's write transactions
 	ids idCache    // committed name → id lookups
 }
@@ -110,6 +116,20 @@ func Open(path string) (*DB, error) {
 	return open(path, -1)
 }
 
+// fileURI is path as an SQLite file: URI: '%', '?' and '#' are
+// percent-escaped, so a path that contains them names the same file SQLite
+// opens (a bare path would be cut at its first '?' and the rest read as
+// options). SQLite decodes %HH escapes in a URI path (sqlite.org, "URI
+// Filenames In SQLite", section 3.1).
+func fileURI(path string) string {
+	r := strings.NewReplacer("%", "%25", "?", "%3F", "#", "%23")
+	return "file:" + r.Replace(path)
+}
+
+// runColumnsVersion is the schema version that adds runs.driver and
+// runs.fault.
+const runColumnsVersion = 4
+
 // open opens path and migrates it to version target (-1: all migrations).
 func open(path string, target int) (*DB, error) {
 	if err := checkHeader(path); err != nil {
@@ -118,12 +138,12 @@ func open(path string, target int) (*DB, error) {
 	// Per-connection settings go in the DSN so every pooled connection gets
 	// them; WAL is persistent in the file and is set once below, after the
 	// file is known to be ours.
-	dsn := path + "?_foreign_keys=1&_synchronous=FULL&_busy_timeout=10000&_txlock=immediate"
+	dsn := fileURI(path) + "?_foreign_keys=1&_synchronous=FULL&_busy_timeout=10000&_txlock=immediate"
 	sdb, err := sql.Open("sqlite3", dsn)
 	if err != nil {
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)
 	}
-	db := &DB{sql: sdb, path: path, now: time.Now}
+	db := &DB{sql: sdb, path: path, now: time.Now, runColumns: target < 0 || target >= runColumnsVersion}
 	if err := db.prepare(context.Background(), target); err != nil {
 		sdb.Close()
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)

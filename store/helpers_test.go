@@ -42,7 +42,7 @@ const measPerRun = 6
 // t0 is the demo shift's start.
 var t0 = time.Date(2026, 11, 30, 6, 0, 0, 0, time.UTC)
 
-// demoRun is run i of a demo shift of QM-205 (Quillmoor Switchcraft,
+// demoRun is run i of a demo shift of QM-205 (Quillmoor Padworks,
 // fictional): six measurements, the trip point among them.
 func demoRun(i int, hash string) *sequences.Run {
 	started := t0.Add(time.Duration(i) * 4 * time.Second)

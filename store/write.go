@@ -316,17 +316,26 @@ func (w *writer) put(ctx context.Context, r *sequences.Run) (int64, error) {
 			trip = sql.NullFloat64{Float64: m.Value, Valid: true}
 		}
 	}
+	args := []any{r.Serial, vid, cid, sid, fid, r.Operator, r.Lot,
+		r.Software, nanos(r.Started), r.Finished.UnixNano(), string(r.Verdict), r.FailCode, trip}
 	if w.insRun == nil {
-		w.insRun, err = w.tx.PrepareContext(ctx,
-			`INSERT INTO runs (serial, variant_id, config_id, station_id, fixture_id, operator, lot,
+		q := `INSERT INTO runs (serial, variant_id, config_id, station_id, fixture_id, operator, lot,
+			 software, started, finished, verdict, fail_code, trip_pf, driver, fault)
+			 VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+		if !w.db.runColumns {
+			q = `INSERT INTO runs (serial, variant_id, config_id, station_id, fixture_id, operator, lot,
 			 software, started, finished, verdict, fail_code, trip_pf)
-			 VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+			 VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+		}
+		w.insRun, err = w.tx.PrepareContext(ctx, q)
 		if err != nil {
 			return 0, fmt.Errorf("prepare run insert: %w", err)
 		}
 	}
-	res, err := w.insRun.ExecContext(ctx, r.Serial, vid, cid, sid, fid, r.Operator, r.Lot,
-		r.Software, nanos(r.Started), r.Finished.UnixNano(), string(r.Verdict), r.FailCode, trip)
+	if w.db.runColumns {
+		args = append(args, r.Driver, r.Fault)
+	}
+	res, err := w.insRun.ExecContext(ctx, args...)
 	if err != nil {
 		return 0, fmt.Errorf("insert run: %w", err)
 	}

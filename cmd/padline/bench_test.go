@@ -13,7 +13,7 @@ import (
 
 // BenchmarkSimulatedUnit measures the computer time to test one simulated
 // QM-205 unit end to end (plan, trip search, simulator, fixture), without the
-// shift log. Target (issue 8): ≤ 1 ms CPU per unit. It also reports the
+// shift log. Target (DEVELOPERS.md "Benchmarks, studies and torture"): ≤ 1 ms CPU per unit. It also reports the
 // unit's fixture time, which is virtual and exact.
 //
 //	go test ./cmd/padline -run '^$' -bench SimulatedUnit

@@ -33,6 +33,7 @@ type demoOptions struct {
 	search           string
 	compare          bool
 	asJSON           bool
+	intoRealLog      bool
 	drift            demoDrift
 }
 
@@ -46,7 +47,7 @@ func (a *app) demoCmd() *cobra.Command {
 on a simulated station: no hardware and no files needed.
 
 The built-in demo variant (QM-205, a 5 V touch-lamp dimmer of the fictional
-maker Quillmoor Switchcraft) is tested on the built-in simulated station
+maker Quillmoor Padworks) is tested on the built-in simulated station
 (FX-07: 8 reed-relay rungs, 0.5 … 64 pF). Simulated units carry the variant's
 component tolerances and, at realistic rates, every kind of unit defect; the
 simulator's noise, relay timing and rung calibration error sit at the realism
@@ -85,6 +86,7 @@ first alarm at or after unit N: chart, rule, unit and lag.`,
 	f.StringVar(&o.search, "search", "bracket", "trip search: bracket or staircase")
 	f.BoolVar(&o.compare, "compare-search", false, "run the same units with the staircase too and compare")
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per unit, then a summary object")
+	f.BoolVar(&o.intoRealLog, "into-real-log", false, "allow --db to name a shift log that holds runs of a real (gpio) station")
 	f.IntVar(&o.drift.at, "drift-at", 0, "unit from which the pad capacitance drops (trip points step up); 0 = no step")
 	f.Float64Var(&o.drift.stepPF, "drift-pf", 0, "size of the step at --drift-at, pF of trip point")
 	f.Float64Var(&o.drift.rampPF, "ramp-pf-per-1000", 0, "slow ramp of the trip point, pF per 1000 units, from --drift-at (or unit 1)")
@@ -148,6 +150,9 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 		return err
 	}
 	defer db.Close()
+	if err := session.CheckSimulatedInto(ctx, db, dbPath, o.intoRealLog); err != nil {
+		return fmt.Errorf("demo: %w", err)
+	}
 	hash, err := db.PutVariant(ctx, v.Name, v.Source.Raw)
 	if err != nil {
 		return err
@@ -245,6 +250,7 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
 			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: softwareVersion(),
+			Driver: string(session.DriverSim),
 		},
 	}
 	settle := st.Ladder.Operate + st.Ladder.Bounce
@@ -457,7 +463,7 @@ func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep 
 	}
 	s := ss[0]
 	fmt.Fprintf(w, "simulated shift  %s on %s/%s, %d units\n", v.Name, st.Name, st.Fixture, s.Units)
-	fmt.Fprintf(w, "simulator        noise %.1f mV at 5 V, sample jitter %.1f ns, rung calibration σ %.2f pF (realism floor, DESIGN.md §12)\n",
+	fmt.Fprintf(w, "simulator        noise %.1f mV at 5 V, sample jitter %.1f ns, rung calibration σ %.2f pF (realism floor: DEVELOPERS.md, Simulator realism floor)\n",
 		st.Sim.NoiseMVAt5V, st.Sim.JitterNs, st.Sim.RungErrSDPF)
 	fmt.Fprintf(w, "test limits      trip %.2f … %.2f pF, clock %.0f … %.0f Hz\n\n",
 		rep.TestLimits.Low, rep.TestLimits.High, rep.Clock.CornerLow, rep.Clock.CornerHigh)

@@ -43,6 +43,7 @@ const driftFirstAsk = 1 << 20
 type driftOptions struct {
 	db, stationFile, variant string
 	filter                   store.Filter
+	withSim                  bool   // --include-simulated
 	since, until             string // as given, for the report
 	by, chart, rules         string
 	subgroup, baseline       int
@@ -132,7 +133,9 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 				}
 				// The same U padline run judged with: the station's stored
 				// budget, else its file, else the stand-in.
-				o.uncertainty, o.uncertaintyFrom = session.Uncertainty(cmd.Context(), o.db, st)
+				if o.uncertainty, o.uncertaintyFrom, err = session.Uncertainty(cmd.Context(), o.db, st); err != nil {
+					return err
+				}
 			}
 			if fl.Changed("uncertainty-pf") {
 				o.uncertaintyFrom = "--uncertainty-pf"
@@ -196,6 +199,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.StringVar(&station, "station", "", "only runs of this station")
 	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
+	fl.BoolVar(&o.withSim, "include-simulated", false, "in a log with runs of a real station, also watch simulated runs (left out by default)")
 	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift")
 	fl.BoolVar(&o.allVerdicts, "all-verdicts", false, "chart failed units' trip points too (default: passing units only; yield always counts every unit)")
 	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
@@ -414,6 +418,9 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 			return fmt.Errorf("drift: %w", err)
 		}
 		defer db.Close()
+		if o.filter.Driver, err = session.DriverFilter(ctx, db, o.withSim); err != nil {
+			return fmt.Errorf("drift: %w", err)
+		}
 		rep.Source = "shift log " + o.db
 		rep.Since, rep.Until = o.since, o.until
 		rep.Station, rep.Fixture, rep.Lot, rep.By = o.filter.Station, o.filter.Fixture, o.filter.Lot, o.by

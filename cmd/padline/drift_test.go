@@ -271,7 +271,7 @@ func TestDemoDrift(t *testing.T) {
 		t.Errorf("drift %+v", d)
 	}
 	// The baseline is the good units among units 1–50: all but the few
-	// with injected defects (rates ≤ 1 % each, DESIGN.md §12).
+	// with injected defects (rates ≤ 1 % each, DEVELOPERS.md "Simulator realism floor").
 	if !strings.HasPrefix(d.Baseline, "units 1–50 (4") {
 		t.Errorf("baseline %q", d.Baseline)
 	}

@@ -16,6 +16,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/store"
 )
 
@@ -25,6 +26,7 @@ type historyOptions struct {
 	filter        store.Filter
 	format        string // table, csv or json
 	limitsHistory bool
+	withSim       bool // --include-simulated
 }
 
 // historyCmd builds `padline history`.
@@ -33,6 +35,7 @@ func (a *app) historyCmd() *cobra.Command {
 		dbFlag, stationFile                         string
 		serial, variant, station, fixture, lot, ver string
 		since, until, format                        string
+		withSim                                     bool
 		asJSON, limitsHistory                       bool
 	)
 	cmd := &cobra.Command{
@@ -110,6 +113,7 @@ history never creates a shift log.`,
 				return fmt.Errorf("history: --verdict must be pass, fail or station-fault, got %q", ver)
 			}
 			opts.filter = f
+			opts.withSim = withSim
 			return a.history(cmd, opts)
 		},
 	}
@@ -123,6 +127,7 @@ history never creates a shift log.`,
 	fl.StringVar(&station, "station", "", "only runs of this station, e.g. L2-S1")
 	fl.StringVar(&fixture, "fixture", "", "only runs on this fixture, e.g. FX-07")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
+	fl.BoolVar(&withSim, "include-simulated", false, "in a log with runs of a real station, also show simulated runs (left out by default)")
 	fl.StringVar(&ver, "verdict", "", "only runs with this verdict: pass, fail or station-fault")
 	fl.StringVar(&format, "format", "table", "output: table, csv or json (JSON lines)")
 	fl.BoolVar(&asJSON, "json", false, "same as --format json")
@@ -141,6 +146,9 @@ func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
 	}
 	defer db.Close()
 	ctx := cmd.Context()
+	if opts.filter.Driver, err = session.DriverFilter(ctx, db, opts.withSim); err != nil {
+		return fmt.Errorf("history: %w", err)
+	}
 	out := bufio.NewWriter(a.stdout)
 	defer out.Flush()
 

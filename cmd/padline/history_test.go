@@ -26,7 +26,7 @@ func historyCLI(t *testing.T, args ...string) (code int, stdout, stderr string) 
 	return code, out.String(), errOut.String()
 }
 
-// seedHistory writes a small shift log of Quillmoor Switchcraft (fictional)
+// seedHistory writes a small shift log of Quillmoor Padworks (fictional)
 // units: QM205-A fails high then passes on retest, QM205-B passes, QM205-C
 // is a station fault, QM212-A passes on another station. QM-205's limits
 // change once, between the first and the second day.

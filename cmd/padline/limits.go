@@ -79,7 +79,9 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 				if err != nil {
 					return err
 				}
-				u, uFrom = session.Uncertainty(cmd.Context(), dbPath, st)
+				if u, uFrom, err = session.Uncertainty(cmd.Context(), dbPath, st); err != nil {
+					return err
+				}
 			}
 			rep, err := v.Limits(timing.Options{Draws: draws, Seed: seed, UncertaintyPF: u})
 			if err != nil {

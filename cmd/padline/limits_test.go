@@ -30,7 +30,7 @@ func TestLimitsJSON(t *testing.T) {
 			if err := json.Unmarshal([]byte(out), &got); err != nil {
 				t.Fatalf("not one JSON object: %v\n%s", err, out)
 			}
-			// The fields issue 2 requires.
+			// The fields the limits report must carry.
 			for _, path := range []string{
 				"trip_pf.nominal", "trip_pf.corner_low", "trip_pf.corner_high", "trip_pf.mc_mean", "trip_pf.mc_sd",
 				"clock_hz.nominal", "clock_hz.corner_low", "clock_hz.corner_high",

@@ -20,7 +20,7 @@ import (
 	"padline/store"
 )
 
-// trustSim runs the full simulator targets of issue 6 (1,000 healthy
+// trustSim runs the full simulator targets of DEVELOPERS.md "Benchmarks, studies and torture" (1,000 healthy
 // checks over 100 sim seeds, about 40 s): go test ./cmd/padline -run
 // 'TestStationCheck' -trust-sim. Without it a seeded tenth runs.
 var trustSim = flag.Bool("trust-sim", false, "run the full 1,000-check healthy-station target")
@@ -256,7 +256,7 @@ func simCheck(t testing.TB, ctx context.Context, station string, drift int) sess
 }
 
 // TestStationCheckHealthy1000 checks a healthy demo station 1,000 times
-// (issue 6: "a healthy fixture passes the check 1,000 times out of 1,000
+// ("a healthy fixture passes the check 1,000 times out of 1,000
 // simulated shifts (seeded)"): 100 simulated lines (sim seeds 1–100: each
 // its own fixture calibration errors, reference units and noise streams),
 // each registering its reference units from 10 checks and then checked over
@@ -363,7 +363,7 @@ func TestStationStudiesStatusAndLimits(t *testing.T) {
 	if err := json.Unmarshal([]byte(out), &grr); err != nil || grr.GRR == nil {
 		t.Fatalf("grr json: %v\n%s", err, out)
 	}
-	// Targets of issue 6: %GRR < 10 % and ndc ≥ 5 (AIAG MSA 4th ed. bands).
+	// Targets: %GRR < 10 % and ndc ≥ 5 (AIAG MSA 4th ed. bands).
 	g := grr.GRR
 	t.Logf("GRR 10×3×3: EV %.4f AV %.4f GRR %.4f PV %.3f pF; %%GRR %.2f %%, ndc %d, %%tol %.2f %%", g.EV, g.AV, g.GRR, g.PV, g.PctGRR, g.NDC, g.PctTol)
 	if g.Parts != 10 || g.Trials != 3 || g.Appraisers != 3 || g.PctGRR >= 10 || g.NDC < 5 || g.Verdict != sequences.GRRAcceptable {

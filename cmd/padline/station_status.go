@@ -6,6 +6,8 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
+	"os"
 	"strings"
 	"time"
 
@@ -89,12 +91,21 @@ func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON 
 	if err != nil {
 		return err
 	}
+	rep := statusReport{Station: st.Name, Fixture: st.Fixture, ShiftLog: dbPath, RatedOps: st.Ladder.RatedOperations, WarnFraction: st.Trust.RelayWarnFraction}
+	// A read-only command never creates files: no shift log, no history.
+	if _, err := os.Stat(dbPath); errors.Is(err, fs.ErrNotExist) {
+		rep.NotReady = fmt.Sprintf("no shift log at %s yet: nothing was checked or tested with it", dbPath)
+		rep.UPF, rep.USource = session.StatedUncertainty(st)
+		for i := range st.Ladder.RungsPF {
+			rep.Relays = append(rep.Relays, relayWear{Rung: i})
+		}
+		return a.printStatus(rep, st, asJSON)
+	}
 	db, err := store.Open(dbPath)
 	if err != nil {
 		return err
 	}
 	defer db.Close()
-	rep := statusReport{Station: st.Name, Fixture: st.Fixture, ShiftLog: dbPath, RatedOps: st.Ladder.RatedOperations, WarnFraction: st.Trust.RelayWarnFraction}
 	if err := session.Ready(ctx, db, st, time.Now()); err != nil {
 		if !errors.Is(err, session.ErrNotReady) {
 			return err
@@ -161,6 +172,11 @@ func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON 
 		w.Warn = w.Fraction >= st.Trust.RelayWarnFraction
 		rep.Relays = append(rep.Relays, w)
 	}
+	return a.printStatus(rep, st, asJSON)
+}
+
+// printStatus prints the status as JSON or as text.
+func (a *app) printStatus(rep statusReport, st *session.Station, asJSON bool) error {
 	if asJSON {
 		enc := json.NewEncoder(a.stdout)
 		enc.SetIndent("", "  ")

@@ -2,7 +2,7 @@
 
 package main
 
-// Fail-safe and crash-safety tests of 'padline run' (issue 7, items 1 and 2):
+// Fail-safe and crash-safety tests of 'padline run' (DEVELOPERS.md "Benchmarks, studies and torture"):
 // the built binary under SIGTERM and SIGKILL against the simulated station,
 // and the fixture's state after a stop or a panic in-process.
 //
@@ -41,8 +41,8 @@ import (
 )
 
 var (
-	tortureUnits = flag.Int("torture.units", 500, "crash torture: serials to test (issue 7 asks for 500)")
-	tortureKills = flag.Int("torture.kills", 20, "crash torture: SIGKILLs (issue 7 asks for 20)")
+	tortureUnits = flag.Int("torture.units", 500, "crash torture: serials to test (the torture target is 500)")
+	tortureKills = flag.Int("torture.kills", 20, "crash torture: SIGKILLs (the torture target is 20)")
 	tortureSeed  = flag.Uint64("torture.seed", 1, "crash torture: seed of the kill moments")
 )
 

@@ -70,7 +70,7 @@ func TestBuiltinsMatchTestdata(t *testing.T) {
 			want, _ := os.ReadFile(f)
 			got, err := builtin.ReadFile("defaults/" + dir + "/" + filepath.Base(f))
 			if err != nil || !bytes.Equal(got, want) {
-				t.Errorf("cmd/padline/defaults/%s/%s differs from %s: cp it over (%v)", dir, filepath.Base(f), f, err)
+				t.Errorf("sequences/session/defaults/%s/%s differs from %s: cp it over (%v)", dir, filepath.Base(f), f, err)
 			}
 		}
 	}
@@ -161,7 +161,7 @@ func TestDemoStation(t *testing.T) {
 		len(s.Sim.Faults.RungStuckOpen) != 1 || s.Sim.Faults.RungStuckOpen[0] != 3 {
 		t.Errorf("uncertainty %v, sim %+v", s.UncertaintyPF, s.Sim)
 	}
-	// The realism floor (DESIGN.md §12) is the default when the section is absent.
+	// The realism floor (DEVELOPERS.md "Simulator realism floor") is the default when the section is absent.
 	if s, _ := LoadStation("demo-sim"); s.Sim.NoiseMVAt5V != 10 || s.Sim.JitterNs != 1 || s.Sim.RungErrSDPF != 0.05 {
 		t.Errorf("sim defaults %+v", s.Sim)
 	}

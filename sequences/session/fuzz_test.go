@@ -17,7 +17,7 @@ import (
 	"padline/sequences/timing"
 )
 
-// Hostile-input fuzz targets (issue 7): a config file edited by hand at
+// Hostile-input fuzz targets: a config file edited by hand at
 // 3 a.m. or a scanner gone wrong must give one clear error line, never a
 // panic and never a half-checked config. Seeds are the demo variants and
 // stations and every file of the bad-config corpus; crashers the fuzzer

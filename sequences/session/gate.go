@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io/fs"
 	"os"
 	"slices"
 	"sort"
@@ -21,7 +22,7 @@ import (
 const (
 	// defaultCalUncertaintyPF is one rung's calibration standard
 	// uncertainty when the station file does not state it: the σ of an
-	// LCR-meter reading at these values (DESIGN.md §12).
+	// LCR-meter reading at these values (DEVELOPERS.md "Simulator realism floor").
 	defaultCalUncertaintyPF = 0.05
 	// defaultRelayWarnFraction is the fraction of rated relay life at which
 	// status warns.
@@ -181,18 +182,66 @@ func Ready(ctx context.Context, db *store.DB, st *Station, now time.Time) error 
 
 // Uncertainty is the guard band U a station applies, and where it
 // came from: the uncertainty stored in its shift log by 'padline station
-// study', else the station file's uncertainty_pf, else the stand-in. A
-// shift log that does not exist yet is not created.
-func Uncertainty(ctx context.Context, dbPath string, st *Station) (float64, string) {
-	if _, err := os.Stat(dbPath); err == nil {
-		if db, err := store.Open(dbPath); err == nil {
-			u, err := db.LastUncertainty(ctx, st.Name, st.Fixture)
-			db.Close()
-			if err == nil {
-				return u.UPF, fmt.Sprintf("shift log %s (station %s fixture %s, %s, %s)", dbPath, st.Name, st.Fixture,
-					u.Time.Local().Format("2006-01-02 15:04"), u.Source)
-			}
-		}
+// study', else the station file's uncertainty_pf, else the stand-in. Only
+// "no shift log yet" and "no study in it" fall back; a log that cannot be
+// opened or read is an error naming it. A shift log that does not exist
+// yet is not created.
+func Uncertainty(ctx context.Context, dbPath string, st *Station) (float64, string, error) {
+	if _, err := os.Stat(dbPath); errors.Is(err, fs.ErrNotExist) {
+		u, from := StatedUncertainty(st)
+		return u, from, nil
 	}
-	return StatedUncertainty(st)
+	db, err := store.Open(dbPath)
+	if err != nil {
+		return 0, "", fmt.Errorf("uncertainty of station %s: %w", st.Name, err)
+	}
+	defer db.Close()
+	u, err := db.LastUncertainty(ctx, st.Name, st.Fixture)
+	if errors.Is(err, store.ErrNotFound) {
+		u, from := StatedUncertainty(st)
+		return u, from, nil
+	}
+	if err != nil {
+		return 0, "", fmt.Errorf("uncertainty of station %s in shift log %s: %w", st.Name, dbPath, err)
+	}
+	return u.UPF, fmt.Sprintf("shift log %s (station %s fixture %s, %s, %s)", dbPath, st.Name, st.Fixture,
+		u.Time.Local().Format("2006-01-02 15:04"), u.Source), nil
+}
+
+// DriverFilter is the station driver a history or drift view keeps: a log
+// that holds runs of a real (gpio) station and simulated runs shows the
+// real ones only, unless includeSim; any other log shows everything ("").
+func DriverFilter(ctx context.Context, db *store.DB, includeSim bool) (string, error) {
+	if includeSim {
+		return "", nil
+	}
+	ds, err := db.Drivers(ctx)
+	if err != nil {
+		return "", err
+	}
+	if slices.Contains(ds, string(DriverGPIO)) && slices.Contains(ds, string(DriverSim)) {
+		return string(DriverGPIO), nil
+	}
+	return "", nil
+}
+
+// ErrRealLog refuses simulated runs into a shift log that holds runs of a
+// real station.
+var ErrRealLog = errors.New("shift log holds runs of a real station")
+
+// CheckSimulatedInto refuses to add simulated runs to db when it holds runs
+// from a GPIO station, unless allow: simulated units must never pass for
+// real ones.
+func CheckSimulatedInto(ctx context.Context, db *store.DB, path string, allow bool) error {
+	if allow {
+		return nil
+	}
+	ds, err := db.Drivers(ctx)
+	if err != nil {
+		return err
+	}
+	if slices.Contains(ds, string(DriverGPIO)) {
+		return fmt.Errorf("%w: %s; simulated runs would mix with real units (give another --db, or --into-real-log to add them anyway)", ErrRealLog, path)
+	}
+	return nil
 }

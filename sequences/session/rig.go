@@ -103,7 +103,9 @@ func OpenRig(ctx context.Context, variantRef, stationRef, shiftLog string, o Rig
 		return nil, err
 	}
 	if o.UncertaintyPF <= 0 {
-		o.UncertaintyPF, o.UncertaintyFrom = Uncertainty(ctx, shiftLog, st)
+		if o.UncertaintyPF, o.UncertaintyFrom, err = Uncertainty(ctx, shiftLog, st); err != nil {
+			return nil, err
+		}
 	}
 	return NewRig(v, st, o)
 }

@@ -122,7 +122,7 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 		Plan: rig.Plan, Station: rig.Fixture, Clock: rig.Clock, Recorder: db,
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: s.hash, Station: st.Name, Fixture: st.Fixture,
-			Operator: o.Operator, Lot: o.Lot, Software: o.Software,
+			Operator: o.Operator, Lot: o.Lot, Software: o.Software, Driver: string(st.Driver),
 		},
 		CheckSerial: v.CheckSerial,
 		WallClock:   o.Now,

@@ -11,7 +11,7 @@ import (
 )
 
 // StationSim is a station file's optional `sim:` section. Every key has the
-// simulator's realism-floor default (DESIGN.md §12); a file that changes one
+// simulator's realism-floor default (DEVELOPERS.md "Simulator realism floor"); a file that changes one
 // says so in its own text.
 type StationSim struct {
 	// Seed seeds the simulated units and fixture (default 1; 'padline demo

@@ -77,7 +77,7 @@ type StationTrust struct {
 	RelayWarnFraction float64
 }
 
-// maxRungs is the most rungs a ladder may have (DESIGN.md §5).
+// maxRungs is the most rungs a ladder may have (DEVELOPERS.md "Fixture").
 const maxRungs = 12
 
 // LoadStation resolves ref (a file path, or a built-in station name such as

@@ -45,7 +45,7 @@ func fixedCircuit(p timing.Point) timing.Circuit {
 }
 
 func TestNominalDemoFigures(t *testing.T) {
-	// Demo numbers worked by hand with DESIGN.md §4 from the typical values
+	// Demo numbers worked by hand with DEVELOPERS.md "Physics" from the typical values
 	// of testdata/variants/QM-205.yaml: C_total = (3.0 µs − 40 ns) /
 	// (100 kΩ·ln 2) ≈ 42.7 pF → C_ext,trip ≈ 42.7 − 13 = 29.7 pF; clock
 	// 1/(2·22 kΩ·100 nF·ln(0.62/0.38)) ≈ 465 Hz.
@@ -203,7 +203,7 @@ func integrateNode(vdd, rs, cF, tH, tL, ts float64, periods int) float64 {
 }
 
 func TestTripAgainstNumericalIntegration(t *testing.T) {
-	// Independent check (DESIGN.md §4 physics, integrated numerically): find
+	// Independent check (DEVELOPERS.md "Physics" physics, integrated numerically): find
 	// by bisection the external C at which the integrated node is at V_T at
 	// t_s after the falling edge; it must agree with TripPF to 0.5 %.
 	cases := []struct {

@@ -1,0 +1,110 @@
+package main
+
+import (
+	"context"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"padline/sequences"
+	"padline/store"
+)
+
+// Regression tests of the bugs found when the station was tried as its
+// users would; each failed before its fix.
+
+func TestStationStatusCreatesNoFile(t *testing.T) {
+	db := filepath.Join(t.TempDir(), "never.db")
+	out, errs, code := runPadline(t, context.Background(), "", "station", "status", "--station", "demo-sim", "--db", db)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if _, err := os.Stat(db); !os.IsNotExist(err) {
+		t.Errorf("station status created %s (%v)", db, err)
+	}
+	if !strings.Contains(out, "no shift log at "+db) {
+		t.Errorf("status does not say there is no log:\n%s", out)
+	}
+}
+
+func TestRunSaysSimulatedAndRecordsDriver(t *testing.T) {
+	db := filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db)
+	out, errs, code := runPadline(t, context.Background(), "QM205-000001\n", "run", "--variant", "QM-205", "--station", "demo-sim", "--db", db)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "SIMULATED station") {
+		t.Errorf("banner does not say the station is simulated:\n%s", out)
+	}
+	s, err := store.Open(db)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	n := 0
+	for e, err := range s.Runs(context.Background(), store.Filter{}) {
+		if err != nil {
+			t.Fatal(err)
+		}
+		n++
+		if e.Driver != "sim" {
+			t.Errorf("run %s recorded driver %q, want sim", e.Serial, e.Driver)
+		}
+	}
+	if n != 1 {
+		t.Fatalf("%d runs", n)
+	}
+}
+
+// realLog makes a shift log holding one run of a GPIO station.
+func realLog(t *testing.T) string {
+	t.Helper()
+	path := filepath.Join(t.TempDir(), "real.db")
+	db, err := store.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	raw, err := os.ReadFile(filepath.Join(repo, "testdata/variants/QM-205.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	hash, err := db.PutVariant(ctx, "QM-205", raw)
+	if err != nil {
+		t.Fatal(err)
+	}
+	now := time.Now()
+	_, err = db.Record(ctx, &sequences.Run{Serial: "QM205-900001", Variant: "QM-205", ConfigHash: hash, Station: "L1-S9", Fixture: "FX-01",
+		Software: "test", Started: now.Add(-time.Second), Finished: now, Verdict: sequences.Pass, Driver: "gpio"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return path
+}
+
+func TestDemoRefusesRealLogAndHistoryHidesSim(t *testing.T) {
+	ctx := context.Background()
+	db := realLog(t)
+	_, errs, code := runPadline(t, ctx, "", "demo", "--units", "3", "--db", db)
+	if code == 0 || !strings.Contains(errs, "real station") {
+		t.Fatalf("demo into a real log: exit %d, %s", code, errs)
+	}
+	if _, errs, code = runPadline(t, ctx, "", "demo", "--units", "3", "--db", db, "--into-real-log"); code != 0 {
+		t.Fatalf("demo --into-real-log: exit %d, %s", code, errs)
+	}
+	out, errs, code := runPadline(t, ctx, "", "history", "--db", db, "--variant", "QM-205", "--format", "csv")
+	if code != 0 {
+		t.Fatalf("history: exit %d, %s", code, errs)
+	}
+	if !strings.Contains(out, "QM205-900001") || strings.Contains(out, "QM205-000001") {
+		t.Errorf("history of a real log shows simulated runs or hides the real one:\n%s", out)
+	}
+	out, _, _ = runPadline(t, ctx, "", "history", "--db", db, "--variant", "QM-205", "--format", "csv", "--include-simulated")
+	if !strings.Contains(out, "QM205-900001") || !strings.Contains(out, "QM205-000001") {
+		t.Errorf("--include-simulated does not show both:\n%s", out)
+	}
+}
