@@ -37,7 +37,7 @@ const (
 
 // ErrAborted is returned by Execute when its context ended mid-unit: the
 // unit has no verdict and must not be logged as tested.
-var ErrAborted = errors.New("sequences: run aborted")
+var ErrAborted = errors.New("unit stopped before its verdict")
 
 // Limits are the test limits a plan judges against.
 type Limits struct {
@@ -181,7 +181,7 @@ func (p *Plan) ExecuteObserved(ctx context.Context, st Station, clk Clock, run *
 		// The lid must stay closed the whole test: opening it mid-test
 		// is a station fault, never a unit verdict.
 		if closed, err := st.LidClosed(); err != nil || !closed {
-			stepErr = fmt.Errorf("after step %d: %w", i+1, errors.Join(ErrLidOpen, err))
+			stepErr = fmt.Errorf("after step %d: %w", i+1, errors.Join(fixture.ErrLidOpen, err))
 			break
 		}
 	}
@@ -215,7 +215,7 @@ func (p *Plan) ExecuteObserved(ctx context.Context, st Station, clk Clock, run *
 // stationCode names the station fault behind err.
 func stationCode(err error) string {
 	switch {
-	case errors.Is(err, ErrLidOpen), errors.Is(err, fixture.ErrLidOpen):
+	case errors.Is(err, fixture.ErrLidOpen):
 		return CodeLidOpen
 	case errors.Is(err, ErrStepTimeout):
 		return CodeStepTimeout
@@ -242,7 +242,7 @@ func (p *Plan) powerUp(ctx context.Context, t *Trial) error {
 			return err
 		}
 		if !closed {
-			return ErrLidOpen
+			return fixture.ErrLidOpen
 		}
 		if err := t.SetPattern(0); err != nil {
 			return err

@@ -254,13 +254,13 @@ func TestPlanStationFaults(t *testing.T) {
 		pin    bool   // and names the latch pin
 	}{
 		{name: "lid open", setup: func(f *fakeStation) { f.LidOpen = true },
-			code: sequences.CodeLidOpen, is: sequences.ErrLidOpen, prefix: "step power_up: "},
+			code: sequences.CodeLidOpen, is: fixture.ErrLidOpen, prefix: "step power_up: "},
 		{name: "lid opened before power on", setup: func(f *fakeStation) {
 			f.OpFunc = opFault("power", 1, func() error { f.LidOpen = true; return nil })
 		}, code: sequences.CodeLidOpen, is: fixture.ErrLidOpen, prefix: "step power_up: "},
 		{name: "lid opened mid-test", setup: func(f *fakeStation) {
 			f.OpFunc = opFault("sample", 3, func() error { f.LidOpen = true; return nil })
-		}, code: sequences.CodeLidOpen, is: sequences.ErrLidOpen, prefix: "after step "},
+		}, code: sequences.CodeLidOpen, is: fixture.ErrLidOpen, prefix: "after step "},
 		{name: "pin error on the first call", setup: func(f *fakeStation) { f.OpFunc = pinErrorOn(1) },
 			code: sequences.CodePinError, is: errPinRead, prefix: "step power_up: ", pin: true},
 		{name: "pin error measuring the clock", setup: func(f *fakeStation) {

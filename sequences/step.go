@@ -40,9 +40,6 @@ func (e *UnitFailure) Error() string {
 // ErrStepTimeout is returned when a step overruns its fixture-time budget.
 var ErrStepTimeout = errors.New("sequences: step timed out")
 
-// ErrLidOpen is returned when the lid is open where it must be closed.
-var ErrLidOpen = errors.New("sequences: lid open")
-
 // Timeout bounds the fixture time a step may take. Time is the trial's
 // injected clock, so the budget holds in virtual time too: every station
 // operation made through the trial checks the deadline and fails with

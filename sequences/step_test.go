@@ -25,7 +25,7 @@ func newTrial(t *testing.T, ctx context.Context) (*sequences.Trial, *fakeStation
 		t.Fatalf("NewPlan: %v", err)
 	}
 	tr, err := p.Execute(ctx, f, f.clock, &sequences.Run{})
-	if !errors.Is(err, sequences.ErrLidOpen) {
+	if !errors.Is(err, fixture.ErrLidOpen) {
 		t.Fatalf("Execute with the lid open: %v", err)
 	}
 	*tr.Run() = sequences.Run{}

@@ -10,6 +10,8 @@ import (
 	"sort"
 	"strings"
 	"time"
+
+	"padline/fixture"
 )
 
 // This file is station trust: the shift-start reference check with its
@@ -477,7 +479,7 @@ func CheckReference(ctx context.Context, st Station, clk Clock, ref Reference, c
 		return res, fmt.Errorf("reference check: lid: %w", err)
 	}
 	if !closed {
-		return res, fmt.Errorf("reference check: %w", ErrLidOpen)
+		return res, fmt.Errorf("reference check: %w", fixture.ErrLidOpen)
 	}
 	if err := st.Power(true); err != nil {
 		return res, fmt.Errorf("reference check: power: %w", err)

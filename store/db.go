@@ -1,6 +1,8 @@
 package store
 
 import (
+	"padline/sequences"
+
 	"context"
 	"database/sql"
 	"embed"
@@ -34,7 +36,8 @@ var (
 	// ErrSchemaTooNew: the file was written by a newer padline.
 	ErrSchemaTooNew = errors.New("store: shift log schema newer than this program")
 	// ErrNotSaved: a run was not committed; nothing of it is in the log.
-	ErrNotSaved = errors.New("store: run not saved")
+	// It is sequences.ErrNotSaved itself: one sentinel for one meaning.
+	ErrNotSaved = sequences.ErrNotSaved
 	// ErrDiskFull: the disk, or the log's size cap, is full.
 	ErrDiskFull = errors.New("store: shift log full")
 	// ErrUnknownConfig: a run names a variant configuration that was never

@@ -268,7 +268,7 @@ func writeConfigHistory(w io.Writer, db *store.DB, cmd *cobra.Command, opts hist
 		for _, c := range hist {
 			fmt.Fprintf(w, "%-19s %-64s %d\n", c.FirstSeen.Local().Format("2006-01-02 15:04:05"), c.Hash, c.Size)
 		}
-		fmt.Fprintf(w, "%s: %d configurations\n", opts.filter.Variant, len(hist))
+		fmt.Fprintf(w, "%s: %s\n", opts.filter.Variant, plural(len(hist), "configuration", "configurations"))
 	}
 	return nil
 }
@@ -330,4 +330,13 @@ func histCSVField(s string) string {
 		return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
 	}
 	return s
+}
+
+// plural is n with the singular or plural noun: "1 configuration",
+// "2 configurations".
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return fmt.Sprintf("%d %s", n, many)
 }

@@ -108,3 +108,32 @@ func TestDemoRefusesRealLogAndHistoryHidesSim(t *testing.T) {
 		t.Errorf("--include-simulated does not show both:\n%s", out)
 	}
 }
+
+func TestOneConfigurationIsSingular(t *testing.T) {
+	db := realLog(t)
+	out, errs, code := runPadline(t, context.Background(), "", "history", "--db", db, "--variant", "QM-205", "--limits-history")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "QM-205: 1 configuration\n") {
+		t.Errorf("want \"1 configuration\":\n%s", out)
+	}
+}
+
+// A passed unit scanned again is tested and announced as a repeat; the
+// word for a refused scan is not the word for a locked station.
+func TestRepeatOfPassedUnitIsNotRefused(t *testing.T) {
+	db := filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db)
+	in := "QM205-000001\nQM205-000001\nQM205-000001\n"
+	out, errs, code := runPadline(t, context.Background(), in, "run", "--variant", "QM-205", "--station", "demo-sim", "--db", db)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if strings.Count(out, "======== PASS") != 3 || !strings.Contains(out, "repeat: QM205-000001 passed 2 time(s) before") {
+		t.Errorf("repeats of a passed unit:\n%s", out)
+	}
+	if strings.Contains(out, "NOT TESTED") || strings.Contains(out, "sequences:") {
+		t.Errorf("a repeat was refused or shown with a package prefix:\n%s", out)
+	}
+}

@@ -241,6 +241,9 @@ func writeVerdict(w io.Writer, v *session.Verdict) {
 			fmt.Fprintf(w, "   station fault: %s\n", v.StationError)
 		}
 	}
+	if v.PriorPasses > 0 {
+		fmt.Fprintf(w, "   repeat: %s passed %d time(s) before; this run is logged beside those\n", r.Serial, v.PriorPasses)
+	}
 	if v.Action != "" && r.Verdict != sequences.Pass {
 		fmt.Fprintf(w, "   what to do: %s\n", v.Action)
 	}

@@ -125,6 +125,8 @@ type Verdict struct {
 	// PriorFails is how many fails the serial had before (a pass after
 	// fail when > 0 and the verdict is pass).
 	PriorFails int `json:"prior_fails"`
+	// PriorPasses > 0 marks a repeat of a unit that passed before.
+	PriorPasses int `json:"prior_passes"`
 	// Action is what a technician does about the fail code ("" on pass).
 	Action string `json:"action"`
 	// StationError is the station fault behind a station-fault verdict

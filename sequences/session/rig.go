@@ -96,8 +96,10 @@ func NewRig(v *Variant, st *Station, o RigOptions) (*Rig, error) {
 }
 
 // OpenRig is Load, the shift log's uncertainty for the station (see
-// Uncertainty) and NewRig in one call.
+// Uncertainty) and NewRig in one call. Setting up is quick and is not cut
+// half-way by a stop request (ctx's values are kept, its end is not).
 func OpenRig(ctx context.Context, variantRef, stationRef, shiftLog string, o RigOptions) (*Rig, error) {
+	ctx = context.WithoutCancel(ctx)
 	v, st, err := Load(variantRef, stationRef)
 	if err != nil {
 		return nil, err

@@ -364,7 +364,7 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 		// Not saved: never show a verdict.
 		return unitRefused, err
 	}
-	v := &Verdict{Run: oc.Run, ID: oc.ID, PriorFails: oc.PriorFails, Action: sequences.FailAction(oc.Run.FailCode),
+	v := &Verdict{Run: oc.Run, ID: oc.ID, PriorFails: oc.PriorFails, PriorPasses: oc.PriorPasses, Action: sequences.FailAction(oc.Run.FailCode),
 		Limits: r.PlanConfig.Limits, Outcome: oc}
 	if err != nil {
 		v.StationError = err.Error()
