@@ -92,6 +92,9 @@ func LoadStation(ref string) (*Station, error) {
 
 // parseStation parses and validates one station file. Every problem is a
 // one-line *ConfigError naming the file and the key.
+//
+// Length: it reads the station file's keys in the file's own order, one
+// line per key; the reading order is the documentation of the format.
 func parseStation(src Source) (*Station, error) {
 	d, err := parseDoc(src.Name, src.Raw)
 	if err != nil {
