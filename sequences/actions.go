@@ -2,7 +2,7 @@ package sequences
 
 // failActions is what a technician does about each fail code: the "what to
 // do" column of the fail-code table in the README, word for word.
-var failActions = map[string]string{
+var failActions = map[FailCode]string{
 	CodeClockDead:    "check supply and the Schmitt oscillator parts; repair, retest",
 	CodeClockLow:     "check the timing R and C against the BOM; quarantine the reel if several fail",
 	CodeClockHigh:    "check the timing R and C against the BOM; quarantine the reel if several fail",
@@ -20,4 +20,4 @@ var failActions = map[string]string{
 
 // FailAction is the technician's action for a fail or station-fault code,
 // "" for an unknown code (and for a pass, which has none).
-func FailAction(code string) string { return failActions[code] }
+func FailAction(code FailCode) string { return failActions[code] }

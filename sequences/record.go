@@ -20,8 +20,8 @@ const (
 // Measurement is one named value a step recorded, with its limits and
 // verdict. Low or High is NaN when that side has no limit.
 type Measurement struct {
-	Step    string
-	Name    string
+	Step    StepName
+	Name    Quantity
 	Value   float64
 	Unit    string
 	Low     float64
@@ -45,7 +45,7 @@ type Run struct {
 	Started      time.Time
 	Finished     time.Time
 	Verdict      Verdict
-	FailCode     string
+	FailCode     FailCode
 	Measurements []Measurement
 	// Driver is the station driver that produced the run ("sim" for the
 	// simulated line, "gpio" for real pins).

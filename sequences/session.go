@@ -118,7 +118,7 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 	}
 	if run.Verdict == Pass && priorFails > 0 && s.Retest != nil && s.Retest.FlagPassAfterFail {
 		run.Measurements = append(run.Measurements, Measurement{
-			Step: "retest", Name: "prior_fails", Value: float64(priorFails), Unit: "count",
+			Step: StepRetest, Name: MeasPriorFails, Value: float64(priorFails), Unit: "count",
 			Low: NoLimit, High: NoLimit, Verdict: Pass,
 		})
 	}

@@ -227,9 +227,9 @@ func TestNamed(t *testing.T) {
 		name     string
 		wrappers []func(sequences.Step) sequences.Step
 		ret      error
-		wantStep string // measurement's step name
-		wantErr  string // "" for nil
-		same     bool   // the step's error comes back unchanged
+		wantStep sequences.StepName // measurement's step name
+		wantErr  string             // "" for nil
+		same     bool               // the step's error comes back unchanged
 	}{
 		{"pass", []func(sequences.Step) sequences.Step{sequences.Named("idle")}, nil, "idle", "", false},
 		{"station error", []func(sequences.Step) sequences.Step{sequences.Named("idle")}, errBus, "idle", "step idle: bus glitch", false},

@@ -63,7 +63,7 @@ func demoRun(i int, hash string) *sequences.Run {
 		Started:    started,
 		Finished:   started.Add(2300 * time.Millisecond),
 		Verdict:    verdict,
-		FailCode:   code,
+		FailCode:   sequences.FailCode(code),
 		Measurements: []sequences.Measurement{
 			{Step: "idle", Name: "latched", Value: 0, Unit: "", Low: 0, High: 0, Verdict: sequences.Pass},
 			{Step: "clock", Name: "clock_hz", Value: 465.2, Unit: "Hz", Low: 380, High: 560, Verdict: sequences.Pass},

@@ -144,7 +144,7 @@ func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
 			}
 			if seq.Valid {
 				cur.Measurements = append(cur.Measurements, sequences.Measurement{
-					Step: step.String, Name: name.String, Unit: unit.String,
+					Step: sequences.StepName(step.String), Name: sequences.Quantity(name.String), Unit: unit.String,
 					Value: orNaN(value), Low: orNaN(low), High: orNaN(high),
 					Verdict: sequences.Verdict(mverdict.String),
 				})

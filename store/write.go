@@ -19,8 +19,8 @@ var _ sequences.Recorder = (*DB)(nil)
 // TripStep and TripName identify the measurement that holds a run's trip
 // point; Record mirrors its value into the run for the drift series.
 const (
-	TripStep = "trip_search"
-	TripName = "trip_pf"
+	TripStep = sequences.StepTripSearch
+	TripName = sequences.MeasTripPF
 )
 
 // HashConfig returns the hash the log keeps for a variant configuration:
@@ -352,7 +352,7 @@ func (w *writer) put(ctx context.Context, r *sequences.Run) (int64, error) {
 		}
 	}
 	for i, m := range r.Measurements {
-		qid, err := w.quantity(ctx, m.Step, m.Name, m.Unit)
+		qid, err := w.quantity(ctx, string(m.Step), string(m.Name), m.Unit)
 		if err != nil {
 			return 0, err
 		}

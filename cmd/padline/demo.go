@@ -273,7 +273,7 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 		}
 		truth := unit.Truth()
 		du := demoUnit{
-			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: oc.Run.FailCode,
+			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: string(oc.Run.FailCode),
 			Defects: truth.Defects, Probes: oc.Trial.Probes, RelayOps: sum(fx.RelayOps()) - ops0,
 			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases,
 			trueSpreadPF: truth.TransitionPF,
@@ -346,7 +346,7 @@ type demoStats struct {
 }
 
 // fixedPhases are the plan's steps outside the trip search.
-var fixedPhases = []string{"power_up", "clock", "idle", "release", "power_down"}
+var fixedPhases = []string{string(sequences.StepPowerUp), string(sequences.StepClock), string(sequences.StepIdle), string(sequences.StepRelease), string(sequences.StepPowerDown)}
 
 func summarise(strategy string, us []demoUnit, cpu, wall time.Duration) demoStats {
 	s := demoStats{Strategy: strategy, Units: len(us), FailCodes: map[string]int{},

@@ -400,7 +400,7 @@ func scaleRuns(n int, hash string) iter.Seq[*sequences.Run] {
 				Serial: fmt.Sprintf("QM205-%07d", i), Variant: "QM-205", ConfigHash: hash,
 				Station: fmt.Sprintf("L%d-S1", 1+i%2), Fixture: fmt.Sprintf("FX-%02d", 7+i%4), Operator: "op-1",
 				Lot: fmt.Sprintf("LOT-%d", i/5000), Software: "padline test", Started: fin.Add(-90 * time.Millisecond),
-				Finished: fin, Verdict: v, FailCode: code,
+				Finished: fin, Verdict: v, FailCode: sequences.FailCode(code),
 				Measurements: []sequences.Measurement{
 					{Step: "clock", Name: "clock_hz", Value: 465, Unit: "Hz", Low: 241, High: 1271, Verdict: sequences.Pass},
 					{Step: store.TripStep, Name: store.TripName, Value: trip, Unit: "pF", Low: 10.3, High: 59.7, Verdict: v},

@@ -194,7 +194,7 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 			flagged++
 		}
 		fmt.Fprintf(w, row, strconv.FormatInt(e.ID, 10), e.Finished.Local().Format("2006-01-02 15:04:05"),
-			e.Serial, e.Station, e.Fixture, e.Lot, verdict, dashIfEmpty(e.FailCode), histPF(e.TripPF))
+			e.Serial, e.Station, e.Fixture, e.Lot, verdict, dashIfEmpty(string(e.FailCode)), histPF(e.TripPF))
 		if opts.filter.Serial != "" {
 			writeDetail(w, e)
 		}
@@ -218,7 +218,7 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 // because fails came before it.
 func passAfterFail(e *store.Entry) bool {
 	for _, m := range e.Measurements {
-		if m.Step == "retest" && m.Name == "prior_fails" && m.Value > 0 {
+		if m.Step == sequences.StepRetest && m.Name == sequences.MeasPriorFails && m.Value > 0 {
 			return true
 		}
 	}

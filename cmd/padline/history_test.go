@@ -61,7 +61,7 @@ func seedHistory(t *testing.T) string {
 		r := &sequences.Run{
 			Serial: serial, Variant: variant, ConfigHash: hash, Station: station, Fixture: "FX-07",
 			Operator: "op-3", Lot: "LOT-17", Software: "padline test", Started: at.Add(-3 * time.Second),
-			Finished: at, Verdict: v, FailCode: code,
+			Finished: at, Verdict: v, FailCode: sequences.FailCode(code),
 			Measurements: []sequences.Measurement{
 				{Step: "clock", Name: "clock_hz", Value: 465.2, Unit: "Hz", Low: 380, High: 560, Verdict: sequences.Pass},
 			},

@@ -202,8 +202,9 @@ func unitJSON(v *session.Verdict) map[string]any {
 		"fixture_ms": ms(r.Finished.Sub(r.Started)), "prior_fails": v.PriorFails,
 	}
 	for _, x := range r.Measurements {
-		if x.Name == "trip_pf" || x.Name == "trip_se_pf" || x.Name == "spread_pf" || x.Name == "clock_hz" {
-			m[x.Name] = jsonNum(x.Value)
+		switch x.Name {
+		case sequences.MeasTripPF, sequences.MeasTripSEPF, sequences.MeasSpreadPF, sequences.MeasClockHz:
+			m[string(x.Name)] = jsonNum(x.Value)
 		}
 	}
 	return m
@@ -222,7 +223,7 @@ func writeVerdict(w io.Writer, v *session.Verdict) {
 	r, lim := v.Run, v.Limits
 	trip := "no trip point"
 	for _, x := range r.Measurements {
-		if x.Name == "trip_pf" && !math.IsNaN(x.Value) {
+		if x.Name == sequences.MeasTripPF && !math.IsNaN(x.Value) {
 			trip = fmt.Sprintf("trip %.2f pF (limits %.2f … %.2f pF)", x.Value, lim.TripLowPF, lim.TripHighPF)
 		}
 	}

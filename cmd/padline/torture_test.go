@@ -200,11 +200,11 @@ func sameAsLogged(u unitLine, e *store.Entry) error {
 	if e == nil {
 		return fmt.Errorf("%s: printed as run %d (%s), which is not in the shift log", u.Serial, u.ID, u.Verdict)
 	}
-	if e.Serial != u.Serial || string(e.Verdict) != u.Verdict || e.FailCode != u.FailCode {
+	if e.Serial != u.Serial || string(e.Verdict) != u.Verdict || string(e.FailCode) != u.FailCode {
 		return fmt.Errorf("run %d: printed %s %s %q, logged %s %s %q", u.ID, u.Serial, u.Verdict, u.FailCode, e.Serial, e.Verdict, e.FailCode)
 	}
 	for name, v := range map[string]*float64{"clock_hz": u.ClockHz, "trip_pf": u.TripPF, "trip_se_pf": u.TripSEPF, "spread_pf": u.SpreadPF} {
-		i := slices.IndexFunc(e.Measurements, func(m sequences.Measurement) bool { return m.Name == name })
+		i := slices.IndexFunc(e.Measurements, func(m sequences.Measurement) bool { return string(m.Name) == name })
 		switch {
 		case !u.present[name] && i >= 0:
 			return fmt.Errorf("run %d: %s logged but not printed", u.ID, name)
@@ -237,7 +237,7 @@ func wholeRun(e *store.Entry) error {
 	var names []string
 	at := -1
 	for _, m := range e.Measurements {
-		n := m.Step + "/" + m.Name
+		n := string(m.Step) + "/" + string(m.Name)
 		i := slices.Index(planOrder, n)
 		if i <= at {
 			return fmt.Errorf("run %d (%s): measurement %s out of plan order or repeated: %v", e.ID, e.Serial, n, names)

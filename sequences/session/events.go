@@ -110,7 +110,7 @@ type ScanRefusal struct {
 // StepDone is one finished plan step of the unit in test.
 type StepDone struct {
 	Serial       string                  `json:"serial"`
-	Step         string                  `json:"step"`
+	Step         sequences.StepName      `json:"step"`
 	Measurements []sequences.Measurement `json:"measurements"`
 	FixtureMS    float64                 `json:"fixture_ms"`
 	// Error is the step's error text ("" when the step passed).

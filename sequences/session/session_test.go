@@ -219,7 +219,7 @@ func TestStopWhileWaitingForScan(t *testing.T) {
 }
 
 func TestFailActionForEveryCode(t *testing.T) {
-	for _, c := range []string{sequences.CodeClockDead, sequences.CodeClockLow, sequences.CodeClockHigh, sequences.CodeIdleLatched,
+	for _, c := range []sequences.FailCode{sequences.CodeClockDead, sequences.CodeClockLow, sequences.CodeClockHigh, sequences.CodeIdleLatched,
 		sequences.CodeNoTrip, sequences.CodeTripLow, sequences.CodeTripHigh, sequences.CodeTripNoisy, sequences.CodeStuckLatched,
 		sequences.CodeLidOpen, sequences.CodeStepTimeout, sequences.CodePinError, sequences.CodeStationError} {
 		if sequences.FailAction(c) == "" {
