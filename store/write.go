@@ -16,6 +16,9 @@ import (
 
 var _ sequences.Recorder = (*DB)(nil)
 
+// The retest policy finds PriorRuns on the recorder by type assertion.
+var _ sequences.PriorRuns = (*DB)(nil)
+
 // TripStep and TripName identify the measurement that holds a run's trip
 // point; Record mirrors its value into the run for the drift series.
 const (

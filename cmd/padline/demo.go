@@ -212,6 +212,8 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 // discard records nothing (the comparison pass).
 type discard struct{}
 
+var _ sequences.Recorder = discard{}
+
 func (discard) Record(context.Context, *sequences.Run) (int64, error) { return 0, nil }
 
 // demoSerial is serial number i (from 1) of the variant's simulated units:

@@ -10,6 +10,13 @@ import (
 	"padline/sequences/timing"
 )
 
+// The plan drives the fixture as a sequences.Station and finds its lamps
+// by type assertion (sequences.Lamps).
+var (
+	_ sequences.Station = (*fixture.Fixture)(nil)
+	_ sequences.Lamps   = (*fixture.Fixture)(nil)
+)
+
 // Rig is a station made ready to test one variant: the variant and station
 // files, the limits computed for them, the plan, and the fixture over the
 // opened pins. It is built once by the one sequence every command shares

@@ -7,6 +7,8 @@ import (
 	"sync"
 )
 
+var _ Scanner = ScannerFunc(nil)
+
 // OneSerial yields serial once, then ends ('padline run --serial').
 func OneSerial(serial string) Scanner {
 	done := false
