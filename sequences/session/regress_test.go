@@ -10,8 +10,10 @@ import (
 
 	"periph.io/x/conn/v3/gpio"
 
+	"padline/fixture/sim"
 	"padline/sequences"
 	"padline/sequences/session"
+	"padline/sequences/timing"
 	"padline/store"
 )
 
@@ -143,5 +145,28 @@ func TestUncertaintyFallsBackOnlyWhenNotFound(t *testing.T) {
 	}
 	if _, _, err := session.Uncertainty(ctx, bad, st); err == nil || !strings.Contains(err.Error(), bad) {
 		t.Errorf("a file that is not a shift log: err %v, want one naming it", err)
+	}
+}
+
+// The simulator draws each toleranced value from the variant's own
+// distribution, not always a clipped normal.
+func TestSimulatorHonoursVariantDistribution(t *testing.T) {
+	v, st, err := session.Load("QM-205", "demo-sim")
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := &v.Circuit
+	c.SenseROhm = timing.Value{Min: 90e3, Typ: 100e3, Max: 110e3, Dist: timing.Uniform}
+	c.PadPF = timing.Value{Min: 8, Typ: 9, Max: 12, Dist: timing.Triangular}
+	c.InputPF = timing.Range(4, 5, 8) // off-centre typ: a split normal
+	um := session.UnitModel(v, st.Sim)
+	if um.SenseR.Shape != sim.Uniform || um.SenseR.Min != 90e3 || um.SenseR.Max != 110e3 {
+		t.Errorf("uniform sense resistor became %+v", um.SenseR)
+	}
+	if um.PadPF.Shape != sim.Triangular || um.PadPF.Mean != 9 {
+		t.Errorf("triangular pad became %+v", um.PadPF)
+	}
+	if um.InputPF.Shape != sim.Normal || um.InputPF.SD != 1.0/3 || um.InputPF.SDHigh != 1 {
+		t.Errorf("min/typ/max 4/5/8 became %+v, want split normal σ 1/3 below, 1 above", um.InputPF)
 	}
 }

@@ -96,14 +96,29 @@ func (d *doc) optIndexList(key string) []int {
 }
 
 // spread turns a toleranced variant value into the simulator's description
-// of how it varies over units: the variant's own distribution (normal, with
-// its stated σ or tolerance = 3σ), clipped to its limits.
+// of how it varies over units, in the variant's own distribution: uniform,
+// triangular (mode typ), or normal — with its stated σ, else a split normal
+// with each side's tolerance at 3σ — clipped to its limits.
 func spread(v timing.Value) sim.Spread {
-	sd := v.SD
-	if sd == 0 {
-		sd = math.Max(v.Typ-v.Min, v.Max-v.Typ) / 3
+	if !(v.Max > v.Min) {
+		return sim.Fixed(v.Typ)
 	}
-	return sim.Spread{Mean: v.Typ, SD: sd, Min: v.Min, Max: v.Max}
+	s := sim.Spread{Mean: v.Typ, Min: v.Min, Max: v.Max}
+	switch v.Dist {
+	case timing.Uniform:
+		s.Shape = sim.Uniform
+	case timing.Triangular:
+		s.Shape = sim.Triangular
+	default:
+		s.SD = v.SD
+		if s.SD == 0 {
+			s.SD = (v.Typ - v.Min) / 3
+			if hi := (v.Max - v.Typ) / 3; hi != s.SD {
+				s.SDHigh = hi
+			}
+		}
+	}
+	return s
 }
 
 // UnitModel describes the variant's units to the simulator. This is the one
