@@ -126,6 +126,15 @@ func writeLimitsJSON(w io.Writer, v *session.Variant, rep timing.Report, uFrom s
 	return nil
 }
 
+// cornerPF prints a corner trip point; a negative one is not a capacitance
+// but a unit that trips with nothing at the pad, and is said so.
+func cornerPF(pf float64) string {
+	if pf < 0 {
+		return "below 0 pF (such a unit trips with nothing at the pad)"
+	}
+	return fmt.Sprintf("%.2f", pf)
+}
+
 func writeLimits(w io.Writer, v *session.Variant, r timing.Report) {
 	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
 	p("variant     %s — %s", v.Name, v.Description)
@@ -133,7 +142,10 @@ func writeLimits(w io.Writer, v *session.Variant, r timing.Report) {
 	p("")
 	p("clock       nominal %.1f Hz   corners %.1f … %.1f Hz   (half periods %.3f / %.3f ms)",
 		r.Clock.Nominal, r.Clock.CornerLow, r.Clock.CornerHigh, 1e3*r.Clock.HighS, 1e3*r.Clock.LowS)
-	p("trip point  nominal %.2f pF   corners %.2f … %.2f pF", r.Trip.Nominal, r.Trip.CornerLow, r.Trip.CornerHigh)
+	p("trip point  nominal %.2f pF   corners %s … %.2f pF", r.Trip.Nominal, cornerPF(r.Trip.CornerLow), r.Trip.CornerHigh)
+	if n := r.Trip.NoTripCorners; n > 0 {
+		p("            at %d of %d corners the unit cannot trip (the flip-flop samples before the sense node can fall)", n, r.Trip.Corners)
+	}
 	p("            Monte Carlo (%d draws, seed %d): mean %.2f pF, sd %.2f pF", r.Draws, r.Seed, r.Trip.MCMean, r.Trip.MCSD)
 	p("            percentiles 0.135 %% %.2f   50 %% %.2f   99.865 %% %.2f pF", r.Trip.MCP00135, r.Trip.MCP50, r.Trip.MCP99865)
 	p("")

@@ -137,3 +137,45 @@ func TestRepeatOfPassedUnitIsNotRefused(t *testing.T) {
 		t.Errorf("a repeat was refused or shown with a package prefix:\n%s", out)
 	}
 }
+
+// A corner below 0 pF is said in words, never printed as a capacitance.
+func TestLimitsNegativeCornerInWords(t *testing.T) {
+	out, errs, code := runPadline(t, context.Background(), "", "limits", "--variant", "QM-212")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	line := ""
+	for _, l := range strings.Split(out, "\n") {
+		if strings.HasPrefix(l, "trip point") {
+			line = l
+		}
+	}
+	if !strings.Contains(line, "below 0 pF (such a unit trips with nothing at the pad)") || strings.Contains(line, "corners -") {
+		t.Errorf("corner line: %q", line)
+	}
+}
+
+// A variant whose worst corner leaves no sampling time (setup max ≥ delay
+// min) is accepted; limits says plainly that at that corner the unit cannot
+// trip.
+func TestLimitsCornerWithoutSamplingTime(t *testing.T) {
+	raw, err := os.ReadFile(filepath.Join(repo, "testdata/variants/QM-205.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	s := strings.Replace(string(raw), "setup_ns: {min: 20, typ: 40, max: 80}", "setup_ns: {min: 20, typ: 40, max: 2800}", 1)
+	if s == string(raw) {
+		t.Fatal("QM-205.yaml's setup_ns line changed: update this test")
+	}
+	path := filepath.Join(t.TempDir(), "QM-205-slow-setup.yaml")
+	if err := os.WriteFile(path, []byte(s), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	out, errs, code := runPadline(t, context.Background(), "", "limits", "--variant", path)
+	if code != 0 {
+		t.Fatalf("refused: exit %d: %s", code, errs)
+	}
+	if !strings.Contains(out, "corners the unit cannot trip") {
+		t.Errorf("limits does not say the unit cannot trip at a corner:\n%s", out)
+	}
+}

@@ -123,8 +123,8 @@ func parseVariant(src Source) (*Variant, error) {
 	if d.section("clock_path", true) {
 		c.DelayNS = d.toleranced("clock_path.delay_ns", mustBePositive)
 		c.SetupNS = d.toleranced("clock_path.setup_ns", mayBeZero)
-		if d.err == nil && c.SetupNS.Max >= c.DelayNS.Min {
-			d.fail("clock_path.setup_ns", "max %g must be below clock_path.delay_ns min %g", c.SetupNS.Max, c.DelayNS.Min)
+		if d.err == nil && c.SetupNS.Typ >= c.DelayNS.Typ {
+			d.fail("clock_path.setup_ns", "typ %g must be below clock_path.delay_ns typ %g: the nominal unit could never trip", c.SetupNS.Typ, c.DelayNS.Typ)
 		}
 	}
 	c.ThresholdFrac = d.toleranced("threshold_frac", mustBeFraction)
