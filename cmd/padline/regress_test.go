@@ -2,6 +2,8 @@ package main
 
 import (
 	"context"
+	"encoding/json"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -9,6 +11,7 @@ import (
 	"time"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/store"
 )
 
@@ -177,5 +180,75 @@ func TestLimitsCornerWithoutSamplingTime(t *testing.T) {
 	}
 	if !strings.Contains(out, "corners the unit cannot trip") {
 		t.Errorf("limits does not say the unit cannot trip at a corner:\n%s", out)
+	}
+}
+
+// The demo's accuracy against the simulator's ground truth, worked out here
+// from the per-unit objects: the error spread about the bias meets the
+// search target (0.2 pF RMS, DEVELOPERS.md "Benchmarks, studies and
+// torture"), the bias is the fixture's stray calibration error (entered
+// minus true stray, give or take the rungs' calibration errors, σ 0.05 pF
+// each), and the summary reports the same figures.
+func TestDemoAccuracyAgainstGroundTruth(t *testing.T) {
+	out, errs, code := runPadline(t, context.Background(), "", "demo", "--units", "400", "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	var e []float64
+	for _, l := range lines[:len(lines)-1] {
+		var u struct {
+			Verdict    string   `json:"verdict"`
+			TripPF     *float64 `json:"trip_pf"`
+			TrueTripPF *float64 `json:"true_trip_pf"`
+			Defects    []string `json:"defects"`
+		}
+		if err := json.Unmarshal([]byte(l), &u); err != nil {
+			t.Fatal(err)
+		}
+		if u.Verdict == "pass" && len(u.Defects) == 0 && u.TripPF != nil && u.TrueTripPF != nil {
+			e = append(e, *u.TripPF-*u.TrueTripPF)
+		}
+	}
+	if len(e) < 300 {
+		t.Fatalf("%d good units with a trip point", len(e))
+	}
+	var sum, ss float64
+	for _, x := range e {
+		sum += x
+		ss += x * x
+	}
+	n := float64(len(e))
+	bias := sum / n
+	rms := math.Sqrt(ss / n)
+	spread := math.Sqrt(math.Max(0, ss/n-bias*bias))
+	if spread > 0.2 {
+		t.Errorf("error spread about the bias %.3f pF, target ≤ 0.2 pF", spread)
+	}
+	v, st, err := session.Load("QM-205", "demo-sim")
+	if err != nil {
+		t.Fatal(err)
+	}
+	line, err := session.NewSimLine(st, v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if want := st.Ladder.StrayPF - line.TrueStrayPF(); math.Abs(bias-want) > 0.15 {
+		t.Errorf("bias %+.3f pF, want the stray's calibration error %+.3f pF ± 0.15", bias, want)
+	}
+	var sum2 struct {
+		Passes []struct {
+			RMS    float64 `json:"trip_rms_error_pf"`
+			Bias   float64 `json:"trip_bias_pf"`
+			Spread float64 `json:"trip_rms_error_less_bias_pf"`
+		} `json:"passes"`
+	}
+	if err := json.Unmarshal([]byte(lines[len(lines)-1]), &sum2); err != nil || len(sum2.Passes) != 1 {
+		t.Fatalf("summary: %v", err)
+	}
+	p := sum2.Passes[0]
+	t.Logf("%d units: rms %.3f bias %+.3f spread %.3f (summary %.3f %+.3f %.3f)", len(e), rms, bias, spread, p.RMS, p.Bias, p.Spread)
+	if math.Abs(p.Bias-bias) > 0.02 || math.Abs(p.Spread-spread) > 0.02 || math.Abs(p.RMS-rms) > 0.02 {
+		t.Errorf("summary rms %.3f bias %+.3f spread %.3f, ground truth %.3f %+.3f %.3f", p.RMS, p.Bias, p.Spread, rms, bias, spread)
 	}
 }
