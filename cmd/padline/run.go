@@ -168,6 +168,8 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 		case session.KindRelayWear:
 			fmt.Fprintf(a.stderr, "relay wear: rung %d has %d of %.0f rated operations (%.0f %%): plan its replacement\n",
 				e.Wear.Rung, e.Wear.Operations, e.Wear.Rated, 100*e.Wear.Fraction)
+		case session.KindDriftAlarm:
+			fmt.Fprintf(a.stderr, "drift alarm: %s\n", e.Drift.Message)
 		case session.KindSessionEnded:
 			if e.Ended.Reason == session.EndRefused {
 				continue

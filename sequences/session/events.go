@@ -47,7 +47,9 @@ const (
 	// KindRelayWear: Event.Wear — a rung passed the station's
 	// relay_warn_fraction of its rated life.
 	KindRelayWear Kind = "relay_wear_warning"
-	// KindDriftAlarm: Event.Drift — a drift rule fired on the trip points.
+	// KindDriftAlarm: Event.Drift — a drift rule fired on the passed
+	// units' trip points (individuals 3σ + CUSUM, centred on the timing
+	// model's Monte Carlo mean and σ).
 	KindDriftAlarm Kind = "drift_alarm"
 	// KindSessionEnded: Event.Ended — the last event; channels close after.
 	KindSessionEnded Kind = "session_ended"

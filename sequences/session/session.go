@@ -4,12 +4,14 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"math"
 	"strings"
 	"sync"
 	"time"
 
 	"padline/sequences"
 	"padline/store"
+	"padline/store/drift"
 )
 
 // Options opens a Session. Variant, Station and ShiftLog are required.
@@ -72,7 +74,12 @@ type Session struct {
 	// its own goroutine, so the fixture is never used twice at once.
 	checkReq chan struct{}
 	// warned marks rungs already warned about this session.
-	warned  map[int]bool
+	warned map[int]bool
+	// watch is the drift watch over the session's trip points (the
+	// default chart set, centred on the timing model's population); nil
+	// when the model gives no spread. tripN counts its points.
+	watch   *drift.Monitor
+	tripN   int
 	mu      sync.Mutex
 	closed  bool
 	hash    string
@@ -116,6 +123,11 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 	}
 	if err := LoadRelayWear(setup, db, rig); err != nil {
 		return nil, errors.Join(err, s.Close())
+	}
+	if t := rig.Limits.Trip; t.MCSD > 0 {
+		if s.watch, err = drift.NewMonitor(t.MCMean, t.MCSD, drift.Options{}, drift.DefaultSet); err != nil {
+			return nil, errors.Join(err, s.Close())
+		}
 	}
 	v, st := rig.Variant, rig.Station
 	s.seq = &sequences.Session{
@@ -374,6 +386,7 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 		return unitTested, err
 	}
 	s.relayWear()
+	s.driftWatch(&oc.Run)
 	return unitTested, nil
 }
 
@@ -394,6 +407,29 @@ func (s *Session) relayWear() {
 		if f >= st.Trust.RelayWarnFraction && !s.warned[i] {
 			s.warned[i] = true
 			s.emit(Event{Kind: KindRelayWear, Wear: &RelayWear{Rung: i, Operations: n, Rated: rated, Fraction: f}})
+		}
+	}
+}
+
+// driftWatch feeds a passed unit's trip point to the drift watch and
+// emits every alarm it completes. The watch is centred on the timing
+// model's Monte Carlo mean and σ: it fires when the line's trip points leave
+// the population the design predicts (DEVELOPERS.md "Physics").
+func (s *Session) driftWatch(run *sequences.Run) {
+	if s.watch == nil || run.Verdict != sequences.Pass {
+		return
+	}
+	for _, m := range run.Measurements {
+		if m.Name != sequences.MeasTripPF || math.IsNaN(m.Value) {
+			continue
+		}
+		s.tripN++
+		for _, a := range s.watch.Add(m.Value) {
+			s.emit(Event{Kind: KindDriftAlarm, Drift: &DriftAlarm{
+				Rule: fmt.Sprintf("%s %s", a.Chart, a.Rule), Unit: s.tripN, Serial: run.Serial, ValuePF: m.Value,
+				Message: strings.TrimSpace(fmt.Sprintf("%s chart, rule %s, at passed unit %d of this session (%s, trip %.2f pF) %s",
+					a.Chart, a.Rule, s.tripN, run.Serial, m.Value, a.Note)),
+			}})
 		}
 	}
 }
