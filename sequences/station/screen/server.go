@@ -47,6 +47,9 @@ type Server struct {
 	// a dead connection is noticed.
 	heartbeat time.Duration
 
+	closeOnce sync.Once
+	closed    chan struct{}
+
 	mu    sync.Mutex
 	state State
 	body  []byte // state as JSON
@@ -75,6 +78,7 @@ func NewServer() (*Server, error) {
 		static:    http.FileServerFS(sub),
 		heartbeat: 15 * time.Second,
 		subs:      map[chan []byte]struct{}{},
+		closed:    make(chan struct{}),
 	}
 	s.body, _ = json.Marshal(s.state)
 	return s, nil
@@ -116,6 +120,10 @@ func (s *Server) Apply(e Event) {
 		ch <- body
 	}
 }
+
+// Close ends every open event stream (an http.Server's Shutdown waits for
+// them otherwise); pages reconnect to a new start of the program.
+func (s *Server) Close() { s.closeOnce.Do(func() { close(s.closed) }) }
 
 // ServeHTTP serves the page, its assets, the event stream and the POSTs.
 func (s *Server) ServeHTTP(w http.ResponseWriter, r *http.Request) {
@@ -183,6 +191,8 @@ func (s *Server) serveEvents(w http.ResponseWriter, r *http.Request) {
 	for {
 		select {
 		case <-r.Context().Done():
+			return
+		case <-s.closed:
 			return
 		case body := <-ch:
 			if _, err := io.WriteString(w, "data: "+string(body)+"\n\n"); err != nil {

@@ -263,7 +263,7 @@ func Reduce(s State, e Event) State {
 			n := *s.Check.UnitsLeft - 1
 			s.Check.UnitsLeft = &n
 		}
-		s.Phase, s.Testing = PhaseReady, ""
+		s.Phase, s.Testing, s.Notice = PhaseReady, "", ""
 	case BadgeScanned:
 		switch e.Kind {
 		case "lot":
@@ -309,8 +309,8 @@ func Reduce(s State, e Event) State {
 		}
 	case RelayWear:
 		s.Warnings = warn(s.Warnings, Warning{Kind: "relay", Key: fmt.Sprintf("rung %d", e.Rung),
-			Text: fmt.Sprintf("relay of rung %d: %.3g operations, %.0f %% of its rated %.3g: plan its replacement",
-				e.Rung, e.Ops, 100*e.Ops/e.RatedOp, e.RatedOp)})
+			Text: fmt.Sprintf("relay of rung %d at %.0f %% of its rated life (%.3g operations): plan its replacement",
+				e.Rung, 100*e.Ops/e.RatedOp, e.Ops)})
 	case DriftAlarm:
 		s.Warnings = warn(s.Warnings, Warning{Kind: "drift", Key: e.Rule, Text: e.Text})
 	default:

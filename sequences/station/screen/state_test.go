@@ -201,3 +201,5 @@ func TestReduceIgnoresUnknown(t *testing.T) {
 		t.Errorf("seq %d after an unknown event", s.Seq)
 	}
 }
+
+func nan() float64 { return math.NaN() }

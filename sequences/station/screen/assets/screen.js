@@ -147,7 +147,12 @@ function drawUnits(s) {
     li.className = "u-" + (CLASS[u.verdict] || "fault");
     const b = document.createElement("b");
     b.textContent = u.verdict === "pass" ? "\u25cb" : u.verdict === "fail" ? "\u25a0" : "\u25b2";
-    li.append(b, u.serial);
+    // On the small panel only the serial's last six characters show.
+    const cut = Math.max(0, u.serial.length - 6);
+    const pre = document.createElement("span");
+    pre.className = "pre";
+    pre.textContent = u.serial.slice(0, cut);
+    li.append(b, pre, u.serial.slice(cut));
     li.title = u.serial + " " + (WORDS[u.verdict] || u.verdict) + (u.fail_code ? " " + u.fail_code : "");
     ol.append(li);
   }

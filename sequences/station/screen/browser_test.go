@@ -1,0 +1,123 @@
+package screen_test
+
+import (
+	"context"
+	"fmt"
+	"net/http/httptest"
+	"testing"
+	"time"
+
+	"github.com/chromedp/chromedp"
+
+	"padline/sequences"
+	"padline/sequences/station/screen"
+	"padline/sequences/station/screen/screentest"
+)
+
+// demoShift feeds the screen a short simulated shift with every kind of
+// verdict and warning (invented demo data).
+func demoShift(s *screen.Server) {
+	s.Apply(screen.Started{Station: "L2-S1", Fixture: "FX-07", Variant: "QM-205", Simulated: true,
+		Lot: "LOT-2611-04", Operator: "OP-0417", TripLowPF: 27.9, TripHighPF: 35.6})
+	s.Apply(screen.CheckSchedule{UnitsLeft: 1977, Due: time.Now().Add(6*time.Hour + 41*time.Minute)})
+	trips := []float64{31.2, 30.8, 32.0, 31.5, 29.9, 31.1, 30.4, 32.3, 31.7, 30.9, 31.0, 31.8, 30.2, 31.4, 31.6, 30.7, 32.1, 31.3, 30.6, 31.9, 30.5}
+	for i, tp := range trips {
+		r := sequences.Run{Serial: fmt.Sprintf("QM205-0070%02d", i+1), Verdict: sequences.Pass}
+		switch i {
+		case 6:
+			r.Verdict, r.FailCode, tp = sequences.Fail, sequences.CodeTripHigh, 38.2
+		case 13:
+			r.Verdict, r.FailCode = sequences.StationFault, sequences.CodeLidOpen
+		}
+		r.Measurements = []sequences.Measurement{{Name: "trip_pf", Value: tp}}
+		s.Apply(screen.Committed{RunID: int64(i + 1), Run: r, FirstTest: true, At: time.Now()})
+	}
+	s.Apply(screen.RelayWear{Rung: 5, Ops: 8.2e8, RatedOp: 1e9})
+	s.Apply(screen.DriftAlarm{Rule: "ewma", Text: "trip points drifting up: EWMA above its limit since unit QM205-007015"})
+}
+
+type layout struct {
+	name string
+	w, h int64
+}
+
+var layouts = []layout{{"800x480", 800, 480}, {"1920x1080", 1920, 1080}}
+
+// The page in a real browser, at both sizes: the verdict word is at least
+// 96 px, nothing spills off the screen, and each state is saved as a
+// screenshot to look at.
+func TestPageInBrowser(t *testing.T) {
+	s, err := screen.NewServer()
+	if err != nil {
+		t.Fatal(err)
+	}
+	hs := httptest.NewServer(s)
+	t.Cleanup(hs.Close)
+	t.Cleanup(s.Close) // ends the page's event stream first
+	ctx := screentest.Browser(t)
+	demoShift(s)
+
+	states := []struct {
+		name  string
+		event screen.Event
+		word  string
+	}{
+		{"pass", screen.Committed{RunID: 100, Run: sequences.Run{Serial: "QM205-007100", Verdict: sequences.Pass,
+			Measurements: []sequences.Measurement{{Name: "trip_pf", Value: 31.4}}}, FirstTest: true, At: time.Now()}, "PASS"},
+		{"fail", screen.Committed{RunID: 101, Run: sequences.Run{Serial: "QM205-007101", Verdict: sequences.Fail,
+			FailCode: sequences.CodeNoTrip, Measurements: []sequences.Measurement{{Name: "trip_pf", Value: nan()}}}, FirstTest: true, At: time.Now()}, "FAIL"},
+		{"fault", screen.Committed{RunID: 102, Run: sequences.Run{Serial: "QM205-007102", Verdict: sequences.StationFault,
+			FailCode: sequences.CodePinError}, Message: "pin ladder[3] GPIO19: write failed", FirstTest: true, At: time.Now()}, "STATION FAULT"},
+		{"locked", screen.StationRefused{Why: "the shift-start check of 2026-12-02 06:02 is older than 8 h",
+			Fix: "run the shift-start check with the reference units at hand", CanCheck: true}, "LOCKED"},
+	}
+	for _, l := range layouts {
+		if err := chromedp.Do(ctx, chromedp.EmulateViewport(l.w, l.h), chromedp.Navigate(hs.URL+"/")); err != nil {
+			t.Fatal(err)
+		}
+		for _, st := range states {
+			s.Apply(st.event)
+			if word, err := waitText(ctx, "#word", st.word); err != nil {
+				t.Fatalf("%s %s: %v (word %q)", l.name, st.name, err, word)
+			}
+			type metrics struct {
+				Font                 float64
+				ScrollW, ScrollH     float64
+				WordBottom, WordLeft float64
+			}
+			js := `(() => { const w = document.getElementById("word"); const r = w.getBoundingClientRect();
+				return {Font: parseFloat(getComputedStyle(w).fontSize), ScrollW: document.documentElement.scrollWidth,
+				ScrollH: document.documentElement.scrollHeight, WordBottom: r.bottom, WordLeft: r.left}; })()`
+			m, err := chromedp.Run(ctx, chromedp.Evaluate[metrics](js))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if st.name != "locked" && m.Font < 96 {
+				t.Errorf("%s %s: verdict word %.0f px, want at least 96", l.name, st.name, m.Font)
+			}
+			if m.ScrollW > float64(l.w) || m.ScrollH > float64(l.h) || m.WordBottom > float64(l.h) {
+				t.Errorf("%s %s: page %gx%g spills off the screen (word bottom %g)", l.name, st.name, m.ScrollW, m.ScrollH, m.WordBottom)
+			}
+			screentest.SaveScreenshot(t, ctx, fmt.Sprintf("screen-%s-%s.png", l.name, st.name))
+		}
+		s.Apply(screen.CheckFinished{OK: true})
+	}
+}
+
+// waitText waits up to 5 s until the text of the element sel is want, and
+// returns the last text read.
+func waitText(ctx context.Context, sel, want string) (string, error) {
+	ctx, cancel := context.WithTimeout(ctx, 5*time.Second)
+	defer cancel()
+	for {
+		got, err := chromedp.Run(ctx, chromedp.Text(chromedp.CSS(sel)))
+		if err != nil || got == want {
+			return got, err
+		}
+		select {
+		case <-ctx.Done():
+			return got, ctx.Err()
+		case <-time.After(10 * time.Millisecond):
+		}
+	}
+}
