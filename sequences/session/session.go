@@ -325,6 +325,14 @@ const (
 // unit takes one scan through gate, lid, test, commit and verdict.
 func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 	r := s.rig
+	if kind, value, ok, err := r.Station.Badges.Badge(raw); ok {
+		if err != nil {
+			s.refuseScan(raw, err.Error(), err)
+		} else {
+			s.badge(kind, value)
+		}
+		return unitRefused, nil
+	}
 	serial, err := CleanSerial(r.Variant.Serial, raw)
 	if err != nil {
 		s.refuseScan(raw, fmt.Sprintf("%v (unit not tested; scan again)", err), err)

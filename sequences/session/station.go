@@ -23,6 +23,8 @@ type Station struct {
 	// Trust is how the station proves it still measures right: its
 	// reference units and how often they must be checked.
 	Trust StationTrust
+	// Badges are the prefixes of lot and operator badges (badges.go).
+	Badges StationBadges
 	// Source is where the file came from, its exact bytes and their sha256.
 	Source Source
 }
@@ -171,6 +173,7 @@ func parseStation(src Source) (*Station, error) {
 		l.CalUncertaintyPF = d.positive("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF)
 	}
 	s.Trust = readStationTrust(d, s.Ladder)
+	s.Badges = readStationBadges(d)
 	s.Sim = readStationSim(d)
 	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
 	if err := d.finish(); err != nil {
