@@ -22,6 +22,7 @@ type runOptions struct {
 	search           string
 	asJSON           bool
 	lidTimeout       time.Duration
+	screen           string // address of the station screen; "" for none
 }
 
 // runCmd builds `padline run`.
@@ -42,6 +43,12 @@ log, and only then shows the verdict and lights the lamp.
 Ctrl-C or SIGTERM stops cleanly: the fixture opens every rung and removes unit
 power, and a unit stopped half-way gets no verdict and no log entry.
 
+--screen serves the station screen to a browser on this computer
+(` + defaultScreenAddr + `; --screen=ADDR to listen elsewhere, which the log
+says): the verdict large, the fail code's action, the shift's counters, and a
+field that takes scans like stdin does. With --screen a station that needs its
+shift-start check waits for it to be run from the page instead of exiting.
+
 A station file with driver: sim runs against the built-in simulated line;
 driver: gpio drives the real pins named in the station file.
 
@@ -51,7 +58,8 @@ with their logic board unpowered from mains; follow local electrical codes and
 your safety engineer. Keep hands clear of the fixture clamp.`,
 		Example: `  padline run --variant QM-205 --station /etc/padline/station.yaml
   padline run --variant QM-205 --station demo-sim --serial QM205-000123
-  printf 'QM205-000001\nQM205-000002\n' | padline run --variant QM-205 --station demo-sim --db shift.db`,
+  printf 'QM205-000001\nQM205-000002\n' | padline run --variant QM-205 --station demo-sim --db shift.db
+  padline run --variant QM-205 --station demo-sim --screen   # then open http://127.0.0.1:8080/`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			db, err := shiftLogPath(cmd, o.station)
@@ -71,6 +79,7 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f.StringVar(&o.search, "search", "", "trip search: bracket or staircase (default: the variant's plan)")
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per tested unit instead of the verdict banner")
 	f.DurationVar(&o.lidTimeout, "lid-timeout", 0, "give up on a unit whose lid stays open this long (0: wait until stopped)")
+	addScreenFlag(f, &o.screen)
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
@@ -81,6 +90,8 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		Variant: o.variant, Station: o.station, ShiftLog: dbPath,
 		Operator: o.operator, Lot: o.lot, Strategy: o.search,
 		Software: softwareVersion(), GPIO: openGPIO, LidTimeout: o.lidTimeout,
+		// With a screen the technician runs a due check from the page.
+		WaitForCheck: o.screen != "",
 	})
 	if err != nil {
 		return err
@@ -100,6 +111,19 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		sc = session.OneSerial(o.serial)
 	} else {
 		sc = a.promptingScanner(session.LineScanner(a.stdin), o)
+	}
+	if o.screen != "" {
+		var stdin session.Scanner
+		if o.serial == "" {
+			stdin = sc
+		}
+		var stopScreen func()
+		if sc, stopScreen, err = a.startScreen(ctx, sess, stdin, o.screen); err != nil {
+			stop()
+			<-printed
+			return err
+		}
+		defer stopScreen()
 	}
 	err = sess.Run(ctx, sc)
 	stop()
@@ -144,6 +168,20 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 		case session.KindStationRefused:
 			if !o.asJSON {
 				fmt.Fprintf(a.stdout, "STATION LOCKED  %s: %s\n", e.Refused.Why, e.Refused.Fix)
+			}
+		case session.KindCheckDue:
+			if !o.asJSON {
+				fmt.Fprintln(a.stdout, "waiting for the shift-start check: run it from the station screen")
+			}
+		case session.KindCheckProgress:
+			fmt.Fprintf(a.stderr, "shift-start check: %s\n", e.Check.Message)
+		case session.KindCheckResult:
+			if !o.asJSON {
+				writeCheckResult(a.stdout, e.Check.Report)
+			}
+		case session.KindBadgeScanned:
+			if !o.asJSON {
+				fmt.Fprintf(a.stdout, "%s set to %s\n", e.Badge.Kind, e.Badge.Value)
 			}
 		case session.KindScanRefused:
 			if o.asJSON {

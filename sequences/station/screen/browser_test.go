@@ -10,6 +10,7 @@ import (
 	"github.com/chromedp/chromedp"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/station/screen"
 	"padline/sequences/station/screen/screentest"
 )
@@ -17,23 +18,25 @@ import (
 // demoShift feeds the screen a short simulated shift with every kind of
 // verdict and warning (invented demo data).
 func demoShift(s *screen.Server) {
-	s.Apply(screen.Started{Station: "L2-S1", Fixture: "FX-07", Variant: "QM-205", Simulated: true,
-		Lot: "LOT-2611-04", Operator: "OP-0417", TripLowPF: 27.9, TripHighPF: 35.6})
-	s.Apply(screen.CheckSchedule{UnitsLeft: 1977, Due: time.Now().Add(6*time.Hour + 41*time.Minute)})
+	s.Apply(session.Event{Kind: session.KindSessionStarted, Started: &session.Started{Station: "L2-S1", Fixture: "FX-07",
+		Variant: "QM-205", Simulated: true, Lot: "LOT-2611-04", Operator: "OP-0417",
+		Limits: sequences.Limits{TripLowPF: 27.9, TripHighPF: 35.6}}})
+	s.Apply(screen.StationInfo{References: 3})
+	s.Apply(screen.Schedule{UnitsLeft: 1977, Due: time.Now().Add(6*time.Hour + 41*time.Minute)})
 	trips := []float64{31.2, 30.8, 32.0, 31.5, 29.9, 31.1, 30.4, 32.3, 31.7, 30.9, 31.0, 31.8, 30.2, 31.4, 31.6, 30.7, 32.1, 31.3, 30.6, 31.9, 30.5}
 	for i, tp := range trips {
-		r := sequences.Run{Serial: fmt.Sprintf("QM205-0070%02d", i+1), Verdict: sequences.Pass}
+		code, v := "", sequences.Pass
 		switch i {
 		case 6:
-			r.Verdict, r.FailCode, tp = sequences.Fail, sequences.CodeTripHigh, 38.2
+			v, code, tp = sequences.Fail, sequences.CodeTripHigh, 38.2
 		case 13:
-			r.Verdict, r.FailCode = sequences.StationFault, sequences.CodeLidOpen
+			v, code = sequences.StationFault, sequences.CodeLidOpen
 		}
-		r.Measurements = []sequences.Measurement{{Name: "trip_pf", Value: tp}}
-		s.Apply(screen.Committed{RunID: int64(i + 1), Run: r, FirstTest: true, At: time.Now()})
+		s.Apply(screen.Committed{Event: verdict(int64(i+1), fmt.Sprintf("QM205-0070%02d", i+1), v, code, tp, 0), FirstTest: true})
 	}
-	s.Apply(screen.RelayWear{Rung: 5, Ops: 8.2e8, RatedOp: 1e9})
-	s.Apply(screen.DriftAlarm{Rule: "ewma", Text: "trip points drifting up: EWMA above its limit since unit QM205-007015"})
+	s.Apply(session.Event{Kind: session.KindRelayWear, Wear: &session.RelayWear{Rung: 5, Operations: 820_000_000, Rated: 1e9, Fraction: 0.82}})
+	s.Apply(session.Event{Kind: session.KindDriftAlarm, Drift: &session.DriftAlarm{Rule: "ewma",
+		Message: "trip points drifting up: EWMA above its limit since unit QM205-007015"}})
 }
 
 type layout struct {
@@ -62,14 +65,14 @@ func TestPageInBrowser(t *testing.T) {
 		event screen.Event
 		word  string
 	}{
-		{"pass", screen.Committed{RunID: 100, Run: sequences.Run{Serial: "QM205-007100", Verdict: sequences.Pass,
-			Measurements: []sequences.Measurement{{Name: "trip_pf", Value: 31.4}}}, FirstTest: true, At: time.Now()}, "PASS"},
-		{"fail", screen.Committed{RunID: 101, Run: sequences.Run{Serial: "QM205-007101", Verdict: sequences.Fail,
-			FailCode: sequences.CodeNoTrip, Measurements: []sequences.Measurement{{Name: "trip_pf", Value: nan()}}}, FirstTest: true, At: time.Now()}, "FAIL"},
-		{"fault", screen.Committed{RunID: 102, Run: sequences.Run{Serial: "QM205-007102", Verdict: sequences.StationFault,
-			FailCode: sequences.CodePinError}, Message: "pin ladder[3] GPIO19: write failed", FirstTest: true, At: time.Now()}, "STATION FAULT"},
-		{"locked", screen.StationRefused{Why: "the shift-start check of 2026-12-02 06:02 is older than 8 h",
-			Fix: "run the shift-start check with the reference units at hand", CanCheck: true}, "LOCKED"},
+		{"pass", verdict(100, "QM205-007100", sequences.Pass, "", 31.4, 0), "PASS"},
+		{"fail", verdict(101, "QM205-007101", sequences.Fail, sequences.CodeNoTrip, nan(), 0), "FAIL"},
+		{"fault", func() session.Event {
+			e := verdict(102, "QM205-007102", sequences.StationFault, sequences.CodePinError, nan(), 0)
+			e.Verdict.StationError = "pin ladder[3] GPIO19: write failed"
+			return e
+		}(), "STATION FAULT"},
+		{"locked", refused(session.KindCheckDue), "LOCKED"},
 	}
 	for _, l := range layouts {
 		if err := chromedp.Do(ctx, chromedp.EmulateViewport(l.w, l.h), chromedp.Navigate(hs.URL+"/")); err != nil {
@@ -100,7 +103,7 @@ func TestPageInBrowser(t *testing.T) {
 			}
 			screentest.SaveScreenshot(t, ctx, fmt.Sprintf("screen-%s-%s.png", l.name, st.name))
 		}
-		s.Apply(screen.CheckFinished{OK: true})
+		s.Apply(session.Event{Kind: session.KindCheckResult, Check: &session.CheckInfo{Report: &session.CheckReport{OK: true, Time: time.Now()}}})
 	}
 }
 

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/station/screen"
 )
 
@@ -115,7 +116,7 @@ func TestPostsNeedTokenAndPost(t *testing.T) {
 // The event stream sends the state at once and then every change.
 func TestEventStream(t *testing.T) {
 	s, hs := newServer(t)
-	s.Apply(screen.Started{Station: "L2-S1", Simulated: true})
+	s.Apply(session.Event{Kind: session.KindSessionStarted, Started: &session.Started{Station: "L2-S1", Simulated: true}})
 	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
 	defer cancel()
 	req, _ := http.NewRequestWithContext(ctx, http.MethodGet, hs.URL+"/events", nil)
@@ -147,7 +148,7 @@ func TestEventStream(t *testing.T) {
 	if st := next(); st.Station != "L2-S1" || !st.Simulated {
 		t.Errorf("first state %+v", st)
 	}
-	s.Apply(screen.Committed{RunID: 7, Run: sequences.Run{Serial: "QM205-000007", Verdict: sequences.Fail, FailCode: sequences.CodeNoTrip}})
+	s.Apply(verdict(7, "QM205-000007", sequences.Fail, sequences.CodeNoTrip, nan(), 0))
 	st := next()
 	if st.Last == nil || st.Last.RunID != 7 || st.Last.Do == "" || st.Counts.Fail != 1 {
 		t.Errorf("state after commit %+v last %+v", st, st.Last)

@@ -3,9 +3,10 @@ package screen
 import (
 	"fmt"
 	"math"
-	"time"
+	"strings"
 
 	"padline/sequences"
+	"padline/sequences/session"
 )
 
 // RecentUnits is how many units the screen lists.
@@ -20,6 +21,7 @@ const (
 	PhaseTesting  Phase = "testing"  // a unit is in the fixture
 	PhaseRefused  Phase = "refused"  // the station may not test production units
 	PhaseChecking Phase = "checking" // the shift-start check is running
+	PhaseEnded    Phase = "ended"    // the session has ended
 )
 
 // State is everything the page shows. It is sent to the page as JSON, whole,
@@ -108,7 +110,7 @@ type Check struct {
 	// Due is true when the check must run before the next unit.
 	Due bool `json:"due"`
 	// Done and Total are the progress of a running check (reference
-	// units tested of all).
+	// units measured of all); Step says what happens now.
 	Done  int    `json:"done"`
 	Total int    `json:"total"`
 	Step  string `json:"step,omitempty"`
@@ -143,29 +145,28 @@ type Repeat struct {
 type Warning struct {
 	Kind string `json:"kind"` // "relay" or "drift"
 	// Key identifies the warning so a newer one replaces it (the rung, the
-	// chart rule).
+	// drift rule).
 	Key  string `json:"key"`
 	Text string `json:"text"`
 }
 
-// Event is one thing that happened at the station that the screen shows.
-// The concrete types are below; Reduce ignores any other.
-type Event interface{}
+// Event is what Reduce takes: a session.Event, or one of the screen's own
+// events below (what the screen learns beside the session's stream).
+// Reduce ignores any other value.
+type Event any
 
-// Started opens the session: station, variant, limits, lot and operator.
-type Started struct {
-	Station, Fixture, Variant string
-	Simulated                 bool
-	Lot, Operator             string
-	TripLowPF, TripHighPF     float64
+// StationInfo is what the screen knows of the station beyond the session's
+// start: how many reference units a shift-start check measures.
+type StationInfo struct{ References int }
+
+// Committed is a session's verdict_committed event with what the screen
+// knows of the serial before it: whether this was its first unit verdict
+// (for the first-pass yield). A bare verdict_committed event counts as a
+// first test when the serial had no prior fails.
+type Committed struct {
+	Event     session.Event
+	FirstTest bool
 }
-
-// Scanned is a serial accepted for test: the unit is in the fixture.
-type Scanned struct{ Serial string }
-
-// ScanRejected is a scan that was not tested (a bad serial, a retest limit,
-// the lid never closed).
-type ScanRejected struct{ Scan, Reason string }
 
 // RepeatScanned is a serial that already has a verdict, scanned again; it
 // is tested only after the technician acknowledges it.
@@ -174,172 +175,173 @@ type RepeatScanned struct {
 	Tested, Failed int
 }
 
-// Committed is a unit's run, committed to the shift log.
-type Committed struct {
-	RunID      int64
-	Run        sequences.Run
-	PriorFails int
-	// FirstTest is true when this is the serial's first unit verdict.
-	FirstTest bool
-	// Message is the station's error for a station fault.
-	Message string
-	// At is when the commit returned.
-	At time.Time
-}
+// RepeatCleared ends a repeat question: the serial went to test, or
+// another scan replaced it.
+type RepeatCleared struct{}
 
-// BadgeScanned is a lot or operator badge scanned at the station.
-type BadgeScanned struct {
-	Kind  string // "lot" or "operator"
-	Value string
-}
-
-// StationRefused is the production gate saying no.
-type StationRefused struct {
-	Why, Fix string
-	CanCheck bool
-}
-
-// CheckSchedule is when the next shift-start check falls due.
-type CheckSchedule struct {
-	// UnitsLeft < 0: no unit limit. Due zero: no time limit.
-	UnitsLeft int
-	Due       time.Time
-}
-
-// CheckProgress is a running shift-start check.
-type CheckProgress struct {
-	Done, Total int
-	Step        string
-}
-
-// CheckFinished is the end of a shift-start check.
-type CheckFinished struct {
-	OK     bool
-	Detail string
-}
-
-// RelayWear is a relay near or past its rated life.
-type RelayWear struct {
-	Rung         int
-	Ops, RatedOp float64
-}
-
-// DriftAlarm is a control-chart alarm on the trip points.
-type DriftAlarm struct{ Rule, Text string }
+// Schedule is the next shift-start check (session.NextCheck).
+type Schedule session.CheckSchedule
 
 // Reduce returns the state after e. It does not change s (the slices of the
 // result are new whenever they change).
 func Reduce(s State, e Event) State {
 	s.Seq++
 	switch e := e.(type) {
-	case Started:
-		s.Station, s.Fixture, s.Variant = e.Station, e.Fixture, e.Variant
-		s.Simulated, s.Lot, s.Operator = e.Simulated, e.Lot, e.Operator
-		s.TripLowPF, s.TripHighPF = e.TripLowPF, e.TripHighPF
-		if s.Phase == "" {
-			s.Phase = PhaseReady
+	case session.Event:
+		if e.Kind == session.KindVerdictCommitted && e.Verdict != nil {
+			return committed(s, e, e.Verdict.PriorFails == 0)
 		}
-	case Scanned:
-		s.Phase, s.Testing = PhaseTesting, e.Serial
-		s.ScanRefused, s.Repeat, s.Notice = nil, nil, ""
-	case ScanRejected:
-		s.ScanRefused = &ScanRefused{Scan: e.Scan, Reason: e.Reason}
-		if s.Phase == PhaseTesting {
-			s.Phase, s.Testing = PhaseReady, ""
+		if next, ok := reduceSession(s, e); ok {
+			return next
 		}
-		s.Notice = ""
+	case Committed:
+		if e.Event.Kind == session.KindVerdictCommitted && e.Event.Verdict != nil {
+			return committed(s, e.Event, e.FirstTest)
+		}
+	case StationInfo:
+		s.Check.Total = e.References
+		return s
 	case RepeatScanned:
 		s.Repeat = &Repeat{Serial: e.Serial, Tested: e.Tested, Failed: e.Failed}
 		s.ScanRefused, s.Notice = nil, ""
-	case Committed:
-		u := unitOf(e)
-		s.Last = &u
-		s.Units = append([]Unit{u}, s.Units...)
-		if len(s.Units) > RecentUnits {
-			s.Units = s.Units[:RecentUnits]
+		return s
+	case RepeatCleared:
+		if s.Repeat != nil {
+			s.Repeat = nil
+			return s
 		}
-		s.Counts = count(s.Counts, e)
-		if s.Check.UnitsLeft != nil && e.Run.Verdict != sequences.StationFault {
-			n := *s.Check.UnitsLeft - 1
-			s.Check.UnitsLeft = &n
-		}
-		s.Phase, s.Testing, s.Notice = PhaseReady, "", ""
-	case BadgeScanned:
-		switch e.Kind {
-		case "lot":
-			s.Lot = e.Value
-		case "operator":
-			s.Operator = e.Value
-		}
-		s.Notice = fmt.Sprintf("%s set to %s", e.Kind, e.Value)
-		s.ScanRefused = nil
-	case StationRefused:
-		s.Phase, s.Testing = PhaseRefused, ""
-		s.Refusal = &Refusal{Why: e.Why, Fix: e.Fix, CanCheck: e.CanCheck}
-		s.Check.Due = e.CanCheck
-	case CheckSchedule:
+	case Schedule:
 		s.Check.UnitsLeft = nil
 		if e.UnitsLeft >= 0 {
-			n := e.UnitsLeft
+			n := int(e.UnitsLeft)
 			s.Check.UnitsLeft = &n
 		}
 		s.Check.DueMs = 0
 		if !e.Due.IsZero() {
 			s.Check.DueMs = e.Due.UnixMilli()
 		}
-	case CheckProgress:
+		return s
+	}
+	s.Seq-- // nothing changed
+	return s
+}
+
+// reduceSession applies a session event other than a verdict; ok is false
+// for an event the screen does not show.
+func reduceSession(s State, e session.Event) (State, bool) {
+	switch {
+	case e.Kind == session.KindSessionStarted && e.Started != nil:
+		st := e.Started
+		s.Station, s.Fixture, s.Variant = st.Station, st.Fixture, st.Variant
+		s.Simulated, s.Lot, s.Operator = st.Simulated, st.Lot, st.Operator
+		s.TripLowPF, s.TripHighPF = st.Limits.TripLowPF, st.Limits.TripHighPF
+		s.Phase = PhaseReady
+	case (e.Kind == session.KindStationRefused || e.Kind == session.KindCheckDue) && e.Refused != nil:
+		s.Phase, s.Testing = PhaseRefused, ""
+		r := &Refusal{Why: e.Refused.Why, Fix: e.Refused.Fix}
+		if e.Kind == session.KindCheckDue {
+			// The session waits for the check: the screen's button runs it.
+			r.CanCheck = true
+			r.Fix = "run the shift-start check: press the button below and load each reference unit when asked"
+			s.Check.Due = true
+		}
+		s.Refusal = r
+	case e.Kind == session.KindCheckProgress && e.Check != nil:
+		if s.Phase != PhaseChecking {
+			s.Check.Done = 0
+		}
 		s.Phase = PhaseChecking
-		s.Check.Done, s.Check.Total, s.Check.Step = e.Done, e.Total, e.Step
-		s.Check.Result = ""
-	case CheckFinished:
+		s.Check.Step, s.Check.Result = e.Check.Message, ""
+		if e.Check.Serial != "" {
+			s.Check.Done++
+		}
+	case e.Kind == session.KindCheckResult && e.Check != nil && e.Check.Report != nil:
+		rep := e.Check.Report
 		s.Check.Step = ""
-		if e.OK {
+		if rep.OK {
 			s.Phase, s.Refusal, s.Check.Due = PhaseReady, nil, false
-			s.Check.Result = "passed"
+			s.Check.Result = "passed at " + rep.Time.Local().Format("15:04")
 			s.Notice = "shift-start check passed: scan the next unit"
 		} else {
 			s.Phase = PhaseRefused
-			s.Check.Result = "refused the station"
-			s.Refusal = &Refusal{Why: "the shift-start check refused the station: " + e.Detail,
-				Fix: "see to the fixture as the check says, then run the check again", CanCheck: true}
-			s.Check.Due = true
+			s.Check.Result = "refused the station at " + rep.Time.Local().Format("15:04")
+			s.Refusal = &Refusal{Why: "the shift-start check refused the station: " + strings.Join(rep.Faults, "; "),
+				Fix: "see to the fixture as the check says, then run the check again"}
 		}
-		if e.Detail != "" {
-			s.Check.Result += ": " + e.Detail
+	case e.Kind == session.KindUnitScanned && e.Scan != nil:
+		s.Phase, s.Testing = PhaseTesting, e.Scan.Serial
+		s.ScanRefused, s.Repeat, s.Notice = nil, nil, ""
+	case e.Kind == session.KindLidWait && e.Scan != nil:
+		s.Notice = "close the lid to start the test of " + e.Scan.Serial
+	case e.Kind == session.KindScanRefused && e.ScanRefused != nil:
+		s.ScanRefused = &ScanRefused{Scan: e.ScanRefused.Raw, Reason: e.ScanRefused.Reason}
+		if s.Phase == PhaseTesting {
+			s.Phase, s.Testing = PhaseReady, ""
 		}
-	case RelayWear:
-		s.Warnings = warn(s.Warnings, Warning{Kind: "relay", Key: fmt.Sprintf("rung %d", e.Rung),
-			Text: fmt.Sprintf("relay of rung %d at %.0f %% of its rated life (%.3g operations): plan its replacement",
-				e.Rung, 100*e.Ops/e.RatedOp, e.Ops)})
-	case DriftAlarm:
-		s.Warnings = warn(s.Warnings, Warning{Kind: "drift", Key: e.Rule, Text: e.Text})
+		s.Notice = ""
+	case e.Kind == session.KindBadgeScanned && e.Badge != nil:
+		switch e.Badge.Kind {
+		case session.BadgeLot:
+			s.Lot = e.Badge.Value
+		case session.BadgeOperator:
+			s.Operator = e.Badge.Value
+		}
+		s.Notice = fmt.Sprintf("%s set to %s", e.Badge.Kind, e.Badge.Value)
+		s.ScanRefused = nil
+	case e.Kind == session.KindUnitAborted && e.Scan != nil:
+		s.Phase, s.Testing = PhaseReady, ""
+		s.Notice = e.Scan.Serial + " was stopped mid-test: no verdict, nothing logged"
+	case e.Kind == session.KindRelayWear && e.Wear != nil:
+		w := e.Wear
+		s.Warnings = warn(s.Warnings, Warning{Kind: "relay", Key: fmt.Sprintf("rung %d", w.Rung),
+			Text: fmt.Sprintf("relay of rung %d at %.0f %% of its rated life (%d operations): plan its replacement",
+				w.Rung, 100*w.Fraction, w.Operations)})
+	case e.Kind == session.KindDriftAlarm && e.Drift != nil:
+		s.Warnings = warn(s.Warnings, Warning{Kind: "drift", Key: e.Drift.Rule, Text: e.Drift.Message})
+	case e.Kind == session.KindSessionEnded && e.Ended != nil:
+		s.Phase, s.Testing = PhaseEnded, ""
+		s.Notice = fmt.Sprintf("the station stopped (%s) after %d unit(s)", e.Ended.Reason, e.Ended.Tested)
 	default:
-		s.Seq-- // nothing changed
+		return s, false
 	}
+	return s, true
+}
+
+// committed shows a committed run: the last verdict, the list, the counts.
+func committed(s State, e session.Event, first bool) State {
+	u := unitOf(e)
+	s.Last = &u
+	s.Units = append([]Unit{u}, s.Units...)
+	if len(s.Units) > RecentUnits {
+		s.Units = s.Units[:RecentUnits]
+	}
+	s.Counts = count(s.Counts, e.Verdict.Run.Verdict, first)
+	s.Phase, s.Testing, s.Notice = PhaseReady, "", ""
 	return s
 }
 
 // unitOf is a committed run as the screen lists it.
-func unitOf(e Committed) Unit {
-	r := e.Run
-	u := Unit{RunID: e.RunID, Serial: r.Serial, Verdict: r.Verdict, FailCode: r.FailCode,
-		PriorFails: e.PriorFails, Message: e.Message, CommittedMs: e.At.UnixMilli()}
+func unitOf(e session.Event) Unit {
+	v := e.Verdict
+	r := v.Run
+	u := Unit{RunID: v.ID, Serial: r.Serial, Verdict: r.Verdict, FailCode: r.FailCode,
+		PriorFails: v.PriorFails, Message: v.StationError, CommittedMs: e.Time.UnixMilli()}
 	if a, ok := sequences.Advice(r.FailCode); ok && r.Verdict != sequences.Pass {
 		u.Means, u.Do = a.Means, a.Do
 	}
 	for _, m := range r.Measurements {
 		if m.Name == "trip_pf" && !math.IsNaN(m.Value) && !math.IsInf(m.Value, 0) {
-			v := m.Value
-			u.TripPF = &v
+			x := m.Value
+			u.TripPF = &x
 		}
 	}
 	return u
 }
 
-// count adds a committed run to the shift's counters. A station fault
+// count adds a committed verdict to the shift's counters. A station fault
 // judges no unit, so it never enters the first-pass yield.
-func count(c Counts, e Committed) Counts {
-	switch e.Run.Verdict {
+func count(c Counts, v sequences.Verdict, first bool) Counts {
+	switch v {
 	case sequences.Pass:
 		c.Pass++
 	case sequences.Fail:
@@ -348,9 +350,9 @@ func count(c Counts, e Committed) Counts {
 		c.StationFault++
 		return c
 	}
-	if e.FirstTest {
+	if first {
 		c.FirstTests++
-		if e.Run.Verdict == sequences.Pass {
+		if v == sequences.Pass {
 			c.FirstPasses++
 		}
 		y := 100 * float64(c.FirstPasses) / float64(c.FirstTests)
