@@ -46,9 +46,11 @@ function setVerdictClass(c) {
 function drawTrip(u, s) {
   const box = $("tripbox");
   if (u.trip_pf === null || !(s.trip_high_pf > s.trip_low_pf)) {
-    box.hidden = u.verdict === "station-fault";
+    // Only a unit that never latched has "no trip point" to show; for
+    // the others the search never ran.
+    box.hidden = u.fail_code !== "no_trip";
     $("tripmark").hidden = true;
-    text("triptext", u.verdict === "station-fault" ? "" : "no trip point on the ladder");
+    text("triptext", "no trip point anywhere on the ladder");
     return;
   }
   box.hidden = false;
