@@ -201,7 +201,7 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			if o.asJSON {
 				werr = errors.Join(werr, enc.Encode(unitJSON(e.Verdict)))
 			} else {
-				writeVerdict(a.stdout, e.Verdict)
+				writeVerdict(a.stdout, e.Verdict, isTerminal(a.stdout))
 			}
 		case session.KindRelayWear:
 			fmt.Fprintf(a.stderr, "relay wear: rung %d has %d of %.0f rated operations (%.0f %%): plan its replacement\n",
@@ -258,8 +258,9 @@ func jsonNum(f float64) any {
 	return f
 }
 
-// writeVerdict prints the verdict large and plain, after the commit.
-func writeVerdict(w io.Writer, v *session.Verdict) {
+// writeVerdict prints the verdict large and plain, after the commit; in
+// colour (as well as in words) when colour is set: on a terminal only.
+func writeVerdict(w io.Writer, v *session.Verdict, colour bool) {
 	r, lim := v.Run, v.Limits
 	trip := "no trip point"
 	for _, x := range r.Measurements {
@@ -273,11 +274,11 @@ func writeVerdict(w io.Writer, v *session.Verdict) {
 		if v.PriorFails > 0 {
 			flag = fmt.Sprintf("   (pass after %d fail(s): flagged in the shift log)", v.PriorFails)
 		}
-		fmt.Fprintf(w, "%s   ======== PASS ========   %s%s\n", r.Serial, trip, flag)
+		fmt.Fprintf(w, "%s   %s   %s%s\n", r.Serial, paint("======== PASS ========", r.Verdict, colour), trip, flag)
 	case sequences.Fail:
-		fmt.Fprintf(w, "%s   ######## FAIL ########   %s   %s\n", r.Serial, r.FailCode, trip)
+		fmt.Fprintf(w, "%s   %s   %s   %s\n", r.Serial, paint("######## FAIL ########", r.Verdict, colour), r.FailCode, trip)
 	default:
-		fmt.Fprintf(w, "%s   ???? STATION FAULT ????   %s: the station, not the unit, failed; see the station before retesting\n", r.Serial, r.FailCode)
+		fmt.Fprintf(w, "%s   %s   %s: the station, not the unit, failed; see the station before retesting\n", r.Serial, paint("???? STATION FAULT ????", r.Verdict, colour), r.FailCode)
 		if v.StationError != "" {
 			fmt.Fprintf(w, "   station fault: %s\n", v.StationError)
 		}

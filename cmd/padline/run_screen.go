@@ -12,6 +12,7 @@ import (
 
 	"github.com/spf13/pflag"
 
+	"padline/sequences"
 	"padline/sequences/session"
 	"padline/sequences/station/screen"
 )
@@ -78,4 +79,21 @@ func writeCheckResult(w io.Writer, rep *session.CheckReport) {
 		return
 	}
 	fmt.Fprintf(w, "shift-start check REFUSED the station (check %d): %s\n", rep.CheckID, strings.Join(rep.Faults, "; "))
+}
+
+// paint colours a verdict banner for a terminal (ECMA-48 SGR: bold, then
+// black on green for a pass, white on red for a fail, black on yellow for a
+// station fault); the words stay, so colour only adds to them.
+func paint(banner string, v sequences.Verdict, on bool) string {
+	if !on {
+		return banner
+	}
+	sgr := "1;30;43"
+	switch v {
+	case sequences.Pass:
+		sgr = "1;30;42"
+	case sequences.Fail:
+		sgr = "1;97;41"
+	}
+	return "\x1b[" + sgr + "m" + banner + "\x1b[0m"
 }
