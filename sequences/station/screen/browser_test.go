@@ -32,7 +32,7 @@ func demoShift(s *screen.Server) {
 		case 13:
 			v, code = sequences.StationFault, sequences.CodeLidOpen
 		}
-		s.Apply(screen.Committed{Event: verdict(int64(i+1), fmt.Sprintf("QM205-0070%02d", i+1), v, code, tp, 0), FirstTest: true})
+		s.Apply(verdict(int64(i+1), fmt.Sprintf("QM205-0070%02d", i+1), v, code, tp, 0))
 	}
 	s.Apply(session.Event{Kind: session.KindRelayWear, Wear: &session.RelayWear{Rung: 5, Operations: 820_000_000, Rated: 1e9, Fraction: 0.82}})
 	s.Apply(session.Event{Kind: session.KindDriftAlarm, Drift: &session.DriftAlarm{Rule: "ewma",

@@ -27,9 +27,6 @@ type Desk struct {
 	scans chan Input // page scans and acknowledgements, for Scanner
 
 	mu sync.Mutex
-	// first holds, for every serial handed to the session, whether it had
-	// no unit verdict before (for the first-pass yield).
-	first map[string]bool
 	// waitingCheck is true while the session waits for a check.
 	waitingCheck bool
 }
@@ -37,7 +34,7 @@ type Desk struct {
 // NewDesk connects srv and sess. Call Start before the session's Run, and
 // give Run the desk's Scanner.
 func NewDesk(srv *Server, sess *session.Session) *Desk {
-	return &Desk{srv: srv, sess: sess, now: time.Now, scans: make(chan Input, 64), first: map[string]bool{}}
+	return &Desk{srv: srv, sess: sess, now: time.Now, scans: make(chan Input, 64)}
 }
 
 // Start subscribes to the session's events and handles the page's inputs
@@ -63,19 +60,6 @@ func (d *Desk) Start(ctx context.Context) (wait func()) {
 // event applies one session event to the screen.
 func (d *Desk) event(ctx context.Context, e session.Event) {
 	switch e.Kind {
-	case session.KindVerdictCommitted:
-		if e.Verdict == nil {
-			return
-		}
-		d.mu.Lock()
-		first, known := d.first[e.Verdict.Run.Serial]
-		d.mu.Unlock()
-		if !known {
-			first = e.Verdict.PriorFails == 0
-		}
-		d.srv.Apply(Committed{Event: e, FirstTest: first})
-		d.schedule(ctx)
-		return
 	case session.KindCheckDue:
 		d.mu.Lock()
 		d.waitingCheck = true
@@ -86,7 +70,8 @@ func (d *Desk) event(ctx context.Context, e session.Event) {
 		d.mu.Unlock()
 	}
 	d.srv.Apply(e)
-	if e.Kind == session.KindCheckResult || e.Kind == session.KindSessionStarted {
+	switch e.Kind {
+	case session.KindVerdictCommitted, session.KindCheckResult, session.KindSessionStarted:
 		d.schedule(ctx)
 	}
 }
@@ -170,7 +155,6 @@ func (d *Desk) Scanner(stdin session.Scanner) session.Scanner {
 				s := pending
 				pending = ""
 				d.srv.Apply(RepeatCleared{})
-				d.handOver(s, false)
 				return s, true, nil
 			}
 			if pending != "" {
@@ -186,15 +170,7 @@ func (d *Desk) Scanner(stdin session.Scanner) session.Scanner {
 				d.srv.Apply(RepeatScanned{Serial: text, Tested: tested, Failed: failed})
 				continue
 			}
-			d.handOver(text, true)
 			return in.Text, true, nil
 		}
 	})
-}
-
-// handOver notes whether serial goes to its first test.
-func (d *Desk) handOver(serial string, first bool) {
-	d.mu.Lock()
-	d.first[serial] = first
-	d.mu.Unlock()
 }

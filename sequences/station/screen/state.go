@@ -159,15 +159,6 @@ type Event any
 // start: how many reference units a shift-start check measures.
 type StationInfo struct{ References int }
 
-// Committed is a session's verdict_committed event with what the screen
-// knows of the serial before it: whether this was its first unit verdict
-// (for the first-pass yield). A bare verdict_committed event counts as a
-// first test when the serial had no prior fails.
-type Committed struct {
-	Event     session.Event
-	FirstTest bool
-}
-
 // RepeatScanned is a serial that already has a verdict, scanned again; it
 // is tested only after the technician acknowledges it.
 type RepeatScanned struct {
@@ -189,14 +180,10 @@ func Reduce(s State, e Event) State {
 	switch e := e.(type) {
 	case session.Event:
 		if e.Kind == session.KindVerdictCommitted && e.Verdict != nil {
-			return committed(s, e, e.Verdict.PriorFails == 0)
+			return committed(s, e)
 		}
 		if next, ok := reduceSession(s, e); ok {
 			return next
-		}
-	case Committed:
-		if e.Event.Kind == session.KindVerdictCommitted && e.Event.Verdict != nil {
-			return committed(s, e.Event, e.FirstTest)
 		}
 	case StationInfo:
 		s.Check.Total = e.References
@@ -308,7 +295,9 @@ func reduceSession(s State, e session.Event) (State, bool) {
 }
 
 // committed shows a committed run: the last verdict, the list, the counts.
-func committed(s State, e session.Event, first bool) State {
+// A serial with no unit verdict before this one is a first test.
+func committed(s State, e session.Event) State {
+	first := e.Verdict.PriorFails == 0 && e.Verdict.PriorPasses == 0
 	u := unitOf(e)
 	s.Last = &u
 	s.Units = append([]Unit{u}, s.Units...)

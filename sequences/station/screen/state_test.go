@@ -16,10 +16,16 @@ var t0 = time.UnixMilli(1_790_000_000_000)
 
 // verdict is a verdict_committed event.
 func verdict(id int64, serial string, v sequences.Verdict, code string, trip float64, priorFails int) session.Event {
+	return verdictAfter(id, serial, v, code, trip, priorFails, 0)
+}
+
+// verdictAfter is a verdict_committed event of a serial with earlier
+// fails and passes.
+func verdictAfter(id int64, serial string, v sequences.Verdict, code string, trip float64, priorFails, priorPasses int) session.Event {
 	r := sequences.Run{Serial: serial, Verdict: v, FailCode: code}
 	r.Measurements = []sequences.Measurement{{Step: "trip_search", Name: "trip_pf", Value: trip, Unit: "pF"}}
 	return session.Event{Kind: session.KindVerdictCommitted, Time: t0.Add(time.Duration(id) * time.Millisecond),
-		Verdict: &session.Verdict{Run: r, ID: id, PriorFails: priorFails, Action: sequences.FailAction(code)}}
+		Verdict: &session.Verdict{Run: r, ID: id, PriorFails: priorFails, PriorPasses: priorPasses, Action: sequences.FailAction(code)}}
 }
 
 func reduceAll(es ...screen.Event) screen.State {
@@ -93,20 +99,21 @@ func TestReduceVerdictCommitted(t *testing.T) {
 	s := reduceAll(
 		session.Event{Kind: session.KindSessionStarted, Started: &session.Started{Limits: sequences.Limits{TripLowPF: 28, TripHighPF: 36}}},
 		scanned("A1"),
-		screen.Committed{Event: verdict(1, "A1", sequences.Pass, "", 31.5, 0), FirstTest: true},
-		screen.Committed{Event: verdict(2, "A2", sequences.Fail, sequences.CodeTripHigh, 40, 0), FirstTest: true},
-		screen.Committed{Event: verdict(3, "A3", sequences.StationFault, sequences.CodeLidOpen, math.NaN(), 0), FirstTest: true},
-		screen.Committed{Event: verdict(4, "A2", sequences.Pass, "", 33, 1), FirstTest: false},
-		// A bare session event: first test when there were no prior fails.
+		verdict(1, "A1", sequences.Pass, "", 31.5, 0),
+		verdict(2, "A2", sequences.Fail, sequences.CodeTripHigh, 40, 0),
+		verdict(3, "A3", sequences.StationFault, sequences.CodeLidOpen, math.NaN(), 0),
+		verdict(4, "A2", sequences.Pass, "", 33, 1),
 		verdict(5, "A5", sequences.Fail, sequences.CodeNoTrip, math.NaN(), 0),
+		// A1 again, a repeat of a pass: tested, but no first test.
+		verdictAfter(6, "A1", sequences.Pass, "", 31.4, 0, 1),
 	)
 	if s.Phase != screen.PhaseReady || s.Testing != "" {
 		t.Errorf("phase %q testing %q after commit", s.Phase, s.Testing)
 	}
-	if s.Last == nil || s.Last.RunID != 5 || s.Last.Serial != "A5" || s.Last.Verdict != sequences.Fail {
+	if s.Last == nil || s.Last.RunID != 6 || s.Last.Serial != "A1" || s.Last.Verdict != sequences.Pass {
 		t.Fatalf("last %+v", s.Last)
 	}
-	want := []string{"A5", "A2", "A3", "A2", "A1"}
+	want := []string{"A1", "A5", "A2", "A3", "A2", "A1"}
 	if len(s.Units) != len(want) {
 		t.Fatalf("%d units, want %d", len(s.Units), len(want))
 	}
@@ -115,25 +122,26 @@ func TestReduceVerdictCommitted(t *testing.T) {
 			t.Errorf("unit %d is %s, want %s (newest first)", i, s.Units[i].Serial, w)
 		}
 	}
-	fail := s.Units[3]
+	fail := s.Units[4]
 	adv, _ := sequences.Advice(sequences.CodeTripHigh)
 	if fail.Do != adv.Do || fail.Means != adv.Means || fail.TripPF == nil || *fail.TripPF != 40 {
 		t.Errorf("fail unit %+v", fail)
 	}
-	if fault := s.Units[2]; fault.TripPF != nil || fault.Do == "" {
+	if fault := s.Units[3]; fault.TripPF != nil || fault.Do == "" {
 		t.Errorf("station-fault unit %+v: want no trip point and the station advice", fault)
 	}
-	if s.Units[1].Do != "" || s.Units[1].PriorFails != 1 {
-		t.Errorf("a pass after fail %+v", s.Units[1])
+	if s.Units[2].Do != "" || s.Units[2].PriorFails != 1 {
+		t.Errorf("a pass after fail %+v", s.Units[2])
 	}
 	c := s.Counts
 	// First-pass yield: A1 passed first time, A2 and A5 failed first time;
-	// A3's station fault judged no unit and A2's retest is no first test.
-	if c.Pass != 2 || c.Fail != 2 || c.StationFault != 1 || c.FirstTests != 3 || c.FirstPasses != 1 ||
+	// A3's station fault judged no unit, and neither A2's retest nor A1's
+	// repeat is a first test.
+	if c.Pass != 3 || c.Fail != 2 || c.StationFault != 1 || c.FirstTests != 3 || c.FirstPasses != 1 ||
 		c.FirstPassYield == nil || math.Abs(*c.FirstPassYield-100.0/3) > 1e-9 {
 		t.Errorf("counts %+v", c)
 	}
-	if s.Units[0].CommittedMs != t0.UnixMilli()+5 {
+	if s.Units[0].CommittedMs != t0.UnixMilli()+6 {
 		t.Errorf("committed ms %d, want the event's time", s.Units[0].CommittedMs)
 	}
 }
