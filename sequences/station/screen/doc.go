@@ -10,6 +10,10 @@
 // to the session as Inputs. Every state-changing request is a POST carrying
 // the token of this start of the program.
 //
-// It imports the sequences package for verdicts and fail-code advice and
-// nothing that touches hardware, SQL or configuration files.
+// It takes events, the station file and the shift log's earlier runs from
+// the session package (sequences/session) and fail-code advice from
+// sequences. It never reaches periph.io/x/host (CI checks it, like every
+// package under sequences) and runs no SQL of its own. Its subpackage
+// screentest starts Chromium for the browser tests and is imported by
+// tests only.
 package screen

@@ -3,6 +3,7 @@ package screen
 import (
 	"fmt"
 	"math"
+	"strconv"
 	"strings"
 
 	"padline/sequences"
@@ -281,8 +282,8 @@ func reduceSession(s State, e session.Event) (State, bool) {
 	case e.Kind == session.KindRelayWear && e.Wear != nil:
 		w := e.Wear
 		s.Warnings = warn(s.Warnings, Warning{Kind: "relay", Key: fmt.Sprintf("rung %d", w.Rung),
-			Text: fmt.Sprintf("relay of rung %d at %.0f %% of its rated life (%d operations): plan its replacement",
-				w.Rung, 100*w.Fraction, w.Operations)})
+			Text: fmt.Sprintf("relay of rung %d at %.0f %% of its rated life (%s operations): plan its replacement",
+				w.Rung, 100*w.Fraction, grouped(w.Operations))})
 	case e.Kind == session.KindDriftAlarm && e.Drift != nil:
 		s.Warnings = warn(s.Warnings, Warning{Kind: "drift", Key: e.Drift.Rule, Text: e.Drift.Message})
 	case e.Kind == session.KindSessionEnded && e.Ended != nil:
@@ -348,6 +349,15 @@ func count(c Counts, v sequences.Verdict, first bool) Counts {
 		c.FirstPassYield = &y
 	}
 	return c
+}
+
+// grouped writes n with a comma between groups of three digits.
+func grouped(n uint64) string {
+	s := strconv.FormatUint(n, 10)
+	for i := len(s) - 3; i > 0; i -= 3 {
+		s = s[:i] + "," + s[i:]
+	}
+	return s
 }
 
 // warn puts w in ws, replacing a warning of the same kind and key.

@@ -250,7 +250,7 @@ func TestReduceWarnings(t *testing.T) {
 	if len(s.Warnings) != 2 {
 		t.Fatalf("warnings %+v: a newer warning for the same rung replaces the older", s.Warnings)
 	}
-	if !strings.Contains(s.Warnings[1].Text, "85 %") || s.Warnings[0].Kind != "drift" || s.Warnings[0].Text != "trip point drifting up" {
+	if !strings.Contains(s.Warnings[1].Text, "85 %") || !strings.Contains(s.Warnings[1].Text, "850,000,000 operations") || s.Warnings[0].Kind != "drift" || s.Warnings[0].Text != "trip point drifting up" {
 		t.Errorf("warnings %+v", s.Warnings)
 	}
 }
