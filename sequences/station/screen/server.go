@@ -9,7 +9,10 @@ import (
 	"html/template"
 	"io"
 	"io/fs"
+	"net"
 	"net/http"
+	"net/url"
+	"os"
 	"strings"
 	"sync"
 	"time"
@@ -43,6 +46,8 @@ type Server struct {
 	inputs chan Input
 	page   *template.Template
 	static http.Handler
+	// hostname is this computer's name, lower case ("" if unknown).
+	hostname string
 	// heartbeat is how often an idle event stream gets a comment line, so
 	// a dead connection is noticed.
 	heartbeat time.Duration
@@ -71,7 +76,9 @@ func NewServer() (*Server, error) {
 	if err != nil {
 		return nil, err
 	}
+	hn, _ := os.Hostname()
 	s := &Server{
+		hostname:  strings.ToLower(hn),
 		token:     hex.EncodeToString(b[:]),
 		inputs:    make(chan Input, 16),
 		page:      page,
@@ -128,6 +135,13 @@ func (s *Server) Close() { s.closeOnce.Do(func() { close(s.closed) }) }
 // ServeHTTP serves the page, its assets, the event stream and the POSTs.
 func (s *Server) ServeHTTP(w http.ResponseWriter, r *http.Request) {
 	w.Header().Set("X-Content-Type-Options", "nosniff")
+	// A page of another site whose name was pointed at this station (DNS
+	// rebinding) would send its own name as Host: serve only requests
+	// addressed to this computer by IP address or by its own names.
+	if !s.hostAllowed(r.Host) {
+		http.Error(w, "unknown host name "+r.Host+": open the screen by the station's address", http.StatusMisdirectedRequest)
+		return
+	}
 	switch r.URL.Path {
 	case "/", "/index.html":
 		s.servePage(w, r)
@@ -208,6 +222,21 @@ func (s *Server) serveEvents(w http.ResponseWriter, r *http.Request) {
 	}
 }
 
+// hostAllowed reports whether a request's Host names this computer: an IP
+// address, localhost, or the computer's own host name (with or without
+// .local).
+func (s *Server) hostAllowed(hostport string) bool {
+	host := hostport
+	if h, _, err := net.SplitHostPort(hostport); err == nil {
+		host = h
+	}
+	host = strings.ToLower(strings.TrimSuffix(strings.Trim(host, "[]"), "."))
+	if net.ParseIP(host) != nil || host == "localhost" {
+		return true
+	}
+	return s.hostname != "" && (host == s.hostname || host == s.hostname+".local")
+}
+
 // servePost takes one technician input. It must be a POST carrying this
 // start's token in the X-Padline-Token header, so that a page from another
 // site (or from an earlier start of the program) cannot act on the station.
@@ -216,6 +245,12 @@ func (s *Server) servePost(w http.ResponseWriter, r *http.Request) {
 		w.Header().Set("Allow", http.MethodPost)
 		http.Error(w, "POST only", http.StatusMethodNotAllowed)
 		return
+	}
+	if o := r.Header.Get("Origin"); o != "" {
+		if u, err := url.Parse(o); err != nil || u.Host != r.Host {
+			http.Error(w, "request from another site", http.StatusForbidden)
+			return
+		}
 	}
 	got := r.Header.Get("X-Padline-Token")
 	if subtle.ConstantTimeCompare([]byte(got), []byte(s.token)) != 1 {

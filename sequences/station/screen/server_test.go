@@ -154,3 +154,38 @@ func TestEventStream(t *testing.T) {
 		t.Errorf("state after commit %+v last %+v", st, st.Last)
 	}
 }
+
+// Requests for another host name (a rebound DNS name) and POSTs from
+// another origin are refused.
+func TestForeignHostAndOrigin(t *testing.T) {
+	s, hs := newServer(t)
+	for _, c := range []struct {
+		host, origin string
+		want         int
+	}{
+		{"attacker.example:8080", "", http.StatusMisdirectedRequest},
+		{"localhost:8080", "", http.StatusAccepted},
+		{"[::1]:8080", "", http.StatusAccepted},
+		{"", "http://attacker.example", http.StatusForbidden},
+	} {
+		req, _ := http.NewRequest(http.MethodPost, hs.URL+"/scan", strings.NewReader(`{"text":"A"}`))
+		req.Header.Set("X-Padline-Token", s.Token())
+		if c.host != "" {
+			req.Host = c.host
+		}
+		if c.origin != "" {
+			req.Header.Set("Origin", c.origin)
+		}
+		res, err := http.DefaultClient.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		res.Body.Close()
+		if res.StatusCode != c.want {
+			t.Errorf("host %q origin %q: %d, want %d", c.host, c.origin, res.StatusCode, c.want)
+		}
+		if res.StatusCode == http.StatusAccepted {
+			<-s.Inputs()
+		}
+	}
+}
