@@ -117,6 +117,9 @@ type Check struct {
 	Step  string `json:"step,omitempty"`
 	// Result is the last check's outcome in words; empty before one.
 	Result string `json:"result,omitempty"`
+	// Faults are what the last check found wrong with the station (empty
+	// when it passed).
+	Faults []string `json:"faults,omitempty"`
 }
 
 // Refusal is why the station may not test production units, and the fix.
@@ -245,7 +248,7 @@ func reduceSession(s State, e session.Event) (State, bool) {
 		}
 	case e.Kind == session.KindCheckResult && e.Check != nil && e.Check.Report != nil:
 		rep := e.Check.Report
-		s.Check.Step = ""
+		s.Check.Step, s.Check.Faults = "", rep.Faults
 		if rep.OK {
 			s.Phase, s.Refusal, s.Check.Due = PhaseReady, nil, false
 			s.Check.Result = "passed at " + rep.Time.Local().Format("15:04")

@@ -234,6 +234,14 @@ func TestReduceCheckProgressAndResult(t *testing.T) {
 	if bad.Phase != screen.PhaseRefused || bad.Refusal == nil || !strings.Contains(bad.Refusal.Why, "rung 3 stuck open") {
 		t.Errorf("after a refusal: phase %q refusal %+v", bad.Phase, bad.Refusal)
 	}
+	// The session then waits for another check; what the check found stays.
+	bad = screen.Reduce(bad, refused(session.KindCheckDue))
+	if !bad.Refusal.CanCheck || len(bad.Check.Faults) != 1 || bad.Check.Faults[0] != "rung 3 stuck open" {
+		t.Errorf("check due after a refused check: refusal %+v faults %q", bad.Refusal, bad.Check.Faults)
+	}
+	if ok := screen.Reduce(bad, result(true)); len(ok.Check.Faults) != 0 {
+		t.Errorf("faults %q after a passed check", ok.Check.Faults)
+	}
 	// A second check counts from zero again.
 	again := screen.Reduce(bad, progress("load reference unit QM205-REF-01", ""))
 	if again.Check.Done != 0 {

@@ -73,7 +73,8 @@ function drawVerdict(s) {
     setVerdictClass("locked");
     text("word", "LOCKED");
     text("serial", "this station may not test units now");
-    text("why", s.refusal.why);
+    const found = s.check.faults && s.check.faults.length ? " \u2014 the check found: " + s.check.faults.join("; ") : "";
+    text("why", s.refusal.why + found);
     text("fix", s.refusal.fix);
     $("refusal").hidden = false;
     $("startcheck").hidden = !s.refusal.can_check;
@@ -86,6 +87,12 @@ function drawVerdict(s) {
     $("checkbar").style.width = (s.check.total ? 100 * s.check.done / s.check.total : 0) + "%";
     text("checktext", s.check.step || "");
     $("checkrun").hidden = false;
+    return;
+  }
+  if (s.phase === "ended") {
+    setVerdictClass("idle");
+    text("word", "STOPPED");
+    text("serial", s.notice || "");
     return;
   }
   if (s.phase === "testing") {
