@@ -105,6 +105,18 @@ func TestPageInBrowser(t *testing.T) {
 			if m.ScrollW > float64(l.w) || m.ScrollH > float64(l.h) || m.WordBottom > float64(l.h) {
 				t.Errorf("%s %s: page %gx%g spills off the screen (word bottom %g)", l.name, st.name, m.ScrollW, m.ScrollH, m.WordBottom)
 			}
+			if st.name == "locked" {
+				// The check's button is a finger's target: at least 44 x 44
+				// CSS px, WCAG 2.1 success criterion 2.5.5 (Target Size).
+				type box struct{ W, H float64 }
+				b, err := chromedp.Run(ctx, chromedp.Evaluate[box](`(() => { const r = document.getElementById("startcheck").getBoundingClientRect(); return {W: r.width, H: r.height}; })()`))
+				if err != nil {
+					t.Fatal(err)
+				}
+				if b.W < 44 || b.H < 44 {
+					t.Errorf("%s: check button %gx%g px, want at least 44x44", l.name, b.W, b.H)
+				}
+			}
 			screentest.SaveScreenshot(t, ctx, fmt.Sprintf("screen-%s-%s.png", l.name, st.name))
 		}
 		s.Apply(session.Event{Kind: session.KindCheckResult, Check: &session.CheckInfo{Report: &session.CheckReport{OK: true, Time: time.Now()}}})
