@@ -113,12 +113,10 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		sc = a.promptingScanner(session.LineScanner(a.stdin), o)
 	}
 	if o.screen != "" {
-		var stdin session.Scanner
-		if o.serial == "" {
-			stdin = sc
-		}
+		// The screen adds the page's scans to stdin's (or to --serial's
+		// one); the run then goes on until it is stopped.
 		var stopScreen func()
-		if sc, stopScreen, err = a.startScreen(ctx, sess, stdin, o.screen); err != nil {
+		if sc, stopScreen, err = a.startScreen(ctx, sess, sc, o.screen); err != nil {
 			stop()
 			<-printed
 			return err
