@@ -2,13 +2,9 @@ package main
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"io"
-	"net"
-	"net/http"
 	"strings"
-	"time"
 
 	"github.com/spf13/pflag"
 
@@ -27,48 +23,25 @@ func addScreenFlag(f *pflag.FlagSet, addr *string) {
 	f.Lookup("screen").NoOptDefVal = defaultScreenAddr
 }
 
-// startScreen serves the station screen for sess at addr and returns the
-// scanner the session reads (the page's scans and stdin's, nil for none)
-// and a func that stops the server. The address is logged; one that is
-// not loopback is logged as reachable from the network.
+// startScreen serves the station screen for sess at addr, logs where, and
+// returns the scanner the session reads (the page's scans and stdin's) and
+// a func that stops the screen.
 func (a *app) startScreen(ctx context.Context, sess *session.Session, stdin session.Scanner, addr string) (session.Scanner, func(), error) {
-	srv, err := screen.NewServer()
+	sv, err := screen.Serve(ctx, sess, stdin, addr)
 	if err != nil {
 		return nil, nil, err
 	}
-	ln, err := net.Listen("tcp", addr)
-	if err != nil {
-		return nil, nil, fmt.Errorf("station screen: %w", err)
-	}
 	reach := "this computer only"
-	if host, _, _ := net.SplitHostPort(addr); !isLoopback(host) {
+	if !sv.Loopback {
 		reach = "REACHABLE FROM THE NETWORK: anyone who can open it can scan units and start checks"
 	}
-	fmt.Fprintf(a.stderr, "station screen: http://%s/ (%s)\n", ln.Addr(), reach)
-	hs := &http.Server{Handler: srv, ReadHeaderTimeout: 5 * time.Second}
+	fmt.Fprintf(a.stderr, "station screen: http://%s/ (%s)\n", sv.Addr, reach)
 	go func() {
-		if err := hs.Serve(ln); err != nil && !errors.Is(err, http.ErrServerClosed) {
-			fmt.Fprintf(a.stderr, "station screen: %v\n", err)
+		if err, ok := <-sv.Err; ok {
+			fmt.Fprintln(a.stderr, err)
 		}
 	}()
-	desk := screen.NewDesk(srv, sess)
-	desk.Start(ctx)
-	stop := func() {
-		srv.Close() // ends the pages' event streams, so Shutdown need not wait for them
-		sctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
-		defer cancel()
-		_ = hs.Shutdown(sctx)
-	}
-	return desk.Scanner(stdin), stop, nil
-}
-
-// isLoopback reports whether host names this computer only.
-func isLoopback(host string) bool {
-	if host == "localhost" {
-		return true
-	}
-	ip := net.ParseIP(host)
-	return ip != nil && ip.IsLoopback()
+	return sv.Scanner(), sv.Close, nil
 }
 
 // writeCheckResult prints the end of a shift-start check run from the

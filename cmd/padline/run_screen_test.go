@@ -29,17 +29,6 @@ func TestScreenFlag(t *testing.T) {
 	}
 }
 
-func TestIsLoopback(t *testing.T) {
-	for host, want := range map[string]bool{
-		"127.0.0.1": true, "127.3.2.1": true, "::1": true, "localhost": true,
-		"0.0.0.0": false, "": false, "192.168.1.20": false, "station.local": false,
-	} {
-		if got := isLoopback(host); got != want {
-			t.Errorf("isLoopback(%q) = %v, want %v", host, got, want)
-		}
-	}
-}
-
 // Colour only on a terminal, and never instead of the words.
 func TestPaint(t *testing.T) {
 	if got := paint("== PASS ==", sequences.Pass, false); got != "== PASS ==" {

@@ -189,3 +189,14 @@ func TestForeignHostAndOrigin(t *testing.T) {
 		}
 	}
 }
+
+func TestIsLoopback(t *testing.T) {
+	for host, want := range map[string]bool{
+		"127.0.0.1": true, "127.3.2.1": true, "::1": true, "localhost": true,
+		"0.0.0.0": false, "": false, "192.168.1.20": false, "station.local": false,
+	} {
+		if got := screen.IsLoopback(host); got != want {
+			t.Errorf("IsLoopback(%q) = %v, want %v", host, got, want)
+		}
+	}
+}
