@@ -12,14 +12,14 @@ import (
 // readmeAdvice parses the README's fail-code tables: rows whose first cell
 // holds one or more `code`s; the second cell is what the code means and the
 // last what to do.
-func readmeAdvice(t *testing.T) map[string]sequences.CodeAdvice {
+func readmeAdvice(t *testing.T) map[sequences.FailCode]sequences.CodeAdvice {
 	t.Helper()
 	b, err := os.ReadFile("../README.md")
 	if err != nil {
 		t.Fatal(err)
 	}
 	codeRe := regexp.MustCompile("`([a-z_]+)`")
-	out := map[string]sequences.CodeAdvice{}
+	out := map[sequences.FailCode]sequences.CodeAdvice{}
 	station := false
 	for _, line := range strings.Split(string(b), "\n") {
 		if strings.HasPrefix(line, "| fail code |") {
@@ -34,7 +34,7 @@ func readmeAdvice(t *testing.T) map[string]sequences.CodeAdvice {
 			continue
 		}
 		for _, m := range codeRe.FindAllStringSubmatch(cells[0], -1) {
-			out[m[1]] = sequences.CodeAdvice{Means: cells[1], Do: cells[len(cells)-1], StationFault: station}
+			out[sequences.FailCode(m[1])] = sequences.CodeAdvice{Means: cells[1], Do: cells[len(cells)-1], StationFault: station}
 		}
 	}
 	return out

@@ -25,7 +25,7 @@ func demoShift(s *screen.Server) {
 	s.Apply(screen.Schedule{UnitsLeft: 1977, Due: time.Now().Add(6*time.Hour + 41*time.Minute)})
 	trips := []float64{31.2, 30.8, 32.0, 31.5, 29.9, 31.1, 30.4, 32.3, 31.7, 30.9, 31.0, 31.8, 30.2, 31.4, 31.6, 30.7, 32.1, 31.3, 30.6, 31.9, 30.5}
 	for i, tp := range trips {
-		code, v := "", sequences.Pass
+		code, v := sequences.FailCode(""), sequences.Pass
 		switch i {
 		case 6:
 			v, code, tp = sequences.Fail, sequences.CodeTripHigh, 38.2

@@ -68,10 +68,10 @@ type State struct {
 
 // Unit is one committed unit as the screen shows it.
 type Unit struct {
-	RunID    int64             `json:"run_id"`
-	Serial   string            `json:"serial"`
-	Verdict  sequences.Verdict `json:"verdict"`
-	FailCode string            `json:"fail_code,omitempty"`
+	RunID    int64              `json:"run_id"`
+	Serial   string             `json:"serial"`
+	Verdict  sequences.Verdict  `json:"verdict"`
+	FailCode sequences.FailCode `json:"fail_code,omitempty"`
 	// Means and Do are the fail code's advice (sequences.Advice).
 	Means string `json:"means,omitempty"`
 	Do    string `json:"do,omitempty"`
@@ -323,7 +323,7 @@ func unitOf(e session.Event) Unit {
 		u.Means, u.Do = a.Means, a.Do
 	}
 	for _, m := range r.Measurements {
-		if m.Name == "trip_pf" && !math.IsNaN(m.Value) && !math.IsInf(m.Value, 0) {
+		if m.Name == sequences.MeasTripPF && !math.IsNaN(m.Value) && !math.IsInf(m.Value, 0) {
 			x := m.Value
 			u.TripPF = &x
 		}

@@ -15,15 +15,15 @@ import (
 var t0 = time.UnixMilli(1_790_000_000_000)
 
 // verdict is a verdict_committed event.
-func verdict(id int64, serial string, v sequences.Verdict, code string, trip float64, priorFails int) session.Event {
+func verdict(id int64, serial string, v sequences.Verdict, code sequences.FailCode, trip float64, priorFails int) session.Event {
 	return verdictAfter(id, serial, v, code, trip, priorFails, 0)
 }
 
 // verdictAfter is a verdict_committed event of a serial with earlier
 // fails and passes.
-func verdictAfter(id int64, serial string, v sequences.Verdict, code string, trip float64, priorFails, priorPasses int) session.Event {
+func verdictAfter(id int64, serial string, v sequences.Verdict, code sequences.FailCode, trip float64, priorFails, priorPasses int) session.Event {
 	r := sequences.Run{Serial: serial, Verdict: v, FailCode: code}
-	r.Measurements = []sequences.Measurement{{Step: "trip_search", Name: "trip_pf", Value: trip, Unit: "pF"}}
+	r.Measurements = []sequences.Measurement{{Step: "trip_search", Name: sequences.MeasTripPF, Value: trip, Unit: "pF"}}
 	return session.Event{Kind: session.KindVerdictCommitted, Time: t0.Add(time.Duration(id) * time.Millisecond),
 		Verdict: &session.Verdict{Run: r, ID: id, PriorFails: priorFails, PriorPasses: priorPasses, Action: sequences.FailAction(code)}}
 }
