@@ -207,8 +207,18 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 		case session.KindDriftAlarm:
 			fmt.Fprintf(a.stderr, "drift alarm: %s\n", e.Drift.Message)
 		case session.KindSessionEnded:
-			if e.Ended.Reason == session.EndRefused {
+			switch e.Ended.Reason {
+			case session.EndRefused:
 				continue
+			case session.EndInput, session.EndStopped:
+			default:
+				// The operator reads the screen, not the log: a halted
+				// station says so where the verdicts appear.
+				if o.asJSON {
+					werr = errors.Join(werr, enc.Encode(map[string]string{"halted": e.Ended.Reason}))
+				} else {
+					fmt.Fprintf(a.stdout, "STATION HALTED  %s\n", e.Ended.Reason)
+				}
 			}
 			if o.asJSON {
 				fmt.Fprintf(a.stderr, "%d unit(s) tested; fixture halted.\n", e.Ended.Tested)
