@@ -8,7 +8,7 @@ import (
 	"time"
 )
 
-// This file is the plant outbox (migration 0004): what the forwarder reads
+// This file is the plant outbox (migration 0005): what the forwarder reads
 // from the shift log and the cursors it advances. The log itself is never
 // changed by forwarding: runs stay the source of truth.
 

@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/timing"
 	"padline/store"
 	"padline/store/plant"
@@ -31,27 +32,27 @@ func BenchmarkUnitForwarding(b *testing.B) {
 			name = "log+forwarding"
 		}
 		b.Run(name, func(b *testing.B) {
-			v, err := loadVariant("QM-205")
+			v, err := session.LoadVariant("QM-205")
 			if err != nil {
 				b.Fatal(err)
 			}
-			st, err := loadStation("demo-sim")
+			st, err := session.LoadStation("demo-sim")
 			if err != nil {
 				b.Fatal(err)
 			}
-			rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: defaultUncertaintyPF})
+			rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: session.DefaultUncertaintyPF})
 			if err != nil {
 				b.Fatal(err)
 			}
-			line, err := newSimLine(st, v)
+			line, err := session.NewSimLine(st, v)
 			if err != nil {
 				b.Fatal(err)
 			}
-			fx, err := newFixture(st, line.Pins(), line.Clock())
+			fx, err := session.NewFixture(st, line.Pins(), line.Clock())
 			if err != nil {
 				b.Fatal(err)
 			}
-			cfg, err := planConfig(v, rep, true, "")
+			cfg, err := session.PlanConfig(v, rep, true, "")
 			if err != nil {
 				b.Fatal(err)
 			}

@@ -10,6 +10,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"padline/sequences/session"
 	"padline/store"
 	"padline/store/plant"
 )
@@ -221,7 +222,7 @@ refused (with the database's reason; they are not retried).`,
 			rep := plantStatus{ShiftLog: path, LogUUID: o.LogUUID, BacklogRuns: o.BacklogRuns, BacklogChecks: o.BacklogChecks,
 				BacklogStudies: o.BacklogStudies, LastRunID: o.RunCursor, Forwarded: o.Forwarded, LastError: o.LastError, Refused: o.Refused}
 			if station != "" {
-				if st, err := loadStation(station); err == nil {
+				if st, err := session.LoadStation(station); err == nil {
 					rep.PlantURL = plant.Redact(plantURL("", st))
 				}
 			}
@@ -280,7 +281,7 @@ func (a *app) plantForwardCmd() *cobra.Command {
 		Short: "Send a station's backlog to the plant store now, then exit",
 		Args:  cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			st, err := loadStation(station)
+			st, err := session.LoadStation(station)
 			if err != nil {
 				return fmt.Errorf("plant forward: %w", err)
 			}

@@ -23,6 +23,7 @@ type runLog interface {
 	Counts(ctx context.Context, f store.Filter) (store.Counts, error)
 	ConfigHistory(ctx context.Context, variant string) ([]store.ConfigChange, error)
 	Snapshot(ctx context.Context, variant, hash string) ([]byte, error)
+	Drivers(ctx context.Context) ([]string, error)
 }
 
 var (

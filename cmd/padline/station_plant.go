@@ -8,31 +8,16 @@ import (
 	"sync"
 	"time"
 
+	"github.com/spf13/pflag"
+
+	"padline/sequences/session"
 	"padline/store"
 	"padline/store/plant"
 )
 
-// StationPlant is the station file's optional `plant:` section.
-type StationPlant struct {
-	// URL is the plant store, postgres://ROLE@HOST/DB; "" forwards nothing.
-	URL string
-}
-
-func readStationPlant(d *doc) StationPlant {
-	var p StationPlant
-	if !d.section("plant", false) {
-		return p
-	}
-	p.URL = d.str("plant.url", true)
-	if p.URL != "" && !isPlantURL(p.URL) {
-		d.fail("plant.url", "want a postgres:// URL, got %q", p.URL)
-	}
-	return p
-}
-
 // plantURL is where this station forwards: --plant-url, else
 // $PADLINE_PLANT_URL, else the station file's plant.url; "" for nowhere.
-func plantURL(flag string, st *Station) string {
+func plantURL(flag string, st *session.Station) string {
 	if flag != "" {
 		return flag
 	}
@@ -43,7 +28,7 @@ func plantURL(flag string, st *Station) string {
 }
 
 // stationProfile is what the line board needs to know of the station file.
-func stationProfile(st *Station) json.RawMessage {
+func stationProfile(st *session.Station) json.RawMessage {
 	b, _ := json.Marshal(plant.Profile{Fixture: st.Fixture, CheckEveryUnits: st.Trust.CheckEveryUnits,
 		CheckEveryHours: st.Trust.CheckEveryHours, RatedOperations: st.Ladder.RatedOperations,
 		WarnFraction: st.Trust.RelayWarnFraction})
@@ -62,7 +47,7 @@ type forwarding struct {
 // startForwarding starts forwarding the shift log to the plant store in the
 // background. Testing never waits for it: a commit only kicks it, and
 // while the plant store is unreachable the backlog stays in the shift log.
-func (a *app) startForwarding(ctx context.Context, db *store.DB, st *Station, flag string) *forwarding {
+func (a *app) startForwarding(ctx context.Context, db *store.DB, st *session.Station, flag string) *forwarding {
 	url := plantURL(flag, st)
 	if url == "" {
 		return nil
@@ -104,4 +89,34 @@ func (fw *forwarding) stop() {
 	defer cancel()
 	_ = fw.f.Drain(ctx)
 	fw.p.Close()
+}
+
+// addPlantURLFlag adds 'padline run --plant-url'.
+func addPlantURLFlag(f *pflag.FlagSet, dst *string) {
+	f.StringVar(dst, "plant-url", "", "forward every committed run to this plant store, postgres://… (default: $PADLINE_PLANT_URL, else the station file's plant.url)")
+}
+
+// forwardSession starts forwarding sess's shift log when a plant store is
+// configured, kicked by every committed verdict, and returns the function
+// that stops it.
+func (a *app) forwardSession(ctx context.Context, sess *session.Session, flag string) (stop func()) {
+	fw := a.startForwarding(ctx, sess.DB(), sess.Rig().Station, flag)
+	if fw == nil {
+		return func() {}
+	}
+	events, unsubscribe := sess.Subscribe(64)
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		for e := range events {
+			if e.Kind == session.KindVerdictCommitted {
+				fw.kick()
+			}
+		}
+	}()
+	return func() {
+		unsubscribe()
+		<-done
+		fw.stop()
+	}
 }

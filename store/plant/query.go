@@ -56,6 +56,9 @@ func where(f store.Filter) (string, []any) {
 	if f.Verdict != "" {
 		add("r.verdict = ?", string(f.Verdict))
 	}
+	if f.Driver != "" {
+		add("r.driver = ?", f.Driver)
+	}
 	if !f.Since.IsZero() {
 		add("r.at >= ?", f.Since.UnixNano())
 	}
@@ -70,7 +73,7 @@ func where(f store.Filter) (string, []any) {
 
 const runsSQL = `
 SELECT r.log_id, r.local_id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
-       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault,
        m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
 FROM runs r
 JOIN variants v ON v.id = r.variant_id
@@ -125,7 +128,7 @@ func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, 
 		for rows.Next() {
 			e = store.Entry{}
 			if err := rows.Scan(&logID, &e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
-				&e.Operator, &e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip,
+				&e.Operator, &e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
 				&seq, &step, &name, &unit, &val, &low, &high, &mv); err != nil {
 				yield(nil, fmt.Errorf("read plant run: %w", err))
 				return
@@ -145,7 +148,7 @@ func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, 
 			}
 			if seq != nil {
 				cur.Measurements = append(cur.Measurements, sequences.Measurement{
-					Step: *step, Name: *name, Unit: *unit,
+					Step: sequences.StepName(*step), Name: sequences.Quantity(*name), Unit: *unit,
 					Value: orNaN(val), Low: orNaN(low), High: orNaN(high),
 					Verdict: sequences.Verdict(*mv),
 				})
@@ -344,7 +347,7 @@ func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.E
 		fail := func(err error) { yield(nil, fmt.Errorf("query plant runs of %s: %w", f.Serial, err)) }
 		cond, args := where(f)
 		rows, err := db.pool.Query(ctx, `SELECT r.log_id, r.local_id, r.variant_id, r.config_id, r.station_id, r.fixture_id,
-			r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf
+			r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault
 			FROM runs r WHERE `+cond+` ORDER BY r.at, r.log_id, r.local_id`, args...)
 		if err != nil {
 			fail(err)
@@ -370,7 +373,7 @@ func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.E
 				trip         *float64
 			)
 			if err := rows.Scan(&k.log, &k.local, &v, &c, &st, &fx, &e.Operator, &e.Lot, &e.Software, &started,
-				&k.finished, &verdict, &e.FailCode, &trip); err != nil {
+				&k.finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault); err != nil {
 				rows.Close()
 				fail(err)
 				return
@@ -430,7 +433,7 @@ func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.E
 		)
 		if _, err := pgx.ForEachRow(mrows, []any{&lg, &lc, &seq, &step, &name, &unit, &val, &low, &high, &v}, func() error {
 			if e := byKey[[2]int64{int64(lg), lc}]; e != nil {
-				e.Measurements = append(e.Measurements, sequences.Measurement{Step: step, Name: name, Unit: unit,
+				e.Measurements = append(e.Measurements, sequences.Measurement{Step: sequences.StepName(step), Name: sequences.Quantity(name), Unit: unit,
 					Value: orNaN(val), Low: orNaN(low), High: orNaN(high), Verdict: sequences.Verdict(v)})
 			}
 			return nil
@@ -444,4 +447,19 @@ func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.E
 			}
 		}
 	}
+}
+
+// Drivers lists the station drivers the plant's runs were recorded with,
+// in order ("" for runs forwarded before drivers were recorded).
+func (db *DB) Drivers(ctx context.Context) ([]string, error) {
+	rows, err := db.pool.Query(ctx, `SELECT d FROM unnest(ARRAY['', 'gpio', 'sim']) AS d
+		WHERE EXISTS (SELECT 1 FROM runs WHERE driver = d) ORDER BY d`)
+	if err != nil {
+		return nil, fmt.Errorf("plant drivers: %w", err)
+	}
+	out, err := pgx.CollectRows(rows, pgx.RowTo[string])
+	if err != nil {
+		return nil, fmt.Errorf("plant drivers: %w", err)
+	}
+	return out, nil
 }

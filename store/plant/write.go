@@ -315,7 +315,7 @@ func (db *DB) resolve(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
 		set(fx, r.Fixture)
 		cf[[2]string{r.Variant, r.ConfigHash}] = true
 		for _, m := range r.Measurements {
-			qs[[3]string{m.Step, m.Name, m.Unit}] = true
+			qs[[3]string{string(m.Step), string(m.Name), m.Unit}] = true
 		}
 	}
 	for _, c := range b.Checks {
@@ -469,6 +469,7 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 		station, variant, cfg, fix = make([]*int32, n), make([]*int32, n), make([]*int32, n), make([]*int32, n)
 		serial, op, lot, sw        = make([]string, n), make([]string, n), make([]string, n), make([]string, n)
 		verdict, code              = make([]string, n), make([]string, n)
+		driver, fault              = make([]string, n), make([]string, n)
 		started                    = make([]*int64, n)
 		finished, at               = make([]int64, n), make([]int64, n)
 		trip                       = make([]*float64, n)
@@ -482,7 +483,8 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 		cfg[i] = idOrNil(x.configs, [2]string{r.Variant, r.ConfigHash})
 		fix[i] = idOrNil(x.fixtures, r.Fixture)
 		serial[i], op[i], lot[i], sw[i] = r.Serial, r.Operator, r.Lot, r.Software
-		verdict[i], code[i] = string(r.Verdict), r.FailCode
+		verdict[i], code[i] = string(r.Verdict), string(r.FailCode)
+		driver[i], fault[i] = r.Driver, r.Fault
 		started[i] = nullT(r.Started)
 		finished[i] = r.Finished.UnixNano()
 		at[i] = finished[i] + x.offset
@@ -492,16 +494,16 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 
 	if n <= smallBatch {
 		rows, err = tx.Query(ctx, `INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-			operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf)
+			operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault)
 			SELECT $1, u.local, u.station, u.serial, u.variant, u.cfg, u.fix, u.op, u.lot, u.sw, u.started, u.finished, u.at,
-				$2, u.verdict, u.code, u.trip
+				$2, u.verdict, u.code, u.trip, u.driver, u.fault
 			FROM unnest($3::bigint[], $4::int[], $5::text[], $6::int[], $7::int[], $8::int[], $9::text[], $10::text[],
-				$11::text[], $12::bigint[], $13::bigint[], $14::bigint[], $15::text[], $16::text[], $17::float8[])
-				AS u(local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip)
+				$11::text[], $12::bigint[], $13::bigint[], $14::bigint[], $15::text[], $16::text[], $17::float8[], $18::text[], $19::text[])
+				AS u(local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault)
 			ON CONFLICT DO NOTHING RETURNING local_id`,
-			x.log, x.now, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip)
+			x.log, x.now, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault)
 	} else {
-		rows, err = db.copyRuns(ctx, tx, x, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip)
+		rows, err = db.copyRuns(ctx, tx, x, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault)
 	}
 	if err != nil {
 		return 0, 0, err
@@ -559,7 +561,7 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 				sv = *s
 			}
 			mStation = append(mStation, sv)
-			mQty = append(mQty, x.quantities[[3]string{m.Step, m.Name, m.Unit}])
+			mQty = append(mQty, x.quantities[[3]string{string(m.Step), string(m.Name), m.Unit}])
 			mVal, mLow, mHigh = append(mVal, nullF(m.Value)), append(mLow, nullF(m.Low)), append(mHigh, nullF(m.High))
 			mVerdict = append(mVerdict, string(m.Verdict))
 		}
@@ -658,28 +660,29 @@ const smallBatch = 64
 // skips runs the plant already has); it returns the new runs' local ids.
 func (db *DB) copyRuns(ctx context.Context, tx pgx.Tx, x *ids, local []int64, station []*int32, serial []string,
 	variant, cfg, fix []*int32, op, lot, sw []string, started []*int64, finished, at []int64,
-	verdict, code []string, trip []*float64) (pgx.Rows, error) {
+	verdict, code []string, trip []*float64, driver, fault []string) (pgx.Rows, error) {
 	n := len(local)
 	if _, err := tx.Exec(ctx, `CREATE TEMP TABLE IF NOT EXISTS runs_in (
 		local_id bigint, station_id int, serial text, variant_id int, config_id int, fixture_id int,
 		operator text, lot text, software text, started bigint, finished bigint, at bigint,
-		verdict text, fail_code text, trip_pf float8) ON COMMIT DELETE ROWS`); err != nil {
+		verdict text, fail_code text, trip_pf float8, driver text, fault text) ON COMMIT DELETE ROWS`); err != nil {
 		return nil, err
 	}
 	in := make([][]any, n)
 	for i := range n {
 		in[i] = []any{local[i], station[i], serial[i], variant[i], cfg[i], fix[i], op[i], lot[i], sw[i],
-			started[i], finished[i], at[i], verdict[i], code[i], trip[i]}
+			started[i], finished[i], at[i], verdict[i], code[i], trip[i], driver[i], fault[i]}
 	}
 	if _, err := tx.CopyFrom(ctx, pgx.Identifier{"runs_in"}, []string{"local_id", "station_id", "serial", "variant_id",
-		"config_id", "fixture_id", "operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf"},
+		"config_id", "fixture_id", "operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf",
+		"driver", "fault"},
 		pgx.CopyFromRows(in)); err != nil {
 		return nil, err
 	}
 	return tx.Query(ctx, `WITH ins AS (INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf)
+		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault)
 		SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-			started, finished, at, $2, verdict, fail_code, trip_pf FROM runs_in
+			started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault FROM runs_in
 		ON CONFLICT DO NOTHING RETURNING local_id)
 		SELECT local_id FROM ins`, x.log, x.now)
 }

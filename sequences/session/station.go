@@ -1,0 +1,203 @@
+package session
+
+import (
+	"slices"
+	"time"
+)
+
+// Station is one station file, parsed and validated: which fixture, which
+// driver, which pins, the ladder as calibrated, and where the shift log is.
+type Station struct {
+	Name     string
+	Fixture  string
+	Driver   Driver
+	ShiftLog string
+	Pins     StationPins
+	Ladder   StationLadder
+	// Sim is the optional `sim:` section: how the simulated line differs
+	// from its defaults (driver: sim only).
+	Sim StationSim
+	// UncertaintyPF is the station's expanded measurement uncertainty U
+	// (k = 2) in pF; 0 when the file does not state it.
+	UncertaintyPF float64
+	// Trust is how the station proves it still measures right: its
+	// reference units and how often they must be checked.
+	Trust StationTrust
+	// Plant is the optional `plant:` section: the plant store this station
+	// forwards its runs to (station_plant.go).
+	Plant StationPlant
+	// Badges are the prefixes of lot and operator badges (badges.go).
+	Badges StationBadges
+	// Source is where the file came from, its exact bytes and their sha256.
+	Source Source
+}
+
+// Driver says what drives a station's pins; every run records it.
+type Driver string
+
+const (
+	// DriverSim is the built-in simulated line (no hardware).
+	DriverSim Driver = "sim"
+	// DriverGPIO is real GPIO lines, opened by name.
+	DriverGPIO Driver = "gpio"
+)
+
+// StationPins maps each logical fixture pin to a GPIO line name. Clock,
+// PassLamp and FailLamp are optional ("" = not wired).
+type StationPins struct {
+	Latch, Power, Clock, Lid string
+	PassLamp, FailLamp       string
+	// Ladder has one pin per rung, in the order of StationLadder.RungsPF.
+	Ladder []string
+}
+
+// StationLadder is the calibrated reference-capacitor ladder.
+type StationLadder struct {
+	// RungsPF is each rung's capacitance as measured (relay closed minus
+	// open), pF; 1 to 12 rungs, each > 0. Equal values are allowed.
+	RungsPF []float64
+	// StrayPF is the calibrated stray at the pad with every relay open.
+	StrayPF float64
+	// Operate and Bounce are the relay settling times.
+	Operate, Bounce time.Duration
+	// RatedOperations is the relays' rated life in operations.
+	RatedOperations float64
+	// CalUncertaintyPF is one rung's calibration standard uncertainty (the
+	// LCR meter's), pF; default 0.05.
+	CalUncertaintyPF float64
+}
+
+// StationTrust is the station file's reference units and check schedule
+// (station_cmd.go uses them).
+type StationTrust struct {
+	// References are the kept reference units, each with the trip point
+	// this station measured for it and the allowed deviation.
+	References []StationRef
+	// CheckEveryUnits and CheckEveryHours require a new check after that
+	// many production units or hours (0: no such limit).
+	CheckEveryUnits int
+	CheckEveryHours float64
+	// RelayWarnFraction is the fraction of rated relay life at which
+	// 'padline station status' warns (default 0.8).
+	RelayWarnFraction float64
+}
+
+// maxRungs is the most rungs a ladder may have (DEVELOPERS.md "Fixture").
+const maxRungs = 12
+
+// LoadStation resolves ref (a file path, or a built-in station name such as
+// demo-sim) and parses it.
+func LoadStation(ref string) (*Station, error) {
+	src, err := openConfig(ref, "stations", "station")
+	if err != nil {
+		return nil, err
+	}
+	return parseStation(src)
+}
+
+// parseStation parses and validates one station file. Every problem is a
+// one-line *ConfigError naming the file and the key.
+//
+// Length: it reads the station file's keys in the file's own order, one
+// line per key; the reading order is the documentation of the format.
+func parseStation(src Source) (*Station, error) {
+	d, err := parseDoc(src.Name, src.Raw)
+	if err != nil {
+		return nil, err
+	}
+	s := &Station{Source: src}
+	s.Name = d.str("name", true)
+	s.Fixture = d.str("fixture", true)
+	s.Driver = Driver(d.str("driver", true))
+	if s.Driver != "" && s.Driver != DriverSim && s.Driver != DriverGPIO {
+		d.fail("driver", "must be sim or gpio, got %q", s.Driver)
+	}
+	s.ShiftLog = d.str("shift_log", true)
+	if d.section("pins", true) {
+		p := &s.Pins
+		p.Latch = d.str("pins.latch", true)
+		p.Power = d.str("pins.power", true)
+		p.Clock = d.str("pins.clock", false)
+		p.Lid = d.str("pins.lid", true)
+		p.PassLamp = d.str("pins.pass_lamp", false)
+		p.FailLamp = d.str("pins.fail_lamp", false)
+		p.Ladder = d.strList("pins.ladder")
+		roles := map[string]string{}
+		claim := func(role, pin string) {
+			if pin == "" {
+				return
+			}
+			if other, dup := roles[pin]; dup {
+				d.fail("pins."+role, "pin %s is already used by pins.%s", pin, other)
+				return
+			}
+			roles[pin] = role
+		}
+		claim("latch", p.Latch)
+		claim("power", p.Power)
+		claim("clock", p.Clock)
+		claim("lid", p.Lid)
+		claim("pass_lamp", p.PassLamp)
+		claim("fail_lamp", p.FailLamp)
+		for i, pin := range p.Ladder {
+			claim(fmtIndex("ladder", i), pin)
+		}
+	}
+	if d.section("ladder", true) {
+		l := &s.Ladder
+		l.RungsPF = d.numList("ladder.rungs_pf")
+		if d.err == nil {
+			switch {
+			case len(l.RungsPF) == 0 || len(l.RungsPF) > maxRungs:
+				d.fail("ladder.rungs_pf", "want 1 to %d rungs, got %d", maxRungs, len(l.RungsPF))
+			case len(s.Pins.Ladder) != len(l.RungsPF):
+				d.fail("pins.ladder", "has %d pins but ladder.rungs_pf has %d rungs", len(s.Pins.Ladder), len(l.RungsPF))
+			}
+			for i, c := range l.RungsPF {
+				if c <= 0 {
+					d.fail(fmtIndex("ladder.rungs_pf", i), "must be > 0, got %g", c)
+				}
+				// Each rung is measured on its own: two identical readings
+				// are almost always one line pasted twice.
+				if j := slices.Index(l.RungsPF[:i], c); j >= 0 {
+					d.fail(fmtIndex("ladder.rungs_pf", i), "repeats rungs_pf[%d] (%g pF) exactly: measure each rung and enter its own reading", j, c)
+				}
+			}
+		}
+		l.StrayPF = d.nonNegative("ladder.stray_pf", true, 0)
+		l.Operate = msDuration(d.atMost("ladder.operate_ms", d.positive("ladder.operate_ms", true, 0), maxRelayMS))
+		l.Bounce = msDuration(d.atMost("ladder.bounce_ms", d.nonNegative("ladder.bounce_ms", true, 0), maxRelayMS))
+		if l.Operate <= 0 && d.err == nil {
+			d.fail("ladder.operate_ms", "must be at least 1 µs")
+		}
+		l.RatedOperations = d.positive("ladder.rated_operations", true, 0)
+		// > 0: no LCR meter reads a rung exactly, and the reference check
+		// takes this as the levels' calibration uncertainty.
+		l.CalUncertaintyPF = d.positive("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF)
+	}
+	s.Trust = readStationTrust(d, s.Ladder)
+	s.Badges = readStationBadges(d)
+	s.Sim = readStationSim(d)
+	s.Plant = readStationPlant(d)
+	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
+	if err := d.finish(); err != nil {
+		return nil, err
+	}
+	return s, nil
+}
+
+// maxRelayMS bounds a relay's operate or bounce time: even slow armature
+// relays settle in tens of ms, so anything past 10 s is a typo.
+const maxRelayMS = 10000
+
+// atMost fails key when f exceeds max, and returns f.
+func (d *doc) atMost(key string, f, max float64) float64 {
+	if f > max {
+		d.fail(key, "must be at most %g, got %g", max, f)
+	}
+	return f
+}
+
+func msDuration(ms float64) time.Duration {
+	return time.Duration(ms * float64(time.Millisecond))
+}
