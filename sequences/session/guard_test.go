@@ -125,3 +125,31 @@ func TestDamagedLogRefusedAtStart(t *testing.T) {
 }
 
 var _ = sequences.Pass
+
+// A config file over the size cap is refused before it is parsed, and so
+// is anything that is not a regular file.
+func TestConfigSizeCapAndKind(t *testing.T) {
+	dir := t.TempDir()
+	big := filepath.Join(dir, "big.yaml")
+	raw, err := os.ReadFile("../../testdata/variants/QM-205.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	// A valid variant padded past the cap with a long description.
+	pad := make([]byte, session.MaxConfigBytes)
+	for i := range pad {
+		pad[i] = 'x'
+	}
+	raw = append(raw, []byte("\n# "+string(pad)+"\n")...)
+	if err := os.WriteFile(big, raw, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	_, err = session.LoadVariant(big)
+	var ce *session.ConfigError
+	if !errors.As(err, &ce) || ce.File != big {
+		t.Fatalf("LoadVariant of a %d-byte file: %v, want a ConfigError naming it", len(raw), err)
+	}
+	if _, err := session.LoadStation(dir + "/"); err == nil {
+		t.Fatal("a directory was read as a station file")
+	}
+}
