@@ -452,14 +452,20 @@ func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.E
 // Drivers lists the station drivers the plant's runs were recorded with,
 // in order ("" for runs forwarded before drivers were recorded).
 func (db *DB) Drivers(ctx context.Context) ([]string, error) {
-	rows, err := db.pool.Query(ctx, `SELECT d FROM unnest(ARRAY['', 'gpio', 'sim']) AS d
-		WHERE EXISTS (SELECT 1 FROM runs WHERE driver = d) ORDER BY d`)
-	if err != nil {
+	// One EXISTS per known driver, each with its value written out, so
+	// every probe is one look into the runs_driver index.
+	known := []string{"", "gpio", "sim"}
+	var has [3]bool
+	if err := db.pool.QueryRow(ctx, `SELECT EXISTS (SELECT 1 FROM runs WHERE driver = ''),
+		EXISTS (SELECT 1 FROM runs WHERE driver = 'gpio'), EXISTS (SELECT 1 FROM runs WHERE driver = 'sim')`).
+		Scan(&has[0], &has[1], &has[2]); err != nil {
 		return nil, fmt.Errorf("plant drivers: %w", err)
 	}
-	out, err := pgx.CollectRows(rows, pgx.RowTo[string])
-	if err != nil {
-		return nil, fmt.Errorf("plant drivers: %w", err)
+	var out []string
+	for i, d := range known {
+		if has[i] {
+			out = append(out, d)
+		}
 	}
 	return out, nil
 }
