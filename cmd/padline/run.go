@@ -23,6 +23,7 @@ type runOptions struct {
 	asJSON           bool
 	lidTimeout       time.Duration
 	screen           string // address of the station screen; "" for none
+	xout             string // panel stations: x-out sites of the --serial panel
 }
 
 // runCmd builds `padline run`.
@@ -52,6 +53,16 @@ shift-start check waits for it to be run from the page instead of exiting.
 A station file with driver: sim runs against the built-in simulated line;
 driver: gpio drives the real pins named in the station file.
 
+A panel station (a station file with a sites: section, such as the built-in
+demo-panel) tests every board of a panel in one closure. Each input line is
+one panel: its label, optionally followed by x:SITES naming the sites marked
+bad on the panel (x-outs: skipped and logged as not tested), e.g.
+"QM205-0001 x:3". Each site's serial comes from the variant's panel_serial
+({panel}{site:02} turns QM205-0001 into QM205-000101 …); with sites.serials:
+scan the line holds every site's label instead, "-" for an x-out. Every
+tested site gets its own run and verdict in the shift log, with the panel
+label and its site number; the terminal shows a compact panel map.
+
 CAUTION: the unit's supply may be up to 15 V while the station's GPIO is 3.3 V:
 every input must be level-shifted. Products that switch mains must be tested
 with their logic board unpowered from mains; follow local electrical codes and
@@ -59,12 +70,19 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 		Example: `  padline run --variant QM-205 --station /etc/padline/station.yaml
   padline run --variant QM-205 --station demo-sim --serial QM205-000123
   printf 'QM205-000001\nQM205-000002\n' | padline run --variant QM-205 --station demo-sim --db shift.db
-  padline run --variant QM-205 --station demo-sim --screen   # then open http://127.0.0.1:8080/`,
+  padline run --variant QM-205 --station demo-sim --screen   # then open http://127.0.0.1:8080/
+  printf 'QM205-0001\nQM205-0002 x:3\n' | padline run --variant QM-205 --station demo-panel --db shift.db`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			db, err := shiftLogPath(cmd, o.station)
 			if err != nil {
 				return err
+			}
+			if _, panel := panelStation(o.station); panel {
+				if o.screen != "" {
+					return fmt.Errorf("run: station %s is a panel station; --screen does not serve panels yet (the terminal shows the panel map)", o.station)
+				}
+				return a.runPanel(cmd.Context(), o, db)
 			}
 			return a.run(cmd.Context(), o, db)
 		},
@@ -80,6 +98,7 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per tested unit instead of the verdict banner")
 	f.DurationVar(&o.lidTimeout, "lid-timeout", 0, "give up on a unit whose lid stays open this long (0: wait until stopped)")
 	addScreenFlag(f, &o.screen)
+	f.StringVar(&o.xout, "xout", "", "panel station: sites of the --serial panel marked bad (x-outs), e.g. 2,5")
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
