@@ -51,6 +51,11 @@ func TestRunPanelStation(t *testing.T) {
 	if n != 31 {
 		t.Fatalf("%d runs logged, want 8 + 7 + 8 + 8", n)
 	}
+	// --serial and --xout test one panel; --json gives one object per site.
+	js, errs, code := runPadline(t, ctx, "", append(args, "--serial", "QM205-0005", "--xout", "2", "--json")...)
+	if code != 0 || strings.Count(js, "\n") != 8 || !strings.Contains(js, `"fail_code":"x_out"`) || !strings.Contains(js, `"site":2`) {
+		t.Fatalf("--serial --xout --json: exit %d\n%s\n%s", code, js, errs)
+	}
 	// Every relay operation of the check and the panels is counted against
 	// the ganged fixture's relays.
 	if ops, err := s.LoadRelayOps(ctx, "PX-08"); err != nil || len(ops) != 8 || ops[0] == 0 {

@@ -82,7 +82,10 @@ func (a *app) runPanel(ctx context.Context, o runOptions, dbPath string) (err er
 	}
 	tmpl := sequences.Run{Variant: r.Variant.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
 		Operator: o.operator, Lot: o.lot, Software: softwareVersion(), Driver: string(st.Driver)}
-	lines := []string{o.serial + " " + o.xout}
+	lines := []string{o.serial}
+	if o.xout != "" {
+		lines[0] += " x:" + o.xout
+	}
 	if o.serial == "" {
 		lines = nil
 		sc := bufio.NewScanner(a.stdin)
@@ -100,6 +103,12 @@ func (a *app) runPanel(ctx context.Context, o runOptions, dbPath string) (err er
 		}
 		label, serials, xout, perr := parsePanelLine(r, line)
 		if perr != nil {
+			if o.asJSON {
+				if err := enc.Encode(map[string]string{"panel": line, "refused": perr.Error()}); err != nil {
+					return err
+				}
+				continue
+			}
 			fmt.Fprintf(a.stdout, "NOT TESTED  %v\n", perr)
 			continue
 		}
