@@ -10,6 +10,8 @@ import (
 	"strings"
 	"time"
 
+	"padline/fixture"
+	"padline/fixture/hostpins"
 	"padline/sequences"
 	"padline/sequences/session"
 	"padline/store"
@@ -36,7 +38,8 @@ func openPanel(ctx context.Context, variant, station, dbPath, search string) (*s
 	if err != nil {
 		return nil, nil, "", err
 	}
-	r, err := session.NewPanelRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: from, Strategy: search})
+	r, err := session.NewPanelRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: from, Strategy: search,
+		PanelGPIO: openPanelGPIO})
 	if err != nil {
 		return nil, nil, "", err
 	}
@@ -75,8 +78,12 @@ func (a *app) runPanel(ctx context.Context, o runOptions, dbPath string) (err er
 	}
 	lim := r.PlanConfig.Limits
 	if !o.asJSON {
-		fmt.Fprintf(a.stdout, "padline run: %s on panel station %s, fixture %s, %d sites (%s ladder); SIMULATED station (driver sim): these runs are not real units; trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
-			r.Variant.Name, st.Name, st.Fixture, r.Sites(), map[bool]string{true: "ganged", false: "own"}[st.Sites.Ganged],
+		simulated := ""
+		if r.Sim != nil {
+			simulated = " SIMULATED station (driver sim): these runs are not real units;"
+		}
+		fmt.Fprintf(a.stdout, "padline run: %s on panel station %s, fixture %s, %d sites (%s ladder);%s trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
+			r.Variant.Name, st.Name, st.Fixture, r.Sites(), map[bool]string{true: "ganged", false: "own"}[st.Sites.Ganged], simulated,
 			lim.TripLowPF, lim.TripHighPF, r.UncertaintyPF, r.UncertaintyFrom, dbPath)
 		fmt.Fprintln(a.stdout, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
 	}
@@ -112,11 +119,20 @@ func (a *app) runPanel(ctx context.Context, o runOptions, dbPath string) (err er
 			fmt.Fprintf(a.stdout, "NOT TESTED  %v\n", perr)
 			continue
 		}
-		if _, err := r.Sim.Load(serials); err != nil {
+		if r.Sim != nil {
+			if _, err := r.Sim.Load(serials); err != nil {
+				return err
+			}
+		} else if err := a.waitPanel(ctx, r, label, tested > 0, o); err != nil {
+			if ctx.Err() != nil {
+				return nil
+			}
 			return err
 		}
 		oc, terr := r.TestPanel(ctx, db, tmpl, label, serials, xout, time.Now)
-		r.Sim.Unload()
+		if r.Sim != nil {
+			r.Sim.Unload()
+		}
 		if errors.Is(terr, sequences.ErrAborted) {
 			fmt.Fprintf(a.stderr, "\nstopped: panel %s was not finished; no site has a verdict and nothing was logged. Fixture halted.\n", label)
 			return nil
@@ -145,6 +161,40 @@ func (a *app) runPanel(ctx context.Context, o runOptions, dbPath string) (err er
 	}
 	fmt.Fprintf(map[bool]io.Writer{true: a.stderr, false: a.stdout}[o.asJSON], "\n%d panel(s) tested; fixture halted.\n", tested)
 	return nil
+}
+
+// waitPanel asks the operator to put the panel into the fixture: the lid
+// must open after the panel before and close again.
+func (a *app) waitPanel(ctx context.Context, r *session.PanelRig, label string, after bool, o runOptions) error {
+	w := a.stdout
+	if o.asJSON {
+		w = a.stderr
+	}
+	fx := r.Panel.Site(0)
+	if after {
+		fmt.Fprintln(w, "open the lid and take the panel out")
+		if err := fx.WaitLid(ctx, false, 50*time.Millisecond, o.lidTimeout); err != nil {
+			return err
+		}
+	}
+	fmt.Fprintf(w, "load panel %s and close the lid\n", label)
+	return fx.WaitLid(ctx, true, 50*time.Millisecond, o.lidTimeout)
+}
+
+// openPanelGPIO opens a gpio panel station's lines through
+// fixture/hostpins.
+func openPanelGPIO(st *session.Station) (fixture.PanelPins, error) {
+	roles := hostpins.PanelRoleMap{Lid: st.Pins.Lid, PassLamp: st.Pins.PassLamp, FailLamp: st.Pins.FailLamp}
+	if st.Sites.SharedPower {
+		roles.Power = st.Pins.Power
+	}
+	if st.Sites.Ganged {
+		roles.Ladder = st.Pins.Ladder
+	}
+	for _, s := range st.Sites.List {
+		roles.Sites = append(roles.Sites, hostpins.SiteRoles{Latch: s.Latch, Clock: s.Clock, Power: s.Power, Ladder: s.Ladder})
+	}
+	return hostpins.OpenPanel(roles)
 }
 
 // parsePanelLine reads one scanned panel: "LABEL [x:2,5]" with serials from

@@ -234,9 +234,14 @@ type PanelRig struct {
 	Ladders []*fixture.Ladder
 }
 
-// ErrPanelGPIO is returned for a panel station on real GPIO lines: this
-// version opens panel stations on the simulator only.
-var ErrPanelGPIO = errors.New("panel stations run on the simulator only in this version")
+// ErrPanelGPIO is returned for a panel station on real GPIO lines when the
+// program cannot open them (no RigOptions.PanelGPIO).
+var ErrPanelGPIO = errors.New("this program cannot open a panel station's GPIO lines")
+
+// PanelGPIOOpener opens a panel station's real lines by name (see
+// GPIOOpener: the program on a station passes one built on
+// hostpins.OpenPanel).
+type PanelGPIOOpener func(st *Station) (fixture.PanelPins, error)
 
 // PanelModel is the simulated panel fixture a panel station describes.
 func PanelModel(st *Station) sim.PanelModel {
@@ -261,7 +266,7 @@ func NewPanelRig(v *Variant, st *Station, o RigOptions) (*PanelRig, error) {
 	if st.Sites == nil {
 		return nil, fmt.Errorf("station %s has no sites: section: it tests one unit per closure", st.Source.Name)
 	}
-	if st.Driver != DriverSim {
+	if st.Driver != DriverSim && o.PanelGPIO == nil {
 		return nil, fmt.Errorf("station %s: %w", st.Source.Name, ErrPanelGPIO)
 	}
 	r := &PanelRig{Variant: v, Station: st, UncertaintyPF: o.UncertaintyPF, UncertaintyFrom: o.UncertaintyFrom}
@@ -280,23 +285,31 @@ func NewPanelRig(v *Variant, st *Station, o RigOptions) (*PanelRig, error) {
 	if r.PlanConfig, err = PlanConfig(v, rep, clocks, o.Strategy); err != nil {
 		return nil, err
 	}
-	if r.Sim, err = sim.NewPanel(PanelModel(st), UnitModel(v, st.Sim), st.Sim.Seed); err != nil {
-		return nil, fmt.Errorf("station %s: simulated panel: %w", st.Source.Name, err)
-	}
-	r.Clock = r.Sim.Clock()
-	pins := r.Sim.Pins()
-	fp := fixture.PanelPins{Latch: pins.Latch, LatchGroup: pins.LatchGroup, Power: pins.Power,
-		Lid: pins.Lid, PassLamp: pins.PassLamp, FailLamp: pins.FailLamp}
-	if clocks {
-		fp.Clock, fp.ClockGroup = pins.Clock, pins.ClockGroup
-	}
-	if st.Sites.Ganged {
-		fp.Ladder, fp.LadderGroup = pins.Ladder, pins.LadderGroup
-	} else {
-		fp.SiteLadders = pins.SiteLadders
-		for _, g := range pins.SiteLadderGroups {
-			fp.SiteLadderGroups = append(fp.SiteLadderGroups, g)
+	var fp fixture.PanelPins
+	if st.Driver == DriverSim {
+		if r.Sim, err = sim.NewPanel(PanelModel(st), UnitModel(v, st.Sim), st.Sim.Seed); err != nil {
+			return nil, fmt.Errorf("station %s: simulated panel: %w", st.Source.Name, err)
 		}
+		r.Clock = r.Sim.Clock()
+		pins := r.Sim.Pins()
+		fp = fixture.PanelPins{Latch: pins.Latch, LatchGroup: pins.LatchGroup, Power: pins.Power,
+			Lid: pins.Lid, PassLamp: pins.PassLamp, FailLamp: pins.FailLamp}
+		if clocks {
+			fp.Clock, fp.ClockGroup = pins.Clock, pins.ClockGroup
+		}
+		if st.Sites.Ganged {
+			fp.Ladder, fp.LadderGroup = pins.Ladder, pins.LadderGroup
+		} else {
+			fp.SiteLadders = pins.SiteLadders
+			for _, g := range pins.SiteLadderGroups {
+				fp.SiteLadderGroups = append(fp.SiteLadderGroups, g)
+			}
+		}
+	} else {
+		if fp, err = o.PanelGPIO(st); err != nil {
+			return nil, fmt.Errorf("station %s: %w", st.Source.Name, err)
+		}
+		r.Clock = fixture.WallClock{}
 	}
 	var levels [][]fixture.Level
 	for i, s := range st.Sites.List {
@@ -344,9 +357,12 @@ func (r *PanelRig) SiteRig(i int) (*Rig, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &Rig{Variant: r.Variant, Station: &st, Limits: r.Limits, UncertaintyPF: r.UncertaintyPF,
-		UncertaintyFrom: r.UncertaintyFrom, PlanConfig: r.PlanConfig, Plan: plan, Fixture: fx, Clock: r.Clock,
-		Line: r.Sim.Site(i)}, nil
+	sr := &Rig{Variant: r.Variant, Station: &st, Limits: r.Limits, UncertaintyPF: r.UncertaintyPF,
+		UncertaintyFrom: r.UncertaintyFrom, PlanConfig: r.PlanConfig, Plan: plan, Fixture: fx, Clock: r.Clock}
+	if r.Sim != nil {
+		sr.Line = r.Sim.Site(i)
+	}
+	return sr, nil
 }
 
 // RunPanelCheck is the shift-start check of a panel station: every
@@ -366,20 +382,26 @@ func RunPanelCheck(ctx context.Context, r *PanelRig, db *store.DB, progress func
 	rep := CheckReport{Station: st.Name, Fixture: st.Fixture, StationFile: st.Source.Name, StationHash: st.Source.Hash,
 		Variant: r.Variant.Name, Time: time.Now().UTC()}
 	var total time.Duration
+	ld := &Loader{Prompt: func(msg string) {
+		if progress != nil {
+			progress(CheckInfo{Message: msg})
+		}
+	}}
 	for i := range r.Sites() {
 		sr, err := r.SiteRig(i)
 		if err != nil {
 			return rep, err
 		}
+		ld.Rig = sr // one loader: the lid opens between every two units
 		cfg := sr.CheckConfig()
 		var refs []sequences.RefCheck
 		for _, ref := range st.Trust.References {
-			if err := r.Sim.ForceDefects(ref.Serial, ref.SimDefects...); err != nil {
-				return rep, err
+			what := fmt.Sprintf("reference unit %s at site %d alone", ref.Serial, i+1)
+			if err := ld.Load(ctx, ref.Serial, ref.SimDefects, what); err != nil {
+				return rep, fmt.Errorf("station check: %w", err)
 			}
-			sr.Line.Load(ref.Serial)
 			res, err := sequences.CheckReference(ctx, sr.Fixture, r.Clock, ref.Reference, cfg)
-			sr.Line.Unload()
+			ld.Unload()
 			if err != nil {
 				return rep, fmt.Errorf("station check: site %d: reference unit %s: %w", i+1, ref.Serial, err)
 			}

@@ -10,6 +10,7 @@ import (
 	"testing"
 	"time"
 
+	"padline/fixture"
 	"padline/sequences"
 	"padline/sequences/session"
 	"padline/store"
@@ -174,5 +175,27 @@ func TestPanelStoppedLogsNothing(t *testing.T) {
 	}
 	if n != 0 {
 		t.Fatalf("%d runs logged for a stopped panel", n)
+	}
+}
+
+// A gpio panel station opens its lines through the program's opener; a
+// program without one refuses it.
+func TestPanelRigGPIOOpener(t *testing.T) {
+	v, st, err := session.Load("QM-205", "demo-panel")
+	if err != nil {
+		t.Fatal(err)
+	}
+	st.Driver = session.DriverGPIO
+	if _, err := session.NewPanelRig(v, st, session.RigOptions{}); !errors.Is(err, session.ErrPanelGPIO) {
+		t.Fatalf("no opener: %v, want ErrPanelGPIO", err)
+	}
+	var asked int
+	opener := func(s *session.Station) (fixture.PanelPins, error) {
+		asked = len(s.Sites.List)
+		return fixture.PanelPins{}, errors.New("GPIO40: no such line")
+	}
+	_, err = session.NewPanelRig(v, st, session.RigOptions{PanelGPIO: opener})
+	if asked != 8 || err == nil || !strings.Contains(err.Error(), "demo-panel") || !strings.Contains(err.Error(), "GPIO40") {
+		t.Fatalf("opener asked for %d sites, err %v", asked, err)
 	}
 }

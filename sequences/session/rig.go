@@ -56,6 +56,8 @@ type RigOptions struct {
 	Strategy string
 	// GPIO opens real pins for driver: gpio (see GPIOOpener).
 	GPIO GPIOOpener
+	// PanelGPIO opens a panel station's real pins (see PanelGPIOOpener).
+	PanelGPIO PanelGPIOOpener
 }
 
 // Load resolves and parses a variant and a station reference: each a .yaml
