@@ -199,3 +199,14 @@ func TestPanelRigGPIOOpener(t *testing.T) {
 		t.Fatalf("opener asked for %d sites, err %v", asked, err)
 	}
 }
+
+// A single-unit rig on a panel station is refused, naming the file.
+func TestSingleRigRefusesPanelStation(t *testing.T) {
+	v, st, err := session.Load("QM-205", "demo-panel")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := session.NewRig(v, st, session.RigOptions{}); err == nil || !strings.Contains(err.Error(), "demo-panel") {
+		t.Fatalf("single rig on a panel station: %v", err)
+	}
+}
