@@ -211,7 +211,11 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			if o.asJSON {
 				w = a.stderr
 			}
-			fmt.Fprintln(w, "close the lid to start the test")
+			if e.Scan.Prompt != "" {
+				fmt.Fprintln(w, e.Scan.Prompt)
+			} else {
+				fmt.Fprintln(w, "close the lid to start the test")
+			}
 		case session.KindUnitAborted:
 			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", e.Scan.Serial)
 		case session.KindVerdictCommitted:
