@@ -38,6 +38,11 @@ type Options struct {
 	// instead of returning the refusal. Without it Run returns an error
 	// wrapping ErrNotReady (the terminal's behaviour: exit status 3).
 	WaitForCheck bool
+	// InputEndIsError makes the end of the scanner's input an error
+	// (ErrInputEnded) instead of a normal end: a station run as a service
+	// must not stop for good because its console closed or someone typed
+	// Ctrl-D; the service manager restarts it on the error.
+	InputEndIsError bool
 	// Now is the wall clock (default time.Now); tests inject one.
 	Now func() time.Time
 }
@@ -307,6 +312,10 @@ func (s *Session) Run(ctx context.Context, sc Scanner) (err error) {
 		if !ok {
 			if ctx.Err() != nil {
 				reason = EndStopped
+				return nil
+			}
+			if s.opts.InputEndIsError {
+				return ErrInputEnded
 			}
 			return nil
 		}
@@ -432,6 +441,10 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 	s.driftWatch(&oc.Run)
 	return unitTested, nil
 }
+
+// ErrInputEnded: the scanner's input ended in a run that must not end so
+// (Options.InputEndIsError).
+var ErrInputEnded = errors.New("the scanner input ended (console closed or Ctrl-D): a service station does not stop on that; restarting")
 
 // ErrHalted is wrapped by every error that stops the station because the
 // shift log cannot take its runs: moved or deleted, disk full, locked.
