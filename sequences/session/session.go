@@ -122,6 +122,15 @@ func OpenOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 }
 
 func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
+	// Operator and lot reach the terminal, the history table and CSV:
+	// cleaned like serials, refused when they hold control characters.
+	var err error
+	if o.Operator, err = CleanName("operator", o.Operator); err != nil {
+		return nil, errors.Join(err, rig.Halt())
+	}
+	if o.Lot, err = CleanName("lot", o.Lot); err != nil {
+		return nil, errors.Join(err, rig.Halt())
+	}
 	db, err := store.Open(o.ShiftLog)
 	if err != nil {
 		return nil, errors.Join(err, rig.Halt())
@@ -306,6 +315,10 @@ func (s *Session) Run(ctx context.Context, sc Scanner) (err error) {
 		stopWatch := s.watchLid()
 		raw, ok, err := sc.Scan(ctx)
 		stopWatch()
+		if errors.Is(err, ErrLineTooLong) {
+			s.refuseScan(quoteSerial(raw), fmt.Sprintf("%v (unit not tested; scan again)", err), err)
+			continue
+		}
 		if err != nil {
 			return fmt.Errorf("read serials: %w", err)
 		}
