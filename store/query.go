@@ -24,14 +24,16 @@ type Filter struct {
 	Verdict sequences.Verdict
 	Since   time.Time
 	Until   time.Time
-	// Line and Site select by the station's line and the run's panel site:
-	// only the plant store knows them; a shift log matches no run when
-	// either is set.
+	// Line selects by the station's line: only the plant store knows
+	// lines; a shift log matches no run when it is set.
 	Line string
-	Site string
 	// Driver keeps only runs of stations with this driver ("sim",
 	// "gpio"); "" keeps all.
 	Driver string
+	// Panel and Site narrow to one panel's runs and one site position
+	// (1-based; 0 = any; −1 = units tested alone).
+	Panel string
+	Site  int
 }
 
 // where returns the SQL condition (on runs aliased r) and its arguments.
@@ -65,13 +67,22 @@ func (f Filter) where() (string, []any) {
 	if f.Driver != "" {
 		add("r.driver = ?", f.Driver)
 	}
+	if f.Panel != "" {
+		add("r.panel = ?", f.Panel)
+	}
+	switch {
+	case f.Site > 0:
+		add("r.site = ?", f.Site)
+	case f.Site < 0:
+		conds = append(conds, "r.site IS NULL")
+	}
 	if !f.Since.IsZero() {
 		add("r.finished >= ?", f.Since.UnixNano())
 	}
 	if !f.Until.IsZero() {
 		add("r.finished < ?", f.Until.UnixNano())
 	}
-	if f.Line != "" || f.Site != "" {
+	if f.Line != "" {
 		conds = append(conds, "0")
 	}
 	if len(conds) == 0 {
@@ -94,7 +105,7 @@ type Entry struct {
 // in order and never sorts the whole result.
 const runsSQL = `
 SELECT r.id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
-       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault, r.panel, r.site,
        m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
 FROM runs r
 CROSS JOIN variants v ON v.id = r.variant_id
@@ -133,13 +144,14 @@ func (db *DB) runsQuery(ctx context.Context, q string, args ...any) iter.Seq2[*E
 				finished                   int64
 				verdict                    string
 				trip                       sql.NullFloat64
-				seq                        sql.NullInt64
+				seq, site                  sql.NullInt64
+				panel                      sql.NullString
 				step, name, unit, mverdict sql.NullString
 				value, low, high           sql.NullFloat64
 			)
 			if err := rows.Scan(&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
 				&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
-				&seq, &step, &name, &unit, &value, &low, &high, &mverdict); err != nil {
+				&panel, &site, &seq, &step, &name, &unit, &value, &low, &high, &mverdict); err != nil {
 				yield(nil, fmt.Errorf("read run: %w", err))
 				return
 			}
@@ -153,6 +165,7 @@ func (db *DB) runsQuery(ctx context.Context, q string, args ...any) iter.Seq2[*E
 				e.Finished = time.Unix(0, finished).UTC()
 				e.Verdict = sequences.Verdict(verdict)
 				e.TripPF = orNaN(trip)
+				e.Panel, e.Site = panel.String, int(site.Int64)
 				cur = &e
 			}
 			if seq.Valid {
@@ -202,10 +215,11 @@ type TripPoint struct {
 	Fixture  string
 	Lot      string
 	Verdict  sequences.Verdict
-	// Line and Site are filled by the plant store (the station's line, the
-	// run's panel site); the shift log leaves them empty.
+	// Line is filled by the plant store (the station's line); the shift
+	// log leaves it empty.
 	Line string
-	Site string
+	// Site is the run's panel site (1-based), 0 for a unit tested alone.
+	Site int
 }
 
 // TripSeries returns the trip points of the runs matching f (usually with
@@ -236,7 +250,7 @@ func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]
 	}
 	cols := "r.id, r.finished, r.trip_pf"
 	if full {
-		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict"
+		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict, r.site"
 	}
 	q := `SELECT ` + cols + `
 FROM runs r
@@ -274,7 +288,8 @@ ORDER BY r.finished DESC, r.id DESC`
 			out = append(out, p)
 			continue
 		}
-		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict); err != nil {
+		var site sql.NullInt64
+		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict, &site); err != nil {
 			return nil, fmt.Errorf("trip series: %w", err)
 		}
 		if string(lot) != lastLot {
@@ -299,6 +314,7 @@ ORDER BY r.finished DESC, r.id DESC`
 		}
 		p.Finished = time.Unix(0, finished).UTC()
 		p.Station, p.Fixture, p.Lot, p.Verdict = st, fx, lastLot, sequences.Verdict(lastVerdict)
+		p.Site = int(site.Int64)
 		out = append(out, p)
 	}
 	if err := rows.Err(); err != nil {

@@ -101,9 +101,10 @@ same U 'padline run' judged with; --lsl/--usl override
 them. First-pass yield (each serial's first unit verdict) comes with its
 exact Clopper–Pearson 95 % interval.
 
---by station|fixture|lot|shift reports each group on its own (shifts: early
-06–14, late 14–22, night 22–06 local time, named by the day they start);
-on the plant store also --by line|site.
+--by station|fixture|lot|shift|site reports each group on its own (shifts:
+early 06–14, late 14–22, night 22–06 local time, named by the day they
+start; sites: the board positions of a panel station, one chart per site).
+On the plant store also --by line.
 
 --csv FILE --column NAME analyses a column of numbers from a CSV file with a
 header row instead (blank cells are skipped); --target, --sigma, --k, --h,
@@ -205,7 +206,7 @@ own log's.`,
 	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
 	fl.BoolVar(&o.withSim, "include-simulated", false, "in a log with runs of a real station, also watch simulated runs (left out by default)")
-	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift (plant store: also line, site)")
+	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot, shift or site (panel position); plant store: also line")
 	fl.IntVar(&o.last, "last", 0, "only the last N trip points (and the runs since the first of them, for yield)")
 	fl.BoolVar(&o.allVerdicts, "all-verdicts", false, "chart failed units' trip points too (default: passing units only; yield always counts every unit)")
 	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
@@ -254,13 +255,13 @@ func (o *driftOptions) check() error {
 		return fmt.Errorf("drift: --alarms must be ≥ 0, got %d", o.alarms)
 	}
 	switch o.by {
-	case "", "station", "fixture", "lot", "shift":
-	case "line", "site":
+	case "", "station", "fixture", "lot", "shift", "site":
+	case "line":
 		if !isPlantURL(o.db) {
-			return fmt.Errorf("drift: --by %s needs the plant store (--db postgres://…): a station's shift log knows no %ss", o.by, o.by)
+			return fmt.Errorf("drift: --by line needs the plant store (--db postgres://…): a station's shift log knows no lines")
 		}
 	default:
-		return fmt.Errorf("drift: --by must be station, fixture, line, lot, site or shift, got %q", o.by)
+		return fmt.Errorf("drift: --by must be station, fixture, lot, shift, site or line, got %q", o.by)
 	}
 	switch o.chart {
 	case "watch", "imr", "ewma", "cusum":
@@ -615,8 +616,13 @@ func driftKey(p store.TripPoint, by string, f store.Filter) (string, store.Filte
 		f.Line = p.Line
 		return p.Line, f
 	case "site":
+		// Units tested alone form their own group.
+		if p.Site == 0 {
+			f.Site = -1
+			return "none (units tested alone)", f
+		}
 		f.Site = p.Site
-		return p.Site, f
+		return fmt.Sprintf("%02d", p.Site), f
 	}
 	name, start, end := shiftOf(p.Finished.Local())
 	if f.Since.IsZero() || f.Since.Before(start) {

@@ -24,6 +24,8 @@ type runOptions struct {
 	lidTimeout       time.Duration
 	screen           string // address of the station screen; "" for none
 	plantURL         string // forward to this plant store (station_plant.go)
+	xout             string // panel stations: x-out sites of the --serial panel
+	service          bool   // end of input is an error (run as a service)
 }
 
 // runCmd builds `padline run`.
@@ -42,7 +44,11 @@ serial padline waits for the lid, powers the unit, runs the variant's plan
 log, and only then shows the verdict and lights the lamp.
 
 Ctrl-C or SIGTERM stops cleanly: the fixture opens every rung and removes unit
-power, and a unit stopped half-way gets no verdict and no log entry.
+power, and a unit stopped half-way gets no verdict and no log entry. SIGHUP
+and SIGQUIT halt the fixture the same way and exit 129 and 131, so a service
+restarts. With --service (the station's systemd unit) the end of input is an
+error too. Between two units the lid must open: a serial scanned while the
+last unit is still clamped waits for the lid to open and close.
 
 --screen serves the station screen to a browser on this computer
 (` + defaultScreenAddr + `; --screen=ADDR to listen elsewhere, which the log
@@ -53,6 +59,16 @@ shift-start check waits for it to be run from the page instead of exiting.
 A station file with driver: sim runs against the built-in simulated line;
 driver: gpio drives the real pins named in the station file.
 
+A panel station (a station file with a sites: section, such as the built-in
+demo-panel) tests every board of a panel in one closure. Each input line is
+one panel: its label, optionally followed by x:SITES naming the sites marked
+bad on the panel (x-outs: skipped and logged as not tested), e.g.
+"QM205-0001 x:3". Each site's serial comes from the variant's panel_serial
+({panel}{site:02} turns QM205-0001 into QM205-000101 …); with sites.serials:
+scan the line holds every site's label instead, "-" for an x-out. Every
+tested site gets its own run and verdict in the shift log, with the panel
+label and its site number; the terminal shows a compact panel map.
+
 CAUTION: the unit's supply may be up to 15 V while the station's GPIO is 3.3 V:
 every input must be level-shifted. Products that switch mains must be tested
 with their logic board unpowered from mains; follow local electrical codes and
@@ -60,12 +76,19 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 		Example: `  padline run --variant QM-205 --station /etc/padline/station.yaml
   padline run --variant QM-205 --station demo-sim --serial QM205-000123
   printf 'QM205-000001\nQM205-000002\n' | padline run --variant QM-205 --station demo-sim --db shift.db
-  padline run --variant QM-205 --station demo-sim --screen   # then open http://127.0.0.1:8080/`,
+  padline run --variant QM-205 --station demo-sim --screen   # then open http://127.0.0.1:8080/
+  printf 'QM205-0001\nQM205-0002 x:3\n' | padline run --variant QM-205 --station demo-panel --db shift.db`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			db, err := shiftLogPath(cmd, o.station)
 			if err != nil {
 				return err
+			}
+			if _, panel := panelStation(o.station); panel {
+				if o.screen != "" {
+					return fmt.Errorf("run: station %s is a panel station; --screen does not serve panels yet (the terminal shows the panel map)", o.station)
+				}
+				return a.runPanel(cmd.Context(), o, db)
 			}
 			return a.run(cmd.Context(), o, db)
 		},
@@ -82,6 +105,8 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f.DurationVar(&o.lidTimeout, "lid-timeout", 0, "give up on a unit whose lid stays open this long (0: wait until stopped)")
 	addScreenFlag(f, &o.screen)
 	addPlantURLFlag(f, &o.plantURL)
+	f.StringVar(&o.xout, "xout", "", "panel station: sites of the --serial panel marked bad (x-outs), e.g. 2,5")
+	f.BoolVar(&o.service, "service", false, "run as the station's service: the end of input (console closed, Ctrl-D) is an error, so the service manager restarts padline instead of leaving the line down")
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
@@ -93,7 +118,8 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		Operator: o.operator, Lot: o.lot, Strategy: o.search,
 		Software: softwareVersion(), GPIO: openGPIO, LidTimeout: o.lidTimeout,
 		// With a screen the technician runs a due check from the page.
-		WaitForCheck: o.screen != "",
+		WaitForCheck:    o.screen != "",
+		InputEndIsError: o.service,
 	})
 	if err != nil {
 		return err
@@ -197,7 +223,11 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			if o.asJSON {
 				w = a.stderr
 			}
-			fmt.Fprintln(w, "close the lid to start the test")
+			if e.Scan.Prompt != "" {
+				fmt.Fprintln(w, e.Scan.Prompt)
+			} else {
+				fmt.Fprintln(w, "close the lid to start the test")
+			}
 		case session.KindUnitAborted:
 			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", e.Scan.Serial)
 		case session.KindVerdictCommitted:

@@ -28,6 +28,9 @@ type Station struct {
 	Plant StationPlant
 	// Badges are the prefixes of lot and operator badges (badges.go).
 	Badges StationBadges
+	// Sites is the optional `sites:` section of a panel station (nil for a
+	// station that tests one unit per closure).
+	Sites *StationSites
 	// Source is where the file came from, its exact bytes and their sha256.
 	Source Source
 }
@@ -106,8 +109,8 @@ func parseStation(src Source) (*Station, error) {
 		return nil, err
 	}
 	s := &Station{Source: src}
-	s.Name = d.str("name", true)
-	s.Fixture = d.str("fixture", true)
+	s.Name = d.name("name")
+	s.Fixture = d.name("fixture")
 	s.Driver = Driver(d.str("driver", true))
 	if s.Driver != "" && s.Driver != DriverSim && s.Driver != DriverGPIO {
 		d.fail("driver", "must be sim or gpio, got %q", s.Driver)
@@ -115,8 +118,9 @@ func parseStation(src Source) (*Station, error) {
 	s.ShiftLog = d.str("shift_log", true)
 	if d.section("pins", true) {
 		p := &s.Pins
-		p.Latch = d.str("pins.latch", true)
-		p.Power = d.str("pins.power", true)
+		panel := d.has("sites") // a panel names each site's latch (and power) under sites
+		p.Latch = d.str("pins.latch", !panel)
+		p.Power = d.str("pins.power", !panel)
 		p.Clock = d.str("pins.clock", false)
 		p.Lid = d.str("pins.lid", true)
 		p.PassLamp = d.str("pins.pass_lamp", false)
@@ -180,6 +184,7 @@ func parseStation(src Source) (*Station, error) {
 	s.Sim = readStationSim(d)
 	s.Plant = readStationPlant(d)
 	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
+	s.Sites = readStationSites(d, s)
 	if err := d.finish(); err != nil {
 		return nil, err
 	}

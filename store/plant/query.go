@@ -50,8 +50,16 @@ func where(f store.Filter) (string, []any) {
 	if f.Lot != "" {
 		add("r.lot = ?", f.Lot)
 	}
-	if f.Site != "" {
-		add("r.site = ?", f.Site)
+	// The plant keeps a run's panel site as text ('' for a unit tested
+	// alone) and does not keep panel labels yet.
+	switch {
+	case f.Site > 0:
+		add("r.site = ?", strconv.Itoa(f.Site))
+	case f.Site < 0:
+		conds = append(conds, "r.site = ''")
+	}
+	if f.Panel != "" {
+		conds = append(conds, "false")
 	}
 	if f.Verdict != "" {
 		add("r.verdict = ?", string(f.Verdict))
@@ -252,7 +260,8 @@ ORDER BY r.at DESC, r.log_id DESC, r.local_id DESC`
 				lastSit = site
 			}
 			p.Station, p.Fixture, p.Line = names["stations"][sid], names["fixtures"][fid], names["lines"][sid]
-			p.Lot, p.Verdict, p.Site = lastLot, sequences.Verdict(lastV), lastSit
+			p.Lot, p.Verdict = lastLot, sequences.Verdict(lastV)
+			p.Site, _ = strconv.Atoi(lastSit)
 		}
 		out = append(out, p)
 	}

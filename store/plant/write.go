@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"strconv"
 	"time"
 
 	"github.com/jackc/pgx/v5"
@@ -469,7 +470,7 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 		station, variant, cfg, fix = make([]*int32, n), make([]*int32, n), make([]*int32, n), make([]*int32, n)
 		serial, op, lot, sw        = make([]string, n), make([]string, n), make([]string, n), make([]string, n)
 		verdict, code              = make([]string, n), make([]string, n)
-		driver, fault              = make([]string, n), make([]string, n)
+		driver, fault, site        = make([]string, n), make([]string, n), make([]string, n)
 		started                    = make([]*int64, n)
 		finished, at               = make([]int64, n), make([]int64, n)
 		trip                       = make([]*float64, n)
@@ -485,6 +486,9 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 		serial[i], op[i], lot[i], sw[i] = r.Serial, r.Operator, r.Lot, r.Software
 		verdict[i], code[i] = string(r.Verdict), string(r.FailCode)
 		driver[i], fault[i] = r.Driver, r.Fault
+		if r.Site > 0 {
+			site[i] = strconv.Itoa(r.Site)
+		}
 		started[i] = nullT(r.Started)
 		finished[i] = r.Finished.UnixNano()
 		at[i] = finished[i] + x.offset
@@ -494,16 +498,16 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 
 	if n <= smallBatch {
 		rows, err = tx.Query(ctx, `INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-			operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault)
+			operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
 			SELECT $1, u.local, u.station, u.serial, u.variant, u.cfg, u.fix, u.op, u.lot, u.sw, u.started, u.finished, u.at,
-				$2, u.verdict, u.code, u.trip, u.driver, u.fault
+				$2, u.verdict, u.code, u.trip, u.driver, u.fault, u.site
 			FROM unnest($3::bigint[], $4::int[], $5::text[], $6::int[], $7::int[], $8::int[], $9::text[], $10::text[],
-				$11::text[], $12::bigint[], $13::bigint[], $14::bigint[], $15::text[], $16::text[], $17::float8[], $18::text[], $19::text[])
-				AS u(local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault)
+				$11::text[], $12::bigint[], $13::bigint[], $14::bigint[], $15::text[], $16::text[], $17::float8[], $18::text[], $19::text[], $20::text[])
+				AS u(local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault, site)
 			ON CONFLICT DO NOTHING RETURNING local_id`,
-			x.log, x.now, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault)
+			x.log, x.now, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault, site)
 	} else {
-		rows, err = db.copyRuns(ctx, tx, x, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault)
+		rows, err = db.copyRuns(ctx, tx, x, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault, site)
 	}
 	if err != nil {
 		return 0, 0, err
@@ -535,7 +539,7 @@ func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *id
 		}
 		fSerial, fAt, fLog, fLocal = append(fSerial, r.Serial), append(fAt, at[i]), append(fLog, x.log), append(fLocal, r.ID)
 		fSt, fVa, fFx = append(fSt, deref(station[i])), append(fVa, deref(variant[i])), append(fFx, deref(fix[i]))
-		fLot, fSite, fVerdict = append(fLot, r.Lot), append(fSite, ""), append(fVerdict, string(r.Verdict))
+		fLot, fSite, fVerdict = append(fLot, r.Lot), append(fSite, site[i]), append(fVerdict, string(r.Verdict))
 	}
 	if len(fSerial) > 0 {
 		if _, err := tx.Exec(ctx, `SELECT plant_note_first($1, $2, $3, $4, $5, $6, $7, $8, $9, $10)`,
@@ -660,29 +664,29 @@ const smallBatch = 64
 // skips runs the plant already has); it returns the new runs' local ids.
 func (db *DB) copyRuns(ctx context.Context, tx pgx.Tx, x *ids, local []int64, station []*int32, serial []string,
 	variant, cfg, fix []*int32, op, lot, sw []string, started []*int64, finished, at []int64,
-	verdict, code []string, trip []*float64, driver, fault []string) (pgx.Rows, error) {
+	verdict, code []string, trip []*float64, driver, fault, site []string) (pgx.Rows, error) {
 	n := len(local)
 	if _, err := tx.Exec(ctx, `CREATE TEMP TABLE IF NOT EXISTS runs_in (
 		local_id bigint, station_id int, serial text, variant_id int, config_id int, fixture_id int,
 		operator text, lot text, software text, started bigint, finished bigint, at bigint,
-		verdict text, fail_code text, trip_pf float8, driver text, fault text) ON COMMIT DELETE ROWS`); err != nil {
+		verdict text, fail_code text, trip_pf float8, driver text, fault text, site text) ON COMMIT DELETE ROWS`); err != nil {
 		return nil, err
 	}
 	in := make([][]any, n)
 	for i := range n {
 		in[i] = []any{local[i], station[i], serial[i], variant[i], cfg[i], fix[i], op[i], lot[i], sw[i],
-			started[i], finished[i], at[i], verdict[i], code[i], trip[i], driver[i], fault[i]}
+			started[i], finished[i], at[i], verdict[i], code[i], trip[i], driver[i], fault[i], site[i]}
 	}
 	if _, err := tx.CopyFrom(ctx, pgx.Identifier{"runs_in"}, []string{"local_id", "station_id", "serial", "variant_id",
 		"config_id", "fixture_id", "operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf",
-		"driver", "fault"},
+		"driver", "fault", "site"},
 		pgx.CopyFromRows(in)); err != nil {
 		return nil, err
 	}
 	return tx.Query(ctx, `WITH ins AS (INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault)
+		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
 		SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-			started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault FROM runs_in
+			started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault, site FROM runs_in
 		ON CONFLICT DO NOTHING RETURNING local_id)
 		SELECT local_id FROM ins`, x.log, x.now)
 }
