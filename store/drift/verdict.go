@@ -139,4 +139,3 @@ func (f Finding) Sentence(what, unit, where string, name func(i int) string) str
 	}
 	return s
 }
-
