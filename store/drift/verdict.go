@@ -105,7 +105,7 @@ func RuleName(a Alarm) string {
 	case EWMASignal:
 		return "EWMA"
 	}
-	return a.Chart.Title() + " " + a.Rule.Description()
+	return a.Chart.Title() + " (" + a.Rule.Description() + ")"
 }
 
 // Sentence is the finding in one sentence. what names the quantity
