@@ -124,6 +124,7 @@ type demoUnit struct {
 	trueSpreadPF float64
 	phases       map[string]time.Duration
 	bound        time.Duration // noiseless bracketing bound
+	finished     time.Time     // the run's finish time, as logged
 }
 
 func (a *app) demo(ctx context.Context, o demoOptions) error {
@@ -211,12 +212,12 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 			}
 		}
 		sum := demoSummaryJSON(v, st, rep, strategies, results, cpu, wall)
-		if sum.Drift, err = o.drift.watch(results[0]); err != nil {
+		if sum.Drift, err = o.drift.watch(results[0], v, st); err != nil {
 			return err
 		}
 		return enc.Encode(sum)
 	}
-	dw, err := o.drift.watch(results[0])
+	dw, err := o.drift.watch(results[0], v, st)
 	if err != nil {
 		return err
 	}
@@ -297,7 +298,7 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 		du := demoUnit{
 			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: string(oc.Run.FailCode),
 			Defects: truth.Defects, Probes: oc.Trial.Probes, RelayOps: sum(fx.RelayOps()) - ops0,
-			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases,
+			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases, finished: oc.Run.Finished,
 			trueSpreadPF: truth.TransitionPF,
 		}
 		if du.Defects == nil {
