@@ -35,7 +35,7 @@ type driftPointJSON struct {
 // driftVerdict assesses one group's series and puts the finding in words,
 // naming points by serial and time and the place by the station and
 // fixture of the run at the change.
-func driftVerdict(ctx context.Context, db *store.DB, o driftOptions, g driftSeries, an driftAnalysis) *driftVerdictJSON {
+func driftVerdict(ctx context.Context, db runLog, o driftOptions, g driftSeries, an driftAnalysis) *driftVerdictJSON {
 	if len(an.charts) == 0 {
 		return nil
 	}
@@ -86,7 +86,7 @@ func driftVerdict(ctx context.Context, db *store.DB, o driftOptions, g driftSeri
 
 // runAt looks up one run (found by its finish time, an indexed range of
 // one nanosecond); the zero Entry when it cannot be found.
-func runAt(ctx context.Context, db *store.DB, variant string, id int64, at time.Time) store.Entry {
+func runAt(ctx context.Context, db runLog, variant string, id int64, at time.Time) store.Entry {
 	for e, err := range db.Runs(ctx, store.Filter{Variant: variant, Since: at, Until: at.Add(1)}) {
 		if err != nil {
 			return store.Entry{}
