@@ -216,100 +216,140 @@ func (db *DB) TripSeries(ctx context.Context, f Filter, last int) ([]TripPoint, 
 }
 
 // TripValues is TripSeries with only RunID, Finished and TripPF filled: for
-// long series it is about twice as fast, since the cost lies in the columns
-// read per row.
+// long series it is faster, since the cost lies in the columns read per
+// row.
 func (db *DB) TripValues(ctx context.Context, f Filter, last int) ([]TripPoint, error) {
 	return db.tripSeries(ctx, f, last, false)
 }
 
-func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]TripPoint, error) {
-	cond, args := f.where()
-	// Station and fixture names come from their small tables, not a join per
-	// row: the series is read at the rate of one index entry per point.
-	stations, err := db.names(ctx, "stations")
-	if err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
+// Trips streams the trip points of the runs matching f that have one,
+// oldest first (by finish time, then id), from one SELECT: a consistent
+// snapshot that never holds more than one point in memory. With groups
+// false only RunID, Finished and TripPF are filled. The strings of a point
+// are shared with the points before it where they are equal, so a long
+// series allocates nothing per point. Stop early by breaking out of the
+// loop.
+func (db *DB) Trips(ctx context.Context, f Filter, groups bool) iter.Seq2[TripPoint, error] {
+	return func(yield func(TripPoint, error) bool) {
+		err := db.scanTrips(ctx, f, 0, groups, func(p TripPoint) bool { return yield(p, nil) })
+		if err != nil {
+			yield(TripPoint{}, err)
+		}
 	}
-	fixtures, err := db.names(ctx, "fixtures")
-	if err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
-	}
+}
+
+// tripsSQL reads a trip series from the index runs_variant_trip alone
+// (migration 0004): its columns cover every column named here, and its
+// order (variant, finished, id) is the order asked for, so SQLite neither
+// visits the table nor sorts. Station and fixture come as ids and are named
+// from their small tables, not joined per row.
+func tripsSQL(cond string, desc, groups bool) string {
 	cols := "r.id, r.finished, r.trip_pf"
-	if full {
+	if groups {
 		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict, r.site"
 	}
-	q := `SELECT ` + cols + `
-FROM runs r
-WHERE ` + cond + ` AND r.trip_pf IS NOT NULL
-ORDER BY r.finished DESC, r.id DESC`
+	order := "r.finished, r.id"
+	if desc {
+		order = "r.finished DESC, r.id DESC"
+	}
+	return "SELECT " + cols + " FROM runs r WHERE " + cond + " AND r.trip_pf IS NOT NULL ORDER BY " + order
+}
+
+func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]TripPoint, error) {
+	var out []TripPoint
+	if last > 0 {
+		out = make([]TripPoint, 0, min(last, 1<<20))
+	}
+	err := db.scanTrips(ctx, f, last, full, func(p TripPoint) bool {
+		out = append(out, p)
+		return true
+	})
+	if err != nil {
+		return nil, err
+	}
+	if last > 0 {
+		// Read newest first to stop after last points; put them in time order.
+		for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
+			out[i], out[j] = out[j], out[i]
+		}
+	}
+	return out, nil
+}
+
+// scanTrips calls fn with each trip point matching f, oldest first, or
+// with the last points newest first when last > 0, until fn returns false.
+func (db *DB) scanTrips(ctx context.Context, f Filter, last int, groups bool, fn func(TripPoint) bool) error {
+	cond, args := f.where()
+	var stations, fixtures map[int64]string
+	if groups {
+		var err error
+		if stations, err = db.names(ctx, "stations"); err != nil {
+			return fmt.Errorf("trip series: %w", err)
+		}
+		if fixtures, err = db.names(ctx, "fixtures"); err != nil {
+			return fmt.Errorf("trip series: %w", err)
+		}
+	}
+	q := tripsSQL(cond, last > 0, groups)
 	if last > 0 {
 		q += " LIMIT ?"
 		args = append(args, last)
 	}
 	rows, err := db.sql.QueryContext(ctx, q, args...)
 	if err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
+		return fmt.Errorf("trip series: %w", err)
 	}
 	defer rows.Close()
-	var out []TripPoint
-	if last > 0 {
-		out = make([]TripPoint, 0, min(last, 1<<20))
-	}
 	// Lots and verdicts repeat in runs of equal values: keep the last string
 	// and allocate only when the value changes.
 	var (
+		finished, sid, fid   int64
+		p                    TripPoint
 		lot, verdict         sql.RawBytes
 		lastLot, lastVerdict string
+		site                 sql.NullInt64
 	)
+	dest := []any{&p.RunID, &finished, &p.TripPF}
+	if groups {
+		dest = append(dest, &sid, &fid, &lot, &verdict, &site)
+	}
 	for rows.Next() {
-		var (
-			p                  TripPoint
-			finished, sid, fid int64
-		)
-		if !full {
-			if err := rows.Scan(&p.RunID, &finished, &p.TripPF); err != nil {
-				return nil, fmt.Errorf("trip series: %w", err)
-			}
-			p.Finished = time.Unix(0, finished).UTC()
-			out = append(out, p)
-			continue
-		}
-		var site sql.NullInt64
-		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict, &site); err != nil {
-			return nil, fmt.Errorf("trip series: %w", err)
-		}
-		if string(lot) != lastLot {
-			lastLot = string(lot)
-		}
-		if string(verdict) != lastVerdict {
-			lastVerdict = string(verdict)
-		}
-		st, ok := stations[sid]
-		if !ok {
-			if st, err = db.name(ctx, "stations", sid); err != nil {
-				return nil, fmt.Errorf("trip series: %w", err)
-			}
-			stations[sid] = st
-		}
-		fx, ok := fixtures[fid]
-		if !ok {
-			if fx, err = db.name(ctx, "fixtures", fid); err != nil {
-				return nil, fmt.Errorf("trip series: %w", err)
-			}
-			fixtures[fid] = fx
+		if err := rows.Scan(dest...); err != nil {
+			return fmt.Errorf("trip series: %w", err)
 		}
 		p.Finished = time.Unix(0, finished).UTC()
-		p.Station, p.Fixture, p.Lot, p.Verdict = st, fx, lastLot, sequences.Verdict(lastVerdict)
-		p.Site = int(site.Int64)
-		out = append(out, p)
+		if groups {
+			if string(lot) != lastLot {
+				lastLot = string(lot)
+			}
+			if string(verdict) != lastVerdict {
+				lastVerdict = string(verdict)
+			}
+			st, ok := stations[sid]
+			if !ok {
+				if st, err = db.name(ctx, "stations", sid); err != nil {
+					return fmt.Errorf("trip series: %w", err)
+				}
+				stations[sid] = st
+			}
+			fx, ok := fixtures[fid]
+			if !ok {
+				if fx, err = db.name(ctx, "fixtures", fid); err != nil {
+					return fmt.Errorf("trip series: %w", err)
+				}
+				fixtures[fid] = fx
+			}
+			p.Station, p.Fixture, p.Lot, p.Verdict = st, fx, lastLot, sequences.Verdict(lastVerdict)
+			p.Site = int(site.Int64)
+		}
+		if !fn(p) {
+			return nil
+		}
 	}
 	if err := rows.Err(); err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
+		return fmt.Errorf("trip series: %w", err)
 	}
-	for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
-		out[i], out[j] = out[j], out[i]
-	}
-	return out, nil
+	return nil
 }
 
 // name reads one name of a small (id, name) table: one committed after
@@ -358,27 +398,38 @@ type Counts struct {
 // Counts returns the verdict totals of the runs matching f.
 func (db *DB) Counts(ctx context.Context, f Filter) (Counts, error) {
 	cond, args := f.where()
-	q := `SELECT count(*), total(verdict = 'pass'), total(verdict = 'fail'),
-       total(verdict = 'station-fault'), total(first), total(first AND verdict = 'pass')
-FROM (
-  SELECT r.verdict,
-         r.verdict != 'station-fault' AND NOT EXISTS (
-           SELECT 1 FROM runs e
-           WHERE e.serial = r.serial AND e.verdict != 'station-fault'
-             AND (e.finished < r.finished OR (e.finished = r.finished AND e.id < r.id))
-         ) AS first
-  FROM runs r WHERE ` + cond + `
-)`
 	var (
 		c                        Counts
 		pass, fail, sf, fu, fpas float64
 	)
-	if err := db.sql.QueryRowContext(ctx, q, args...).Scan(&c.Runs, &pass, &fail, &sf, &fu, &fpas); err != nil {
+	if err := db.sql.QueryRowContext(ctx, countsSQL(cond), args...).Scan(&c.Runs, &pass, &fail, &sf, &fu, &fpas); err != nil {
 		return Counts{}, fmt.Errorf("counts: %w", err)
 	}
 	c.Pass, c.Fail, c.StationFault = int64(pass), int64(fail), int64(sf)
 	c.FirstUnits, c.FirstPass = int64(fu), int64(fpas)
 	return c, nil
+}
+
+// countsSQL counts verdicts and first unit verdicts. A run is its serial's
+// first unit verdict when no run of the serial that is not a station fault
+// comes before it in (finished, id) order: one probe of the index
+// runs_serial_verdict per run, which covers the probe. LIMIT -1 keeps the
+// inner SELECT a co-routine (SQLite's query flattener leaves a subquery
+// with a LIMIT under an aggregate alone), so that probe runs once per run;
+// flattened, it would run once for each of the two sums that read it.
+func countsSQL(cond string) string {
+	return `SELECT count(*), total(verdict = 'pass'), total(verdict = 'fail'),
+       total(verdict = 'station-fault'), total(first), total(first AND verdict = 'pass')
+FROM (
+  SELECT r.verdict,
+         r.verdict != 'station-fault' AND NOT EXISTS (
+           SELECT 1 FROM runs e
+           WHERE e.serial = r.serial AND (e.finished, e.id) < (r.finished, r.id)
+             AND e.verdict != 'station-fault'
+         ) AS first
+  FROM runs r WHERE ` + cond + `
+  LIMIT -1
+)`
 }
 
 // ConfigChange is one configuration a variant has had.
