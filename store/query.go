@@ -3,8 +3,10 @@ package store
 import (
 	"context"
 	"database/sql"
+	"database/sql/driver"
 	"errors"
 	"fmt"
+	"io"
 	"iter"
 	"math"
 	"strings"
@@ -241,19 +243,25 @@ func (db *DB) Trips(ctx context.Context, f Filter, groups bool) iter.Seq2[TripPo
 // tripsSQL reads a trip series from the index runs_variant_trip alone
 // (migration 0004): its columns cover every column named here, and its
 // order (variant, finished, id) is the order asked for, so SQLite neither
-// visits the table nor sorts. Station and fixture come as ids and are named
-// from their small tables, not joined per row.
+// visits the table nor sorts. With groups, the columns are packed so that
+// few values cross into Go per row, where each costs time and most cost an
+// allocation: the station id with the verdict's code.
+// Station and fixture are named from their small tables, not joined.
 func tripsSQL(cond string, desc, groups bool) string {
-	cols := "r.id, r.finished, r.trip_pf"
-	if groups {
-		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict, r.site"
-	}
 	order := "r.finished, r.id"
 	if desc {
 		order = "r.finished DESC, r.id DESC"
 	}
+	cols := "r.id, r.finished, r.trip_pf"
+	if groups {
+		cols += `, r.station_id * 4 + CASE r.verdict WHEN 'pass' THEN 0 WHEN 'fail' THEN 1 ELSE 2 END,
+       r.fixture_id, r.lot, r.site`
+	}
 	return "SELECT " + cols + " FROM runs r WHERE " + cond + " AND r.trip_pf IS NOT NULL ORDER BY " + order
 }
+
+// verdictCodes decode the verdict packed by tripsSQL.
+var verdictCodes = [...]sequences.Verdict{sequences.Pass, sequences.Fail, sequences.StationFault}
 
 func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]TripPoint, error) {
 	var out []TripPoint
@@ -295,61 +303,97 @@ func (db *DB) scanTrips(ctx context.Context, f Filter, last int, groups bool, fn
 		q += " LIMIT ?"
 		args = append(args, last)
 	}
-	rows, err := db.sql.QueryContext(ctx, q, args...)
+	named := make([]driver.NamedValue, len(args))
+	for i, a := range args {
+		if n, ok := a.(int); ok {
+			a = int64(n)
+		}
+		named[i] = driver.NamedValue{Ordinal: i + 1, Value: a}
+	}
+	conn, err := db.sql.Conn(ctx)
 	if err != nil {
 		return fmt.Errorf("trip series: %w", err)
 	}
-	defer rows.Close()
-	// Lots and verdicts repeat in runs of equal values: keep the last string
-	// and allocate only when the value changes.
-	var (
-		finished, sid, fid   int64
-		p                    TripPoint
-		lot, verdict         sql.RawBytes
-		lastLot, lastVerdict string
-		site                 sql.NullInt64
-	)
-	dest := []any{&p.RunID, &finished, &p.TripPF}
-	if groups {
-		dest = append(dest, &sid, &fid, &lot, &verdict, &site)
-	}
-	for rows.Next() {
-		if err := rows.Scan(dest...); err != nil {
-			return fmt.Errorf("trip series: %w", err)
+	defer conn.Close()
+	// The rows are read from the driver itself: database/sql's Scan would
+	// convert every value of every row again, by reflection.
+	err = conn.Raw(func(dc any) error {
+		qc, ok := dc.(driver.QueryerContext)
+		if !ok {
+			return fmt.Errorf("driver %T cannot query", dc)
 		}
-		p.Finished = time.Unix(0, finished).UTC()
+		rows, err := qc.QueryContext(ctx, q, named)
+		if err != nil {
+			return err
+		}
+		defer rows.Close()
+		var p TripPoint
+		dest := make([]driver.Value, 3, 7)
 		if groups {
-			if string(lot) != lastLot {
-				lastLot = string(lot)
-			}
-			if string(verdict) != lastVerdict {
-				lastVerdict = string(verdict)
-			}
-			st, ok := stations[sid]
-			if !ok {
-				if st, err = db.name(ctx, "stations", sid); err != nil {
-					return fmt.Errorf("trip series: %w", err)
-				}
-				stations[sid] = st
-			}
-			fx, ok := fixtures[fid]
-			if !ok {
-				if fx, err = db.name(ctx, "fixtures", fid); err != nil {
-					return fmt.Errorf("trip series: %w", err)
-				}
-				fixtures[fid] = fx
-			}
-			p.Station, p.Fixture, p.Lot, p.Verdict = st, fx, lastLot, sequences.Verdict(lastVerdict)
-			p.Site = int(site.Int64)
+			dest = dest[:7]
 		}
-		if !fn(p) {
-			return nil
+		for {
+			if err := rows.Next(dest); err == io.EOF {
+				return nil
+			} else if err != nil {
+				return err
+			}
+			p.RunID = asInt(dest[0])
+			p.Finished = time.Unix(0, asInt(dest[1])).UTC()
+			p.TripPF = asFloat(dest[2])
+			if groups {
+				if lot, _ := dest[5].(string); lot != p.Lot {
+					p.Lot = lot
+				}
+				sv := asInt(dest[3])
+				sid, fid := sv>>2, asInt(dest[4])
+				st, ok := stations[sid]
+				if !ok {
+					if st, err = db.name(ctx, "stations", sid); err != nil {
+						return err
+					}
+					stations[sid] = st
+				}
+				fx, ok := fixtures[fid]
+				if !ok {
+					if fx, err = db.name(ctx, "fixtures", fid); err != nil {
+						return err
+					}
+					fixtures[fid] = fx
+				}
+				p.Station, p.Fixture, p.Verdict = st, fx, verdictCodes[sv&3]
+				p.Site = int(asInt(dest[6])) // NULL (nil) for a unit tested alone: 0
+			}
+			if !fn(p) {
+				return nil
+			}
 		}
-	}
-	if err := rows.Err(); err != nil {
+	})
+	if err != nil {
 		return fmt.Errorf("trip series: %w", err)
 	}
 	return nil
+}
+
+// asInt and asFloat read a driver value of an INTEGER or REAL column.
+func asInt(v driver.Value) int64 {
+	switch x := v.(type) {
+	case int64:
+		return x
+	case float64:
+		return int64(x)
+	}
+	return 0
+}
+
+func asFloat(v driver.Value) float64 {
+	switch x := v.(type) {
+	case float64:
+		return x
+	case int64:
+		return float64(x)
+	}
+	return math.NaN()
 }
 
 // name reads one name of a small (id, name) table: one committed after

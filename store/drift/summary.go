@@ -16,9 +16,12 @@ import (
 type Plan struct {
 	Charts   []Kind
 	Subgroup int // observations per subgroup for Xbar; ignored otherwise
-	// Keep is how many of the most recent alarms Summary.Last holds; 0
-	// keeps them all.
+	// Keep is how many of the most recent alarms Summary.Last holds, and
+	// how many of the earliest Summary.First holds; 0 keeps them all.
 	Keep int
+	// Assess asks for Summary.Finding: the series assessed against the
+	// first chart's target and σ, as Assess would over every alarm.
+	Assess bool
 }
 
 // WatchPlan is the Plan of WatchSeries for set: the individuals chart when
@@ -60,6 +63,11 @@ type Summary struct {
 	Charts []ChartSummary
 	// Alarms counts the alarms of every chart.
 	Alarms int
+	// First holds the earliest alarms (Plan.Keep of them, or all), in
+	// Seq order: where a drift began.
+	First []Alarm
+	// Finding is Assess over every alarm (Plan.Assess).
+	Finding Finding
 	// Last holds the most recent alarms (Plan.Keep of them, or all), oldest
 	// first. Seq numbers every alarm of the series 1, 2, … in order of
 	// Unit, charts in Plan order, exactly as Number numbers the charts
@@ -106,15 +114,23 @@ func Summarize(x []float64, w Window, o Options, p Plan) (Summary, error) {
 type alarmLog struct {
 	keep  int
 	n     int
+	first []Alarm
 	ring  []Alarm
 	next  int // ring slot of the next alarm once the ring is full
 	count []int
+	tally *tally // nil unless Plan.Assess
 }
 
 func (l *alarmLog) add(chart int, a Alarm) {
 	l.n++
 	a.Seq = l.n
 	l.count[chart]++
+	if l.tally != nil {
+		l.tally.add(a)
+	}
+	if l.keep > 0 && len(l.first) < l.keep {
+		l.first = append(l.first, a)
+	}
 	switch {
 	case l.keep == 0 || len(l.ring) < l.keep:
 		l.ring = append(l.ring, a)
@@ -134,7 +150,14 @@ func (l *alarmLog) summary(charts []ChartSummary) Summary {
 	for i := range charts {
 		charts[i].Alarms = l.count[i]
 	}
-	return Summary{Charts: charts, Alarms: l.n, Last: l.last()}
+	s := Summary{Charts: charts, Alarms: l.n, First: l.first, Last: l.last()}
+	if l.keep == 0 {
+		s.First = s.Last // every alarm, oldest first, in both
+	}
+	if l.tally != nil {
+		s.Finding = l.tally.finding()
+	}
+	return s
 }
 
 // individualsIndex checks that kinds is an ordered subset of
@@ -167,6 +190,9 @@ func summarizeIndividuals(x []float64, w Window, o Options, p Plan) (Summary, er
 		return Summary{}, fmt.Errorf("%s chart: %w", chartName(p.Charts[0]), err)
 	}
 	log := alarmLog{keep: p.Keep, count: make([]int, len(p.Charts))}
+	if p.Assess {
+		log.tally = newTally(x, e.mean, e.sigma, w)
+	}
 	charts := make([]ChartSummary, len(p.Charts))
 	var (
 		eng            *ruleEngine
@@ -277,6 +303,9 @@ func summarizeXbar(x []float64, w Window, o Options, p Plan) (Summary, error) {
 			Target: e.mean, Sigma: e.sigma, Method: e.method, Window: w, Base: base},
 	}
 	log := alarmLog{keep: p.Keep, count: make([]int, 2)}
+	if p.Assess {
+		log.tally = newTally(x, e.mean, e.sigma, w)
+	}
 	eng := newRuleEngine(o.rules(), a)
 	for i := range points {
 		s := x[i*n : (i+1)*n]

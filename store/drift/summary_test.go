@@ -166,13 +166,26 @@ func TestSummarizeMatchesCharts(t *testing.T) {
 						t.Fatalf("%s %s %s: %v", sname, pname, oname, err)
 					}
 					for _, keep := range []int{0, 1, 7} {
-						p.Keep = keep
+						p.Keep, p.Assess = keep, true
 						got, err := drift.Summarize(x, w, o, p)
 						if err != nil {
 							t.Fatalf("%s %s %s keep %d: %v", sname, pname, oname, keep, err)
 						}
 						if d := sameSummary(got, charts, alarms, keep); d != "" {
 							t.Fatalf("%s, %s, %s, baseline %s, keep %d: %s", sname, pname, oname, w, keep, d)
+						}
+						// The streamed finding is Assess over every alarm, and
+						// First is the earliest alarms.
+						want := drift.Assess(x, alarms, charts[0].Target, charts[0].Sigma, w)
+						if fmt.Sprintf("%+v", got.Finding) != fmt.Sprintf("%+v", want) { // %v prints NaN alike
+							t.Fatalf("%s, %s, %s, baseline %s, keep %d: finding %+v, Assess %+v", sname, pname, oname, w, keep, got.Finding, want)
+						}
+						n := len(alarms)
+						if keep > 0 {
+							n = min(n, keep)
+						}
+						if len(got.First) != n || (n > 0 && got.First[0].Seq != 1) {
+							t.Fatalf("%s, %s, %s, keep %d: First holds %d alarms, want the first %d", sname, pname, oname, keep, len(got.First), n)
 						}
 					}
 					if len(alarms) == 0 && sname != "sawtooth" {
