@@ -8,14 +8,17 @@
 #   padline drift --db LOG --variant QM-205            (the default watch)
 #   ... --chart imr | xbar-r | xbar-s | ewma | cusum
 #   ... --by station
-# timed by /usr/bin/time (elapsed, maximum resident set), and the store's
+# timed by /usr/bin/time (elapsed, CPU user+system, maximum resident set),
+# and the store's
 # last-100,000 trip series (BenchmarkTripSeries, 3 calls per figure). It
 # prints min and median of each, the figures the speed targets were set
 # against, the targets, and whether both programs printed the same report
 # (--json, compared byte for byte with the log's path masked).
 #
 # The machine's load average is printed before and after: on a shared
-# machine the wall times move with it.
+# machine the wall times move with it. CPU seconds move much less: they are
+# the work done, summed over both threads (the yield count runs beside the
+# series read), and bound the wall time on an idle machine from above.
 #
 # Usage: bash scripts/bench-drift.sh [LOG]
 #   LOG     the seeded log (default /tmp/padline-bench/scale.db); seeded by
@@ -65,33 +68,38 @@ for c in xbar-r xbar-s ewma; do was[$c]="-"; target[$c]="≤ 1.5 s"; done
 was[station]="-"; target[station]="≤ 2 s"
 was[trips]="151–221 ms"; target[trips]="≤ 100 ms"
 
-printf '\n%-16s %-22s %-22s %-22s %-22s %-16s %s\n' query "before wall min/med" "after wall min/med" "before RSS min/med" "after RSS min/med" "same report" "figures then -> target"
+row() { printf '%-16s %-18s %-18s %-18s %-18s %-16s %-16s %-5s %s\n' "$@"; }
+echo
+row query "before wall" "after wall" "before CPU" "after CPU" "before RSS" "after RSS" same "figures then -> target"
+row "" "min / median" "min / median" "min / median" "min / median" "min / median" "min / median" "" ""
 for q in default imr xbar-r xbar-s ewma cusum station; do
 	case $q in
 	default) args=() ;;
 	station) args=(--by station) ;;
 	*) args=(--chart "$q") ;;
 	esac
-	for side in before after; do : >"$work/$side.wall"; : >"$work/$side.rss"; done
+	for side in before after; do : >"$work/$side.wall"; : >"$work/$side.cpu"; : >"$work/$side.rss"; done
 	for _ in $(seq "$runs"); do
 		for side in before after; do
 			db=$log
 			[ "$side" = after ] && db=$log.new
-			/usr/bin/time -f "%e %M" -o "$work/t" "$work/padline-$side" drift --db "$db" --variant QM-205 "${args[@]}" >/dev/null
-			read -r wall rss <"$work/t"
+			/usr/bin/time -f "%e %U %S %M" -o "$work/t" "$work/padline-$side" drift --db "$db" --variant QM-205 "${args[@]}" --json |
+				sed "s#$db#LOG#g" >"$work/$side.json"
+			read -r wall user sys rss <"$work/t"
 			echo "$wall" >>"$work/$side.wall"
+			echo "$user $sys" | awk '{print $1 + $2}' >>"$work/$side.cpu"
 			echo "$((rss / 1024))" >>"$work/$side.rss"
 		done
 	done
-	"$work/padline-before" drift --db "$log" --variant QM-205 "${args[@]}" --json | sed "s#$log#LOG#g" >"$work/before.json"
-	"$work/padline-after" drift --db "$log.new" --variant QM-205 "${args[@]}" --json | sed "s#$log.new#LOG#g" >"$work/after.json"
 	same=no
 	cmp -s "$work/before.json" "$work/after.json" && same=yes
 	read -r bw bwm <<<"$(stats "$work/before.wall")"
 	read -r aw awm <<<"$(stats "$work/after.wall")"
+	read -r bc bcm <<<"$(stats "$work/before.cpu")"
+	read -r ac acm <<<"$(stats "$work/after.cpu")"
 	read -r br brm <<<"$(stats "$work/before.rss")"
 	read -r ar arm <<<"$(stats "$work/after.rss")"
-	printf '%-16s %-22s %-22s %-22s %-22s %-16s %s\n' "drift $q" "$bw / $bwm s" "$aw / $awm s" "$br / $brm MB" "$ar / $arm MB" "$same" "${was[$q]} -> ${target[$q]}"
+	row "drift $q" "$bw / $bwm s" "$aw / $awm s" "$bc / $bcm s" "$ac / $acm s" "$br / $brm MB" "$ar / $arm MB" "$same" "${was[$q]} -> ${target[$q]}"
 done
 
 for side in before after; do
@@ -102,6 +110,6 @@ for side in before after; do
 done
 read -r bt btm <<<"$(stats "$work/before.trips")"
 read -r at atm <<<"$(stats "$work/after.trips")"
-printf '%-16s %-22s %-22s %-22s %-22s %-16s %s\n' "last 100k trips" "$bt / $btm ms" "$at / $atm ms" "-" "-" "-" "${was[trips]} -> ${target[trips]}"
+row "last 100k trips" "$bt / $btm ms" "$at / $atm ms" "-" "-" "-" "-" "-" "${was[trips]} -> ${target[trips]}"
 echo
 echo "load average after: $(load)"
