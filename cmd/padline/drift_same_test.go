@@ -41,8 +41,13 @@ func sameAnalysis(an driftAnalysis, keep int) string {
 	if keep > 0 && len(all) > keep {
 		all = all[len(all)-keep:]
 	}
-	if !reflect.DeepEqual(an.sum.Last, all) {
-		return fmt.Sprintf("alarms listed differ: %d vs %d", len(an.sum.Last), len(all))
+	if len(an.sum.Last) != len(all) {
+		return fmt.Sprintf("%d alarms listed, want %d", len(an.sum.Last), len(all))
+	}
+	for i := range all {
+		if !reflect.DeepEqual(an.sum.Last[i], all[i]) {
+			return fmt.Sprintf("alarm listed %d: %+v, want %+v", i, an.sum.Last[i], all[i])
+		}
 	}
 	return ""
 }
