@@ -160,7 +160,7 @@ func (l *alarmLog) summary(charts []ChartSummary) Summary {
 	return s
 }
 
-// individualsIndex checks that kinds is an ordered subset of
+// checkIndividualsPlan checks that kinds is an ordered subset of
 // {Individuals, MovingRange, EWMA, CUSUM} that is either the watch set or
 // the individuals/moving-range pair.
 func checkIndividualsPlan(kinds []Kind) error {
