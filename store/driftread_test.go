@@ -41,6 +41,7 @@ func seedMixed(t *testing.T, db *store.DB, n int) {
 		r.Station = fmt.Sprintf("L1-S%d", 1+rng.IntN(3))
 		r.Fixture = fmt.Sprintf("FX-%02d", 7+rng.IntN(4))
 		r.Lot = fmt.Sprintf("LOT-%d", i/40)
+		r.Driver = []string{"gpio", "sim"}[i%7/5] // mostly real, some simulated
 		if i%5 == 3 {
 			r.Variant, r.ConfigHash = "QM-212", h212
 		}
@@ -79,6 +80,7 @@ var mixedFilters = []store.Filter{
 	{Variant: "QM-212", Lot: "LOT-3"},
 	{Variant: "QM-205", Since: t0.Add(5 * time.Minute), Until: t0.Add(17 * time.Minute)},
 	{Variant: "QM-205", Since: t0.Add(7 * time.Minute)},
+	{Variant: "QM-205", Driver: "gpio", Verdict: sequences.Pass},
 }
 
 // TestTripsMatchRuns: the trip series read from the covering index is,
@@ -168,7 +170,7 @@ func TestCountsMatchHistory(t *testing.T) {
 	}
 	in := func(f store.Filter, e *store.Entry) bool {
 		fin := e.Finished
-		return (f.Variant == "" || e.Variant == f.Variant) && (f.Station == "" || e.Station == f.Station) &&
+		return (f.Variant == "" || e.Variant == f.Variant) && (f.Driver == "" || e.Driver == f.Driver) && (f.Station == "" || e.Station == f.Station) &&
 			(f.Fixture == "" || e.Fixture == f.Fixture) && (f.Lot == "" || e.Lot == f.Lot) &&
 			(f.Verdict == "" || e.Verdict == f.Verdict) && (f.Since.IsZero() || !fin.Before(f.Since)) &&
 			(f.Until.IsZero() || fin.Before(f.Until))
@@ -214,7 +216,7 @@ func TestCountsMatchHistory(t *testing.T) {
 }
 
 // TestDriftQueriesCovered: the trip series and the yield count read the
-// indexes of migration 0004 alone (SQLite docs, "EXPLAIN QUERY PLAN":
+// indexes of migration 0005 alone (SQLite docs, "EXPLAIN QUERY PLAN":
 // "USING COVERING INDEX" means the table is never visited), never sort
 // (no "TEMP B-TREE"), and the first-verdict probe runs once per run.
 func TestDriftQueriesCovered(t *testing.T) {
@@ -243,5 +245,26 @@ func TestDriftQueriesCovered(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+// TestDriversBySeeks: the distinct drivers, found one index seek each,
+// are those recorded, in order, "" included; none in an empty log.
+func TestDriversBySeeks(t *testing.T) {
+	ctx := context.Background()
+	db, _ := openTemp(t)
+	if got, err := db.Drivers(ctx); err != nil || len(got) != 0 {
+		t.Fatalf("empty log: %q, %v", got, err)
+	}
+	hash := putDemo(t, db)
+	for i, d := range []string{"sim", "", "gpio", "sim", ""} {
+		r := demoRun(i, hash)
+		r.Driver = d
+		if _, err := db.Record(ctx, r); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if got, err := db.Drivers(ctx); err != nil || strings.Join(got, ",") != ",gpio,sim" {
+		t.Fatalf("Drivers = %q, %v; want \"\", gpio, sim", got, err)
 	}
 }
