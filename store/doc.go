@@ -27,7 +27,7 @@
 //
 // Trips streams a variant's trip series oldest first, and TripSeries reads
 // its last points, from the index runs_variant_trip alone (migration
-// 0005): it holds every column they read, in (variant, finished, id)
+// 0006): it holds every column they read, in (variant, finished, id)
 // order, so SQLite neither visits the table nor sorts, and rows are read
 // from the driver without database/sql's per-value conversion. Counts
 // finds each run's first unit verdict with one probe of the covering index

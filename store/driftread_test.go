@@ -42,6 +42,9 @@ func seedMixed(t *testing.T, db *store.DB, n int) {
 		r.Fixture = fmt.Sprintf("FX-%02d", 7+rng.IntN(4))
 		r.Lot = fmt.Sprintf("LOT-%d", i/40)
 		r.Driver = []string{"gpio", "sim"}[i%7/5] // mostly real, some simulated
+		if i%3 == 0 {
+			r.Panel, r.Site = fmt.Sprintf("P-%d", i/12), 1+i%4 // some on panels
+		}
 		if i%5 == 3 {
 			r.Variant, r.ConfigHash = "QM-212", h212
 		}
@@ -81,6 +84,8 @@ var mixedFilters = []store.Filter{
 	{Variant: "QM-205", Since: t0.Add(5 * time.Minute), Until: t0.Add(17 * time.Minute)},
 	{Variant: "QM-205", Since: t0.Add(7 * time.Minute)},
 	{Variant: "QM-205", Driver: "gpio", Verdict: sequences.Pass},
+	{Variant: "QM-205", Site: 2},
+	{Variant: "QM-205", Site: -1, Verdict: sequences.Pass},
 }
 
 // TestTripsMatchRuns: the trip series read from the covering index is,
@@ -98,7 +103,7 @@ func TestTripsMatchRuns(t *testing.T) {
 			}
 			if !math.IsNaN(e.TripPF) {
 				want = append(want, store.TripPoint{RunID: e.ID, Finished: e.Finished, TripPF: e.TripPF,
-					Station: e.Station, Fixture: e.Fixture, Lot: e.Lot, Verdict: e.Verdict})
+					Station: e.Station, Fixture: e.Fixture, Lot: e.Lot, Verdict: e.Verdict, Site: e.Site})
 			}
 		}
 		if len(want) < 5 {
@@ -119,10 +124,10 @@ func TestTripsMatchRuns(t *testing.T) {
 			for i := range want {
 				w := want[i]
 				if !groups {
-					w.Station, w.Fixture, w.Lot, w.Verdict = "", "", "", ""
+					w.Station, w.Fixture, w.Lot, w.Verdict, w.Site = "", "", "", "", 0
 				}
 				if g := got[i]; g.RunID != w.RunID || !g.Finished.Equal(w.Finished) || g.TripPF != w.TripPF ||
-					g.Station != w.Station || g.Fixture != w.Fixture || g.Lot != w.Lot || g.Verdict != w.Verdict {
+					g.Station != w.Station || g.Fixture != w.Fixture || g.Lot != w.Lot || g.Verdict != w.Verdict || g.Site != w.Site {
 					t.Fatalf("filter %+v, %s, point %d: %+v, want %+v", f, what, i, g, w)
 				}
 			}
@@ -170,7 +175,8 @@ func TestCountsMatchHistory(t *testing.T) {
 	}
 	in := func(f store.Filter, e *store.Entry) bool {
 		fin := e.Finished
-		return (f.Variant == "" || e.Variant == f.Variant) && (f.Driver == "" || e.Driver == f.Driver) && (f.Station == "" || e.Station == f.Station) &&
+		return (f.Variant == "" || e.Variant == f.Variant) && (f.Driver == "" || e.Driver == f.Driver) &&
+			(f.Site == 0 || (f.Site > 0 && e.Site == f.Site) || (f.Site < 0 && e.Site == 0)) && (f.Station == "" || e.Station == f.Station) &&
 			(f.Fixture == "" || e.Fixture == f.Fixture) && (f.Lot == "" || e.Lot == f.Lot) &&
 			(f.Verdict == "" || e.Verdict == f.Verdict) && (f.Since.IsZero() || !fin.Before(f.Since)) &&
 			(f.Until.IsZero() || fin.Before(f.Until))
@@ -216,7 +222,7 @@ func TestCountsMatchHistory(t *testing.T) {
 }
 
 // TestDriftQueriesCovered: the trip series and the yield count read the
-// indexes of migration 0005 alone (SQLite docs, "EXPLAIN QUERY PLAN":
+// indexes of migration 0006 alone (SQLite docs, "EXPLAIN QUERY PLAN":
 // "USING COVERING INDEX" means the table is never visited), never sort
 // (no "TEMP B-TREE"), and the first-verdict probe runs once per run.
 func TestDriftQueriesCovered(t *testing.T) {

@@ -241,7 +241,7 @@ func (db *DB) Trips(ctx context.Context, f Filter, groups bool) iter.Seq2[TripPo
 }
 
 // tripsSQL reads a trip series from the index runs_variant_trip alone
-// (migration 0005): its columns cover every column named here, and its
+// (migration 0006): its columns cover every column named here, and its
 // order (variant, finished, id) is the order asked for, so SQLite neither
 // visits the table nor sorts. With groups, the columns are packed so that
 // few values cross into Go per row, where each costs time and most cost an

@@ -1,4 +1,4 @@
--- 0005: indexes that cover the drift and yield queries, so a year of one
+-- 0006: indexes that cover the drift and yield queries, so a year of one
 -- station's runs is read from an index in time order without visiting a
 -- single table row.
 --
@@ -6,8 +6,8 @@
 -- are the same, so every query that used it still can). It carries the run
 -- id next, so (finished, id), the order every series is read in, is the
 -- index order; then everything a trip series or a yield count reads:
--- verdict, trip point, station, fixture, lot, serial and driver.
-CREATE INDEX runs_variant_trip ON runs (variant_id, finished, id, verdict, trip_pf, station_id, fixture_id, lot, serial, driver);
+-- verdict, trip point, station, fixture, lot, serial, driver, site and panel.
+CREATE INDEX runs_variant_trip ON runs (variant_id, finished, id, verdict, trip_pf, station_id, fixture_id, lot, serial, driver, site, panel);
 DROP INDEX runs_variant_finished;
 
 -- runs_serial_verdict replaces runs_serial: the first-pass yield asks, for
