@@ -20,6 +20,7 @@ type runLog interface {
 	Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, error]
 	TripSeries(ctx context.Context, f store.Filter, last int) ([]store.TripPoint, error)
 	TripValues(ctx context.Context, f store.Filter, last int) ([]store.TripPoint, error)
+	Trips(ctx context.Context, f store.Filter, groups bool) iter.Seq2[store.TripPoint, error]
 	Counts(ctx context.Context, f store.Filter) (store.Counts, error)
 	ConfigHistory(ctx context.Context, variant string) ([]store.ConfigChange, error)
 	Snapshot(ctx context.Context, variant, hash string) ([]byte, error)

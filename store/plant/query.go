@@ -478,3 +478,20 @@ func (db *DB) Drivers(ctx context.Context) ([]string, error) {
 	}
 	return out, nil
 }
+
+// Trips streams the trip points of the runs matching f in time order, as
+// store.DB.Trips does; groups asks for station, fixture, lot, line and site.
+func (db *DB) Trips(ctx context.Context, f store.Filter, groups bool) iter.Seq2[store.TripPoint, error] {
+	return func(yield func(store.TripPoint, error) bool) {
+		pts, err := db.tripSeries(ctx, f, 0, groups)
+		if err != nil {
+			yield(store.TripPoint{}, err)
+			return
+		}
+		for _, p := range pts {
+			if !yield(p, nil) {
+				return
+			}
+		}
+	}
+}
