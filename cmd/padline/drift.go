@@ -51,6 +51,8 @@ type driftOptions struct {
 	lsl, usl                 float64 // NaN = from the variant
 	alarms                   int
 	allVerdicts              bool // chart failed units' trip points too
+	ownBaseline              bool // --baseline, --target or --sigma given: no approved baseline
+	approved                 *store.Baseline
 	o                        drift.Options
 }
 
@@ -170,6 +172,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 			if o.o.Lambda > 1 {
 				return fmt.Errorf("drift: --lambda must be in (0, 1], got %g", o.o.Lambda)
 			}
+			o.ownBaseline = fl.Changed("baseline") || fl.Changed("target") || fl.Changed("sigma")
 			if o.chart == "ewma" {
 				o.o.L = o.o.Width
 			}
@@ -218,7 +221,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.Float64Var(&o.lsl, "lsl", 0, "lower limit for capability instead of the variant's test limit")
 	fl.Float64Var(&o.usl, "usl", 0, "upper limit for capability instead of the variant's test limit")
 	fl.IntVar(&o.alarms, "alarms", driftDefaultAlarms, "list at most this many alarms per group, the earliest (0 = all)")
-	cmd.AddCommand(a.driftStudyCmd())
+	cmd.AddCommand(a.driftStudyCmd(), a.driftBaselineCmd())
 	return cmd
 }
 
@@ -333,6 +336,12 @@ func analyseSeries(x []float64, o driftOptions, low, high float64, draw bool) (d
 		return an, fmt.Errorf("%d points: too few to chart (need at least 2)", len(x))
 	}
 	an.window = drift.FirstN(min(o.baseline, len(x)))
+	if o.approved != nil {
+		// Target and σ come from the approved baseline, outside the series:
+		// the window only bounds where the change point is sought, so a
+		// change may come at the series' first points.
+		an.window = drift.FirstN(min(2, len(x)))
+	}
 	rules, err := driftRules(o.rules, o.chart)
 	if err != nil {
 		return an, err
@@ -483,6 +492,9 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 		}
 	}
 	rep.Limits = [2]jnum{jnum(low), jnum(high)}
+	if err := useApprovedBaseline(ctx, db, &o, &rep); err != nil {
+		return fmt.Errorf("drift: %w", err)
+	}
 	if db != nil {
 		o.filter.Variant = rep.Variant
 		ctx, cancel := context.WithCancel(ctx)
@@ -654,6 +666,14 @@ func (a *app) driftGroup(ctx context.Context, db *store.DB, o driftOptions, g dr
 	if len(g.times) > 0 {
 		gr.Baseline.From, gr.Baseline.To = &w.From, &w.To
 	}
+	describeBaseline(ctx, db, o, g, &gr.Baseline)
+	defer func() {
+		if o.approved != nil {
+			for i := range gr.Charts {
+				gr.Charts[i].Method = fmt.Sprintf("approved baseline %q", o.approved.Name)
+			}
+		}
+	}()
 	for _, c := range an.sum.Charts {
 		gr.Charts = append(gr.Charts, chartJSON(c))
 	}
