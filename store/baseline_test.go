@@ -49,3 +49,28 @@ func TestBaselines(t *testing.T) {
 		}
 	}
 }
+
+// A serial first tested on one station and then on another counts as a
+// first unit in both groups under FirstInGroup, and only where it was
+// first seen over the whole log without it.
+func TestCountsFirstInGroup(t *testing.T) {
+	ctx := context.Background()
+	db, _ := openTemp(t)
+	hash := putDemo(t, db)
+	for i := range 4 {
+		r := demoRun(i, hash)
+		r.Serial = "QM205-000001"
+		r.Station = []string{"L2-S1", "L2-S1", "L3-S1", "L3-S1"}[i]
+		if _, err := db.Record(ctx, r); err != nil {
+			t.Fatal(err)
+		}
+	}
+	whole, err := db.Counts(ctx, store.Filter{Station: "L3-S1"})
+	if err != nil || whole.Runs != 2 || whole.FirstUnits != 0 {
+		t.Errorf("whole-log first: %+v, %v", whole, err)
+	}
+	grp, err := db.Counts(ctx, store.Filter{Station: "L3-S1", FirstInGroup: true})
+	if err != nil || grp.Runs != 2 || grp.FirstUnits != 1 {
+		t.Errorf("first within the station: %+v, %v", grp, err)
+	}
+}

@@ -45,7 +45,7 @@ type driftOptions struct {
 	subgroup, baseline       int
 	svg, png                 string
 	asJSON                   bool
-	csvFile, column          string
+	csvFile, column, keep    string
 	uncertainty              float64
 	uncertaintyFrom          string
 	lsl, usl                 float64 // NaN = from the variant
@@ -211,6 +211,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.BoolVar(&o.asJSON, "json", false, "print one JSON object instead of the report")
 	fl.StringVar(&o.csvFile, "csv", "", "analyse a column of this CSV file instead of the shift log")
 	fl.StringVar(&o.column, "column", "", "with --csv: the header name of the column to analyse")
+	fl.StringVar(&o.keep, "keep", "", "with --csv: a serial on several rows counts once, its first or last row (default: refuse such a file)")
 	fl.Float64Var(&target, "target", 0, "process centre to use instead of the baseline mean")
 	fl.Float64Var(&sigma, "sigma", 0, "process σ per unit to use instead of the baseline estimate")
 	fl.Float64Var(&k, "k", drift.DefaultK, "CUSUM reference value k, in σ")
@@ -232,6 +233,8 @@ func (o *driftOptions) check() error {
 		return errors.New("drift: give --variant V, or --csv FILE --column NAME (see padline drift --help)")
 	case o.csvFile != "" && o.column == "":
 		return errors.New("drift: --csv needs --column NAME (the header of the column to analyse)")
+	case o.keep != "" && o.keep != "first" && o.keep != "last":
+		return fmt.Errorf("drift: --keep must be first or last, got %q", o.keep)
 	case o.csvFile == "" && o.column != "":
 		return errors.New("drift: --column goes with --csv FILE")
 	case o.csvFile != "" && o.by != "":
@@ -436,7 +439,7 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 	var groups []driftSeries
 	var db *store.DB
 	if o.csvFile != "" {
-		x, err := readSeriesCSV(o.csvFile, o.column)
+		x, err := readSeriesCSV(o.csvFile, o.column, o.keep)
 		if err != nil {
 			return fmt.Errorf("drift: %w", err)
 		}
@@ -598,6 +601,9 @@ func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string, a
 // driftKey is a point's group under --by, and the filter that selects the
 // group's runs (for its yield).
 func driftKey(p store.TripPoint, by string, f store.Filter) (string, store.Filter) {
+	// A unit counts in the yield of each group it was tested in: its
+	// first verdict on that station, fixture, lot or site.
+	f.FirstInGroup = by != "shift"
 	switch by {
 	case "station":
 		f.Station = p.Station

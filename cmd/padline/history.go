@@ -25,6 +25,7 @@ type historyOptions struct {
 	db            string // resolved shift-log path
 	filter        store.Filter
 	format        string // table, csv or json
+	per           string // csv: run or measurement
 	limitsHistory bool
 	withSim       bool // --include-simulated
 }
@@ -34,7 +35,7 @@ func (a *app) historyCmd() *cobra.Command {
 	var (
 		dbFlag, stationFile                         string
 		serial, variant, station, fixture, lot, ver string
-		since, until, format                        string
+		since, until, format, per                   string
 		withSim                                     bool
 		asJSON, limitsHistory                       bool
 		panel                                       string
@@ -61,7 +62,9 @@ Formats:
   table  one line per run: id, finish time, serial, station, fixture, lot,
          verdict, fail code, trip point (pF); with --serial also each
          measurement with its limits and the configuration hash
-  csv    flat: one row per measurement, the run's columns repeated
+  csv    one row per run (--per run, the default: a series 'padline drift
+         --csv' reads once per test), or one row per measurement with the
+         run's columns repeated (--per measurement)
   json   JSON lines: one object per run with its measurements nested
          (--json is short for --format json)
 
@@ -85,7 +88,10 @@ history never creates a shift log.`,
 			if err != nil {
 				return fmt.Errorf("history: %w", err)
 			}
-			opts := historyOptions{db: db, format: format, limitsHistory: limitsHistory}
+			opts := historyOptions{db: db, format: format, limitsHistory: limitsHistory, per: per}
+			if per != "run" && per != "measurement" {
+				return fmt.Errorf("history: --per must be run or measurement, got %q", per)
+			}
 			if asJSON {
 				if cmd.Flags().Changed("format") && format != "json" {
 					return fmt.Errorf("history: --json conflicts with --format %s", format)
@@ -141,6 +147,7 @@ history never creates a shift log.`,
 	fl.StringVar(&ver, "verdict", "", "only runs with this verdict: pass, fail or station-fault")
 	fl.StringVar(&format, "format", "table", "output: table, csv or json (JSON lines)")
 	fl.BoolVar(&asJSON, "json", false, "same as --format json")
+	fl.StringVar(&per, "per", "run", "with --format csv: one row per run or per measurement")
 	fl.BoolVar(&limitsHistory, "limits-history", false, "list when the variant's configuration hash changed")
 	return cmd
 }
@@ -167,7 +174,11 @@ func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
 	}
 	switch opts.format {
 	case "csv":
-		_, err = db.WriteCSV(ctx, out, opts.filter)
+		if opts.per == "measurement" {
+			_, err = db.WriteCSV(ctx, out, opts.filter)
+		} else {
+			_, err = db.WriteRunCSV(ctx, out, opts.filter)
+		}
 	case "json":
 		_, err = db.WriteJSONL(ctx, out, opts.filter)
 	default:
