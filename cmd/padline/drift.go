@@ -44,13 +44,15 @@ type driftOptions struct {
 	subgroup, baseline       int
 	svg, png                 string
 	asJSON                   bool
-	csvFile, column          string
+	csvFile, column, keep    string
 	uncertainty              float64
 	uncertaintyFrom          string
 	lsl, usl                 float64 // NaN = from the variant
 	alarms                   int
 	allVerdicts              bool // chart failed units' trip points too
 	last                     int  // only the last N trip points (0: all)
+	ownBaseline              bool // --baseline, --target or --sigma given: no approved baseline
+	approved                 *store.Baseline
 	o                        drift.Options
 }
 
@@ -175,6 +177,7 @@ own log's.`,
 			if o.o.Lambda > 1 {
 				return fmt.Errorf("drift: --lambda must be in (0, 1], got %g", o.o.Lambda)
 			}
+			o.ownBaseline = fl.Changed("baseline") || fl.Changed("target") || fl.Changed("sigma")
 			if o.chart == "ewma" {
 				o.o.L = o.o.Width
 			}
@@ -214,6 +217,7 @@ own log's.`,
 	fl.BoolVar(&o.asJSON, "json", false, "print one JSON object instead of the report")
 	fl.StringVar(&o.csvFile, "csv", "", "analyse a column of this CSV file instead of the shift log")
 	fl.StringVar(&o.column, "column", "", "with --csv: the header name of the column to analyse")
+	fl.StringVar(&o.keep, "keep", "", "with --csv: a serial on several rows counts once, its first or last row (default: refuse such a file)")
 	fl.Float64Var(&target, "target", 0, "process centre to use instead of the baseline mean")
 	fl.Float64Var(&sigma, "sigma", 0, "process σ per unit to use instead of the baseline estimate")
 	fl.Float64Var(&k, "k", drift.DefaultK, "CUSUM reference value k, in σ")
@@ -224,7 +228,7 @@ own log's.`,
 	fl.Float64Var(&o.lsl, "lsl", 0, "lower limit for capability instead of the variant's test limit")
 	fl.Float64Var(&o.usl, "usl", 0, "upper limit for capability instead of the variant's test limit")
 	fl.IntVar(&o.alarms, "alarms", driftDefaultAlarms, "list at most this many alarms per group, the earliest (0 = all)")
-	cmd.AddCommand(a.driftStudyCmd())
+	cmd.AddCommand(a.driftStudyCmd(), a.driftBaselineCmd())
 	return cmd
 }
 
@@ -235,6 +239,8 @@ func (o *driftOptions) check() error {
 		return errors.New("drift: give --variant V, or --csv FILE --column NAME (see padline drift --help)")
 	case o.csvFile != "" && o.column == "":
 		return errors.New("drift: --csv needs --column NAME (the header of the column to analyse)")
+	case o.keep != "" && o.keep != "first" && o.keep != "last":
+		return fmt.Errorf("drift: --keep must be first or last, got %q", o.keep)
 	case o.csvFile == "" && o.column != "":
 		return errors.New("drift: --column goes with --csv FILE")
 	case o.csvFile != "" && o.by != "":
@@ -347,6 +353,12 @@ func analyseSeries(x []float64, o driftOptions, low, high float64, draw bool) (d
 		return an, fmt.Errorf("%d points: too few to chart (need at least 2)", len(x))
 	}
 	an.window = drift.FirstN(min(o.baseline, len(x)))
+	if o.approved != nil {
+		// Target and σ come from the approved baseline, outside the series:
+		// the window only bounds where the change point is sought, so a
+		// change may come at the series' first points.
+		an.window = drift.FirstN(min(2, len(x)))
+	}
 	rules, err := driftRules(o.rules, o.chart)
 	if err != nil {
 		return an, err
@@ -441,7 +453,7 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 	var groups []driftSeries
 	var db runLog
 	if o.csvFile != "" {
-		x, err := readSeriesCSV(o.csvFile, o.column)
+		x, err := readSeriesCSV(o.csvFile, o.column, o.keep)
 		if err != nil {
 			return fmt.Errorf("drift: %w", err)
 		}
@@ -494,6 +506,9 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 		}
 	}
 	rep.Limits = [2]jnum{jnum(low), jnum(high)}
+	if err := useApprovedBaseline(ctx, shiftLogOf(db), &o, &rep); err != nil {
+		return fmt.Errorf("drift: %w", err)
+	}
 	if db != nil {
 		o.filter.Variant = rep.Variant
 		ctx, cancel := context.WithCancel(ctx)
@@ -622,6 +637,9 @@ func driftGroups(ctx context.Context, db runLog, f store.Filter, by string, allV
 // driftKey is a point's group under --by, and the filter that selects the
 // group's runs (for its yield).
 func driftKey(p store.TripPoint, by string, f store.Filter) (string, store.Filter) {
+	// A unit counts in the yield of each group it was tested in: its
+	// first verdict on that station, fixture, lot or site.
+	f.FirstInGroup = by != "shift"
 	switch by {
 	case "station":
 		f.Station = p.Station
@@ -693,6 +711,14 @@ func (a *app) driftGroup(ctx context.Context, db runLog, o driftOptions, g drift
 	if len(g.times) > 0 {
 		gr.Baseline.From, gr.Baseline.To = &w.From, &w.To
 	}
+	describeBaseline(ctx, db, o, g, &gr.Baseline)
+	defer func() {
+		if o.approved != nil {
+			for i := range gr.Charts {
+				gr.Charts[i].Method = fmt.Sprintf("approved baseline %q", o.approved.Name)
+			}
+		}
+	}()
 	for _, c := range an.sum.Charts {
 		gr.Charts = append(gr.Charts, chartJSON(c))
 	}

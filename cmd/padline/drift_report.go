@@ -66,6 +66,11 @@ type driftWindowJSON struct {
 	From      *time.Time `json:"from,omitempty"`
 	To        *time.Time `json:"to,omitempty"`
 	Text      string     `json:"text"`
+	// Kind is "approved" (a stored baseline; the unit fields then count
+	// nothing), "provisional" (the first points of the selection) or
+	// "given" (--baseline, --target or --sigma).
+	Kind     string        `json:"kind"`
+	Approved *baselineJSON `json:"approved,omitempty"`
 }
 
 type driftChartJSON struct {
@@ -166,11 +171,17 @@ func writeDriftReport(w io.Writer, r driftReport) {
 		}
 		p("series           %d points%s", g.Points, span)
 		base := g.Baseline.Text
-		if g.Baseline.From != nil {
+		if g.Baseline.Kind == "approved" {
+			p("baseline         %s", base)
+		} else if g.Baseline.From != nil && g.Baseline.Kind == "provisional" {
+			base = fmt.Sprintf("%s, %s … %s", base, fmtTime(*g.Baseline.From), fmtTime(*g.Baseline.To))
+		} else if g.Baseline.From != nil {
 			base = fmt.Sprintf("units %d–%d (%d points), %s … %s", g.Baseline.FirstUnit, g.Baseline.LastUnit,
 				g.Baseline.Points, fmtTime(*g.Baseline.From), fmtTime(*g.Baseline.To))
 		}
-		p("baseline         %s (phase I: limits from these points, applied to all)", base)
+		if g.Baseline.Kind != "approved" {
+			p("baseline         %s%s (phase I: limits from these points, applied to all)", baselinePrefix(g.Baseline.Kind), base)
+		}
 		p("%-16s %10s %10s %10s   %s", "chart", "centre", "lower", "upper", "target, σ from")
 		for _, c := range g.Charts {
 			p("%-16s %10s %10s %10s   %s", c.Kind, fmtNum(float64(c.Center), "-"), fmtNum(float64(c.Lower), "-"),

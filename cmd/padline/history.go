@@ -24,6 +24,7 @@ type historyOptions struct {
 	db            string // resolved shift-log path
 	filter        store.Filter
 	format        string // table, csv or json
+	per           string // csv: run or measurement
 	limitsHistory bool
 	withSim       bool // --include-simulated
 }
@@ -33,7 +34,7 @@ func (a *app) historyCmd() *cobra.Command {
 	var (
 		dbFlag, stationFile                         string
 		serial, variant, station, fixture, lot, ver string
-		since, until, format                        string
+		since, until, format, per                   string
 		withSim                                     bool
 		asJSON, limitsHistory                       bool
 		panel                                       string
@@ -60,7 +61,9 @@ Formats:
   table  one line per run: id, finish time, serial, station, fixture, lot,
          verdict, fail code, trip point (pF); with --serial also each
          measurement with its limits and the configuration hash
-  csv    flat: one row per measurement, the run's columns repeated
+  csv    one row per run (--per run, the default: a series 'padline drift
+         --csv' reads once per test), or one row per measurement with the
+         run's columns repeated (--per measurement)
   json   JSON lines: one object per run with its measurements nested
          (--json is short for --format json)
 
@@ -87,7 +90,10 @@ numbers as each station's own log (see 'padline plant --help').`,
 			if err != nil {
 				return fmt.Errorf("history: %w", err)
 			}
-			opts := historyOptions{db: db, format: format, limitsHistory: limitsHistory}
+			opts := historyOptions{db: db, format: format, limitsHistory: limitsHistory, per: per}
+			if per != "run" && per != "measurement" {
+				return fmt.Errorf("history: --per must be run or measurement, got %q", per)
+			}
 			if asJSON {
 				if cmd.Flags().Changed("format") && format != "json" {
 					return fmt.Errorf("history: --json conflicts with --format %s", format)
@@ -143,6 +149,7 @@ numbers as each station's own log (see 'padline plant --help').`,
 	fl.StringVar(&ver, "verdict", "", "only runs with this verdict: pass, fail or station-fault")
 	fl.StringVar(&format, "format", "table", "output: table, csv or json (JSON lines)")
 	fl.BoolVar(&asJSON, "json", false, "same as --format json")
+	fl.StringVar(&per, "per", "run", "with --format csv: one row per run or per measurement")
 	fl.BoolVar(&limitsHistory, "limits-history", false, "list when the variant's configuration hash changed")
 	return cmd
 }
@@ -166,7 +173,13 @@ func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
 	}
 	switch opts.format {
 	case "csv":
-		_, err = store.WriteRunsCSV(out, db.Runs(ctx, opts.filter))
+		if opts.per == "measurement" {
+			_, err = store.WriteRunsCSV(out, db.Runs(ctx, opts.filter))
+		} else if sl := shiftLogOf(db); sl != nil {
+			_, err = sl.WriteRunCSV(ctx, out, opts.filter)
+		} else {
+			err = errors.New("one row per run is written from a station's shift log; on the plant store use --per measurement")
+		}
 	case "json":
 		_, err = store.WriteRunsJSONL(out, db.Runs(ctx, opts.filter))
 	default:

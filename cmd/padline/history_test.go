@@ -139,7 +139,15 @@ func TestHistoryTable(t *testing.T) {
 
 func TestHistoryCSVAndJSON(t *testing.T) {
 	db := seedHistory(t)
+	// One row per run by default: header + 4 runs of QM-205.
 	code, out, errOut := historyCLI(t, "history", "--db", db, "--variant", "QM-205", "--format", "csv")
+	if code != 0 {
+		t.Fatalf("csv: exit %d: %s", code, errOut)
+	}
+	if recs, err := csv.NewReader(strings.NewReader(out)).ReadAll(); err != nil || len(recs) != 5 || strings.Join(recs[0], ",") != strings.Join(store.RunCSVHeader, ",") {
+		t.Errorf("csv per run: %d rows, %v", len(recs), err)
+	}
+	code, out, errOut = historyCLI(t, "history", "--db", db, "--variant", "QM-205", "--format", "csv", "--per", "measurement")
 	if code != 0 {
 		t.Fatalf("csv: exit %d: %s", code, errOut)
 	}

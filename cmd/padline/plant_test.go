@@ -120,7 +120,7 @@ func TestPlantSameNumbersAsShiftLog(t *testing.T) {
 		{"drift", "--variant", "QM-205", "--by", "station", "--json"},
 		{"drift", "--variant", "QM-205", "--chart", "xbar-r", "--by", "fixture", "--json"},
 		{"drift", "--variant", "QM-205", "--all-verdicts", "--chart", "ewma", "--json"},
-		{"history", "--variant", "QM-205", "--format", "csv"},
+		{"history", "--variant", "QM-205", "--format", "csv", "--per", "measurement"},
 		{"history", "--variant", "QM-205", "--verdict", "fail"},
 		{"history", "--serial", "QM205-000201", "--json"},
 		{"history", "--limits-history", "--variant", "QM-205", "--format", "csv"},

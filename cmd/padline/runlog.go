@@ -84,3 +84,12 @@ func openRunLog(ctx context.Context, path string) (closingLog, error) {
 	}
 	return sqliteLog{db}, nil
 }
+
+// shiftLogOf is the station shift log behind db, nil for the plant store
+// (approved baselines and per-run CSV live in the shift log only).
+func shiftLogOf(db runLog) *store.DB {
+	if l, ok := db.(sqliteLog); ok {
+		return l.DB
+	}
+	return nil
+}

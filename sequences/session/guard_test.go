@@ -293,3 +293,35 @@ func TestNamesCleaned(t *testing.T) {
 		t.Errorf("CleanName(José) = %q, %v", s, err)
 	}
 }
+
+// The step budget derives from the plan: a 6 s power settle (allowed up to
+// 60 s) no longer makes every unit a station fault under a fixed 5 s budget.
+func TestStepBudgetFromPlan(t *testing.T) {
+	raw, err := os.ReadFile("../../testdata/variants/QM-205.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	v := filepath.Join(t.TempDir(), "QM-205.yaml")
+	if err := os.WriteFile(v, append(raw, []byte("plan:\n  power_settle_ms: 6000\n")...), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	o := session.Options{Variant: v, Station: "demo-sim", ShiftLog: filepath.Join(t.TempDir(), "shift.db")}
+	s, err := session.Open(context.Background(), o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	if rep, err := s.Check(context.Background()); err != nil || !rep.OK {
+		t.Fatalf("check %+v %v", rep, err)
+	}
+	ch, _ := s.Subscribe(1024)
+	if err := s.Run(context.Background(), session.OneSerial("QM205-000001")); err != nil {
+		t.Fatal(err)
+	}
+	s.Close()
+	for e := range ch {
+		if e.Kind == session.KindVerdictCommitted && e.Verdict.Run.Verdict == sequences.StationFault {
+			t.Fatalf("station fault with a 6 s settle: %s", e.Verdict.StationError)
+		}
+	}
+}

@@ -151,6 +151,11 @@ func parseVariant(src Source) (*Variant, error) {
 	return v, nil
 }
 
+// maxPlanPeriods bounds the clock periods one step samples: 10,000 periods
+// take 25 s at the slowest good QM-205 clock (≈ 400 Hz, 'padline limits'),
+// far beyond any plan that fits a production takt.
+const maxPlanPeriods = 10000
+
 // readPlan reads the optional plan section.
 func readPlan(d *doc) PlanSection {
 	p := DefaultPlanSection()
@@ -161,6 +166,11 @@ func readPlan(d *doc) PlanSection {
 	p.IdlePeriods = d.count("plan.idle_periods", 1, p.IdlePeriods)
 	p.ClockPeriods = d.count("plan.clock_periods", 1, p.ClockPeriods)
 	p.ReleasePeriods = d.count("plan.release_periods", 1, p.ReleasePeriods)
+	for key, n := range map[string]int{"plan.idle_periods": p.IdlePeriods, "plan.clock_periods": p.ClockPeriods, "plan.release_periods": p.ReleasePeriods} {
+		if n > maxPlanPeriods {
+			d.fail(key, "%d clock periods: at most %d (a step of seconds per unit; more is a typo)", n, maxPlanPeriods)
+		}
+	}
 	if d.section("plan.search", false) {
 		s := &p.Search
 		if d.has("plan.search.strategy") {
