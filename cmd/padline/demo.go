@@ -268,8 +268,14 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 	}
 	defer r.Halt()
 	line, fx, lv := r.Line, r.Fixture, r.Plan.Levels()
+	// The shift's units are stamped on a plant timetable, not at the speed
+	// the simulator runs: a takt of 5–7 s with breaks, starting 12:30 so a
+	// long run crosses from the early into the late shift, on days that
+	// end before today.
+	shift := sim.NewShiftClock(demoShiftStart(time.Now(), len(serials)), demoTakt, demoJitter, sim.DemoPauses, 1)
+	var stamp time.Time
 	sess := &sequences.Session{
-		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: time.Now,
+		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: func() time.Time { return stamp },
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
 			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: softwareVersion(),
@@ -286,6 +292,7 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 			prog.done()
 			return nil, err
 		}
+		stamp = shift.Next()
 		unit := line.Load(serial)
 		ops0 := sum(fx.RelayOps())
 		oc, err := sess.Test(ctx, serial)
@@ -559,4 +566,20 @@ func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep 
 	if keep {
 		fmt.Fprintf(w, "shift log        %s (see 'padline history --db %s --variant %s')\n", dbPath, dbPath, v.Name)
 	}
+}
+
+// The demo shift's timetable (invented demo data): one unit every 5 s plus
+// up to 2 s of handling.
+const (
+	demoTakt   = 5 * time.Second
+	demoJitter = 2 * time.Second
+)
+
+// demoShiftStart is 12:30 local on a day early enough that n units (about
+// 6 s each, 14 working hours a day under sim.DemoPauses) finish before
+// the day now falls on.
+func demoShiftStart(now time.Time, n int) time.Time {
+	days := 1 + int(time.Duration(n)*(demoTakt+demoJitter/2)/(14*time.Hour))
+	d := time.Date(now.Year(), now.Month(), now.Day(), 12, 30, 0, 0, now.Location())
+	return d.AddDate(0, 0, -days)
 }
