@@ -10,6 +10,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"padline/store/drift"
+	"padline/store/driftreport"
 )
 
 // driftStudyCmd builds `padline drift study`.
@@ -43,22 +44,22 @@ gives the same table.`,
 			}
 			if asJSON {
 				type row struct {
-					Chart     string  `json:"chart"`
-					Shift     float64 `json:"shift_sigma"`
-					Runs      int     `json:"runs"`
-					Censored  int     `json:"censored"`
-					Mean      jnum    `json:"arl"`
-					SE        jnum    `json:"arl_se"`
-					Median    jnum    `json:"median"`
-					P10       jnum    `json:"p10"`
-					P90       jnum    `json:"p90"`
-					Published jnum    `json:"published_arl"`
-					Source    string  `json:"source,omitempty"`
+					Chart     string          `json:"chart"`
+					Shift     float64         `json:"shift_sigma"`
+					Runs      int             `json:"runs"`
+					Censored  int             `json:"censored"`
+					Mean      driftreport.Num `json:"arl"`
+					SE        driftreport.Num `json:"arl_se"`
+					Median    driftreport.Num `json:"median"`
+					P10       driftreport.Num `json:"p10"`
+					P90       driftreport.Num `json:"p90"`
+					Published driftreport.Num `json:"published_arl"`
+					Source    string          `json:"source,omitempty"`
 				}
 				out := make([]row, len(rows))
 				for i, r := range rows {
-					out[i] = row{r.Chart, r.Shift, r.Result.Runs, r.Result.Censored, jnum(r.Result.Mean), jnum(r.Result.SE),
-						jnum(r.Result.Median), jnum(r.Result.P10), jnum(r.Result.P90), jnum(r.Published), r.Source}
+					out[i] = row{r.Chart, r.Shift, r.Result.Runs, r.Result.Censored, driftreport.Num(r.Result.Mean), driftreport.Num(r.Result.SE),
+						driftreport.Num(r.Result.Median), driftreport.Num(r.Result.P10), driftreport.Num(r.Result.P90), driftreport.Num(r.Published), r.Source}
 				}
 				enc := json.NewEncoder(a.stdout)
 				enc.SetIndent("", "  ")

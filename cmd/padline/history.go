@@ -114,10 +114,10 @@ history never creates a shift log.`,
 			}
 			now := time.Now()
 			f := store.Filter{Serial: serial, Variant: variant, Station: station, Fixture: fixture, Lot: lot, Panel: panel, Site: site}
-			if f.Since, err = parseWhen(since, now); err != nil {
+			if f.Since, err = store.ParseWhen(since, now); err != nil {
 				return fmt.Errorf("history: --since: %w", err)
 			}
-			if f.Until, err = parseWhen(until, now); err != nil {
+			if f.Until, err = store.ParseWhen(until, now); err != nil {
 				return fmt.Errorf("history: --until: %w", err)
 			}
 			switch sequences.Verdict(ver) {
@@ -210,7 +210,7 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 			sf++
 		}
 		verdict := string(e.Verdict)
-		if passAfterFail(e) {
+		if e.PassAfterFail() {
 			verdict += " (retest)"
 			flagged++
 		}
@@ -246,17 +246,6 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 		fmt.Fprintf(w, "%d pass(es) after an earlier fail, marked \"(retest)\"\n", flagged)
 	}
 	return nil
-}
-
-// passAfterFail reports whether a run is a pass the retest policy flagged
-// because fails came before it.
-func passAfterFail(e *store.Entry) bool {
-	for _, m := range e.Measurements {
-		if m.Step == sequences.StepRetest && m.Name == sequences.MeasPriorFails && m.Value > 0 {
-			return true
-		}
-	}
-	return false
 }
 
 // writeDetail prints a run's traceability and measurements under its line.
@@ -307,35 +296,6 @@ func writeConfigHistory(w io.Writer, db *store.DB, cmd *cobra.Command, opts hist
 	return nil
 }
 
-// parseWhen reads a --since/--until value: empty, a duration back from now
-// (Go syntax plus a "d" suffix for days), a date, or a time in local time.
-func parseWhen(s string, now time.Time) (time.Time, error) {
-	s = strings.TrimSpace(s)
-	if s == "" {
-		return time.Time{}, nil
-	}
-	if days, ok := strings.CutSuffix(s, "d"); ok {
-		if n, err := strconv.ParseFloat(days, 64); err == nil && n >= 0 {
-			return now.Add(-time.Duration(n * 24 * float64(time.Hour))), nil
-		}
-	}
-	if d, err := time.ParseDuration(s); err == nil {
-		if d < 0 {
-			return time.Time{}, fmt.Errorf("%q: give a positive duration (it counts back from now)", s)
-		}
-		return now.Add(-d), nil
-	}
-	if t, err := time.Parse(time.RFC3339Nano, s); err == nil {
-		return t, nil
-	}
-	for _, layout := range []string{"2006-01-02", "2006-01-02 15:04", "2006-01-02 15:04:05", "2006-01-02T15:04", "2006-01-02T15:04:05"} {
-		if t, err := time.ParseInLocation(layout, s, time.Local); err == nil {
-			return t, nil
-		}
-	}
-	return time.Time{}, fmt.Errorf("%q is neither a duration (8h, 2d) nor a date/time (2026-11-30, \"2026-11-30 14:00\", RFC 3339)", s)
-}
-
 func histPF(v float64) string {
 	if math.IsNaN(v) {
 		return "-"
@@ -373,4 +333,12 @@ func plural(n int, one, many string) string {
 		return "1 " + one
 	}
 	return fmt.Sprintf("%d %s", n, many)
+}
+
+// dashIfEmpty shows an empty text field as "-".
+func dashIfEmpty(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return s
 }

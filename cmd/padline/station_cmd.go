@@ -11,11 +11,7 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"padline/fixture"
-	"padline/fixture/sim"
-	"padline/sequences"
 	"padline/sequences/session"
-	"padline/sequences/timing"
 	"padline/store"
 )
 
@@ -45,21 +41,12 @@ func (a *app) stationCmd() *cobra.Command {
 }
 
 // rig is a station opened for a trust command: the session package's rig
-// (variant, station, limits, fixture, simulated line) and the shift log.
+// and the shift log, with its relay counts loaded.
 type rig struct {
 	*session.Rig
-	a      *app
-	v      *session.Variant
-	st     *session.Station
-	rep    timing.Report
-	plan   sequences.PlanConfig
-	fx     *fixture.Fixture
-	clk    fixture.Clock
-	line   *sim.Line
-	db     *store.DB
-	dbPath string
-	ld     *session.Loader
-	quiet  bool // --json: prompts go to stderr
+	a     *app
+	db    *store.DB
+	quiet bool // --json: prompts go to stderr
 }
 
 func (a *app) openRig(ctx context.Context, variant, station, dbPath string, quiet bool) (*rig, error) {
@@ -71,9 +58,7 @@ func (a *app) openRig(ctx context.Context, variant, station, dbPath string, quie
 	if err != nil {
 		return nil, errors.Join(err, sr.Halt())
 	}
-	r := &rig{Rig: sr, a: a, v: sr.Variant, st: sr.Station, rep: sr.Limits, plan: sr.PlanConfig, fx: sr.Fixture,
-		clk: sr.Clock, line: sr.Line, db: db, dbPath: dbPath, quiet: quiet}
-	r.ld = &session.Loader{Rig: sr, Prompt: func(msg string) { fmt.Fprintln(r.msg(), msg) }}
+	r := &rig{Rig: sr, a: a, db: db, quiet: quiet}
 	if err := session.LoadRelayWear(ctx, db, sr); err != nil {
 		return nil, errors.Join(err, r.close(ctx))
 	}
@@ -91,16 +76,12 @@ func (r *rig) close(ctx context.Context) error {
 	return nil
 }
 
+// msg is where operator prompts go: stdout, or stderr under --json.
 func (r *rig) msg() io.Writer {
 	if r.quiet {
 		return r.a.stderr
 	}
 	return r.a.stdout
-}
-
-// load puts the unit with serial in the fixture (see session.Loader).
-func (r *rig) load(ctx context.Context, serial string, simDefects []string, what string) error {
-	return r.ld.Load(ctx, serial, simDefects, what)
 }
 
 func (a *app) stationCheckCmd() *cobra.Command {
@@ -178,10 +159,10 @@ func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string,
 			return err
 		}
 	} else {
-		writeCheck(a.stdout, rep, r.st)
+		writeCheck(a.stdout, rep, r.Station)
 	}
 	if !rep.OK {
-		return &exitError{code: exitStationRefused, err: fmt.Errorf("station %s fixture %s refused: %s", r.st.Name, r.st.Fixture, strings.Join(rep.Faults, "; "))}
+		return &exitError{code: exitStationRefused, err: fmt.Errorf("station %s fixture %s refused: %s", r.Station.Name, r.Station.Fixture, strings.Join(rep.Faults, "; "))}
 	}
 	return nil
 }
