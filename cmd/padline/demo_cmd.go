@@ -4,7 +4,6 @@ import (
 	"context"
 	"encoding/json"
 	"padline/sequences/demo"
-	"time"
 
 	"github.com/spf13/cobra"
 )
@@ -104,8 +103,6 @@ func (a *app) demo(ctx context.Context, o demo.Options, asJSON bool) error {
 	}
 	return enc.Encode(res.Summary())
 }
-
-func ms(d time.Duration) float64 { return float64(d) / float64(time.Millisecond) }
 
 // demoPanel runs 'padline demo --panel N' and prints its sites and summary.
 func (a *app) demoPanel(ctx context.Context, o demo.Options, asJSON bool) error {

@@ -238,7 +238,7 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", e.Scan.Serial)
 		case session.KindVerdictCommitted:
 			if o.asJSON {
-				werr = errors.Join(werr, enc.Encode(unitJSON(e.Verdict)))
+				werr = errors.Join(werr, enc.Encode(e.Verdict.Record()))
 			} else {
 				writeVerdict(a.stdout, e.Verdict, isTerminal(a.stdout))
 			}
@@ -281,30 +281,6 @@ func writeRunBanner(w io.Writer, s *session.Started) {
 	fmt.Fprintf(w, "padline run: %s on station %s, fixture %s;%s trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
 		s.Variant, s.Station, s.Fixture, sim, s.Limits.TripLowPF, s.Limits.TripHighPF, s.UncertaintyPF, s.UncertaintyFrom, s.ShiftLog)
 	fmt.Fprintln(w, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
-}
-
-// unitJSON is one tested unit for --json.
-func unitJSON(v *session.Verdict) map[string]any {
-	r := v.Run
-	m := map[string]any{
-		"id": v.ID, "serial": r.Serial, "verdict": r.Verdict, "fail_code": r.FailCode,
-		"fixture_ms": ms(r.Finished.Sub(r.Started)), "prior_fails": v.PriorFails,
-	}
-	for _, x := range r.Measurements {
-		switch x.Name {
-		case sequences.MeasTripPF, sequences.MeasTripSEPF, sequences.MeasSpreadPF, sequences.MeasClockHz:
-			m[string(x.Name)] = jsonNum(x.Value)
-		}
-	}
-	return m
-}
-
-// jsonNum is f for JSON, or nil (null) when f is NaN.
-func jsonNum(f float64) any {
-	if math.IsNaN(f) {
-		return nil
-	}
-	return f
 }
 
 // writeVerdict prints the verdict large and plain, after the commit; in

@@ -3,16 +3,13 @@ package main
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"strings"
-	"time"
 
 	"github.com/spf13/cobra"
 
 	"padline/sequences/session"
-	"padline/store"
 )
 
 // exitStationRefused is the exit status of a refused check and of a run
@@ -40,41 +37,24 @@ func (a *app) stationCmd() *cobra.Command {
 	return cmd
 }
 
-// rig is a station opened for a trust command: the session package's rig
-// and the shift log, with its relay counts loaded.
+// rig is a station opened for a trust command, and where its operator
+// prompts go.
 type rig struct {
-	*session.Rig
+	*session.Bench
 	a     *app
-	db    *store.DB
 	quiet bool // --json: prompts go to stderr
 }
 
 func (a *app) openRig(ctx context.Context, variant, station, dbPath string, quiet bool) (*rig, error) {
-	sr, err := session.OpenRig(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
+	b, err := session.OpenBench(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
 	if err != nil {
 		return nil, err
 	}
-	db, err := store.Open(dbPath)
-	if err != nil {
-		return nil, errors.Join(err, sr.Halt())
-	}
-	r := &rig{Rig: sr, a: a, db: db, quiet: quiet}
-	if err := session.LoadRelayWear(ctx, db, sr); err != nil {
-		return nil, errors.Join(err, r.close(ctx))
-	}
-	return r, nil
+	return &rig{Bench: b, a: a, quiet: quiet}, nil
 }
 
 // close halts the fixture, saves the relay counts and closes the log.
-func (r *rig) close(ctx context.Context) error {
-	herr := r.Halt()
-	serr := session.SaveRelayWear(ctx, r.db, r.Rig)
-	cerr := r.db.Close()
-	if err := errors.Join(herr, serr, cerr); err != nil {
-		return fmt.Errorf("close station: %w", err)
-	}
-	return nil
-}
+func (r *rig) close(ctx context.Context) error { return r.Close(ctx) }
 
 // msg is where operator prompts go: stdout, or stderr under --json.
 func (r *rig) msg() io.Writer {
@@ -144,7 +124,7 @@ func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string,
 			err = cerr
 		}
 	}()
-	rep, err := session.RunCheck(ctx, r.Rig, r.db, func(ci session.CheckInfo) {
+	rep, err := session.RunCheck(ctx, r.Rig, r.DB, func(ci session.CheckInfo) {
 		if ci.Serial == "" && ci.Message != "" {
 			fmt.Fprintln(r.msg(), ci.Message)
 		}
@@ -159,62 +139,10 @@ func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string,
 			return err
 		}
 	} else {
-		writeCheck(a.stdout, rep, r.Station)
+		session.WriteCheck(a.stdout, rep, r.Station)
 	}
 	if !rep.OK {
 		return &exitError{code: exitStationRefused, err: fmt.Errorf("station %s fixture %s refused: %s", r.Station.Name, r.Station.Fixture, strings.Join(rep.Faults, "; "))}
 	}
 	return nil
-}
-
-func fmtPF(p *float64) string {
-	if p == nil {
-		return "—"
-	}
-	return fmt.Sprintf("%.3f", *p)
-}
-
-func writeCheck(w io.Writer, rep session.CheckReport, st *session.Station) {
-	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
-	p("station check  %s / fixture %s   (%s, sha256 %.12s; plan timing of %s)", rep.Station, rep.Fixture, rep.StationFile, rep.StationHash, rep.Variant)
-	for _, c := range rep.References {
-		verdict := "ok"
-		if !c.OK {
-			verdict = "FAULT"
-		}
-		p("")
-		p("reference %s: trip %s pF ± %s (registered %.3f, allowed ±%.2f): deviation %s pF   %s   [%d searches, fixture time %.2f s]",
-			c.Serial, fmtPF(c.MeasuredPF), fmtPF(c.SEPF), c.TripPF, c.AllowedDevPF, fmtPF(c.DevPF), verdict, c.Searches, c.FixtureTime.Seconds())
-		for _, f := range c.Faults {
-			p("  fault: %s", f)
-		}
-		if c.Suspects != "" {
-			p("  suspects: %s", c.Suspects)
-		}
-	}
-	p("")
-	p("ladder self-test (all reference units)")
-	p("  rung  entered pF  status        how")
-	for _, f := range rep.Ladder {
-		p("  %4d  %10.2f  %-12s  %s", f.Rung, f.EnteredPF, f.Status, f.Test)
-	}
-	p("")
-	p("fixture time %.2f s for %d reference unit(s) (target < 30 s)", rep.FixtureS, len(rep.References))
-	if rep.OK {
-		var due []string
-		if n := st.Trust.CheckEveryUnits; n > 0 {
-			due = append(due, fmt.Sprintf("%d units", n))
-		}
-		if h := st.Trust.CheckEveryHours; h > 0 {
-			due = append(due, rep.Time.Add(time.Duration(h*float64(time.Hour))).Local().Format("15:04 Jan 2"))
-		}
-		next := ""
-		if len(due) > 0 {
-			next = "; next check due after " + strings.Join(due, " or at ")
-		}
-		p("PASSED (check %d): the station may test production units%s", rep.CheckID, next)
-		return
-	}
-	p("REFUSED (check %d): %s", rep.CheckID, strings.Join(rep.Faults, "; "))
-	p("'padline run' will test no production unit on fixture %s until a check passes. Repair the fixture (or correct the station file) and check again.", rep.Fixture)
 }

@@ -91,7 +91,7 @@ func (a *app) stationStudy(ctx context.Context, variant, station, dbPath string,
 		}
 	}()
 	o.Prompt = func(msg string) { fmt.Fprintln(r.msg(), msg) }
-	rep, err := session.RunStudy(ctx, r.Rig, r.db, o)
+	rep, err := session.RunStudy(ctx, r.Rig, r.DB, o)
 	if err != nil {
 		return err
 	}

@@ -32,8 +32,8 @@ type StudyOptions struct {
 	Prompt func(msg string)
 }
 
-// bench is a rig opened for a study: its shift log and its loader.
-type bench struct {
+// studyBench is a rig opened for a study: its shift log and its loader.
+type studyBench struct {
 	*Rig
 	db *store.DB
 	ld *Loader
@@ -41,7 +41,7 @@ type bench struct {
 
 // measure runs the variant's production plan on the unit in the fixture and
 // returns its trip point; nothing is recorded as a run.
-func (r *bench) measure(ctx context.Context, pl *sequences.Plan, serial string) (float64, error) {
+func (r *studyBench) measure(ctx context.Context, pl *sequences.Plan, serial string) (float64, error) {
 	run := &sequences.Run{Serial: serial, Variant: r.Variant.Name, Station: r.Station.Name, Fixture: r.Station.Fixture}
 	t, err := pl.Execute(ctx, r.Fixture, r.Clock, run)
 	if err != nil {
@@ -82,7 +82,7 @@ type UncertaintyReport struct {
 // 'padline limits --station' and 'padline run' take its U as their guard
 // band from then on.
 func RunStudy(ctx context.Context, rig *Rig, db *store.DB, o StudyOptions) (StudyReport, error) {
-	r := &bench{Rig: rig, db: db, ld: &Loader{Rig: rig, Prompt: o.Prompt}}
+	r := &studyBench{Rig: rig, db: db, ld: &Loader{Rig: rig, Prompt: o.Prompt}}
 	tol := r.Limits.TestLimits.High - r.Limits.TestLimits.Low
 	rep := StudyReport{Station: r.Station.Name, Fixture: r.Station.Fixture, Variant: r.Variant.Name, Time: time.Now().UTC(), TolPF: tol}
 	pl, err := sequences.NewPlan(r.PlanConfig, r.Fixture.Ladder().Distinct())
@@ -109,7 +109,7 @@ func RunStudy(ctx context.Context, rig *Rig, db *store.DB, o StudyOptions) (Stud
 }
 
 // type1 measures one reference unit o.N times.
-func (r *bench) type1(ctx context.Context, pl *sequences.Plan, o StudyOptions, rep *StudyReport) error {
+func (r *studyBench) type1(ctx context.Context, pl *sequences.Plan, o StudyOptions, rep *StudyReport) error {
 	rep.Kind = store.StudyType1
 	var ref *StationRef
 	for i := range r.Station.Trust.References {
@@ -147,7 +147,7 @@ func (r *bench) type1(ctx context.Context, pl *sequences.Plan, o StudyOptions, r
 }
 
 // grr measures o.Parts parts, o.Trials times for each of o.Appraisers.
-func (r *bench) grr(ctx context.Context, pl *sequences.Plan, o StudyOptions, rep *StudyReport) error {
+func (r *studyBench) grr(ctx context.Context, pl *sequences.Plan, o StudyOptions, rep *StudyReport) error {
 	rep.Kind = store.StudyGRR
 	serials := o.Serials
 	if len(serials) == 0 {
@@ -207,7 +207,7 @@ func goodSerials(line *sim.Line, v *Variant, n int) []string {
 
 // budgetInput builds the station's GUM inputs from the station file, the
 // variant and the latest studies in the log.
-func (r *bench) budgetInput(ctx context.Context) (sequences.StationBudgetInput, string, error) {
+func (r *studyBench) budgetInput(ctx context.Context) (sequences.StationBudgetInput, string, error) {
 	in := sequences.StationBudgetInput{
 		StepPF: slices.Min(r.Station.Ladder.RungsPF),
 		CalPF:  r.Station.Ladder.CalUncertaintyPF,
@@ -250,7 +250,7 @@ func (r *bench) budgetInput(ctx context.Context) (sequences.StationBudgetInput, 
 }
 
 // saveBudget computes the station's GUM budget and stores it.
-func (r *bench) saveBudget(ctx context.Context) (*UncertaintyReport, error) {
+func (r *studyBench) saveBudget(ctx context.Context) (*UncertaintyReport, error) {
 	in, source, err := r.budgetInput(ctx)
 	if err != nil {
 		return nil, err
