@@ -118,6 +118,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		// With a screen the technician runs a due check from the page.
 		WaitForCheck:    o.screen != "",
 		InputEndIsError: o.service,
+		AfterStep:       holdHook(), // nil unless the torture test asks (testhook.go)
 	})
 	if err != nil {
 		return err

@@ -12,10 +12,6 @@ import (
 	"padline/sequences/session"
 )
 
-// exitStationRefused is the exit status of a refused check and of a run
-// the gate refused.
-const exitStationRefused = 3
-
 // stationCmd builds `padline station`.
 func (a *app) stationCmd() *cobra.Command {
 	cmd := &cobra.Command{
