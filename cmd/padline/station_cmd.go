@@ -33,31 +33,14 @@ func (a *app) stationCmd() *cobra.Command {
 	return cmd
 }
 
-// rig is a station opened for a trust command, and where its operator
-// prompts go.
-type rig struct {
-	*session.Bench
-	a     *app
-	quiet bool // --json: prompts go to stderr
-}
-
-func (a *app) openRig(ctx context.Context, variant, station, dbPath string, quiet bool) (*rig, error) {
+// openRig opens the station for a trust command (check, study) and says
+// where its operator prompts go: stdout, or stderr under --json.
+func (a *app) openRig(ctx context.Context, variant, station, dbPath string, asJSON bool) (*session.Bench, io.Writer, error) {
 	b, err := session.OpenBench(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
-	if err != nil {
-		return nil, err
+	if asJSON {
+		return b, a.stderr, err
 	}
-	return &rig{Bench: b, a: a, quiet: quiet}, nil
-}
-
-// close halts the fixture, saves the relay counts and closes the log.
-func (r *rig) close(ctx context.Context) error { return r.Close(ctx) }
-
-// msg is where operator prompts go: stdout, or stderr under --json.
-func (r *rig) msg() io.Writer {
-	if r.quiet {
-		return r.a.stderr
-	}
-	return r.a.stdout
+	return b, a.stdout, err
 }
 
 func (a *app) stationCheckCmd() *cobra.Command {
@@ -111,18 +94,18 @@ func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string,
 	if _, panel := panelStation(station); panel {
 		return a.stationCheckPanel(ctx, variant, station, dbPath, asJSON)
 	}
-	r, err := a.openRig(ctx, variant, station, dbPath, asJSON)
+	r, prompts, err := a.openRig(ctx, variant, station, dbPath, asJSON)
 	if err != nil {
 		return err
 	}
 	defer func() {
-		if cerr := r.close(ctx); cerr != nil && err == nil {
+		if cerr := r.Close(ctx); cerr != nil && err == nil {
 			err = cerr
 		}
 	}()
 	rep, err := session.RunCheck(ctx, r.Rig, r.DB, func(ci session.CheckInfo) {
 		if ci.Serial == "" && ci.Message != "" {
-			fmt.Fprintln(r.msg(), ci.Message)
+			fmt.Fprintln(prompts, ci.Message)
 		}
 	})
 	if err != nil {

@@ -229,11 +229,11 @@ const driftPF = 0.5
 // enters that rung driftPF below its true value.
 func simCheck(t testing.TB, ctx context.Context, station string, drift int) session.CheckReport {
 	t.Helper()
-	r, err := (&app{}).openRig(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), true)
+	r, _, err := (&app{}).openRig(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), true)
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer r.close(ctx)
+	defer r.Close(ctx)
 	cfg := r.CheckConfig()
 	fx := r.Fixture
 	if drift >= 0 {
@@ -289,7 +289,7 @@ func TestStationCheckHealthy1000(t *testing.T) {
 	maxLLR, maxDev := math.Inf(-1), 0.0
 	for seed := 1; seed <= seeds; seed++ {
 		path := stationVariant(t, nil, fmt.Sprintf("sim:\n  seed: %d\n", seed))
-		r, err := (&app{}).openRig(ctx, "QM-205", path, filepath.Join(t.TempDir(), "x.db"), true)
+		r, _, err := (&app{}).openRig(ctx, "QM-205", path, filepath.Join(t.TempDir(), "x.db"), true)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -355,7 +355,7 @@ func TestStationCheckHealthy1000(t *testing.T) {
 				t.Errorf("seed %d shift %d: healthy station refused: %q", seed, shift, faults)
 			}
 		}
-		r.close(ctx)
+		r.Close(ctx)
 	}
 	t.Logf("%d checks of a healthy station: %d refused; slowest check %v of fixture time; largest stuck-rung log LR %.1f nats (named from %.1f); largest |deviation| %.2f of the allowance",
 		seeds*shifts, refused, worst, maxLLR, math.Log(1e6), maxDev)

@@ -81,16 +81,16 @@ band from then on.`,
 
 // stationStudy opens the station, makes the study and prints it.
 func (a *app) stationStudy(ctx context.Context, variant, station, dbPath string, o session.StudyOptions, asJSON bool) (err error) {
-	r, err := a.openRig(ctx, variant, station, dbPath, asJSON)
+	r, prompts, err := a.openRig(ctx, variant, station, dbPath, asJSON)
 	if err != nil {
 		return err
 	}
 	defer func() {
-		if cerr := r.close(ctx); cerr != nil && err == nil {
+		if cerr := r.Close(ctx); cerr != nil && err == nil {
 			err = cerr
 		}
 	}()
-	o.Prompt = func(msg string) { fmt.Fprintln(r.msg(), msg) }
+	o.Prompt = func(msg string) { fmt.Fprintln(prompts, msg) }
 	rep, err := session.RunStudy(ctx, r.Rig, r.DB, o)
 	if err != nil {
 		return err
