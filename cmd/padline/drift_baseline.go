@@ -1,7 +1,6 @@
 package main
 
 import (
-	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -15,6 +14,7 @@ import (
 	"padline/sequences/session"
 	"padline/store"
 	"padline/store/drift"
+	"padline/store/driftreport"
 )
 
 // driftBaselineCmd builds `padline drift baseline` with `set` and `show`.
@@ -52,10 +52,10 @@ func (a *app) driftBaselineSetCmd() *cobra.Command {
 			now := time.Now()
 			f := store.Filter{Verdict: sequences.Pass}
 			var err error
-			if f.Since, err = parseWhen(since, now); err != nil {
+			if f.Since, err = store.ParseWhen(since, now); err != nil {
 				return fmt.Errorf("drift baseline set: --since: %w", err)
 			}
-			if f.Until, err = parseWhen(until, now); err != nil {
+			if f.Until, err = store.ParseWhen(until, now); err != nil {
 				return fmt.Errorf("drift baseline set: --until: %w", err)
 			}
 			path, err := shiftLogPath(cmd, stationFile)
@@ -97,8 +97,8 @@ func (a *app) driftBaselineSetCmd() *cobra.Command {
 			first, last := pts[0], pts[len(pts)-1]
 			b := store.Baseline{Variant: variant, Name: name, Centre: c.Location.Target, Sigma: c.Location.Sigma, N: len(x),
 				Method: "mean, MR̄/d2 of passed units' trip points", Since: first.Finished, Until: last.Finished,
-				FirstSerial: runAt(ctx, db, variant, first.RunID, first.Finished).Serial,
-				LastSerial:  runAt(ctx, db, variant, last.RunID, last.Finished).Serial,
+				FirstSerial: db.RunAt(ctx, variant, first.RunID, first.Finished).Serial,
+				LastSerial:  db.RunAt(ctx, variant, last.RunID, last.Finished).Serial,
 				ApprovedBy:  by, ApprovedAt: now}
 			if b.Name == "" {
 				b.Name = first.Finished.Local().Format("2006-01-02 15:04") + " … " + last.Finished.Local().Format("2006-01-02 15:04")
@@ -161,84 +161,12 @@ func (a *app) driftBaselineShowCmd() *cobra.Command {
 // subgroups for phase I limits; the drift package's own studies use 50.
 const driftMinApproved = 25
 
-// baselineJSON is a stored baseline in --json output.
-type baselineJSON struct {
-	Variant     string    `json:"variant"`
-	Name        string    `json:"name"`
-	Centre      float64   `json:"centre_pf"`
-	Sigma       float64   `json:"sigma_pf"`
-	N           int       `json:"n"`
-	Method      string    `json:"method"`
-	Since       time.Time `json:"since"`
-	Until       time.Time `json:"until"`
-	FirstSerial string    `json:"first_serial"`
-	LastSerial  string    `json:"last_serial"`
-	ApprovedBy  string    `json:"approved_by"`
-	ApprovedAt  time.Time `json:"approved_at"`
-}
-
-func toBaselineJSON(b store.Baseline) baselineJSON {
-	return baselineJSON{b.Variant, b.Name, b.Centre, b.Sigma, b.N, b.Method, b.Since, b.Until, b.FirstSerial, b.LastSerial, b.ApprovedBy, b.ApprovedAt}
-}
-
 func (a *app) printBaseline(b store.Baseline, asJSON bool) error {
 	if asJSON {
 		enc := json.NewEncoder(a.stdout)
 		enc.SetIndent("", "  ")
-		return enc.Encode(toBaselineJSON(b))
+		return enc.Encode(driftreport.BaselineOf(b))
 	}
-	fmt.Fprintf(a.stdout, "approved baseline %q of %s: centre %.3f pF, σ %.3f pF from %d passed units %s … %s (%s … %s), approved by %s at %s\n",
-		b.Name, b.Variant, b.Centre, b.Sigma, b.N, b.FirstSerial, b.LastSerial, fmtTime(b.Since), fmtTime(b.Until), dashIfEmpty(b.ApprovedBy), fmtTime(b.ApprovedAt))
+	driftreport.WriteBaseline(a.stdout, b)
 	return nil
-}
-
-// baselineText describes the baseline a drift report used.
-func baselineText(b store.Baseline) string {
-	return fmt.Sprintf("approved baseline %q: centre %.3f pF, σ %.3f pF from %d passed units %s … %s (%s … %s)",
-		b.Name, b.Centre, b.Sigma, b.N, b.FirstSerial, b.LastSerial, fmtTime(b.Since), fmtTime(b.Until))
-}
-
-// useApprovedBaseline makes the variant's approved baseline the charts'
-// target and σ, unless --baseline, --target or --sigma was given or the
-// series is a CSV file.
-func useApprovedBaseline(ctx context.Context, db *store.DB, o *driftOptions, rep *driftReport) error {
-	if db == nil || o.ownBaseline || rep.Variant == "" {
-		return nil
-	}
-	b, err := db.LastBaseline(ctx, rep.Variant)
-	if errors.Is(err, store.ErrNotFound) {
-		return nil
-	}
-	if err != nil {
-		return err
-	}
-	o.approved = &b
-	o.o.Target, o.o.FixTarget, o.o.Sigma = b.Centre, true, b.Sigma
-	return nil
-}
-
-// describeBaseline says which baseline a group was charted against.
-func describeBaseline(ctx context.Context, db runLog, o driftOptions, g driftSeries, w *driftWindowJSON) {
-	switch {
-	case o.approved != nil:
-		j := toBaselineJSON(*o.approved)
-		w.Kind, w.Approved, w.Text = "approved", &j, baselineText(*o.approved)
-	case o.ownBaseline || db == nil:
-		w.Kind = "given"
-	default:
-		w.Kind = "provisional"
-		if db != nil && w.LastUnit > 0 && w.LastUnit <= len(g.runIDs) {
-			a, b := w.FirstUnit-1, w.LastUnit-1
-			sa := runAt(ctx, db, g.filter.Variant, g.runIDs[a], time.Unix(0, g.times[a])).Serial
-			sb := runAt(ctx, db, g.filter.Variant, g.runIDs[b], time.Unix(0, g.times[b])).Serial
-			w.Text = fmt.Sprintf("the first %d points, %s … %s", w.Points, dashIfEmpty(sa), dashIfEmpty(sb))
-		}
-	}
-}
-
-func baselinePrefix(kind string) string {
-	if kind == "provisional" {
-		return "provisional (no approved baseline of the variant; see 'padline drift baseline set'): "
-	}
-	return ""
 }

@@ -10,6 +10,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"padline/store/driftreport"
 	"padline/store/plant"
 	"padline/store/plant/lineboard"
 )
@@ -63,7 +64,7 @@ The board only reads; give it a role that may read the plant tables.`,
 // serveLineBoard serves the board on ln until ctx ends.
 func serveLineBoard(ctx context.Context, ln net.Listener, src lineboard.Source, line string) error {
 	srv := &http.Server{Handler: &lineboard.Server{Src: src, Line: line, Shift: func(t time.Time) (string, time.Time) {
-		name, start, _ := shiftOf(t.Local())
+		name, start, _ := driftreport.ShiftOf(t.Local())
 		return name, start
 	}}, ReadHeaderTimeout: 10 * time.Second}
 	go func() {

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 	"path/filepath"
+	"syscall"
 	"testing"
 	"time"
 
@@ -118,3 +119,12 @@ func BenchmarkUnitForwarding(b *testing.B) {
 
 // benchTakt is the pause between units in BenchmarkUnitForwarding.
 const benchTakt = 20 * time.Millisecond
+
+// cpuTime is the process's user + system CPU time so far.
+func cpuTime() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}

@@ -321,3 +321,10 @@ func (a *app) plantForwardCmd() *cobra.Command {
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
 }
+
+func dashIfEmpty(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return s
+}

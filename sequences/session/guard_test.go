@@ -164,65 +164,6 @@ func TestConfigSizeCapAndKind(t *testing.T) {
 	}
 }
 
-// The lid must open between two units: a second serial scanned while the
-// first unit is still clamped (lid never opened) is not tested under it.
-func TestLidMustOpenBetweenUnits(t *testing.T) {
-	s := checkedDemo(t, session.Options{LidTimeout: 2 * time.Second})
-	ch, _ := s.Subscribe(1024)
-	serials := make(chan string)
-	done := make(chan error, 1)
-	go func() { done <- s.Run(context.Background(), session.ChanScanner(serials)) }()
-	serials <- "QM205-000001"
-	for e := range ch {
-		if e.Kind == session.KindVerdictCommitted {
-			break
-		}
-	}
-	// The operator leaves the tested unit in and the lid shut.
-	s.Rig().Line.Load("QM205-000001")
-	serials <- "QM205-000002"
-	var refused *session.ScanRefusal
-	var prompted bool
-	for e := range ch {
-		if e.Kind == session.KindLidWait && e.Scan.Prompt != "" {
-			prompted = true
-		}
-		if e.Kind == session.KindVerdictCommitted {
-			t.Fatalf("%s tested without the lid opening after the last unit", e.Verdict.Run.Serial)
-		}
-		if e.Kind == session.KindScanRefused {
-			refused = e.ScanRefused
-			break
-		}
-	}
-	close(serials)
-	if err := <-done; err != nil {
-		t.Fatal(err)
-	}
-	if refused == nil || !errors.Is(refused.Err, session.ErrLidNotOpened) || !prompted {
-		t.Fatalf("refusal %+v, prompted %v; want ErrLidNotOpened after a prompt to open the lid", refused, prompted)
-	}
-	// Opened and closed again: the next scan is tested.
-	s.Rig().Line.Unload()
-	in := make(chan string, 1)
-	in <- "QM205-000002"
-	close(in)
-	ch2, _ := s.Subscribe(1024)
-	if err := s.Run(context.Background(), session.ChanScanner(in)); err != nil {
-		t.Fatal(err)
-	}
-	_ = s.Close()
-	n := 0
-	for e := range ch2 {
-		if e.Kind == session.KindVerdictCommitted {
-			n++
-		}
-	}
-	if n != 1 {
-		t.Fatalf("%d verdicts after the lid opened, want 1", n)
-	}
-}
-
 // A barcode scanner may end a read with CR, LF or CR LF; a line over 1 MiB
 // is refused and the next line is still read.
 func TestLineScannerLineEnds(t *testing.T) {

@@ -3,6 +3,7 @@ package session
 import (
 	"fmt"
 	"math"
+	"strings"
 	"time"
 
 	"padline/fixture"
@@ -181,4 +182,11 @@ func NewFixture(st *Station, pins fixture.Pins, clk fixture.Clock) (*fixture.Fix
 		return nil, fmt.Errorf("station %s: fixture: %w", st.Source.Name, err)
 	}
 	return fx, nil
+}
+
+// DemoSerial is serial number i (from 1) of the variant's simulated units:
+// the variant name without dashes, a dash and six digits (QM-205, 1 →
+// QM205-000001).
+func DemoSerial(v *Variant, i int) string {
+	return fmt.Sprintf("%s-%06d", strings.ReplaceAll(v.Name, "-", ""), i)
 }

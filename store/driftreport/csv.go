@@ -1,4 +1,4 @@
-package main
+package driftreport
 
 import (
 	"bufio"
@@ -13,33 +13,33 @@ import (
 	"unicode/utf8"
 )
 
-// readSeriesCSV opens path and parses its column; errors name the file.
-func readSeriesCSV(path, column, keep string) ([]float64, error) {
+// ReadSeriesCSV opens path and parses its column; errors name the file.
+func ReadSeriesCSV(path, column, keep string) ([]float64, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, err
 	}
 	defer f.Close()
-	x, err := parseSeriesCSVKeep(bufio.NewReader(f), column, keep)
+	x, err := ParseSeriesCSVKeep(bufio.NewReader(f), column, keep)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	return x, nil
 }
 
-// parseSeriesCSV reads a CSV table with a header row and returns the
+// ParseSeriesCSV reads a CSV table with a header row and returns the
 // numbers of the named column, in row order. Blank cells are skipped; any
 // other cell that is not a finite number is an error naming its line and
 // column. Rows may be ragged as long as they reach the column.
-func parseSeriesCSV(r io.Reader, column string) ([]float64, error) {
-	return parseSeriesCSVKeep(r, column, "")
+func ParseSeriesCSV(r io.Reader, column string) ([]float64, error) {
+	return ParseSeriesCSVKeep(r, column, "")
 }
 
-// parseSeriesCSVKeep is parseSeriesCSV for a file that may have a
+// ParseSeriesCSVKeep is ParseSeriesCSV for a file that may have a
 // "serial" column: a serial on several rows (one row per measurement, or
 // a retest) is refused unless keep says which row counts — "first" or
 // "last" — so no unit is charted several times over.
-func parseSeriesCSVKeep(r io.Reader, column, keep string) ([]float64, error) {
+func ParseSeriesCSVKeep(r io.Reader, column, keep string) ([]float64, error) {
 	cr := csv.NewReader(r)
 	cr.FieldsPerRecord = -1
 	cr.ReuseRecord = true

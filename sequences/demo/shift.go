@@ -1,0 +1,547 @@
+package demo
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"maps"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"sort"
+	"strings"
+	"syscall"
+	"time"
+
+	"padline/fixture/sim"
+	"padline/sequences"
+	"padline/sequences/session"
+	"padline/sequences/timing"
+	"padline/store"
+)
+
+// Options are what a demo shift simulates.
+type Options struct {
+	// Variant and Station are each a built-in name or a .yaml file; the
+	// station must have driver: sim.
+	Variant, Station string
+	// Units is the shift's length; Seed seeds the simulated units and
+	// fixture (same seed, same shift).
+	Units int
+	Seed  uint64
+	// DB is the shift log to write; empty = a temporary one, removed.
+	DB string
+	// Search is the trip search ("bracket" or "staircase"); Compare runs
+	// the same units with both.
+	Search  string
+	Compare bool
+	// IntoRealLog allows DB to hold runs of a real (gpio) station.
+	IntoRealLog bool
+	// Drift puts a step or ramp into the shift.
+	Drift Drift
+	// Panel tests panels of this many sites (RunPanel); 0: single units.
+	// OwnLadders gives every site its own ladder instead of a ganged one.
+	Panel      int
+	OwnLadders bool
+	// Software is the version string every run records.
+	Software string
+	// Progress, when not nil, is asked for a bar per pass.
+	Progress func(label string, units int) Progress
+}
+
+// Progress is told about each tested unit of a pass, then that it is done.
+type Progress interface {
+	Step()
+	Done()
+}
+
+type noProgress struct{}
+
+func (noProgress) Step() {}
+func (noProgress) Done() {}
+
+// Unit is one simulated unit's result beside its ground truth.
+type Unit struct {
+	Serial     string   `json:"serial"`
+	Verdict    string   `json:"verdict"`
+	FailCode   string   `json:"fail_code"`
+	TripPF     *float64 `json:"trip_pf"`
+	TripSEPF   *float64 `json:"trip_se_pf"`
+	TrueTripPF *float64 `json:"true_trip_pf"`
+	Defects    []string `json:"defects"`
+	Probes     int      `json:"probes"`
+	RelayOps   uint64   `json:"relay_ops"`
+	FixtureMS  float64  `json:"fixture_ms"`
+
+	spreadPF     float64
+	trueSpreadPF float64
+	phases       map[string]time.Duration
+	bound        time.Duration // noiseless bracketing bound
+	finished     time.Time     // the run's finish time, as logged
+}
+
+// Result is a finished demo shift: what was simulated, each pass's units
+// beside their ground truth, and the drift watch.
+type Result struct {
+	Variant *session.Variant
+	Station *session.Station
+	Limits  timing.Report
+	// DBPath is the shift log; Kept is false when it was a temporary one
+	// (removed by now).
+	DBPath string
+	Kept   bool
+	// Strategies names each pass; Passes holds its units in test order,
+	// CPU and Wall its computer time.
+	Strategies []string
+	Passes     [][]Unit
+	CPU, Wall  []time.Duration
+	// TrueStrayPF is the simulated fixture's true stray capacitance.
+	TrueStrayPF float64
+	// Drift is the drift watch over the first pass; nil without drift.
+	Drift *DriftWatch
+}
+
+// Run simulates the shift: every serial through the real plan, search and
+// shift log on a fresh simulated line per pass.
+func Run(ctx context.Context, o Options) (*Result, error) {
+	if o.Units < 1 {
+		return nil, errors.New("demo: --units must be at least 1")
+	}
+	if err := o.Drift.Check(o.Units); err != nil {
+		return nil, err
+	}
+	v, st, err := session.Load(o.Variant, o.Station)
+	if err != nil {
+		return nil, err
+	}
+	if st.Driver != session.DriverSim {
+		return nil, fmt.Errorf("demo: station %s has driver %q; the demo needs driver: sim", st.Source.Name, st.Driver)
+	}
+	st.Sim.Seed = o.Seed
+	u, _ := session.StatedUncertainty(st)
+	res := &Result{Variant: v, Station: st, DBPath: o.DB, Kept: o.DB != "", Strategies: []string{o.Search}}
+	if res.Limits, err = v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u}); err != nil {
+		return nil, err
+	}
+	if o.Compare {
+		res.Strategies = []string{"bracket", "staircase"}
+	}
+	if res.DBPath == "" {
+		dir, err := os.MkdirTemp("", "padline-demo-")
+		if err != nil {
+			return nil, fmt.Errorf("demo: %w", err)
+		}
+		defer os.RemoveAll(dir)
+		res.DBPath = filepath.Join(dir, "shift.db")
+	}
+	if err := res.passes(ctx, o); err != nil {
+		return nil, err
+	}
+	if res.Drift, err = o.Drift.watch(res.Passes[0], v, st); err != nil {
+		return nil, err
+	}
+	line, err := session.NewSimLine(st, v)
+	if err != nil {
+		return nil, err
+	}
+	res.TrueStrayPF = line.TrueStrayPF()
+	return res, nil
+}
+
+// passes runs the shift once per strategy; only the first pass is logged.
+func (res *Result) passes(ctx context.Context, o Options) error {
+	db, err := store.Open(res.DBPath)
+	if err != nil {
+		return err
+	}
+	defer db.Close()
+	if err := session.CheckSimulatedInto(ctx, db, res.DBPath, o.IntoRealLog); err != nil {
+		return fmt.Errorf("demo: %w", err)
+	}
+	hash, err := db.PutVariant(ctx, res.Variant.Name, res.Variant.Source.Raw)
+	if err != nil {
+		return err
+	}
+	serials, err := serials(res.Variant, o.Units)
+	if err != nil {
+		return err
+	}
+	for i, strategy := range res.Strategies {
+		var rec sequences.Recorder = db
+		if i > 0 {
+			rec = discard{} // the comparison pass re-tests the same serials; log the shift once
+		}
+		var prog Progress = noProgress{}
+		if o.Progress != nil {
+			prog = o.Progress("testing ("+strategy+")", len(serials))
+		}
+		t0, c0 := time.Now(), cpuTime()
+		us, err := shift(ctx, res, hash, strategy, serials, rec, prog, o)
+		if err != nil {
+			return err
+		}
+		res.CPU = append(res.CPU, cpuTime()-c0)
+		res.Wall = append(res.Wall, time.Since(t0))
+		res.Passes = append(res.Passes, us)
+	}
+	return nil
+}
+
+// discard records nothing (the comparison pass).
+type discard struct{}
+
+var _ sequences.Recorder = discard{}
+
+func (discard) Record(context.Context, *sequences.Run) (int64, error) { return 0, nil }
+
+// serials makes the shift's serials (see session.DemoSerial) and checks them
+// against the variant's own pattern.
+func serials(v *session.Variant, n int) ([]string, error) {
+	out := make([]string, n)
+	for i := range out {
+		out[i] = session.DemoSerial(v, i+1)
+		if !v.Serial.MatchString(out[i]) {
+			return nil, fmt.Errorf("demo: serial %s does not match variant %s's serial_pattern %q; the demo numbers serials NAME-000001",
+				out[i], v.Name, v.SerialPattern)
+		}
+	}
+	return out, nil
+}
+
+// shift tests every serial on a fresh simulated line.
+func shift(ctx context.Context, res *Result, hash, strategy string, serials []string, rec sequences.Recorder, prog Progress, o Options) ([]Unit, error) {
+	v, st, dr := res.Variant, res.Station, o.Drift
+	u, uFrom := session.StatedUncertainty(st)
+	r, err := session.NewRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: strategy})
+	if err != nil {
+		return nil, err
+	}
+	defer r.Halt()
+	line, fx, lv := r.Line, r.Fixture, r.Plan.Levels()
+	// The shift's units are stamped on a plant timetable, not at the speed
+	// the simulator runs: a takt of 5–7 s with breaks, starting 12:30 so a
+	// long run crosses from the early into the late shift, on days that
+	// end before today.
+	shift := sim.NewShiftClock(demoShiftStart(time.Now(), len(serials)), demoTakt, demoJitter, sim.DemoPauses, 1)
+	var stamp time.Time
+	sess := &sequences.Session{
+		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: func() time.Time { return stamp },
+		Template: sequences.Run{
+			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
+			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: o.Software,
+			Driver: string(session.DriverSim),
+		},
+	}
+	settle := st.Ladder.Operate + st.Ladder.Bounce
+	bisect := math.Ceil(math.Log2(float64(len(lv))))
+	out := make([]Unit, 0, len(serials))
+	base := session.UnitModel(v, st.Sim)
+	for i, serial := range serials {
+		if err := dr.apply(line, base, i+1); err != nil {
+			prog.Done()
+			return nil, err
+		}
+		stamp = shift.Next()
+		unit := line.Load(serial)
+		ops0 := sum(fx.RelayOps())
+		oc, err := sess.Test(ctx, serial)
+		line.Unload()
+		if oc == nil {
+			prog.Done()
+			return nil, err
+		}
+		truth := unit.Truth()
+		du := Unit{
+			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: string(oc.Run.FailCode),
+			Defects: truth.Defects, Probes: oc.Trial.Probes, RelayOps: sum(fx.RelayOps()) - ops0,
+			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases, finished: oc.Run.Finished,
+			trueSpreadPF: truth.TransitionPF,
+		}
+		if du.Defects == nil {
+			du.Defects = []string{}
+		}
+		if truth.Trip == sim.TripsAt {
+			du.TrueTripPF = ptr(truth.TripPF)
+		}
+		if tr := oc.Trial.Trip; tr != nil && tr.Found && !tr.Below {
+			du.TripPF, du.TripSEPF, du.spreadPF = ptr(tr.TripPF), ptr(tr.SEPF), tr.SpreadPF
+		}
+		if truth.ClockHz > 0 {
+			du.bound = time.Duration(bisect) * (settle + time.Duration(1e9/truth.ClockHz))
+		}
+		out = append(out, du)
+		prog.Step()
+	}
+	prog.Done()
+	return out, nil
+}
+
+func ptr(f float64) *float64 { return &f }
+
+func sum(xs []uint64) uint64 {
+	var s uint64
+	for _, x := range xs {
+		s += x
+	}
+	return s
+}
+
+func ms(d time.Duration) float64 { return float64(d) / float64(time.Millisecond) }
+
+// cpuTime is the process's user + system CPU time so far.
+func cpuTime() time.Duration {
+	var ru syscall.Rusage
+	if err := syscall.Getrusage(syscall.RUSAGE_SELF, &ru); err != nil {
+		return 0
+	}
+	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// Stats summarises one pass over the shift.
+type Stats struct {
+	Strategy          string                    `json:"strategy"`
+	Units             int                       `json:"units"`
+	Pass              int                       `json:"pass"`
+	Fail              int                       `json:"fail"`
+	StationFault      int                       `json:"station_fault"`
+	YieldPct          float64                   `json:"yield_pct"`
+	FailCodes         map[string]int            `json:"fail_codes"`
+	DefectOutcomes    map[string]map[string]int `json:"defect_outcomes"`
+	GoodUnits         int                       `json:"good_units"`
+	GoodFalseFails    int                       `json:"good_false_fails"`
+	TripRMSErrPF      float64                   `json:"trip_rms_error_pf"`
+	TripMaxErrPF      float64                   `json:"trip_max_error_pf"`
+	TripBiasPF        float64                   `json:"trip_bias_pf"`
+	TripRMSLessBiasPF float64                   `json:"trip_rms_error_less_bias_pf"`
+	SpreadMedianPF    float64                   `json:"spread_median_pf"`
+	TrueSpreadMedian  float64                   `json:"true_spread_median_pf"`
+	ProbesMean        float64                   `json:"probes_mean"`
+	RelayOpsMean      float64                   `json:"relay_ops_mean"`
+	FixtureMSMean     float64                   `json:"fixture_ms_mean"`
+	PhaseMSMean       map[string]float64        `json:"phase_ms_mean"`
+	BracketBoundMS    float64                   `json:"bracket_bound_ms_mean"`
+	CPUPerUnitMS      float64                   `json:"cpu_ms_per_unit"`
+	WallS             float64                   `json:"wall_s"`
+}
+
+// fixedPhases are the plan's steps outside the trip search.
+var fixedPhases = []string{string(sequences.StepPowerUp), string(sequences.StepClock), string(sequences.StepIdle), string(sequences.StepRelease), string(sequences.StepPowerDown)}
+
+func summarise(strategy string, us []Unit, cpu, wall time.Duration) Stats {
+	s := Stats{Strategy: strategy, Units: len(us), FailCodes: map[string]int{},
+		DefectOutcomes: map[string]map[string]int{}, PhaseMSMean: map[string]float64{}}
+	var sq, bias float64
+	var errs, spreads, trueSpreads []float64
+	for _, u := range us {
+		switch u.Verdict {
+		case "pass":
+			s.Pass++
+		case "fail":
+			s.Fail++
+		default:
+			s.StationFault++
+		}
+		if u.FailCode != "" {
+			s.FailCodes[u.FailCode]++
+		}
+		outcome := u.FailCode
+		if outcome == "" {
+			outcome = "pass"
+		}
+		for _, d := range u.Defects {
+			if s.DefectOutcomes[d] == nil {
+				s.DefectOutcomes[d] = map[string]int{}
+			}
+			s.DefectOutcomes[d][outcome]++
+		}
+		s.ProbesMean += float64(u.Probes)
+		s.RelayOpsMean += float64(u.RelayOps)
+		s.FixtureMSMean += u.FixtureMS
+		for ph, d := range u.phases {
+			s.PhaseMSMean[ph] += ms(d)
+		}
+		s.BracketBoundMS += ms(u.bound)
+		if len(u.Defects) > 0 {
+			continue
+		}
+		s.GoodUnits++
+		if u.Verdict != "pass" {
+			s.GoodFalseFails++
+		}
+		if u.TripPF != nil && u.TrueTripPF != nil {
+			e := *u.TripPF - *u.TrueTripPF
+			errs = append(errs, e)
+			sq += e * e
+			bias += e
+			s.TripMaxErrPF = math.Max(s.TripMaxErrPF, math.Abs(e))
+			spreads = append(spreads, u.spreadPF)
+			trueSpreads = append(trueSpreads, u.trueSpreadPF)
+		}
+	}
+	n := float64(len(us))
+	s.YieldPct = 100 * float64(s.Pass) / n
+	s.ProbesMean /= n
+	s.RelayOpsMean /= n
+	s.FixtureMSMean /= n
+	s.BracketBoundMS /= n
+	for ph := range s.PhaseMSMean {
+		s.PhaseMSMean[ph] /= n
+	}
+	if len(errs) > 0 {
+		s.TripRMSErrPF = math.Sqrt(sq / float64(len(errs)))
+		s.TripBiasPF = bias / float64(len(errs))
+		s.TripRMSLessBiasPF = math.Sqrt(math.Max(0, sq/float64(len(errs))-s.TripBiasPF*s.TripBiasPF))
+		s.SpreadMedianPF = median(spreads)
+		s.TrueSpreadMedian = median(trueSpreads)
+	}
+	s.CPUPerUnitMS = ms(cpu) / n
+	s.WallS = wall.Seconds()
+	return s
+}
+
+func median(xs []float64) float64 {
+	ys := slices.Clone(xs)
+	sort.Float64s(ys)
+	if len(ys) == 0 {
+		return math.NaN()
+	}
+	if len(ys)%2 == 1 {
+		return ys[len(ys)/2]
+	}
+	return (ys[len(ys)/2-1] + ys[len(ys)/2]) / 2
+}
+
+type Summary struct {
+	Summary      bool       `json:"summary"`
+	Variant      string     `json:"variant"`
+	Station      string     `json:"station"`
+	TestLimitsPF [2]float64 `json:"test_limits_pf"`
+	NoiseMVAt5V  float64    `json:"noise_mv_at_5v"`
+	JitterNs     float64    `json:"jitter_ns"`
+	RungErrSDPF  float64    `json:"rung_err_sd_pf"`
+	Passes       []Stats    `json:"passes"`
+	// Drift is the drift watch over the shift; nil without drift flags.
+	Drift *DriftWatch `json:"drift,omitempty"`
+}
+
+// Summary is the shift's summary object (the demo's last JSON line).
+func (res *Result) Summary() Summary {
+	v, st, rep := res.Variant, res.Station, res.Limits
+	s := Summary{Summary: true, Variant: v.Name, Station: st.Name,
+		TestLimitsPF: [2]float64{rep.TestLimits.Low, rep.TestLimits.High},
+		NoiseMVAt5V:  st.Sim.NoiseMVAt5V, JitterNs: st.Sim.JitterNs, RungErrSDPF: st.Sim.RungErrSDPF, Drift: res.Drift}
+	for i, us := range res.Passes {
+		s.Passes = append(s.Passes, summarise(res.Strategies[i], us, res.CPU[i], res.Wall[i]))
+	}
+	return s
+}
+
+// WriteText prints the shift's summary for people.
+func WriteText(w io.Writer, res *Result) {
+	v, st, rep := res.Variant, res.Station, res.Limits
+	ss := res.Summary().Passes
+	s := ss[0]
+	fmt.Fprintf(w, "simulated shift  %s on %s/%s, %d units\n", v.Name, st.Name, st.Fixture, s.Units)
+	fmt.Fprintf(w, "simulator        noise %.1f mV at 5 V, sample jitter %.1f ns, rung calibration σ %.2f pF (realism floor: DEVELOPERS.md, Simulator realism floor)\n",
+		st.Sim.NoiseMVAt5V, st.Sim.JitterNs, st.Sim.RungErrSDPF)
+	fmt.Fprintf(w, "test limits      trip %.2f … %.2f pF, clock %.0f … %.0f Hz\n\n",
+		rep.TestLimits.Low, rep.TestLimits.High, rep.Clock.CornerLow, rep.Clock.CornerHigh)
+
+	fmt.Fprintf(w, "yield            %.1f %%  (%d pass, %d fail, %d station-fault)\n", s.YieldPct, s.Pass, s.Fail, s.StationFault)
+	fmt.Fprintf(w, "good units       %d, false fails %d\n", s.GoodUnits, s.GoodFalseFails)
+	writeOutcomes(w, s)
+	fmt.Fprintf(w, "\ntrip accuracy on good units against the simulator's ground truth\n")
+	fmt.Fprintf(w, "  RMS error %.3f pF   max %.3f pF   bias %+.3f pF\n", s.TripRMSErrPF, s.TripMaxErrPF, s.TripBiasPF)
+	fmt.Fprintf(w, "  RMS about the bias %.3f pF; the bias is this fixture's calibration error where units trip: its stray\n", s.TripRMSLessBiasPF)
+	fmt.Fprintf(w, "  (true %.2f pF, entered %.2f pF) plus the errors of the rungs closed there; the same for every unit,\n", res.TrueStrayPF, st.Ladder.StrayPF)
+	fmt.Fprintf(w, "  it differs from fixture to fixture (--seed) and a reference unit of known trip point shows it\n")
+	fmt.Fprintf(w, "  transition (10–90 %%) median: fitted %.2f pF, simulator's noise model %.2f pF\n", s.SpreadMedianPF, s.TrueSpreadMedian)
+	writeTiming(w, ss)
+	fmt.Fprintf(w, "\ncomputer time    %.3f ms CPU per unit, %.2f s wall for %d units\n", s.CPUPerUnitMS, s.WallS, s.Units)
+	if res.Kept {
+		fmt.Fprintf(w, "shift log        %s (see 'padline history --db %s --variant %s')\n", res.DBPath, res.DBPath, v.Name)
+	}
+	writeDrift(w, res.Drift)
+}
+
+// writeOutcomes prints the count per fail code and what each injected
+// defect ended as.
+func writeOutcomes(w io.Writer, s Stats) {
+	codes := slices.Sorted(maps.Keys(s.FailCodes))
+	if len(codes) > 0 {
+		fmt.Fprintln(w, "\nfail code        units")
+		for _, c := range codes {
+			fmt.Fprintf(w, "  %-15s %5d\n", c, s.FailCodes[c])
+		}
+	}
+	defects := slices.Sorted(maps.Keys(s.DefectOutcomes))
+	if len(defects) > 0 {
+		fmt.Fprintln(w, "\ninjected defect  ended as")
+		for _, d := range defects {
+			var parts []string
+			for _, oc := range slices.Sorted(maps.Keys(s.DefectOutcomes[d])) {
+				parts = append(parts, fmt.Sprintf("%s ×%d", oc, s.DefectOutcomes[d][oc]))
+			}
+			fmt.Fprintf(w, "  %-15s %s\n", d, strings.Join(parts, ", "))
+		}
+	}
+}
+
+// writeTiming prints fixture time per unit, one column per pass.
+func writeTiming(w io.Writer, ss []Stats) {
+	fmt.Fprintf(w, "\nfixture time per unit (mean, ms)")
+	for _, x := range ss {
+		fmt.Fprintf(w, "  %12s", x.Strategy)
+	}
+	fmt.Fprintln(w)
+	row := func(name string, f func(Stats) float64) {
+		fmt.Fprintf(w, "  %-30s", name)
+		for _, x := range ss {
+			fmt.Fprintf(w, "  %12.1f", f(x))
+		}
+		fmt.Fprintln(w)
+	}
+	row("fixed steps", func(x Stats) float64 {
+		var t float64
+		for _, p := range fixedPhases {
+			t += x.PhaseMSMean[p]
+		}
+		return t
+	})
+	row("bracketing (bisection / climb)", func(x Stats) float64 {
+		return x.PhaseMSMean[sequences.PhaseBracket] + x.PhaseMSMean[sequences.PhaseClimb]
+	})
+	row("refinement (incl. guard levels)", func(x Stats) float64 {
+		return x.PhaseMSMean[sequences.PhaseRefine] + x.PhaseMSMean[sequences.PhaseGuard]
+	})
+	row("whole unit", func(x Stats) float64 { return x.FixtureMSMean })
+	row("probes per unit", func(x Stats) float64 { return x.ProbesMean })
+	row("relay operations per unit", func(x Stats) float64 { return x.RelayOpsMean })
+	row("trip RMS error, pF ×1000", func(x Stats) float64 { return 1000 * x.TripRMSErrPF })
+	fmt.Fprintf(w, "  noiseless bisection bound: %.1f ms (⌈log2 L⌉ probes × (settle + one unit period))\n", ss[0].BracketBoundMS)
+	if len(ss) == 2 {
+		b, c := ss[0], ss[1]
+		br := b.PhaseMSMean[sequences.PhaseBracket]
+		cl := c.PhaseMSMean[sequences.PhaseClimb]
+		fmt.Fprintf(w, "  bracketing is %.1f× faster than the climb; whole unit %.1f× faster (%.1f ms saved)\n",
+			cl/br, c.FixtureMSMean/b.FixtureMSMean, c.FixtureMSMean-b.FixtureMSMean)
+	}
+}
+
+// The demo shift's timetable (invented demo data): one unit every 5 s plus
+// up to 2 s of handling.
+const (
+	demoTakt   = 5 * time.Second
+	demoJitter = 2 * time.Second
+)
+
+// demoShiftStart is 12:30 local on a day early enough that n units (about
+// 6 s each, 14 working hours a day under sim.DemoPauses) finish before
+// the day now falls on.
+func demoShiftStart(now time.Time, n int) time.Time {
+	days := 1 + int(time.Duration(n)*(demoTakt+demoJitter/2)/(14*time.Hour))
+	d := time.Date(now.Year(), now.Month(), now.Day(), 12, 30, 0, 0, now.Location())
+	return d.AddDate(0, 0, -days)
+}

@@ -1,0 +1,31 @@
+package plant
+
+import (
+	"context"
+	"fmt"
+	"strings"
+)
+
+// IsURL reports whether a --db value names the plant store.
+func IsURL(s string) bool {
+	return strings.HasPrefix(s, "postgres://") || strings.HasPrefix(s, "postgresql://")
+}
+
+// OpenMigrated opens the plant store at url and checks that it answers and
+// carries the plant schema (readers never create one).
+func OpenMigrated(ctx context.Context, url string) (*DB, error) {
+	p, err := Open(ctx, url)
+	if err != nil {
+		return nil, err
+	}
+	v, err := p.Version(ctx)
+	if err != nil {
+		p.Close()
+		return nil, fmt.Errorf("plant store %s: %w", Redact(url), err)
+	}
+	if v == 0 {
+		p.Close()
+		return nil, fmt.Errorf("plant store %s has no plant schema (run 'padline plant init --db URL')", Redact(url))
+	}
+	return p, nil
+}
