@@ -148,6 +148,9 @@ func writeLimits(w io.Writer, v *session.Variant, r timing.Report) {
 	}
 	p("            Monte Carlo (%d draws, seed %d): mean %.2f pF, sd %.2f pF", r.Draws, r.Seed, r.Trip.MCMean, r.Trip.MCSD)
 	p("            percentiles 0.135 %% %.2f   50 %% %.2f   99.865 %% %.2f pF", r.Trip.MCP00135, r.Trip.MCP50, r.Trip.MCP99865)
+	writeGate(w, r)
+	p("")
+	writeSensitivity(w, r)
 	p("")
 	p("spec window no trip at ≤ %.2f pF, trip by %.2f pF", r.Spec.NoTripAtPF, r.Spec.TripByPF)
 	p("model       %.2f … %.2f pF (worst-case corners)", r.ModelLimits.Low, r.ModelLimits.High)

@@ -165,15 +165,18 @@ const ShortRaceEdges = 10
 
 // Sensitivity is one input's share of the trip point's spread: the partial
 // derivative ∂trip/∂input at the nominal point (a central difference) times
-// the input's half tolerance (Max − Min)/2.
+// the input's tolerance: 3·SD when the value states its SD (the spread the
+// Monte Carlo draws), else the half range (Max − Min)/2 (3σ by the
+// convention of [Normal]).
 type Sensitivity struct {
 	Input string `json:"input"`
 	Unit  string `json:"unit"`
 	// PerUnit is ∂trip/∂input in pF per unit of the input.
 	PerUnit float64 `json:"dtrip_dinput"`
-	// HalfTol is (Max − Min)/2 of the input at the nominal supply.
-	HalfTol float64 `json:"half_tolerance"`
-	// PF is PerUnit × HalfTol: how far the input alone moves the trip point
+	// Tol is the input's tolerance at the nominal supply: 3·SD when the value
+	// states an SD, else (Max − Min)/2.
+	Tol float64 `json:"tolerance"`
+	// PF is PerUnit × Tol: how far the input alone moves the trip point
 	// from nominal to either end of its tolerance, to first order (signed).
 	PF float64 `json:"trip_pf"`
 	// Share is PF² over the sum of all PF² (the input's share of a
@@ -418,8 +421,7 @@ func gateStats(c Circuit, nom Point) (GateStats, error) {
 	return g, nil
 }
 
-// sensitivity ranks the toleranced inputs by |∂trip/∂input × half
-// tolerance|. The derivative is a central difference of ±1 % of the
+// sensitivity ranks the toleranced inputs by |∂trip/∂input × tolerance|. The derivative is a central difference of ±1 % of the
 // tolerance around the nominal point; moving the supply moves the table's
 // inputs with it (their Typ follows the supply).
 func sensitivity(c Circuit) ([]Sensitivity, error) {
@@ -464,8 +466,11 @@ func sensitivity(c Circuit) ([]Sensitivity, error) {
 			return nil, fmt.Errorf("sensitivity to %s: %w", inputNames[i], err)
 		}
 		d := (tHi - tLo) / (hi - lo)
-		s := Sensitivity{Input: inputNames[i], Unit: inputUnits[i], PerUnit: d, HalfTol: (v.Max - v.Min) / 2}
-		s.PF = d * s.HalfTol
+		s := Sensitivity{Input: inputNames[i], Unit: inputUnits[i], PerUnit: d, Tol: (v.Max - v.Min) / 2}
+		if v.SD > 0 && dist(v) == Normal {
+			s.Tol = 3 * v.SD
+		}
+		s.PF = d * s.Tol
 		sum += s.PF * s.PF
 		out = append(out, s)
 	}

@@ -141,3 +141,23 @@ func GateROhmFromCurrent(iOutMA Value, atV float64) (Value, error) {
 	}
 	return out, nil
 }
+
+// AtSupply returns c with the supply table's inputs interpolated at supply v
+// and the table removed: one value per input, as a circuit without a table
+// states them. The supply input itself is kept as given.
+func (c Circuit) AtSupply(v float64) (Circuit, error) {
+	if c.BySupply == nil {
+		return c, nil
+	}
+	vs, err := c.valuesAt(v)
+	if err != nil {
+		return c, err
+	}
+	out := c
+	out.BySupply = nil
+	out.DelayNS, out.SetupNS, out.ThresholdFrac = vs[inDelay], vs[inSetup], vs[inThreshold]
+	out.GateROhm, out.EdgeNS = vs[inGateR], vs[inEdge]
+	out.OscROhm, out.OscCF, out.VtPosFrac, out.VtNegFrac = vs[inOscR], vs[inOscC], vs[inVtPos], vs[inVtNeg]
+	out.SenseROhm, out.PadPF, out.InputPF = vs[inSenseR], vs[inPad], vs[inInput]
+	return out, nil
+}
