@@ -50,8 +50,8 @@ type deck struct {
 	N, N1                 int // measured falling edge and the one before
 }
 
-// newDeck builds the deck for point p with cExtPF at the pad. The run covers
-// n clock periods; its time-step ceiling is a fixed fraction of R_o·C_o.
+// newDeck builds the deck for point p with cExtPF at the pad. The run reaches
+// falling edge n; its time-step ceiling is a fixed fraction of R_o·C_o.
 func newDeck(name string, p timing.Point, cExtPF float64, n int) deck {
 	rg := math.Max(p.GateROhm, 1e-3) // SPICE wants R > 0: 1 mΩ is an ideal gate
 	rc := (p.OscROhm + rg) * p.OscCF
@@ -61,8 +61,11 @@ func newDeck(name string, p timing.Point, cExtPF float64, n int) deck {
 		CNode: (p.InputPF + p.PadPF + cExtPF) * 1e-12,
 		Race:  (p.DelayNS - p.SetupNS) * 1e-9, Ramp: p.EdgeNS * 1e-9 / 0.8,
 		VCo0: p.VtNegFrac * p.SupplyV, TStep: rc / 1e4, TMax: rc / 1e4,
-		// A period is about 1.4·RC at these thresholds: n+1 periods is ample.
-		TStop: float64(n+1) * 2 * rc, N: n, N1: n - 1,
+		// The run ends 10 % past falling edge n + ½ of a period, sized with
+		// the textbook relaxation-oscillator period (Horowitz & Hill): if it
+		// were short, the .meas lines would fail, not pass.
+		TStop: 1.1 * (float64(n) + 0.5) * rc * (math.Log((1-p.VtNegFrac)/(1-p.VtPosFrac)) + math.Log(p.VtPosFrac/p.VtNegFrac)),
+		N:     n, N1: n - 1,
 	}
 }
 
