@@ -306,6 +306,15 @@ func TestGateEffectsAgainstNgspice(t *testing.T) {
 	for _, f := range append(demoFiles, fastFile) {
 		cases = append(cases, variantCase(t, f))
 	}
+	// The fast variant at its threshold corners with its slowest edge: away
+	// from θ = 0.5 the ramp's midpoint and the clock path's crossing no
+	// longer coincide, so the edge itself moves the trip point.
+	for _, th := range []float64{0.3, 0.7} {
+		c := variantCase(t, fastFile)
+		c.name = fmt.Sprintf("909F θ%.1f", th)
+		c.p.ThresholdFrac, c.p.EdgeNS = th, 100
+		cases = append(cases, c)
+	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			t.Parallel()
