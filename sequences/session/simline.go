@@ -126,7 +126,9 @@ func spread(v timing.Value) sim.Spread {
 // place the variant file and the simulator meet; the simulator computes its
 // own physics from these component values.
 func UnitModel(v *Variant, s StationSim) sim.UnitModel {
-	c := v.Circuit
+	// The simulator takes one value per input: a supply table is read at the
+	// nominal supply (Validate has checked that it covers it).
+	c, _ := v.Circuit.AtSupply(v.Circuit.SupplyV.Typ)
 	return sim.UnitModel{
 		SupplyV: spread(c.SupplyV), OscR: spread(c.OscROhm), OscC: spread(c.OscCF),
 		VTPosFrac: spread(c.VtPosFrac), VTNegFrac: spread(c.VtNegFrac),

@@ -109,6 +109,7 @@ func parseVariant(src Source) (*Variant, error) {
 		v.Serial = re
 	}
 	c := &v.Circuit
+	tabled := readBySupply(d, c)
 	c.SupplyV = d.toleranced("supply_v", mustBePositive)
 	if d.section("oscillator", true) {
 		c.OscROhm = d.toleranced("oscillator.r_ohm", mustBePositive)
@@ -125,13 +126,14 @@ func parseVariant(src Source) (*Variant, error) {
 		c.InputPF = d.toleranced("sense.input_pf", mustBePositive)
 	}
 	if d.section("clock_path", true) {
-		c.DelayNS = d.toleranced("clock_path.delay_ns", mustBePositive)
-		c.SetupNS = d.toleranced("clock_path.setup_ns", mayBeZero)
-		if d.err == nil && c.SetupNS.Typ >= c.DelayNS.Typ {
+		c.DelayNS = d.tolerancedUnless("clock_path.delay_ns", "delay_ns", mustBePositive, tabled)
+		c.SetupNS = d.tolerancedUnless("clock_path.setup_ns", "setup_ns", mayBeZero, tabled)
+		if d.err == nil && c.BySupply == nil && c.SetupNS.Typ >= c.DelayNS.Typ {
 			d.fail("clock_path.setup_ns", "typ %g must be below clock_path.delay_ns typ %g: the nominal unit could never trip", c.SetupNS.Typ, c.DelayNS.Typ)
 		}
 	}
-	c.ThresholdFrac = d.toleranced("threshold_frac", mustBeFraction)
+	c.ThresholdFrac = d.tolerancedUnless("threshold_frac", "threshold_frac", mustBeFraction, tabled)
+	readGate(d, c, tabled)
 	if d.section("spec", true) {
 		v.Spec.NoTripAtPF = d.nonNegative("spec.no_trip_at_pf", true, 0)
 		v.Spec.TripByPF = d.positive("spec.trip_by_pf", true, 0)
