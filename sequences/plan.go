@@ -62,6 +62,12 @@ type PlanConfig struct {
 	Period time.Duration
 	// StepTimeout is each step's fixture-time budget (default 5 s).
 	StepTimeout time.Duration
+	// FoldChecks folds the clock, idle and release checks into the trip
+	// search where the physics allows (see NewPlan). The clock is then
+	// read from the edges the idle samples wait for, which needs a station
+	// that is an EdgeSampler and ClockPeriods > 0; without them the clock is
+	// not measured.
+	FoldChecks bool
 	// Search tunes the trip search; Limits are what the plan judges against.
 	Search SearchOptions
 	Limits Limits
@@ -80,6 +86,20 @@ type Plan struct {
 // power-down step that always runs last. The release check comes before the
 // search: a latch that cannot fall again would make every later probe read
 // high and pass for a low trip point.
+//
+// With FoldChecks the plan is power up, idle, trip search, power down:
+//   - idle samples the bottom level (no rung closed) for IdlePeriods
+//     periods (at least 2), as the idle check does, and reads the unit's
+//     clock from the span of the edges those samples waited for: no edge is
+//     clock_dead, a frequency outside the limits clock_low or clock_high
+//     (judged first, as the clock step would), any high sample idle_latched;
+//   - the trip search books those samples as its own bottom level (so it
+//     does not probe the bottom again) and judges release from its own
+//     probes: the latch is re-sampled every clock period, so a latch that
+//     reads low at any probe after its first high reading has fallen again.
+//     A unit that latched and never read low afterwards, although the
+//     bottom level read low before, is stuck_latched; this is judged before
+//     the trip point, as the release step came before the search.
 func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	if len(levels) < 2 {
 		return nil, fmt.Errorf("plan needs at least 2 ladder levels, have %d", len(levels))
@@ -103,6 +123,12 @@ func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 		p.steps = append(p.steps, Wrap(s, Named(name), Timeout(cfg.StepTimeout)))
 	}
 	add("power_up", StepFunc(p.powerUp))
+	if cfg.FoldChecks {
+		add("idle", StepFunc(p.idleClock))
+		add("trip_search", StepFunc(p.tripSearch))
+		p.powerDown = Wrap(StepFunc(powerDown), Named("power_down"), Timeout(cfg.StepTimeout))
+		return p, nil
+	}
 	if cfg.ClockPeriods > 0 {
 		add("clock", StepFunc(p.clock))
 	}
@@ -246,6 +272,78 @@ func (p *Plan) idle(ctx context.Context, t *Trial) error {
 	})
 }
 
+// EdgeSampler is the optional station capability of sampling the latch and
+// returning the span of clock edges the samples waited for (k−1 periods);
+// *fixture.Fixture has it.
+type EdgeSampler interface {
+	SampleEdges(k int, period time.Duration) (highs int, span time.Duration, err error)
+}
+
+// idleClock is the folded idle check: the bottom level for IdlePeriods
+// (at least 2) periods, the clock read from the samples' edges.
+func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
+	return t.timed("idle", func() error {
+		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
+			return err
+		}
+		k := max(p.cfg.IdlePeriods, 2)
+		es, edges := t.st.(EdgeSampler)
+		edges = edges && p.cfg.ClockPeriods > 0
+		var highs int
+		var span time.Duration
+		var err error
+		if edges {
+			if err = t.check(); err == nil {
+				highs, span, err = es.SampleEdges(k, t.period)
+			}
+		} else {
+			highs, err = t.Sample(k)
+		}
+		lim := p.cfg.Limits
+		if err != nil {
+			if edges && errors.Is(err, fixture.ErrNoClockEdges) {
+				t.Measure("clock_hz", 0, "Hz", lim.ClockLowHz, lim.ClockHighHz)
+				return fail(CodeClockDead, "no edges at the clock test point")
+			}
+			return err
+		}
+		if edges {
+			if !(span > 0) {
+				return fmt.Errorf("%d clock periods in %v: the station clock did not advance", k-1, span)
+			}
+			hz := float64(k-1) / span.Seconds()
+			if t.Measure("clock_hz", hz, "Hz", lim.ClockLowHz, lim.ClockHighHz) == Fail {
+				if hz < lim.ClockLowHz {
+					return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, lim.ClockLowHz)
+				}
+				return fail(CodeClockHigh, "%.1f Hz > %.1f Hz", hz, lim.ClockHighHz)
+			}
+		}
+		t.idle = &ProbeRecord{Level: 0, PF: p.levels[0].PF, K: k, Highs: highs, Phase: "idle"}
+		if t.Measure("idle_highs", float64(highs), "count", 0, 0) == Fail {
+			return fail(CodeIdleLatched, "latch high %d of %d periods at %.2f pF", highs, k, p.levels[0].PF)
+		}
+		return nil
+	})
+}
+
+// releaseLows counts the samples that read low after the first high
+// reading among the probes: 0 with a high reading means the latch never
+// fell again; −1 means it never read high.
+func releaseLows(probes []ProbeRecord) int {
+	lows, latched := 0, false
+	for _, pr := range probes {
+		if latched {
+			lows += pr.K - pr.Highs
+		}
+		latched = latched || pr.Highs > 0
+	}
+	if !latched {
+		return -1
+	}
+	return lows
+}
+
 // prober presents the trial's station to the search as ladder levels and
 // times every probe.
 type prober struct {
@@ -269,7 +367,11 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		pf[i] = l.PF
 	}
 	pr := &prober{t: t, levels: p.levels}
-	res, err := FindTrip(pr, pf, p.cfg.Search)
+	opt := p.cfg.Search
+	if t.idle != nil {
+		opt.Known = append(append([]ProbeRecord(nil), opt.Known...), *t.idle)
+	}
+	res, err := FindTrip(pr, pf, opt)
 	for i, d := range pr.elapsed {
 		if i < len(res.Probes) {
 			t.Phases[res.Probes[i].Phase] += d
@@ -281,6 +383,18 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 	}
 	t.Trip = &res
 	lim := p.cfg.Limits
+	if p.cfg.FoldChecks {
+		if lows := releaseLows(res.Probes); lows >= 0 {
+			prev := t.step
+			t.step = "release"
+			v := t.Measure("release_lows", float64(lows), "count", 1, NoLimit)
+			t.step = prev
+			if v == Fail {
+				return fail(CodeStuckLatched, "latch never read low again after it latched at %.1f pF, though %.2f pF read low before",
+					firstHigh(res.Probes), p.levels[0].PF)
+			}
+		}
+	}
 	if !res.Found {
 		t.Measure("trip_pf", math.NaN(), "pF", lim.TripLowPF, lim.TripHighPF)
 		return fail(CodeNoTrip, "no latch up to %.1f pF", p.levels[len(p.levels)-1].PF)
@@ -339,6 +453,16 @@ func (p *Plan) release(ctx context.Context, t *Trial) error {
 		}
 		return nil
 	})
+}
+
+// firstHigh is the capacitance of the first probe that read high.
+func firstHigh(probes []ProbeRecord) float64 {
+	for _, pr := range probes {
+		if pr.Highs > 0 {
+			return pr.PF
+		}
+	}
+	return math.NaN()
 }
 
 func powerDown(ctx context.Context, t *Trial) error {

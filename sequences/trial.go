@@ -44,6 +44,8 @@ type Trial struct {
 	Trip *TripResult
 	// Probes counts the trip search's probes.
 	Probes int
+
+	idle *ProbeRecord // the folded idle check's samples, for the search
 }
 
 // Run returns the record the trial fills.
