@@ -57,16 +57,8 @@ const floorCells = 64
 // samples at the nearest level z* (none when the bracket alone reaches the
 // target). w is ProbitWeight.
 func TripSearchFloor(levels []float64, sigmaPF, seTargetPF, edgePF float64) (SearchFloor, error) {
-	if len(levels) < 2 {
-		return SearchFloor{}, fmt.Errorf("%d levels: %w", len(levels), ErrSearchLevels)
-	}
-	for i := 1; i < len(levels); i++ {
-		if !(levels[i] > levels[i-1]) {
-			return SearchFloor{}, fmt.Errorf("level %d not above level %d: %w", i, i-1, ErrSearchLevels)
-		}
-	}
-	if !(sigmaPF > 0) || !(seTargetPF > 0) || !(edgePF >= 0) {
-		return SearchFloor{}, fmt.Errorf("σ %g, SE %g, edge %g: %w", sigmaPF, seTargetPF, edgePF, ErrSearchOptions)
+	if err := checkFloorArgs(levels, sigmaPF, seTargetPF, edgePF); err != nil {
+		return SearchFloor{}, err
 	}
 	lo, hi := levels[0]+edgePF, levels[len(levels)-1]-edgePF
 	if !(hi > lo) {
@@ -125,4 +117,30 @@ func floorAt(levels []float64, mu, sigma float64) (probes int, info, best float6
 		}
 	}
 	return probes, info, best
+}
+
+// TripSearchFloorAt is the floor for one trip point mu (see TripSearchFloor):
+// the noiseless bisection's probes, plus the samples at the nearest level
+// that bring the information to 1/SE².
+func TripSearchFloorAt(levels []float64, mu, sigmaPF, seTargetPF float64) (float64, error) {
+	if err := checkFloorArgs(levels, sigmaPF, seTargetPF, 0); err != nil {
+		return 0, err
+	}
+	probes, info, best := floorAt(levels, mu, sigmaPF)
+	return float64(probes) + math.Max(0, 1/(seTargetPF*seTargetPF)-info)/best, nil
+}
+
+func checkFloorArgs(levels []float64, sigmaPF, seTargetPF, edgePF float64) error {
+	if len(levels) < 2 {
+		return fmt.Errorf("%d levels: %w", len(levels), ErrSearchLevels)
+	}
+	for i := 1; i < len(levels); i++ {
+		if !(levels[i] > levels[i-1]) {
+			return fmt.Errorf("level %d not above level %d: %w", i, i-1, ErrSearchLevels)
+		}
+	}
+	if !(sigmaPF > 0) || !(seTargetPF > 0) || !(edgePF >= 0) {
+		return fmt.Errorf("σ %g, SE %g, edge %g: %w", sigmaPF, seTargetPF, edgePF, ErrSearchOptions)
+	}
+	return nil
 }

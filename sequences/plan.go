@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sync"
 	"time"
 
 	"padline/fixture"
@@ -68,6 +69,23 @@ type PlanConfig struct {
 	// that is an EdgeSampler and ClockPeriods > 0; without them the clock is
 	// not measured.
 	FoldChecks bool
+	// RelaySettle is the relays' operate + bounce time. When set (and
+	// Search.MoveCostSamples is 0) the search is told what a change of level
+	// costs: with the clock read from edges, the periods a sample waits
+	// beyond its own, ⌈settle/period⌉ − 1 (0 when the relays settle inside
+	// one period of this unit's clock); without, settle/Period.
+	RelaySettle time.Duration
+	// SigmaWindow is how many recent passing units' fitted σ set the trip
+	// search's prior on σ (default 50; −1: never, keep Search's prior):
+	// once SigmaMinUnits (default 20) of them are in, the prior is centred
+	// on their geometric mean with their SD of ln σ (at least 0.15) — the
+	// variant's recent σ on this station. Until then the prior is Search's
+	// (the variant's expected spread). RecentSigmaPF seeds the window, for
+	// example from the shift log's last runs of the variant. Each run
+	// records the prior it was searched with (prior_sigma_pf,
+	// prior_sigma_log_sd, prior_sigma_units: 0 for the variant's own).
+	SigmaWindow, SigmaMinUnits int
+	RecentSigmaPF              []float64
 	// Search tunes the trip search; Limits are what the plan judges against.
 	Search SearchOptions
 	Limits Limits
@@ -79,6 +97,42 @@ type Plan struct {
 	levels    []Level
 	steps     []Step
 	powerDown Step
+
+	mu     sync.Mutex
+	recent []float64 // ln σ of the last SigmaWindow passing units
+}
+
+// sigmaPrior is the prior on σ for the next unit and how many recent units
+// it rests on (0: the search options' own).
+func (p *Plan) sigmaPrior() (sigmaPF, logSD float64, units int) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.cfg.SigmaWindow < 0 || len(p.recent) < p.cfg.SigmaMinUnits {
+		return 0, 0, 0
+	}
+	var m, m2 float64
+	for _, l := range p.recent {
+		m += l
+	}
+	m /= float64(len(p.recent))
+	for _, l := range p.recent {
+		m2 += (l - m) * (l - m)
+	}
+	sd := math.Sqrt(m2 / float64(len(p.recent)-1))
+	return math.Exp(m), math.Max(sd, 0.15), len(p.recent)
+}
+
+// noteSigma adds a passing unit's fitted σ to the window.
+func (p *Plan) noteSigma(sigmaPF float64) {
+	if p.cfg.SigmaWindow < 0 || !(sigmaPF > 0) || math.IsInf(sigmaPF, 0) {
+		return
+	}
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.recent = append(p.recent, math.Log(sigmaPF))
+	if n := len(p.recent); n > p.cfg.SigmaWindow {
+		p.recent = append(p.recent[:0], p.recent[n-p.cfg.SigmaWindow:]...)
+	}
 }
 
 // NewPlan builds the standard plan — power up and settle, clock frequency
@@ -118,7 +172,16 @@ func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	if cfg.StepTimeout <= 0 {
 		cfg.StepTimeout = 5 * time.Second
 	}
+	if cfg.SigmaWindow == 0 {
+		cfg.SigmaWindow = 50
+	}
+	if cfg.SigmaMinUnits <= 0 {
+		cfg.SigmaMinUnits = 20
+	}
 	p := &Plan{cfg: cfg, levels: levels}
+	for _, sg := range cfg.RecentSigmaPF {
+		p.noteSigma(sg)
+	}
 	add := func(name string, s Step) {
 		p.steps = append(p.steps, Wrap(s, Named(name), Timeout(cfg.StepTimeout)))
 	}
@@ -183,6 +246,9 @@ func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t 
 	switch {
 	case stepErr == nil && downErr == nil:
 		run.Verdict, run.FailCode = Pass, ""
+		if t.Trip != nil && t.Trip.Found && !t.Trip.Below {
+			p.noteSigma(t.Trip.SigmaPF)
+		}
 	case stepErr != nil && errors.As(stepErr, &uf) && downErr == nil:
 		run.Verdict, run.FailCode = Fail, uf.Code
 	default:
@@ -246,6 +312,7 @@ func (p *Plan) clock(ctx context.Context, t *Trial) error {
 			}
 			return err
 		}
+		t.clockHz = hz
 		if t.Measure("clock_hz", hz, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz) == Fail {
 			if hz < p.cfg.Limits.ClockLowHz {
 				return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, p.cfg.Limits.ClockLowHz)
@@ -312,6 +379,7 @@ func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
 				return fmt.Errorf("%d clock periods in %v: the station clock did not advance", k-1, span)
 			}
 			hz := float64(k-1) / span.Seconds()
+			t.clockHz = hz
 			if t.Measure("clock_hz", hz, "Hz", lim.ClockLowHz, lim.ClockHighHz) == Fail {
 				if hz < lim.ClockLowHz {
 					return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, lim.ClockLowHz)
@@ -325,6 +393,16 @@ func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
 		}
 		return nil
 	})
+}
+
+// moveCost is a change of level's cost in sample periods beyond its
+// samples: with a measured clock (hz > 0) the whole periods the relays'
+// settle adds before the next edge, else settle over the fixed period.
+func moveCost(settle time.Duration, hz float64, period time.Duration) float64 {
+	if hz > 0 {
+		return math.Max(0, math.Ceil(settle.Seconds()*hz)-1)
+	}
+	return settle.Seconds() / period.Seconds()
 }
 
 // releaseLows counts the samples that read low after the first high
@@ -368,8 +446,24 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 	}
 	pr := &prober{t: t, levels: p.levels}
 	opt := p.cfg.Search
+	if opt.MoveCostSamples == 0 && p.cfg.RelaySettle > 0 {
+		opt.MoveCostSamples = moveCost(p.cfg.RelaySettle, t.clockHz, p.cfg.Period)
+	}
 	if t.idle != nil {
 		opt.Known = append(append([]ProbeRecord(nil), opt.Known...), *t.idle)
+	}
+	if opt.Refine != Laplace {
+		sg, lsd, units := p.sigmaPrior()
+		if units > 0 {
+			opt.SpreadPriorPF, opt.SpreadPriorLogSD = sg*spreadPerSigma, lsd
+		}
+		o, err := opt.withDefaults()
+		if err != nil {
+			return err
+		}
+		t.Measure("prior_sigma_pf", o.SpreadPriorPF/spreadPerSigma, "pF", NoLimit, NoLimit)
+		t.Measure("prior_sigma_log_sd", o.SpreadPriorLogSD, "", NoLimit, NoLimit)
+		t.Measure("prior_sigma_units", float64(units), "count", NoLimit, NoLimit)
 	}
 	res, err := FindTrip(pr, pf, opt)
 	for i, d := range pr.elapsed {

@@ -163,3 +163,38 @@ func TestPlanNoisyNotWorse(t *testing.T) {
 		})
 	}
 }
+
+// TestPlanSigmaPriorFromRecentUnits: after SigmaMinUnits passing units the
+// plan searches with a prior on σ centred on their fitted σ (the fake
+// unit's is 0.25 pF) and records it with each run.
+func TestPlanSigmaPriorFromRecentUnits(t *testing.T) {
+	levels := demoLevels(t)
+	cfg := foldConfig()
+	cfg.SigmaWindow, cfg.SigmaMinUnits = 30, 20
+	p, err := sequences.NewPlan(cfg, levels)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := range 25 {
+		f := newFake(levels, uint64(100+i))
+		run := &sequences.Run{Serial: "QM205-000001"}
+		if _, err := p.Execute(context.Background(), f, f.clock, run); err != nil || run.Verdict != sequences.Pass {
+			t.Fatalf("unit %d: %v %v", i, run.Verdict, err)
+		}
+		m := measurements(t, run)
+		units := m["prior_sigma_units"].Value
+		if want := float64(max(0, i)); i < 20 && units != 0 || i >= 20 && units != want {
+			t.Errorf("unit %d: prior from %g units", i, units)
+		}
+		if i >= 20 {
+			// 20+ fitted σ of a 0.25 pF unit: their geometric mean lies
+			// well within a factor 1.5 of it.
+			if sg := m["prior_sigma_pf"].Value; sg < 0.25/1.5 || sg > 0.25*1.5 {
+				t.Errorf("unit %d: prior σ %.3f pF, the units' σ is 0.25 pF", i, sg)
+			}
+			if lsd := m["prior_sigma_log_sd"].Value; lsd < 0.15 || lsd > 0.7 {
+				t.Errorf("unit %d: prior ln-SD %.3f", i, lsd)
+			}
+		}
+	}
+}

@@ -45,7 +45,8 @@ type Trial struct {
 	// Probes counts the trip search's probes.
 	Probes int
 
-	idle *ProbeRecord // the folded idle check's samples, for the search
+	idle    *ProbeRecord // the folded idle check's samples, for the search
+	clockHz float64      // the unit's measured clock, 0 until measured
 }
 
 // Run returns the record the trial fills.

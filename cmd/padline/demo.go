@@ -54,9 +54,11 @@ floor of a real bench, never below it.
 The summary gives the yield, the count per fail code, which defects ended in
 which fail code, the trip accuracy against the simulator's ground truth on
 good units, and fixture time per unit split into fixed steps, bracketing and
-refinement. --compare-search runs the same units again with the plain
-staircase (one sample per ladder value from the bottom up) and shows both
-side by side.
+refinement, and the search's floor: the fewest samples any search could
+expect with the unit's transition known. --compare-search runs the same
+units again with the earlier plan (laplace: separate clock, idle and release
+checks, guard levels on every unit) and with the plain staircase (one sample
+per ladder value from the bottom up) and shows them side by side.
 
 --drift-at N --drift-pf D puts a step into the shift: from unit N on, the
 pad laminate changes and the pad capacitance mean drops by D pF, so units
@@ -81,7 +83,7 @@ first alarm at or after unit N: chart, rule, unit and lag.`,
 	f.IntVar(&o.units, "units", 500, "number of units in the shift")
 	f.Uint64Var(&o.seed, "seed", 1, "seed of the simulated units and fixture (same seed, same shift)")
 	f.StringVar(&o.db, "db", "", "shift log to write (default: a temporary file, removed afterwards)")
-	f.StringVar(&o.search, "search", "bracket", "trip search: bracket or staircase")
+	f.StringVar(&o.search, "search", "bracket", "trip search: bracket, staircase or laplace (the earlier plan: separate clock, idle and release checks)")
 	f.BoolVar(&o.compare, "compare-search", false, "run the same units with the staircase too and compare")
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per unit, then a summary object")
 	f.IntVar(&o.drift.at, "drift-at", 0, "unit from which the pad capacitance drops (trip points step up); 0 = no step")
@@ -106,7 +108,9 @@ type demoUnit struct {
 	spreadPF     float64
 	trueSpreadPF float64
 	phases       map[string]time.Duration
-	bound        time.Duration // noiseless bracketing bound
+	samples      int           // the trip search's latch samples
+	floorSamples float64       // the search floor at this unit's trip point and transition
+	floorTime    time.Duration // floorSamples unit clock periods
 }
 
 func (a *app) demo(ctx context.Context, o demoOptions) error {
@@ -158,7 +162,7 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 	}
 	strategies := []string{o.search}
 	if o.compare {
-		strategies = []string{"bracket", "staircase"}
+		strategies = []string{"bracket", searchLaplace, "staircase"}
 	}
 	var results [][]demoUnit
 	var cpu []time.Duration
@@ -258,7 +262,11 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 		},
 	}
 	settle := st.Ladder.Operate + st.Ladder.Bounce
-	bisect := math.Ceil(math.Log2(float64(len(lv))))
+	cfg.RelaySettle = settle
+	lvPF := make([]float64, len(lv))
+	for i, l := range lv {
+		lvPF[i] = l.PF
+	}
 	prog := newProgress(a.stderr, len(serials), "testing ("+strategy+")", quiet)
 	out := make([]demoUnit, 0, len(serials))
 	base := unitModel(v, st.Sim)
@@ -291,8 +299,17 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 		if tr := oc.Trial.Trip; tr != nil && tr.Found && !tr.Below {
 			du.TripPF, du.TripSEPF, du.spreadPF = ptr(tr.TripPF), ptr(tr.SEPF), tr.SpreadPF
 		}
-		if truth.ClockHz > 0 {
-			du.bound = time.Duration(bisect) * (settle + time.Duration(1e9/truth.ClockHz))
+		if tr := oc.Trial.Trip; tr != nil {
+			du.samples = tr.Samples
+		}
+		if truth.Trip == sim.TripsAt && truth.ClockHz > 0 && len(truth.Defects) == 0 {
+			// The floor in the station's basis: the level set as entered,
+			// the unit's trip and transition as the simulator knows them.
+			fl, err := sequences.TripSearchFloorAt(lvPF, truth.TripPF, truth.TransitionPF/(2*1.2815515655446004), cfg.Search.SETargetPF)
+			if err == nil {
+				du.floorSamples = fl
+				du.floorTime = time.Duration(fl * 1e9 / truth.ClockHz)
+			}
 		}
 		out = append(out, du)
 		prog.step()
@@ -344,7 +361,10 @@ type demoStats struct {
 	RelayOpsMean      float64                   `json:"relay_ops_mean"`
 	FixtureMSMean     float64                   `json:"fixture_ms_mean"`
 	PhaseMSMean       map[string]float64        `json:"phase_ms_mean"`
-	BracketBoundMS    float64                   `json:"bracket_bound_ms_mean"`
+	SearchSamples     float64                   `json:"search_samples_mean"`
+	FloorSamples      float64                   `json:"search_floor_samples_mean"`
+	FloorMS           float64                   `json:"search_floor_ms_mean"`
+	SearchMS          float64                   `json:"search_ms_mean"`
 	CPUPerUnitMS      float64                   `json:"cpu_ms_per_unit"`
 	WallS             float64                   `json:"wall_s"`
 }
@@ -357,6 +377,7 @@ func summarise(strategy string, us []demoUnit, cpu, wall time.Duration) demoStat
 		DefectOutcomes: map[string]map[string]int{}, PhaseMSMean: map[string]float64{}}
 	var sq, bias float64
 	var errs, spreads, trueSpreads []float64
+	nf := 0 // good units with a floor
 	for _, u := range us {
 		switch u.Verdict {
 		case "pass":
@@ -385,9 +406,17 @@ func summarise(strategy string, us []demoUnit, cpu, wall time.Duration) demoStat
 		for ph, d := range u.phases {
 			s.PhaseMSMean[ph] += ms(d)
 		}
-		s.BracketBoundMS += ms(u.bound)
 		if len(u.Defects) > 0 {
 			continue
+		}
+		if u.floorSamples > 0 {
+			nf++
+			s.SearchSamples += float64(u.samples)
+			s.FloorSamples += u.floorSamples
+			s.FloorMS += ms(u.floorTime)
+			for _, ph := range []string{sequences.PhaseBracket, sequences.PhaseClimb, sequences.PhaseRefine, sequences.PhaseGuard} {
+				s.SearchMS += ms(u.phases[ph])
+			}
 		}
 		s.GoodUnits++
 		if u.Verdict != "pass" {
@@ -408,7 +437,12 @@ func summarise(strategy string, us []demoUnit, cpu, wall time.Duration) demoStat
 	s.ProbesMean /= n
 	s.RelayOpsMean /= n
 	s.FixtureMSMean /= n
-	s.BracketBoundMS /= n
+	if nf > 0 {
+		s.SearchSamples /= float64(nf)
+		s.FloorSamples /= float64(nf)
+		s.FloorMS /= float64(nf)
+		s.SearchMS /= float64(nf)
+	}
 	for ph := range s.PhaseMSMean {
 		s.PhaseMSMean[ph] /= n
 	}
@@ -528,13 +562,16 @@ func writeDemoSummary(w io.Writer, v *Variant, st *Station, rep timing.Report, d
 	row("probes per unit", func(x demoStats) float64 { return x.ProbesMean })
 	row("relay operations per unit", func(x demoStats) float64 { return x.RelayOpsMean })
 	row("trip RMS error, pF ×1000", func(x demoStats) float64 { return 1000 * x.TripRMSErrPF })
-	fmt.Fprintf(w, "  noiseless bisection bound: %.1f ms (⌈log2 L⌉ probes × (settle + one unit period))\n", s.BracketBoundMS)
-	if len(ss) == 2 {
-		b, c := ss[0], ss[1]
-		br := b.PhaseMSMean[sequences.PhaseBracket]
-		cl := c.PhaseMSMean[sequences.PhaseClimb]
-		fmt.Fprintf(w, "  bracketing is %.1f× faster than the climb; whole unit %.1f× faster (%.1f ms saved)\n",
-			cl/br, c.FixtureMSMean/b.FixtureMSMean, c.FixtureMSMean-b.FixtureMSMean)
+	row("search samples, good units", func(x demoStats) float64 { return x.SearchSamples })
+	fmt.Fprintf(w, "  search floor on good units: %.1f samples = %.1f ms at each unit's clock (the bisection's probes, then\n", s.FloorSamples, s.FloorMS)
+	fmt.Fprintf(w, "  the samples at the nearest level that reach SE %.2f pF with the transition known; relays settle inside a\n", v.Plan.Search.SETargetPF)
+	fmt.Fprintf(w, "  period here); the %s search took %.1f samples, %.1f ms (%.2f× the floor)\n", s.Strategy, s.SearchSamples, s.SearchMS, s.SearchSamples/s.FloorSamples)
+	for _, c := range ss[1:] {
+		if c.Strategy == "staircase" {
+			b := ss[0]
+			fmt.Fprintf(w, "  bracketing is %.1f× faster than the climb; whole unit %.1f× faster (%.1f ms saved)\n",
+				c.PhaseMSMean[sequences.PhaseClimb]/b.PhaseMSMean[sequences.PhaseBracket], c.FixtureMSMean/b.FixtureMSMean, c.FixtureMSMean-b.FixtureMSMean)
+		}
 	}
 	fmt.Fprintf(w, "\ncomputer time    %.3f ms CPU per unit, %.2f s wall for %d units\n", s.CPUPerUnitMS, s.WallS, s.Units)
 	if keep {

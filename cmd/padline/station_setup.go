@@ -17,8 +17,15 @@ func planConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 	if strategy == "" {
 		strategy = p.Search.Strategy
 	}
+	// "laplace" is the plan as it was before the posterior search: separate
+	// clock, idle and release steps and the Laplace refinement, kept to
+	// compare against.
+	refine, fold := sequences.Posterior, true
+	if strategy == searchLaplace {
+		strategy, refine, fold = string(sequences.Bracket), sequences.Laplace, false
+	}
 	if strategy != string(sequences.Bracket) && strategy != string(sequences.Staircase) {
-		return sequences.PlanConfig{}, fmt.Errorf("--search %q: want bracket or staircase", strategy)
+		return sequences.PlanConfig{}, fmt.Errorf("--search %q: want bracket, staircase or %s", strategy, searchLaplace)
 	}
 	if rep.TestLimits.Low >= rep.TestLimits.High {
 		return sequences.PlanConfig{}, fmt.Errorf("variant %s: test limits %.2f … %.2f pF leave nothing to pass: see 'padline limits --variant %s'",
@@ -32,8 +39,10 @@ func planConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 		// unit can have, so every wait spans at least one latch update.
 		Period:      time.Duration(math.Ceil(1e9 / rep.Clock.CornerLow)),
 		StepTimeout: 5 * time.Second,
+		FoldChecks:  fold,
 		Search: sequences.SearchOptions{
 			Strategy:         sequences.Strategy(strategy),
+			Refine:           refine,
 			SETargetPF:       p.Search.SETargetPF,
 			MaxRefineSamples: p.Search.MaxRefineSamples,
 		},
@@ -48,6 +57,9 @@ func planConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 	}
 	return cfg, nil
 }
+
+// searchLaplace names the earlier plan for --search.
+const searchLaplace = "laplace"
 
 // stationU is the guard band a station applies: its own stated uncertainty,
 // else the documented stand-in.
