@@ -122,9 +122,34 @@ func (p *Plan) sigmaPrior() (sigmaPF, logSD float64, units int) {
 	return math.Exp(m), math.Max(sd, 0.15), len(p.recent)
 }
 
+// ownSigma refits a unit's samples with the search options' own prior on
+// σ (the variant's), not the running one it was searched with: the window
+// must not feed on its own prior.
+func (p *Plan) ownSigma(t *Trial) float64 {
+	var data []Tally
+	if t.idle != nil {
+		data = append(data, Tally{PF: t.idle.PF, N: t.idle.K, Highs: t.idle.Highs})
+	}
+	for _, pr := range t.Trip.Probes {
+		data = append(data, Tally{PF: pr.PF, N: pr.K, Highs: pr.Highs})
+	}
+	o, err := p.cfg.Search.withDefaults()
+	if err != nil {
+		return math.NaN()
+	}
+	// The posterior geometric mean of σ, not the maximum: with the samples
+	// a search takes, most near the trip point, the maximum of ln σ lies
+	// well below the truth (by about a quarter on the demo line).
+	g := newTripGrid(t.Trip.TripPF, ProbitPrior{SigmaPF: o.SpreadPriorPF / spreadPerSigma, LogSD: o.SpreadPriorLogSD}, 0, 0, o.SETargetPF)
+	for _, d := range data {
+		g.add(d.PF, d.N, d.Highs)
+	}
+	return g.moments().SigmaPF
+}
+
 // noteSigma adds a passing unit's fitted σ to the window.
 func (p *Plan) noteSigma(sigmaPF float64) {
-	if p.cfg.SigmaWindow < 0 || !(sigmaPF > 0) || math.IsInf(sigmaPF, 0) {
+	if p.cfg.SigmaWindow < 0 || !(sigmaPF > 0) || math.IsInf(sigmaPF, 0) || math.IsNaN(sigmaPF) {
 		return
 	}
 	p.mu.Lock()
@@ -142,11 +167,13 @@ func (p *Plan) noteSigma(sigmaPF float64) {
 // high and pass for a low trip point.
 //
 // With FoldChecks the plan is power up, idle, trip search, power down:
-//   - idle samples the bottom level (no rung closed) for IdlePeriods
-//     periods (at least 2), as the idle check does, and reads the unit's
-//     clock from the span of the edges those samples waited for: no edge is
+//   - idle samples the bottom level (no rung closed) for 3 periods (fewer
+//     when IdlePeriods is smaller, at least 2) and reads the unit's clock
+//     from the span of the edges those samples waited for: no edge is
 //     clock_dead, a frequency outside the limits clock_low or clock_high
-//     (judged first, as the clock step would), any high sample idle_latched;
+//     (judged first, as the clock step would), any high sample
+//     idle_latched. The rest of the IdlePeriods low readings come from the
+//     search (see idleRest), after the release judgement;
 //   - the trip search books those samples as its own bottom level (so it
 //     does not probe the bottom again) and judges release from its own
 //     probes: the latch is re-sampled every clock period, so a latch that
@@ -246,8 +273,8 @@ func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t 
 	switch {
 	case stepErr == nil && downErr == nil:
 		run.Verdict, run.FailCode = Pass, ""
-		if t.Trip != nil && t.Trip.Found && !t.Trip.Below {
-			p.noteSigma(t.Trip.SigmaPF)
+		if t.Trip != nil && t.Trip.Found && !t.Trip.Below && p.cfg.SigmaWindow > 0 {
+			p.noteSigma(p.ownSigma(t))
 		}
 	case stepErr != nil && errors.As(stepErr, &uf) && downErr == nil:
 		run.Verdict, run.FailCode = Fail, uf.Code
@@ -353,7 +380,7 @@ func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
 		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
 			return err
 		}
-		k := max(p.cfg.IdlePeriods, 2)
+		k := idleLead(p.cfg.IdlePeriods)
 		es, edges := t.st.(EdgeSampler)
 		edges = edges && p.cfg.ClockPeriods > 0
 		var highs int
@@ -403,6 +430,48 @@ func moveCost(settle time.Duration, hz float64, period time.Duration) float64 {
 		return math.Max(0, math.Ceil(settle.Seconds()*hz)-1)
 	}
 	return settle.Seconds() / period.Seconds()
+}
+
+// idleLead is how many of the idle periods the folded idle check samples
+// at the bottom level before the search: 3 (a two-period span for the
+// clock), or all of them when fewer are asked.
+func idleLead(idlePeriods int) int { return max(min(idlePeriods, 3), 2) }
+
+// idleRest completes the folded idle check after the search: the latch
+// must have read low IdlePeriods times with the ladder at or above the
+// bottom level. A low reading at a higher capacitance is stronger evidence
+// than one at the bottom (the race only slows as capacitance grows, so a
+// latch low at C stays low below C), so the search's low readings count;
+// any shortfall is sampled at the bottom level.
+func (p *Plan) idleRest(t *Trial, probes []ProbeRecord) error {
+	if t.idle == nil {
+		return nil
+	}
+	lows := t.idle.K - t.idle.Highs
+	for _, pr := range probes {
+		lows += pr.K - pr.Highs
+	}
+	highs := 0
+	if short := p.cfg.IdlePeriods - lows; short > 0 {
+		start := t.clock.Now()
+		err := t.SetPattern(p.levels[0].Pattern)
+		if err == nil {
+			highs, err = t.Sample(short)
+		}
+		t.Phases["idle"] += t.clock.Now().Sub(start)
+		if err != nil {
+			return err
+		}
+		lows += short - highs
+	}
+	prev := t.step
+	t.step = "idle"
+	v := t.Measure("idle_lows", float64(lows), "count", float64(p.cfg.IdlePeriods), NoLimit)
+	t.step = prev
+	if highs > 0 || v == Fail {
+		return fail(CodeIdleLatched, "latch high %d times at %.2f pF after the search", highs, p.levels[0].PF)
+	}
+	return nil
 }
 
 // releaseLows counts the samples that read low after the first high
@@ -487,6 +556,9 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 				return fail(CodeStuckLatched, "latch never read low again after it latched at %.1f pF, though %.2f pF read low before",
 					firstHigh(res.Probes), p.levels[0].PF)
 			}
+		}
+		if err := p.idleRest(t, res.Probes); err != nil {
+			return err
 		}
 	}
 	if !res.Found {

@@ -75,8 +75,8 @@ func TestPlanFoldedFailCodes(t *testing.T) {
 					if hz := m["clock_hz"].Value; hz < 464.999 || hz > 465.001 {
 						t.Errorf("seed %d: clock %.4f Hz from the sample edges, want 465", seed, hz)
 					}
-					if m["release_lows"].Value < 1 || m["idle_highs"].Value != 0 {
-						t.Errorf("seed %d: release %v idle %v", seed, m["release_lows"], m["idle_highs"])
+					if m["release_lows"].Value < 1 || m["idle_highs"].Value != 0 || m["idle_lows"].Value < 8 {
+						t.Errorf("seed %d: release %v idle %v %v", seed, m["release_lows"], m["idle_highs"], m["idle_lows"])
 					}
 				}
 				f.checkSafe(t)
