@@ -388,7 +388,12 @@ func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
 		var err error
 		if edges {
 			if err = t.check(); err == nil {
-				highs, span, err = es.SampleEdges(k, t.period)
+				// Wait for each edge as long as the clock step's gate
+				// would ((ClockPeriods + 4) slowest periods; the fixture
+				// waits four of the periods given): a clock far below its
+				// limits is clock_low, not clock_dead.
+				wait := t.period * time.Duration(p.cfg.ClockPeriods+4) / 4
+				highs, span, err = es.SampleEdges(k, wait)
 			}
 		} else {
 			highs, err = t.Sample(k)
