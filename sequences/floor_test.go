@@ -150,3 +150,28 @@ func TestTripSearchFloor(t *testing.T) {
 		t.Errorf("wide σ: %.3f samples, want (π/2)(σ/SE)² = %.3f", f.Samples, want)
 	}
 }
+
+// TestTripSearchFloorAt: the per-trip-point floor averages to the floor.
+func TestTripSearchFloorAt(t *testing.T) {
+	levels := synthLevels()
+	f, err := sequences.TripSearchFloor(levels, 0.25, 0.1, 0.5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	lo, hi := levels[0]+0.5, levels[255]-0.5
+	n := int(math.Ceil((hi - lo) / 0.5 * 64)) // TripSearchFloor's midpoint cells
+	var sum float64
+	for i := range n {
+		s, err := sequences.TripSearchFloorAt(levels, lo+(hi-lo)*(float64(i)+0.5)/float64(n), 0.25, 0.1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sum += s
+	}
+	if got := sum / float64(n); !(math.Abs(got-f.Samples) <= 1e-9*f.Samples) {
+		t.Errorf("mean of TripSearchFloorAt %.6f, TripSearchFloor %.6f", got, f.Samples)
+	}
+	if _, err := sequences.TripSearchFloorAt(levels, 30, 0, 0.1); err == nil {
+		t.Error("σ 0 accepted")
+	}
+}

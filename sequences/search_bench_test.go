@@ -27,9 +27,9 @@ type searchFigures struct {
 // searchRun runs n synthetic probit units (no calibration error: the
 // search's own statistics) at spread sigma with a sample cap far above any
 // need, so a stall shows in the sample counts.
-func searchRun(t testing.TB, n int, seed uint64, sigma, se float64, refine sequences.Refinement, logSD float64) searchFigures {
+func searchRun(t testing.TB, n int, seed uint64, sigma, se float64, refine sequences.Refinement, logSD float64, peek int) searchFigures {
 	rng := rand.New(rand.NewPCG(seed, 0x5eed))
-	opt := sequences.SearchOptions{Refine: refine, SETargetPF: se, MaxRefineSamples: 2000}
+	opt := sequences.SearchOptions{Refine: refine, SETargetPF: se, MaxRefineSamples: 2000, GuardPeekK: peek}
 	if logSD > 0 {
 		opt.SpreadPriorPF, opt.SpreadPriorLogSD = 2*1.2815515655446004*sigma, logSD
 	}
@@ -69,9 +69,10 @@ func searchRun(t testing.TB, n int, seed uint64, sigma, se float64, refine seque
 
 // BenchmarkSearchTargets prints, for the posterior search beside the
 // Laplace one it replaces, the figures of the search's targets on the demo
-// station's ladder (256 levels 0.5 pF apart): samples per unit against the
-// floor (TripSearchFloor), p95/mean, and RMS(error/SE) at spreads σ 0.15,
-// 0.25, 0.35 pF and SE targets 0.1 and 0.05 pF. Run it once:
+// station's ladder (256 levels 0.5 pF apart): samples per unit (every
+// sample: bracket, refinement and guards) against the floor
+// (TripSearchFloor), p95/mean, and RMS(error/SE) at spreads σ 0.15, 0.25,
+// 0.35 pF and SE targets 0.1 and 0.05 pF. Run it once:
 //
 //	go test ./sequences -run '^$' -bench SearchTargets -benchtime 1x
 func BenchmarkSearchTargets(b *testing.B) {
@@ -80,32 +81,37 @@ func BenchmarkSearchTargets(b *testing.B) {
 	}
 }
 
+// searchConfigs are the searches the benchmark compares.
+var searchConfigs = []struct {
+	name   string
+	refine sequences.Refinement
+	logSD  float64 // prior on σ centred on the truth with this ln-SD; 0: the default prior
+	peek   int
+}{
+	{"posterior, σ prior from recent units (ln-SD 0.25), guard peek 2+2", sequences.Posterior, 0.25, 0},
+	{"posterior, same prior, guards only when suspect", sequences.Posterior, 0.25, -1},
+	{"posterior, the variant's default prior (0.6 pF spread, ln-SD 0.7)", sequences.Posterior, 0, 0},
+	{"laplace (today's search)", sequences.Laplace, 0, 0},
+}
+
 func writeSearchTargets(t testing.TB, w io.Writer, n int) {
 	levels := synthLevels()
-	fmt.Fprintf(w, "trip search on 256 levels 0.5 pF apart, %d synthetic probit units per row (no calibration error)\n", n)
-	fmt.Fprintf(w, "%-5s %-5s %7s | %-28s | %-28s\n", "SE", "σ", "floor", "posterior (new)", "laplace (today)")
-	fmt.Fprintf(w, "%-5s %-5s %7s | %6s %5s %5s %5s %4s | %6s %5s %5s %5s %4s\n", "pF", "pF", "samples",
-		"mean", "/flr", "p95/m", "rmsZ", "cap", "mean", "/flr", "p95/m", "rmsZ", "cap")
-	for _, se := range []float64{0.1, 0.05} {
-		for i, sigma := range []float64{0.15, 0.25, 0.35} {
-			fl, err := sequences.TripSearchFloor(levels, sigma, se, 0.5)
-			if err != nil {
-				t.Fatal(err)
-			}
-			fmt.Fprintf(w, "%-5.2f %-5.2f %7.1f", se, sigma, fl.Samples)
-			first := true
-			for _, r := range []sequences.Refinement{sequences.Posterior, sequences.Posterior, sequences.Laplace} {
-				lsd := 0.0
-				if r == sequences.Posterior && first {
-					lsd = 0.25
+	fmt.Fprintf(w, "trip search on 256 levels 0.5 pF apart, %d synthetic probit units per row (μ uniform, no calibration error)\n", n)
+	for ci, c := range searchConfigs {
+		fmt.Fprintf(w, "\n%s\n", c.name)
+		fmt.Fprintf(w, "  %-5s %-5s %7s %8s %6s %6s %6s %7s %6s\n", "SE", "σ", "floor", "samples", "÷floor", "p95/m", "rmsZ", "RMS pF", "capped")
+		for _, se := range []float64{0.1, 0.05} {
+			for i, sigma := range []float64{0.15, 0.25, 0.35} {
+				fl, err := sequences.TripSearchFloor(levels, sigma, se, 0.5)
+				if err != nil {
+					t.Fatal(err)
 				}
-				first = !first
-				f := searchRun(t, n, uint64(100+i), sigma, se, r, lsd)
-				fmt.Fprintf(w, " | %6.1f %5.2f %5.2f %5.2f %4d", f.meanSamples, f.meanSamples/fl.Samples,
-					f.p95Samples/f.meanSamples, f.rmsZ, f.capped)
+				f := searchRun(t, n, uint64(100+i), sigma, se, c.refine, c.logSD, c.peek)
+				fmt.Fprintf(w, "  %-5.2f %-5.2f %7.1f %8.1f %6.2f %6.2f %6.2f %7.3f %6d\n", se, sigma, fl.Samples, f.meanSamples,
+					f.meanSamples/fl.Samples, f.p95Samples/f.meanSamples, f.rmsZ, f.rmsErr, f.capped)
 			}
-			fmt.Fprintln(w)
 		}
+		_ = ci
 	}
-	fmt.Fprintln(w, "targets: samples ≤ 1.25 × floor at SE 0.1, ≤ 1.4 × at SE 0.05; p95 ≤ 3 × mean; RMS(error/SE) 0.9–1.1")
+	fmt.Fprintln(w, "\ntargets: samples ≤ 1.25 × floor at SE 0.1 pF, ≤ 1.4 × at SE 0.05 pF; p95 ≤ 3 × mean; RMS(error/SE) 0.9–1.1")
 }
