@@ -203,7 +203,7 @@ func TestFindTripAccuracy(t *testing.T) {
 				if st.rms() > 0.2 || st.maxErr > 1.0 {
 					t.Errorf("RMS error %.3f pF (target ≤ 0.2), max %.3f pF (≤ 1.0)", st.rms(), st.maxErr)
 				}
-				// Issue 8's budget was 32 refinement samples per unit. The
+				// The earlier budget was 32 refinement samples per unit. The
 				// reported SE is now the posterior's, calibrated (the
 				// Laplace SE claimed 0.1 pF where the error was 0.14 at σ
 				// 0.35), so reaching it takes more samples on wide units:
