@@ -198,3 +198,30 @@ func TestPlanSigmaPriorFromRecentUnits(t *testing.T) {
 		}
 	}
 }
+
+// plainStation hides every optional capability of the station it wraps.
+type plainStation struct{ sequences.Station }
+
+// TestPlanFoldedWithoutEdges: a station that cannot time its samples'
+// edges still has its unit's clock measured and judged, apart.
+func TestPlanFoldedWithoutEdges(t *testing.T) {
+	levels := demoLevels(t)
+	for _, tc := range []struct {
+		hz   float64
+		code string
+	}{{465, ""}, {300, sequences.CodeClockLow}, {0, sequences.CodeClockDead}} {
+		f := newFake(levels, 1)
+		f.ClockHz = tc.hz
+		p, err := sequences.NewPlan(foldConfig(), levels)
+		if err != nil {
+			t.Fatal(err)
+		}
+		run := &sequences.Run{Serial: "QM205-000001"}
+		if _, err := p.Execute(context.Background(), plainStation{f}, f.clock, run); err != nil {
+			t.Fatal(err)
+		}
+		if run.FailCode != tc.code || f.Calls["measure_clock"] != 1 {
+			t.Errorf("%g Hz: code %q after %d clock measurements, want %q after 1", tc.hz, run.FailCode, f.Calls["measure_clock"], tc.code)
+		}
+	}
+}
