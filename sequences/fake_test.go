@@ -86,9 +86,9 @@ type fakeStation struct {
 var _ sequences.Station = (*fakeStation)(nil)
 
 // newFake returns a station holding a good QM-205 unit: trip 29.7 pF,
-// oscillator 465 Hz (testdata/variants/QM-205.yaml by DESIGN.md §4), a
+// oscillator 465 Hz (testdata/variants/QM-205.yaml by DEVELOPERS.md "Physics"), a
 // 10–90 % transition of 0.64 pF (σ = 0.64/2.5631 = 0.25 pF, the realism
-// floor's noise of DESIGN.md §12 on that unit),
+// floor's noise of DEVELOPERS.md "Simulator realism floor" on that unit),
 // on the levels given.
 func newFake(levels []sequences.Level, seed uint64) *fakeStation {
 	m := make(map[uint16]float64, len(levels))
@@ -102,7 +102,7 @@ func newFake(levels []sequences.Level, seed uint64) *fakeStation {
 		levels: m,
 		TripPF: 29.7, SigmaPF: 0.25, ClockHz: 465,
 		ClockWired: true,
-		// Reed relays: operate 0.5 ms + bounce 0.5 ms (DESIGN.md §12).
+		// Reed relays: operate 0.5 ms + bounce 0.5 ms (DEVELOPERS.md "Simulator realism floor").
 		Settle: time.Millisecond,
 		Calls:  map[string]int{},
 	}

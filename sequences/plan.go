@@ -15,30 +15,35 @@ import (
 // (closed rungs plus the fixture's calibrated stray) and its rung pattern.
 type Level = fixture.Level
 
+// FailCode is the short snake_case reason a run did not pass: a unit fail
+// code or a station-fault code. The README's fail-code table lists them
+// with the technician's action (FailAction).
+type FailCode string
+
 // Fail codes: the short reason a unit failed, one per failing check.
 const (
-	CodeClockDead    = "clock_dead"    // no oscillator edges at the clock test point
-	CodeClockLow     = "clock_low"     // oscillator below its limits
-	CodeClockHigh    = "clock_high"    // oscillator above its limits
-	CodeIdleLatched  = "idle_latched"  // latch high with no ladder rung closed
-	CodeNoTrip       = "no_trip"       // never latched anywhere on the ladder
-	CodeTripLow      = "trip_low"      // trip point below the low test limit
-	CodeTripHigh     = "trip_high"     // trip point above the high test limit
-	CodeTripNoisy    = "trip_noisy"    // trip transition wider than allowed
-	CodeStuckLatched = "stuck_latched" // latch stays high after the ladder opens
+	CodeClockDead    FailCode = "clock_dead"    // no oscillator edges at the clock test point
+	CodeClockLow     FailCode = "clock_low"     // oscillator below its limits
+	CodeClockHigh    FailCode = "clock_high"    // oscillator above its limits
+	CodeIdleLatched  FailCode = "idle_latched"  // latch high with no ladder rung closed
+	CodeNoTrip       FailCode = "no_trip"       // never latched anywhere on the ladder
+	CodeTripLow      FailCode = "trip_low"      // trip point below the low test limit
+	CodeTripHigh     FailCode = "trip_high"     // trip point above the high test limit
+	CodeTripNoisy    FailCode = "trip_noisy"    // trip transition wider than allowed
+	CodeStuckLatched FailCode = "stuck_latched" // latch stays high after the ladder opens
 )
 
 // Station-fault codes: why the station, not the unit, could not finish.
 const (
-	CodeLidOpen      = "lid_open"
-	CodeStepTimeout  = "step_timeout"
-	CodePinError     = "pin_error"
-	CodeStationError = "station_error"
+	CodeLidOpen      FailCode = "lid_open"
+	CodeStepTimeout  FailCode = "step_timeout"
+	CodePinError     FailCode = "pin_error"
+	CodeStationError FailCode = "station_error"
 )
 
 // ErrAborted is returned by Execute when its context ended mid-unit: the
 // unit has no verdict and must not be logged as tested.
-var ErrAborted = errors.New("sequences: run aborted")
+var ErrAborted = errors.New("unit stopped before its verdict")
 
 // Limits are the test limits a plan judges against.
 type Limits struct {
@@ -91,11 +96,49 @@ type PlanConfig struct {
 	Limits Limits
 }
 
+// StepName names a step of a plan; every measurement carries one.
+type StepName string
+
+// Step names: every run's measurements carry one, and a StepObserver is
+// told each as it finishes.
+const (
+	StepPowerUp    StepName = "power_up"
+	StepClock      StepName = "clock"
+	StepIdle       StepName = "idle"
+	StepRelease    StepName = "release"
+	StepTripSearch StepName = "trip_search"
+	StepPowerDown  StepName = "power_down"
+	// StepRetest is the pseudo-step of the measurement that flags a pass
+	// after fails (MeasPriorFails).
+	StepRetest StepName = "retest"
+)
+
+// Quantity names a measurement.
+type Quantity string
+
+// Measurement names.
+const (
+	MeasClockHz      Quantity = "clock_hz"      // oscillator frequency at the clock test point
+	MeasIdleHighs    Quantity = "idle_highs"    // latch highs with no rung closed
+	MeasReleaseHighs Quantity = "release_highs" // latch highs after the ladder opens
+	MeasTripPF       Quantity = "trip_pf"       // trip point, pF
+	MeasTripSEPF     Quantity = "trip_se_pf"    // standard error of the trip point, pF
+	MeasSpreadPF     Quantity = "spread_pf"     // 10–90 % transition width, pF
+	MeasPriorFails   Quantity = "prior_fails"   // fails before a pass (retest flag)
+	// The folded checks (PlanConfig.FoldChecks) and the search's prior.
+	MeasIdleLows        Quantity = "idle_lows"          // latch lows at or above the bottom level, idle check
+	MeasReleaseLows     Quantity = "release_lows"       // latch lows after the first high reading
+	MeasPriorSigmaPF    Quantity = "prior_sigma_pf"     // centre of the search's prior on σ, pF
+	MeasPriorSigmaLogSD Quantity = "prior_sigma_log_sd" // its SD of ln σ
+	MeasPriorSigmaUnits Quantity = "prior_sigma_units"  // recent passing units it rests on (0: the variant's)
+)
+
 // Plan is the ordered steps run on every unit of a variant.
 type Plan struct {
 	cfg       PlanConfig
 	levels    []Level
 	steps     []Step
+	names     []StepName
 	powerDown Step
 
 	mu     sync.Mutex
@@ -209,23 +252,24 @@ func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	for _, sg := range cfg.RecentSigmaPF {
 		p.noteSigma(sg)
 	}
-	add := func(name string, s Step) {
+	add := func(name StepName, s Step) {
 		p.steps = append(p.steps, Wrap(s, Named(name), Timeout(cfg.StepTimeout)))
+		p.names = append(p.names, name)
 	}
-	add("power_up", StepFunc(p.powerUp))
+	add(StepPowerUp, StepFunc(p.powerUp))
 	if cfg.FoldChecks {
-		add("idle", StepFunc(p.idleClock))
-		add("trip_search", StepFunc(p.tripSearch))
-		p.powerDown = Wrap(StepFunc(powerDown), Named("power_down"), Timeout(cfg.StepTimeout))
+		add(StepIdle, StepFunc(p.idleClock))
+		add(StepTripSearch, StepFunc(p.tripSearch))
+		p.powerDown = Wrap(StepFunc(powerDown), Named(StepPowerDown), Timeout(cfg.StepTimeout))
 		return p, nil
 	}
 	if cfg.ClockPeriods > 0 {
-		add("clock", StepFunc(p.clock))
+		add(StepClock, StepFunc(p.clock))
 	}
-	add("idle", StepFunc(p.idle))
-	add("release", StepFunc(p.release))
-	add("trip_search", StepFunc(p.tripSearch))
-	p.powerDown = Wrap(StepFunc(powerDown), Named("power_down"), Timeout(cfg.StepTimeout))
+	add(StepIdle, StepFunc(p.idle))
+	add(StepRelease, StepFunc(p.release))
+	add(StepTripSearch, StepFunc(p.tripSearch))
+	p.powerDown = Wrap(StepFunc(powerDown), Named(StepPowerDown), Timeout(cfg.StepTimeout))
 	return p, nil
 }
 
@@ -237,6 +281,25 @@ func (p *Plan) Levels() []Level { return p.levels }
 // every rung open on every path: a step's error, a panic (re-raised after
 // halting) or the context ending (ErrAborted; run gets no verdict).
 func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t *Trial, err error) {
+	return p.ExecuteObserved(ctx, st, clk, run, nil)
+}
+
+// StepDone is one finished step as an observer sees it: its name, the
+// measurements it added, its fixture time and its error (nil when it passed).
+type StepDone struct {
+	Step         StepName
+	Measurements []Measurement
+	FixtureTime  time.Duration
+	Err          error
+}
+
+// StepObserver is told about every step as it finishes, power-down
+// included. It runs on the unit's goroutine: it must return quickly.
+type StepObserver func(StepDone)
+
+// ExecuteObserved is Execute with obs (when not nil) told about every
+// finished step.
+func (p *Plan) ExecuteObserved(ctx context.Context, st Station, clk Clock, run *Run, obs StepObserver) (t *Trial, err error) {
 	t = &Trial{ctx: ctx, st: st, clock: clk, run: run, period: p.cfg.Period, Phases: map[string]time.Duration{}}
 	defer func() {
 		if r := recover(); r != nil {
@@ -246,21 +309,30 @@ func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t 
 	}()
 	run.Started = clk.Now()
 	var stepErr error
+	observe := func(name StepName, s Step) error {
+		n0, t0 := len(run.Measurements), clk.Now()
+		err := s.Do(t.ctx, t)
+		if obs != nil {
+			obs(StepDone{Step: name, Measurements: run.Measurements[n0:len(run.Measurements):len(run.Measurements)],
+				FixtureTime: clk.Now().Sub(t0), Err: err})
+		}
+		return err
+	}
 	for i, s := range p.steps {
-		if stepErr = s.Do(ctx, t); stepErr != nil {
+		if stepErr = observe(p.names[i], s); stepErr != nil {
 			break
 		}
 		// The lid must stay closed the whole test: opening it mid-test
 		// is a station fault, never a unit verdict.
 		if closed, err := st.LidClosed(); err != nil || !closed {
-			stepErr = fmt.Errorf("after step %d: %w", i+1, errors.Join(ErrLidOpen, err))
+			stepErr = fmt.Errorf("after step %d: %w", i+1, errors.Join(fixture.ErrLidOpen, err))
 			break
 		}
 	}
 	// Power down even after a failure; it may not be cut short by the
 	// caller's context, only by its own budget.
 	t.ctx = context.WithoutCancel(ctx)
-	downErr := p.powerDown.Do(t.ctx, t)
+	downErr := observe(StepPowerDown, p.powerDown)
 	t.ctx = ctx
 	run.Finished = clk.Now()
 
@@ -288,9 +360,9 @@ func (p *Plan) Execute(ctx context.Context, st Station, clk Clock, run *Run) (t 
 }
 
 // stationCode names the station fault behind err.
-func stationCode(err error) string {
+func stationCode(err error) FailCode {
 	switch {
-	case errors.Is(err, ErrLidOpen), errors.Is(err, fixture.ErrLidOpen):
+	case errors.Is(err, fixture.ErrLidOpen):
 		return CodeLidOpen
 	case errors.Is(err, ErrStepTimeout):
 		return CodeStepTimeout
@@ -311,13 +383,13 @@ func (t *Trial) timed(phase string, fn func() error) error {
 }
 
 func (p *Plan) powerUp(ctx context.Context, t *Trial) error {
-	return t.timed("power_up", func() error {
+	return t.timed(string(StepPowerUp), func() error {
 		closed, err := t.LidClosed()
 		if err != nil {
 			return err
 		}
 		if !closed {
-			return ErrLidOpen
+			return fixture.ErrLidOpen
 		}
 		if err := t.SetPattern(0); err != nil {
 			return err
@@ -330,7 +402,7 @@ func (p *Plan) powerUp(ctx context.Context, t *Trial) error {
 }
 
 func (p *Plan) clock(ctx context.Context, t *Trial) error {
-	return t.timed("clock", func() error { return p.clockCheck(t) })
+	return t.timed(string(StepClock), func() error { return p.clockCheck(t) })
 }
 
 // clockCheck measures the clock over ClockPeriods and judges it.
@@ -338,13 +410,13 @@ func (p *Plan) clockCheck(t *Trial) error {
 	hz, err := t.MeasureClock(p.cfg.ClockPeriods)
 	if err != nil {
 		if errors.Is(err, fixture.ErrNoClockEdges) {
-			t.Measure("clock_hz", 0, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz)
+			t.Measure(MeasClockHz, 0, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz)
 			return fail(CodeClockDead, "no edges at the clock test point")
 		}
 		return err
 	}
 	t.clockHz = hz
-	if t.Measure("clock_hz", hz, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz) == Fail {
+	if t.Measure(MeasClockHz, hz, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz) == Fail {
 		if hz < p.cfg.Limits.ClockLowHz {
 			return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, p.cfg.Limits.ClockLowHz)
 		}
@@ -354,7 +426,7 @@ func (p *Plan) clockCheck(t *Trial) error {
 }
 
 func (p *Plan) idle(ctx context.Context, t *Trial) error {
-	return t.timed("idle", func() error {
+	return t.timed(string(StepIdle), func() error {
 		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
 			return err
 		}
@@ -362,7 +434,7 @@ func (p *Plan) idle(ctx context.Context, t *Trial) error {
 		if err != nil {
 			return err
 		}
-		if t.Measure("idle_highs", float64(highs), "count", 0, 0) == Fail {
+		if t.Measure(MeasIdleHighs, float64(highs), "count", 0, 0) == Fail {
 			return fail(CodeIdleLatched, "latch high %d of %d periods at %.2f pF", highs, p.cfg.IdlePeriods, p.levels[0].PF)
 		}
 		return nil
@@ -379,7 +451,7 @@ type EdgeSampler interface {
 // idleClock is the folded idle check: the bottom level for IdlePeriods
 // (at least 2) periods, the clock read from the samples' edges.
 func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
-	return t.timed("idle", func() error {
+	return t.timed(string(StepIdle), func() error {
 		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
 			return err
 		}
@@ -411,7 +483,7 @@ func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
 		lim := p.cfg.Limits
 		if err != nil {
 			if edges && errors.Is(err, fixture.ErrNoClockEdges) {
-				t.Measure("clock_hz", 0, "Hz", lim.ClockLowHz, lim.ClockHighHz)
+				t.Measure(MeasClockHz, 0, "Hz", lim.ClockLowHz, lim.ClockHighHz)
 				return fail(CodeClockDead, "no edges at the clock test point")
 			}
 			return err
@@ -422,15 +494,15 @@ func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
 			}
 			hz := float64(k-1) / span.Seconds()
 			t.clockHz = hz
-			if t.Measure("clock_hz", hz, "Hz", lim.ClockLowHz, lim.ClockHighHz) == Fail {
+			if t.Measure(MeasClockHz, hz, "Hz", lim.ClockLowHz, lim.ClockHighHz) == Fail {
 				if hz < lim.ClockLowHz {
 					return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, lim.ClockLowHz)
 				}
 				return fail(CodeClockHigh, "%.1f Hz > %.1f Hz", hz, lim.ClockHighHz)
 			}
 		}
-		t.idle = &ProbeRecord{Level: 0, PF: p.levels[0].PF, K: k, Highs: highs, Phase: "idle"}
-		if t.Measure("idle_highs", float64(highs), "count", 0, 0) == Fail {
+		t.idle = &ProbeRecord{Level: 0, PF: p.levels[0].PF, K: k, Highs: highs, Phase: string(StepIdle)}
+		if t.Measure(MeasIdleHighs, float64(highs), "count", 0, 0) == Fail {
 			return fail(CodeIdleLatched, "latch high %d of %d periods at %.2f pF", highs, k, p.levels[0].PF)
 		}
 		return nil
@@ -473,15 +545,15 @@ func (p *Plan) idleRest(t *Trial, probes []ProbeRecord) error {
 		if err == nil {
 			highs, err = t.Sample(short)
 		}
-		t.Phases["idle"] += t.clock.Now().Sub(start)
+		t.Phases[string(StepIdle)] += t.clock.Now().Sub(start)
 		if err != nil {
 			return err
 		}
 		lows += short - highs
 	}
 	prev := t.step
-	t.step = "idle"
-	v := t.Measure("idle_lows", float64(lows), "count", float64(p.cfg.IdlePeriods), NoLimit)
+	t.step = StepIdle
+	v := t.Measure(MeasIdleLows, float64(lows), "count", float64(p.cfg.IdlePeriods), NoLimit)
 	t.step = prev
 	if highs > 0 || v == Fail {
 		return fail(CodeIdleLatched, "latch high %d times at %.2f pF after the search", highs, p.levels[0].PF)
@@ -545,9 +617,9 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		if err != nil {
 			return err
 		}
-		t.Measure("prior_sigma_pf", o.SpreadPriorPF/spreadPerSigma, "pF", NoLimit, NoLimit)
-		t.Measure("prior_sigma_log_sd", o.SpreadPriorLogSD, "", NoLimit, NoLimit)
-		t.Measure("prior_sigma_units", float64(units), "count", NoLimit, NoLimit)
+		t.Measure(MeasPriorSigmaPF, o.SpreadPriorPF/spreadPerSigma, "pF", NoLimit, NoLimit)
+		t.Measure(MeasPriorSigmaLogSD, o.SpreadPriorLogSD, "", NoLimit, NoLimit)
+		t.Measure(MeasPriorSigmaUnits, float64(units), "count", NoLimit, NoLimit)
 	}
 	res, err := FindTrip(pr, pf, opt)
 	for i, d := range pr.elapsed {
@@ -564,8 +636,8 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 	if p.cfg.FoldChecks {
 		if lows := releaseLows(res.Probes); lows >= 0 {
 			prev := t.step
-			t.step = "release"
-			v := t.Measure("release_lows", float64(lows), "count", 1, NoLimit)
+			t.step = StepRelease
+			v := t.Measure(MeasReleaseLows, float64(lows), "count", 1, NoLimit)
 			t.step = prev
 			if v == Fail {
 				return fail(CodeStuckLatched, "latch never read low again after it latched at %.1f pF, though %.2f pF read low before",
@@ -577,18 +649,18 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		}
 	}
 	if !res.Found {
-		t.Measure("trip_pf", math.NaN(), "pF", lim.TripLowPF, lim.TripHighPF)
+		t.Measure(MeasTripPF, math.NaN(), "pF", lim.TripLowPF, lim.TripHighPF)
 		return fail(CodeNoTrip, "no latch up to %.1f pF", p.levels[len(p.levels)-1].PF)
 	}
 	if res.Below {
 		// The bottom of the ladder already trips the unit on every sample:
 		// the trip point is at or below it.
-		t.Measure("trip_pf", res.TripPF, "pF", lim.TripLowPF, lim.TripHighPF)
+		t.Measure(MeasTripPF, res.TripPF, "pF", lim.TripLowPF, lim.TripHighPF)
 		return fail(CodeTripLow, "latched at the lowest level, %.2f pF", res.TripPF)
 	}
-	tripV := t.Measure("trip_pf", res.TripPF, "pF", lim.TripLowPF, lim.TripHighPF)
-	t.Measure("trip_se_pf", res.SEPF, "pF", NoLimit, NoLimit)
-	spreadV := t.Measure("spread_pf", res.SpreadPF, "pF", NoLimit, lim.SpreadMaxPF)
+	tripV := t.Measure(MeasTripPF, res.TripPF, "pF", lim.TripLowPF, lim.TripHighPF)
+	t.Measure(MeasTripSEPF, res.SEPF, "pF", NoLimit, NoLimit)
+	spreadV := t.Measure(MeasSpreadPF, res.SpreadPF, "pF", NoLimit, lim.SpreadMaxPF)
 	switch {
 	case res.Noisy || spreadV == Fail:
 		return fail(CodeTripNoisy, "transition %.2f pF wide (limit %.2f pF), consistent %v, guard misread %v",
@@ -606,7 +678,7 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 // read 0 again for ReleasePeriods periods. A unit that does not latch at the
 // touch level is left for the trip search to judge.
 func (p *Plan) release(ctx context.Context, t *Trial) error {
-	return t.timed("release", func() error {
+	return t.timed(string(StepRelease), func() error {
 		touch := len(p.levels) - 1
 		for i, l := range p.levels {
 			if l.PF >= p.cfg.Limits.TripHighPF {
@@ -628,7 +700,7 @@ func (p *Plan) release(ctx context.Context, t *Trial) error {
 		if err != nil {
 			return err
 		}
-		if t.Measure("release_highs", float64(highs), "count", 0, 0) == Fail {
+		if t.Measure(MeasReleaseHighs, float64(highs), "count", 0, 0) == Fail {
 			return fail(CodeStuckLatched, "latch still high %d of %d periods after the ladder opened from %.1f pF",
 				highs, p.cfg.ReleasePeriods, p.levels[touch].PF)
 		}
@@ -647,7 +719,7 @@ func firstHigh(probes []ProbeRecord) float64 {
 }
 
 func powerDown(ctx context.Context, t *Trial) error {
-	return t.timed("power_down", func() error {
+	return t.timed(string(StepPowerDown), func() error {
 		return errors.Join(t.SetPattern(0), t.Power(false))
 	})
 }

@@ -25,8 +25,8 @@ func TestPlanFoldedFailCodes(t *testing.T) {
 	tests := []struct {
 		name string
 		unit func(f *fakeStation)
-		code string
-		step string // the step of the last measurement
+		code sequences.FailCode
+		step sequences.StepName // the step of the last measurement
 	}{
 		{"good unit", func(f *fakeStation) {}, "", "trip_search"},
 		{"dead oscillator", func(f *fakeStation) { f.ClockHz = 0 }, sequences.CodeClockDead, "idle"},
@@ -208,7 +208,7 @@ func TestPlanFoldedWithoutEdges(t *testing.T) {
 	levels := demoLevels(t)
 	for _, tc := range []struct {
 		hz   float64
-		code string
+		code sequences.FailCode
 	}{{465, ""}, {300, sequences.CodeClockLow}, {0, sequences.CodeClockDead}} {
 		f := newFake(levels, 1)
 		f.ClockHz = tc.hz

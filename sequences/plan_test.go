@@ -14,7 +14,7 @@ import (
 )
 
 // Test limits for the fake QM-205 unit of newFake (trip 29.7 pF, 465 Hz,
-// 10–90 % width 0.64 pF, from testdata/variants/QM-205.yaml by DESIGN.md §4). The limits themselves are
+// 10–90 % width 0.64 pF, from testdata/variants/QM-205.yaml by DEVELOPERS.md "Physics"). The limits themselves are
 // this test's choice, inside the variant's 10–60 pF spec window
 // (testdata/variants/QM-205.yaml).
 const (
@@ -55,9 +55,9 @@ func execute(t *testing.T, ctx context.Context, cfg sequences.PlanConfig, f *fak
 
 // measurements indexes a run's measurements by name, failing t on a
 // duplicate.
-func measurements(t *testing.T, run *sequences.Run) map[string]sequences.Measurement {
+func measurements(t *testing.T, run *sequences.Run) map[sequences.Quantity]sequences.Measurement {
 	t.Helper()
-	m := map[string]sequences.Measurement{}
+	m := map[sequences.Quantity]sequences.Measurement{}
 	for _, x := range run.Measurements {
 		if _, dup := m[x.Name]; dup {
 			t.Errorf("measurement %s recorded twice", x.Name)
@@ -89,9 +89,11 @@ func TestPlanGoodUnitPasses(t *testing.T) {
 		m := measurements(t, run)
 		se := m["trip_se_pf"].Value
 		want := []struct {
-			name, step, unit string
-			low, high        float64
-			ok               func(v float64) bool
+			name      sequences.Quantity
+			step      sequences.StepName
+			unit      string
+			low, high float64
+			ok        func(v float64) bool
 		}{
 			// Exact: the fake's oscillator runs at exactly 465 Hz.
 			{"clock_hz", "clock", "Hz", clockLowHz, clockHighHz, func(v float64) bool { return v == 465 }},
@@ -166,8 +168,8 @@ func TestPlanFailCodes(t *testing.T) {
 	tests := []struct {
 		name string
 		unit func(f *fakeStation)
-		code string
-		step string // the step that fails: the last to record a measurement
+		code sequences.FailCode
+		step sequences.StepName // the step that fails: the last to record a measurement
 	}{
 		{"dead oscillator", func(f *fakeStation) { f.ClockHz = 0 }, sequences.CodeClockDead, "clock"},
 		{"slow oscillator", func(f *fakeStation) { f.ClockHz = 300 }, sequences.CodeClockLow, "clock"},
@@ -255,19 +257,19 @@ func TestPlanStationFaults(t *testing.T) {
 		name   string
 		setup  func(f *fakeStation)
 		cfg    func(c *sequences.PlanConfig)
-		code   string
+		code   sequences.FailCode
 		is     error  // the error Execute returns wraps this
 		prefix string // and starts with this
 		pin    bool   // and names the latch pin
 	}{
 		{name: "lid open", setup: func(f *fakeStation) { f.LidOpen = true },
-			code: sequences.CodeLidOpen, is: sequences.ErrLidOpen, prefix: "step power_up: "},
+			code: sequences.CodeLidOpen, is: fixture.ErrLidOpen, prefix: "step power_up: "},
 		{name: "lid opened before power on", setup: func(f *fakeStation) {
 			f.OpFunc = opFault("power", 1, func() error { f.LidOpen = true; return nil })
 		}, code: sequences.CodeLidOpen, is: fixture.ErrLidOpen, prefix: "step power_up: "},
 		{name: "lid opened mid-test", setup: func(f *fakeStation) {
 			f.OpFunc = opFault("sample", 3, func() error { f.LidOpen = true; return nil })
-		}, code: sequences.CodeLidOpen, is: sequences.ErrLidOpen, prefix: "after step "},
+		}, code: sequences.CodeLidOpen, is: fixture.ErrLidOpen, prefix: "after step "},
 		{name: "pin error on the first call", setup: func(f *fakeStation) { f.OpFunc = pinErrorOn(1) },
 			code: sequences.CodePinError, is: errPinRead, prefix: "step power_up: ", pin: true},
 		{name: "pin error measuring the clock", setup: func(f *fakeStation) {
@@ -426,7 +428,7 @@ func TestPlanWithoutClockPin(t *testing.T) {
 		name    string
 		unit    func(f *fakeStation)
 		verdict sequences.Verdict
-		code    string
+		code    sequences.FailCode
 	}{
 		{"good unit", func(*fakeStation) {}, sequences.Pass, ""},
 		// Nothing clocks the flip-flop, and nothing measures the clock: the

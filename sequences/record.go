@@ -20,8 +20,8 @@ const (
 // Measurement is one named value a step recorded, with its limits and
 // verdict. Low or High is NaN when that side has no limit.
 type Measurement struct {
-	Step    string
-	Name    string
+	Step    StepName
+	Name    Quantity
 	Value   float64
 	Unit    string
 	Low     float64
@@ -45,8 +45,14 @@ type Run struct {
 	Started      time.Time
 	Finished     time.Time
 	Verdict      Verdict
-	FailCode     string
+	FailCode     FailCode
 	Measurements []Measurement
+	// Driver is the station driver that produced the run ("sim" for the
+	// simulated line, "gpio" for real pins).
+	Driver string
+	// Fault is the station fault's message on a station-fault verdict
+	// (the pin or step at fault), "" otherwise.
+	Fault string
 }
 
 // Recorder commits a finished run to durable storage. It returns only after

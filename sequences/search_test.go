@@ -11,10 +11,10 @@ import (
 )
 
 // synthLadder is a test station: 8 binary rungs (nominal 0.5 … 64 pF) on a
-// 4.6 pF stray, the demo station of DESIGN.md §12. Entered holds the level
+// 4.6 pF stray, the demo station of DEVELOPERS.md "Simulator realism floor". Entered holds the level
 // values the search sees (stray + entered rungs, 0.5 pF apart); True the
 // values the unit sees: each closed rung carries its own calibration error
-// (true − entered, σ 0.05 pF per rung, DESIGN.md §12), so a level's error
+// (true − entered, σ 0.05 pF per rung, DEVELOPERS.md "Simulator realism floor"), so a level's error
 // has σ 0.05·√(closed rungs).
 type synthLadder struct {
 	Entered, True []float64
@@ -179,8 +179,8 @@ func checkBookkeeping(t testing.TB, res sequences.TripResult, levels []float64, 
 }
 
 // TestFindTripAccuracy runs 2,000 seeded units per noise level at the
-// realism floor (DESIGN.md §12: 10–90 % width 0.4–0.9 pF, i.e. σ 0.17–0.35
-// pF; rung calibration error σ 0.05 pF) against issue 8's targets: RMS trip
+// realism floor (DEVELOPERS.md "Simulator realism floor": 10–90 % width 0.4–0.9 pF, i.e. σ 0.17–0.35
+// pF; rung calibration error σ 0.05 pF) against the search targets of DEVELOPERS.md: RMS trip
 // error ≤ 0.2 pF, bracketing ≤ 1.25·⌈log2 L⌉ probes, refinement ≤ 32
 // samples on average (at most the default cap), staircase climb ≥ 4× the
 // bracketing probes.
@@ -190,7 +190,7 @@ func TestFindTripAccuracy(t *testing.T) {
 	}
 	const trials = 2000
 	const L = 256
-	bound := math.Ceil(math.Log2(L)) // noiseless lower bound, issue 8
+	bound := math.Ceil(math.Log2(L)) // noiseless lower bound
 	for _, sigma := range []float64{0.17, 0.35} {
 		var bracketMean float64
 		for _, strat := range []sequences.Strategy{sequences.Bracket, sequences.Staircase} {

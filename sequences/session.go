@@ -14,12 +14,13 @@ type Lamps interface {
 }
 
 // ErrRetestLimit refuses a serial that has used up its retests.
-var ErrRetestLimit = errors.New("sequences: retest limit reached")
+var ErrRetestLimit = errors.New("retest limit reached")
 
 // RetestPolicy is a variant's rule for testing a serial again.
 type RetestPolicy struct {
-	// Max is how many times a serial may be tested again after its first
-	// unit verdict (0: once only).
+	// Max is how many times a serial may be tested again after a fail
+	// (0: a failed unit is never retested). Only fails count: a passed
+	// unit scanned again is a repeat, tested and announced as one.
 	Max int
 	// FlagPassAfterFail records a "retest/prior_fails" measurement on a
 	// pass that follows fails, so the history shows it.
@@ -34,7 +35,7 @@ type PriorRuns interface {
 
 // ErrNotSaved is returned when a unit was tested but its run could not be
 // committed: no verdict may be shown for it.
-var ErrNotSaved = errors.New("sequences: run not saved")
+var ErrNotSaved = errors.New("run not saved")
 
 // Session tests units one after another on one station for one variant and
 // commits every run before its verdict is known to anyone.
@@ -56,6 +57,9 @@ type Session struct {
 	// clock still measures its duration): a simulated station runs on
 	// virtual time, but its shift log must say when the test happened.
 	WallClock func() time.Time
+	// OnStep, when set, is told about every step of every unit as it
+	// finishes (see StepObserver).
+	OnStep StepObserver
 }
 
 // Outcome is one tested unit: its committed run, its id in the shift log and
@@ -67,6 +71,9 @@ type Outcome struct {
 	// PriorFails is how many fails the serial had before this run; with
 	// Pass it marks a pass after fail.
 	PriorFails int
+	// PriorPasses is how many passes the serial had before: > 0 makes
+	// this run a repeat of a passed unit.
+	PriorPasses int
 }
 
 // Test runs the plan on the unit with this serial, commits the run and then
@@ -79,7 +86,7 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 			return nil, err
 		}
 	}
-	var priorFails int
+	var priorFails, priorPasses int
 	if pr, ok := s.Recorder.(PriorRuns); ok && s.Retest != nil {
 		tested, failed, err := pr.PriorRuns(ctx, serial)
 		if err != nil {
@@ -88,18 +95,21 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 			}
 			return nil, err
 		}
-		if tested > s.Retest.Max {
-			return nil, fmt.Errorf("%w: serial %s already has %d verdict(s) and the variant allows %d retest(s); set the unit aside for review",
-				ErrRetestLimit, serial, tested, s.Retest.Max)
+		if failed > s.Retest.Max {
+			return nil, fmt.Errorf("%w: serial %s failed %d time(s) and the variant allows %d retest(s) after a fail; set the unit aside for review",
+				ErrRetestLimit, serial, failed, s.Retest.Max)
 		}
-		priorFails = failed
+		priorFails, priorPasses = failed, tested-failed
 	}
 	run := s.Template
 	run.Serial = serial
 	run.Measurements = nil
-	trial, runErr := s.Plan.Execute(ctx, s.Station, s.Clock, &run)
+	trial, runErr := s.Plan.ExecuteObserved(ctx, s.Station, s.Clock, &run, s.OnStep)
 	if errors.Is(runErr, ErrAborted) {
 		return nil, runErr
+	}
+	if runErr != nil && run.Verdict == StationFault {
+		run.Fault = runErr.Error()
 	}
 	if s.WallClock != nil {
 		d := run.Finished.Sub(run.Started)
@@ -108,7 +118,7 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 	}
 	if run.Verdict == Pass && priorFails > 0 && s.Retest != nil && s.Retest.FlagPassAfterFail {
 		run.Measurements = append(run.Measurements, Measurement{
-			Step: "retest", Name: "prior_fails", Value: float64(priorFails), Unit: "count",
+			Step: StepRetest, Name: MeasPriorFails, Value: float64(priorFails), Unit: "count",
 			Low: NoLimit, High: NoLimit, Verdict: Pass,
 		})
 	}
@@ -126,5 +136,5 @@ func (s *Session) Test(ctx context.Context, serial string) (*Outcome, error) {
 			runErr = fmt.Errorf("lamps: %w", err)
 		}
 	}
-	return &Outcome{Run: run, ID: id, Trial: trial, PriorFails: priorFails}, runErr
+	return &Outcome{Run: run, ID: id, Trial: trial, PriorFails: priorFails, PriorPasses: priorPasses}, runErr
 }

@@ -3,6 +3,7 @@ package sequences_test
 import (
 	"context"
 	"errors"
+	"strings"
 	"testing"
 
 	"padline/sequences"
@@ -67,12 +68,29 @@ func TestSessionRetestPolicy(t *testing.T) {
 	if last.Step != "retest" || last.Name != "prior_fails" || last.Value != 1 {
 		t.Errorf("pass after fail not flagged: %+v", last)
 	}
-	calls := f.N
-	if _, err := s.Test(ctx, "QM205-000001"); !errors.Is(err, sequences.ErrRetestLimit) {
-		t.Errorf("third test: %v, want ErrRetestLimit", err)
+	// The passed unit scanned again is a repeat, not a retest: tested.
+	oc, err = s.Test(ctx, "QM205-000001")
+	if err != nil || oc.PriorPasses != 1 || oc.PriorFails != 1 {
+		t.Fatalf("repeat of a passed unit: %v %+v", err, oc)
 	}
-	if f.N != calls || len(log.runs) != 2 {
-		t.Errorf("a refused serial touched the station (%d ops) or the log (%d runs)", f.N-calls, len(log.runs))
+
+	// Only failed attempts count: fail, retest fails, the next is refused.
+	f.TripPF = 80
+	for i := 0; i < 2; i++ {
+		if oc, err := s.Test(ctx, "QM205-000002"); err != nil || oc.Run.Verdict != sequences.Fail {
+			t.Fatalf("test %d: %v %+v", i+1, err, oc)
+		}
+	}
+	calls, runs := f.N, len(log.runs)
+	_, err = s.Test(ctx, "QM205-000002")
+	if !errors.Is(err, sequences.ErrRetestLimit) {
+		t.Errorf("third test after two fails: %v, want ErrRetestLimit", err)
+	}
+	if err != nil && strings.Contains(err.Error(), "sequences:") {
+		t.Errorf("operator message carries a package prefix: %v", err)
+	}
+	if f.N != calls || len(log.runs) != runs {
+		t.Errorf("a refused serial touched the station (%d ops) or the log (%d runs)", f.N-calls, len(log.runs)-runs)
 	}
 }
 

@@ -25,23 +25,20 @@ func (f StepFunc) Do(ctx context.Context, t *Trial) error { return f(ctx, t) }
 // UnitFailure is returned by a step when the unit under test, not the
 // station, fails: the code is the run's fail code.
 type UnitFailure struct {
-	Code   string
+	Code   FailCode
 	Detail string
 }
 
 // Error says the unit fails, with the code and the detail.
 func (e *UnitFailure) Error() string {
 	if e.Detail == "" {
-		return "unit fails: " + e.Code
+		return "unit fails: " + string(e.Code)
 	}
-	return "unit fails: " + e.Code + ": " + e.Detail
+	return "unit fails: " + string(e.Code) + ": " + e.Detail
 }
 
 // ErrStepTimeout is returned when a step overruns its fixture-time budget.
 var ErrStepTimeout = errors.New("sequences: step timed out")
-
-// ErrLidOpen is returned when the lid is open where it must be closed.
-var ErrLidOpen = errors.New("sequences: lid open")
 
 // Timeout bounds the fixture time a step may take. Time is the trial's
 // injected clock, so the budget holds in virtual time too: every station
@@ -91,7 +88,7 @@ func Retry(n int) func(Step) Step {
 
 // Named records name as the step name of every measurement the step makes
 // and prefixes station errors with it.
-func Named(name string) func(Step) Step {
+func Named(name StepName) func(Step) Step {
 	return func(next Step) Step {
 		return StepFunc(func(ctx context.Context, t *Trial) error {
 			prev := t.step

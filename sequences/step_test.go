@@ -25,7 +25,7 @@ func newTrial(t *testing.T, ctx context.Context) (*sequences.Trial, *fakeStation
 		t.Fatalf("NewPlan: %v", err)
 	}
 	tr, err := p.Execute(ctx, f, f.clock, &sequences.Run{})
-	if !errors.Is(err, sequences.ErrLidOpen) {
+	if !errors.Is(err, fixture.ErrLidOpen) {
 		t.Fatalf("Execute with the lid open: %v", err)
 	}
 	*tr.Run() = sequences.Run{}
@@ -227,9 +227,9 @@ func TestNamed(t *testing.T) {
 		name     string
 		wrappers []func(sequences.Step) sequences.Step
 		ret      error
-		wantStep string // measurement's step name
-		wantErr  string // "" for nil
-		same     bool   // the step's error comes back unchanged
+		wantStep sequences.StepName // measurement's step name
+		wantErr  string             // "" for nil
+		same     bool               // the step's error comes back unchanged
 	}{
 		{"pass", []func(sequences.Step) sequences.Step{sequences.Named("idle")}, nil, "idle", "", false},
 		{"station error", []func(sequences.Step) sequences.Step{sequences.Named("idle")}, errBus, "idle", "step idle: bus glitch", false},

@@ -33,7 +33,7 @@ type Trial struct {
 	st       Station
 	clock    Clock
 	run      *Run
-	step     string
+	step     StepName
 	deadline time.Time
 	period   time.Duration
 
@@ -115,7 +115,7 @@ func (t *Trial) Sleep(d time.Duration) error {
 // Measure records a measurement of the current step and returns its verdict:
 // Fail when value lies outside [low, high] (NaN = that side unlimited) or is
 // itself NaN.
-func (t *Trial) Measure(name string, value float64, unit string, low, high float64) Verdict {
+func (t *Trial) Measure(name Quantity, value float64, unit string, low, high float64) Verdict {
 	v := Pass
 	if math.IsNaN(value) || (!math.IsNaN(low) && value < low) || (!math.IsNaN(high) && value > high) {
 		v = Fail
@@ -127,6 +127,6 @@ func (t *Trial) Measure(name string, value float64, unit string, low, high float
 }
 
 // fail builds the failure a step returns for code.
-func fail(code, format string, args ...any) error {
+func fail(code FailCode, format string, args ...any) error {
 	return &UnitFailure{Code: code, Detail: fmt.Sprintf(format, args...)}
 }

@@ -10,7 +10,7 @@ import (
 )
 
 // Checks against the Dixon–Mood formulas (W. J. Dixon & A. M. Mood, JASA
-// 43(241):109–126, 1948, as quoted in ../shared/REFERENCES.md):
+// 43(241):109–126, 1948, as quoted in DEVELOPERS.md "References"):
 // m = y0 + d·(A/N ± ½), s = 1.620·d·((N·B − A²)/N² + 0.029), valid for
 // (N·B − A²)/N² > 0.3. The expected values are worked by hand below.
 func TestDixonMood(t *testing.T) {

@@ -1,6 +1,8 @@
 package store
 
 import (
+	"padline/sequences"
+
 	"context"
 	"database/sql"
 	"embed"
@@ -11,6 +13,7 @@ import (
 	"os"
 	"path"
 	"sort"
+	"strings"
 	"sync"
 	"time"
 
@@ -33,7 +36,8 @@ var (
 	// ErrSchemaTooNew: the file was written by a newer padline.
 	ErrSchemaTooNew = errors.New("store: shift log schema newer than this program")
 	// ErrNotSaved: a run was not committed; nothing of it is in the log.
-	ErrNotSaved = errors.New("store: run not saved")
+	// It is sequences.ErrNotSaved itself: one sentinel for one meaning.
+	ErrNotSaved = sequences.ErrNotSaved
 	// ErrDiskFull: the disk, or the log's size cap, is full.
 	ErrDiskFull = errors.New("store: shift log full")
 	// ErrUnknownConfig: a run names a variant configuration that was never
@@ -98,6 +102,11 @@ type DB struct {
 	// CheckPath can tell when the path no longer leads to it.
 	file os.FileInfo
 
+	// runColumns is true when runs has the driver and fault columns
+	// (migration 0004); a log opened at an older version for a test
+	// writes without them.
+	runColumns bool
+
 	wmu sync.Mutex // serialises this process's write transactions
 	ids idCache    // committed name → id lookups
 }
@@ -110,6 +119,20 @@ func Open(path string) (*DB, error) {
 	return open(path, -1)
 }
 
+// fileURI is path as an SQLite file: URI: '%', '?' and '#' are
+// percent-escaped, so a path that contains them names the same file SQLite
+// opens (a bare path would be cut at its first '?' and the rest read as
+// options). SQLite decodes %HH escapes in a URI path (sqlite.org, "URI
+// Filenames In SQLite", section 3.1).
+func fileURI(path string) string {
+	r := strings.NewReplacer("%", "%25", "?", "%3F", "#", "%23")
+	return "file:" + r.Replace(path)
+}
+
+// runColumnsVersion is the schema version that adds runs.driver and
+// runs.fault.
+const runColumnsVersion = 4
+
 // open opens path and migrates it to version target (-1: all migrations).
 func open(path string, target int) (*DB, error) {
 	if err := checkHeader(path); err != nil {
@@ -118,12 +141,12 @@ func open(path string, target int) (*DB, error) {
 	// Per-connection settings go in the DSN so every pooled connection gets
 	// them; WAL is persistent in the file and is set once below, after the
 	// file is known to be ours.
-	dsn := path + "?_foreign_keys=1&_synchronous=FULL&_busy_timeout=10000&_txlock=immediate"
+	dsn := fileURI(path) + "?_foreign_keys=1&_synchronous=FULL&_busy_timeout=10000&_txlock=immediate"
 	sdb, err := sql.Open("sqlite3", dsn)
 	if err != nil {
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)
 	}
-	db := &DB{sql: sdb, path: path, now: time.Now}
+	db := &DB{sql: sdb, path: path, now: time.Now, runColumns: target < 0 || target >= runColumnsVersion}
 	if err := db.prepare(context.Background(), target); err != nil {
 		sdb.Close()
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)

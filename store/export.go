@@ -41,7 +41,7 @@ func (db *DB) WriteCSV(ctx context.Context, w io.Writer, f Filter) (int64, error
 		rec[1], rec[2], rec[3], rec[4], rec[5] = e.Serial, e.Variant, e.ConfigHash, e.Station, e.Fixture
 		rec[6], rec[7], rec[8] = e.Operator, e.Lot, e.Software
 		rec[9], rec[10] = timeText(e.Started), timeText(e.Finished)
-		rec[11], rec[12], rec[13] = string(e.Verdict), e.FailCode, numText(e.TripPF)
+		rec[11], rec[12], rec[13] = string(e.Verdict), string(e.FailCode), numText(e.TripPF)
 		if len(e.Measurements) == 0 {
 			clear(rec[14:])
 			if err := cw.Write(rec); err != nil {
@@ -49,7 +49,7 @@ func (db *DB) WriteCSV(ctx context.Context, w io.Writer, f Filter) (int64, error
 			}
 		}
 		for _, m := range e.Measurements {
-			rec[14], rec[15], rec[16], rec[17] = m.Step, m.Name, numText(m.Value), m.Unit
+			rec[14], rec[15], rec[16], rec[17] = string(m.Step), string(m.Name), numText(m.Value), m.Unit
 			rec[18], rec[19], rec[20] = numText(m.Low), numText(m.High), string(m.Verdict)
 			if err := cw.Write(rec); err != nil {
 				return n, fmt.Errorf("write csv: %w", err)
@@ -114,7 +114,7 @@ func (e *Entry) JSON() JSONRun {
 		ID: e.ID, Serial: e.Serial, Variant: e.Variant, ConfigHash: e.ConfigHash,
 		Station: e.Station, Fixture: e.Fixture, Operator: e.Operator, Lot: e.Lot,
 		Software: e.Software, Finished: e.Finished.UTC(), Verdict: string(e.Verdict),
-		FailCode: e.FailCode, TripPF: numPtr(e.TripPF),
+		FailCode: string(e.FailCode), TripPF: numPtr(e.TripPF),
 		Measurements: make([]JSONMeasurement, 0, len(e.Measurements)),
 	}
 	if !e.Started.IsZero() {
@@ -123,7 +123,7 @@ func (e *Entry) JSON() JSONRun {
 	}
 	for _, m := range e.Measurements {
 		j.Measurements = append(j.Measurements, JSONMeasurement{
-			Step: m.Step, Name: m.Name, Value: numPtr(m.Value), Unit: m.Unit,
+			Step: string(m.Step), Name: string(m.Name), Value: numPtr(m.Value), Unit: m.Unit,
 			Low: numPtr(m.Low), High: numPtr(m.High), Verdict: string(m.Verdict),
 		})
 	}

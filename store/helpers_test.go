@@ -42,7 +42,7 @@ const measPerRun = 6
 // t0 is the demo shift's start.
 var t0 = time.Date(2026, 11, 30, 6, 0, 0, 0, time.UTC)
 
-// demoRun is run i of a demo shift of QM-205 (Quillmoor Switchcraft,
+// demoRun is run i of a demo shift of QM-205 (Quillmoor Padworks,
 // fictional): six measurements, the trip point among them.
 func demoRun(i int, hash string) *sequences.Run {
 	started := t0.Add(time.Duration(i) * 4 * time.Second)
@@ -63,7 +63,7 @@ func demoRun(i int, hash string) *sequences.Run {
 		Started:    started,
 		Finished:   started.Add(2300 * time.Millisecond),
 		Verdict:    verdict,
-		FailCode:   code,
+		FailCode:   sequences.FailCode(code),
 		Measurements: []sequences.Measurement{
 			{Step: "idle", Name: "latched", Value: 0, Unit: "", Low: 0, High: 0, Verdict: sequences.Pass},
 			{Step: "clock", Name: "clock_hz", Value: 465.2, Unit: "Hz", Low: 380, High: 560, Verdict: sequences.Pass},

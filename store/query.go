@@ -24,6 +24,9 @@ type Filter struct {
 	Verdict sequences.Verdict
 	Since   time.Time
 	Until   time.Time
+	// Driver keeps only runs of stations with this driver ("sim",
+	// "gpio"); "" keeps all.
+	Driver string
 }
 
 // where returns the SQL condition (on runs aliased r) and its arguments.
@@ -54,6 +57,9 @@ func (f Filter) where() (string, []any) {
 	if f.Verdict != "" {
 		add("r.verdict = ?", string(f.Verdict))
 	}
+	if f.Driver != "" {
+		add("r.driver = ?", f.Driver)
+	}
 	if !f.Since.IsZero() {
 		add("r.finished >= ?", f.Since.UnixNano())
 	}
@@ -80,7 +86,7 @@ type Entry struct {
 // in order and never sorts the whole result.
 const runsSQL = `
 SELECT r.id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
-       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault,
        m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
 FROM runs r
 CROSS JOIN variants v ON v.id = r.variant_id
@@ -119,7 +125,7 @@ func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
 				value, low, high           sql.NullFloat64
 			)
 			if err := rows.Scan(&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
-				&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip,
+				&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
 				&seq, &step, &name, &unit, &value, &low, &high, &mverdict); err != nil {
 				yield(nil, fmt.Errorf("read run: %w", err))
 				return
@@ -138,7 +144,7 @@ func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
 			}
 			if seq.Valid {
 				cur.Measurements = append(cur.Measurements, sequences.Measurement{
-					Step: step.String, Name: name.String, Unit: unit.String,
+					Step: sequences.StepName(step.String), Name: sequences.Quantity(name.String), Unit: unit.String,
 					Value: orNaN(value), Low: orNaN(low), High: orNaN(high),
 					Verdict: sequences.Verdict(mverdict.String),
 				})
@@ -423,4 +429,26 @@ func (db *DB) PriorRuns(ctx context.Context, serial string) (tested, failed int,
 		return 0, 0, fmt.Errorf("prior runs of %s: %w", serial, err)
 	}
 	return tested, failed, nil
+}
+
+// Drivers lists the station drivers the log's runs were recorded with, in
+// name order ("" for runs from before drivers were recorded).
+func (db *DB) Drivers(ctx context.Context) ([]string, error) {
+	rows, err := db.sql.QueryContext(ctx, "SELECT DISTINCT driver FROM runs ORDER BY driver")
+	if err != nil {
+		return nil, fmt.Errorf("query drivers: %w", err)
+	}
+	defer rows.Close()
+	var out []string
+	for rows.Next() {
+		var d string
+		if err := rows.Scan(&d); err != nil {
+			return nil, fmt.Errorf("query drivers: %w", err)
+		}
+		out = append(out, d)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("query drivers: %w", err)
+	}
+	return out, nil
 }

@@ -16,11 +16,14 @@ import (
 
 var _ sequences.Recorder = (*DB)(nil)
 
+// The retest policy finds PriorRuns on the recorder by type assertion.
+var _ sequences.PriorRuns = (*DB)(nil)
+
 // TripStep and TripName identify the measurement that holds a run's trip
 // point; Record mirrors its value into the run for the drift series.
 const (
-	TripStep = "trip_search"
-	TripName = "trip_pf"
+	TripStep = sequences.StepTripSearch
+	TripName = sequences.MeasTripPF
 )
 
 // HashConfig returns the hash the log keeps for a variant configuration:
@@ -316,17 +319,26 @@ func (w *writer) put(ctx context.Context, r *sequences.Run) (int64, error) {
 			trip = sql.NullFloat64{Float64: m.Value, Valid: true}
 		}
 	}
+	args := []any{r.Serial, vid, cid, sid, fid, r.Operator, r.Lot,
+		r.Software, nanos(r.Started), r.Finished.UnixNano(), string(r.Verdict), r.FailCode, trip}
 	if w.insRun == nil {
-		w.insRun, err = w.tx.PrepareContext(ctx,
-			`INSERT INTO runs (serial, variant_id, config_id, station_id, fixture_id, operator, lot,
+		q := `INSERT INTO runs (serial, variant_id, config_id, station_id, fixture_id, operator, lot,
+			 software, started, finished, verdict, fail_code, trip_pf, driver, fault)
+			 VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+		if !w.db.runColumns {
+			q = `INSERT INTO runs (serial, variant_id, config_id, station_id, fixture_id, operator, lot,
 			 software, started, finished, verdict, fail_code, trip_pf)
-			 VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`)
+			 VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`
+		}
+		w.insRun, err = w.tx.PrepareContext(ctx, q)
 		if err != nil {
 			return 0, fmt.Errorf("prepare run insert: %w", err)
 		}
 	}
-	res, err := w.insRun.ExecContext(ctx, r.Serial, vid, cid, sid, fid, r.Operator, r.Lot,
-		r.Software, nanos(r.Started), r.Finished.UnixNano(), string(r.Verdict), r.FailCode, trip)
+	if w.db.runColumns {
+		args = append(args, r.Driver, r.Fault)
+	}
+	res, err := w.insRun.ExecContext(ctx, args...)
 	if err != nil {
 		return 0, fmt.Errorf("insert run: %w", err)
 	}
@@ -343,7 +355,7 @@ func (w *writer) put(ctx context.Context, r *sequences.Run) (int64, error) {
 		}
 	}
 	for i, m := range r.Measurements {
-		qid, err := w.quantity(ctx, m.Step, m.Name, m.Unit)
+		qid, err := w.quantity(ctx, string(m.Step), string(m.Name), m.Unit)
 		if err != nil {
 			return 0, err
 		}

@@ -7,39 +7,40 @@ import (
 	"time"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/timing"
 )
 
 // BenchmarkSimulatedUnit measures the computer time to test one simulated
 // QM-205 unit end to end (plan, trip search, simulator, fixture), without the
-// shift log. Target (issue 8): ≤ 1 ms CPU per unit. It also reports the
+// shift log. Target (DEVELOPERS.md "Benchmarks, studies and torture"): ≤ 1 ms CPU per unit. It also reports the
 // unit's fixture time, which is virtual and exact.
 //
 //	go test ./cmd/padline -run '^$' -bench SimulatedUnit
 func BenchmarkSimulatedUnit(b *testing.B) {
 	for _, strategy := range []string{"bracket", "staircase"} {
 		b.Run(strategy, func(b *testing.B) {
-			v, err := loadVariant("QM-205")
+			v, err := session.LoadVariant("QM-205")
 			if err != nil {
 				b.Fatal(err)
 			}
-			st, err := loadStation("demo-sim")
+			st, err := session.LoadStation("demo-sim")
 			if err != nil {
 				b.Fatal(err)
 			}
-			rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: defaultUncertaintyPF})
+			rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: session.DefaultUncertaintyPF})
 			if err != nil {
 				b.Fatal(err)
 			}
-			line, err := newSimLine(st, v)
+			line, err := session.NewSimLine(st, v)
 			if err != nil {
 				b.Fatal(err)
 			}
-			fx, err := newFixture(st, line.Pins(), line.Clock())
+			fx, err := session.NewFixture(st, line.Pins(), line.Clock())
 			if err != nil {
 				b.Fatal(err)
 			}
-			cfg, err := planConfig(v, rep, true, strategy)
+			cfg, err := session.PlanConfig(v, rep, true, strategy)
 			if err != nil {
 				b.Fatal(err)
 			}

@@ -20,6 +20,7 @@ import (
 
 	"padline/fixture/sim"
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/timing"
 	"padline/store"
 )
@@ -32,6 +33,7 @@ type demoOptions struct {
 	search           string
 	compare          bool
 	asJSON           bool
+	intoRealLog      bool
 	drift            demoDrift
 }
 
@@ -45,7 +47,7 @@ func (a *app) demoCmd() *cobra.Command {
 on a simulated station: no hardware and no files needed.
 
 The built-in demo variant (QM-205, a 5 V touch-lamp dimmer of the fictional
-maker Quillmoor Switchcraft) is tested on the built-in simulated station
+maker Quillmoor Padworks) is tested on the built-in simulated station
 (FX-07: 8 reed-relay rungs, 0.5 … 64 pF). Simulated units carry the variant's
 component tolerances and, at realistic rates, every kind of unit defect; the
 simulator's noise, relay timing and rung calibration error sit at the realism
@@ -86,6 +88,7 @@ first alarm at or after unit N: chart, rule, unit and lag.`,
 	f.StringVar(&o.search, "search", "bracket", "trip search: bracket, staircase or laplace (the earlier plan: separate clock, idle and release checks)")
 	f.BoolVar(&o.compare, "compare-search", false, "run the same units with the staircase too and compare")
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per unit, then a summary object")
+	f.BoolVar(&o.intoRealLog, "into-real-log", false, "allow --db to name a shift log that holds runs of a real (gpio) station")
 	f.IntVar(&o.drift.at, "drift-at", 0, "unit from which the pad capacitance drops (trip points step up); 0 = no step")
 	f.Float64Var(&o.drift.stepPF, "drift-pf", 0, "size of the step at --drift-at, pF of trip point")
 	f.Float64Var(&o.drift.rampPF, "ramp-pf-per-1000", 0, "slow ramp of the trip point, pF per 1000 units, from --drift-at (or unit 1)")
@@ -120,19 +123,19 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 	if err := o.drift.check(o.units); err != nil {
 		return err
 	}
-	v, err := loadVariant(o.variant)
+	v, err := session.LoadVariant(o.variant)
 	if err != nil {
 		return err
 	}
-	st, err := loadStation(o.station)
+	st, err := session.LoadStation(o.station)
 	if err != nil {
 		return err
 	}
-	if st.Driver != "sim" {
+	if st.Driver != session.DriverSim {
 		return fmt.Errorf("demo: station %s has driver %q; the demo needs driver: sim", st.Source.Name, st.Driver)
 	}
 	st.Sim.Seed = o.seed
-	u, _ := stationU(st)
+	u, _ := session.StatedUncertainty(st)
 	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
 	if err != nil {
 		return err
@@ -151,6 +154,9 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 		return err
 	}
 	defer db.Close()
+	if err := session.CheckSimulatedInto(ctx, db, dbPath, o.intoRealLog); err != nil {
+		return fmt.Errorf("demo: %w", err)
+	}
 	hash, err := db.PutVariant(ctx, v.Name, v.Source.Raw)
 	if err != nil {
 		return err
@@ -162,7 +168,7 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 	}
 	strategies := []string{o.search}
 	if o.compare {
-		strategies = []string{"bracket", searchLaplace, "staircase"}
+		strategies = []string{"bracket", session.SearchLaplace, "staircase"}
 	}
 	var results [][]demoUnit
 	var cpu []time.Duration
@@ -198,7 +204,7 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 	if err != nil {
 		return err
 	}
-	line, err := newSimLine(st, v)
+	line, err := session.NewSimLine(st, v)
 	if err != nil {
 		return err
 	}
@@ -210,18 +216,20 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 // discard records nothing (the comparison pass).
 type discard struct{}
 
+var _ sequences.Recorder = discard{}
+
 func (discard) Record(context.Context, *sequences.Run) (int64, error) { return 0, nil }
 
 // demoSerial is serial number i (from 1) of the variant's simulated units:
 // the variant name without dashes, a dash and six digits (QM-205, 1 →
 // QM205-000001).
-func demoSerial(v *Variant, i int) string {
+func demoSerial(v *session.Variant, i int) string {
 	return fmt.Sprintf("%s-%06d", strings.ReplaceAll(v.Name, "-", ""), i)
 }
 
 // demoSerials makes the shift's serials (see demoSerial) and checks them
 // against the variant's own pattern.
-func demoSerials(v *Variant, n int) ([]string, error) {
+func demoSerials(v *session.Variant, n int) ([]string, error) {
 	out := make([]string, n)
 	for i := range out {
 		out[i] = demoSerial(v, i+1)
@@ -234,42 +242,30 @@ func demoSerials(v *Variant, n int) ([]string, error) {
 }
 
 // demoShift tests every serial on a fresh simulated line.
-func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing.Report, hash, strategy string,
+func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Station, rep timing.Report, hash, strategy string,
 	serials []string, rec sequences.Recorder, quiet bool, dr demoDrift) ([]demoUnit, error) {
-	line, err := newSimLine(st, v)
+	u, uFrom := session.StatedUncertainty(st)
+	r, err := session.NewRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: strategy})
 	if err != nil {
 		return nil, err
 	}
-	fx, err := newFixture(st, line.Pins(), line.Clock())
-	if err != nil {
-		return nil, err
-	}
-	defer fx.Halt()
-	cfg, err := planConfig(v, rep, st.Pins.Clock != "", strategy)
-	if err != nil {
-		return nil, err
-	}
-	lv := fx.Ladder().Distinct()
-	plan, err := sequences.NewPlan(cfg, lv)
-	if err != nil {
-		return nil, err
-	}
+	defer r.Halt()
+	line, fx, lv := r.Line, r.Fixture, r.Plan.Levels()
 	sess := &sequences.Session{
-		Plan: plan, Station: fx, Clock: line.Clock(), Recorder: rec, WallClock: time.Now,
+		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: time.Now,
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
 			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: softwareVersion(),
+			Driver: string(session.DriverSim),
 		},
 	}
-	settle := st.Ladder.Operate + st.Ladder.Bounce
-	cfg.RelaySettle = settle
 	lvPF := make([]float64, len(lv))
 	for i, l := range lv {
 		lvPF[i] = l.PF
 	}
 	prog := newProgress(a.stderr, len(serials), "testing ("+strategy+")", quiet)
 	out := make([]demoUnit, 0, len(serials))
-	base := unitModel(v, st.Sim)
+	base := session.UnitModel(v, st.Sim)
 	for i, serial := range serials {
 		if err := dr.apply(line, base, i+1); err != nil {
 			prog.done()
@@ -285,7 +281,7 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 		}
 		truth := unit.Truth()
 		du := demoUnit{
-			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: oc.Run.FailCode,
+			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: string(oc.Run.FailCode),
 			Defects: truth.Defects, Probes: oc.Trial.Probes, RelayOps: sum(fx.RelayOps()) - ops0,
 			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases,
 			trueSpreadPF: truth.TransitionPF,
@@ -305,7 +301,7 @@ func (a *app) demoShift(ctx context.Context, v *Variant, st *Station, rep timing
 		if truth.Trip == sim.TripsAt && truth.ClockHz > 0 && len(truth.Defects) == 0 {
 			// The floor in the station's basis: the level set as entered,
 			// the unit's trip and transition as the simulator knows them.
-			fl, err := sequences.TripSearchFloorAt(lvPF, truth.TripPF, truth.TransitionPF/(2*1.2815515655446004), cfg.Search.SETargetPF)
+			fl, err := sequences.TripSearchFloorAt(lvPF, truth.TripPF, truth.TransitionPF/(2*1.2815515655446004), r.PlanConfig.Search.SETargetPF)
 			if err == nil {
 				du.floorSamples = fl
 				du.floorTime = time.Duration(fl * 1e9 / truth.ClockHz)
@@ -370,7 +366,7 @@ type demoStats struct {
 }
 
 // fixedPhases are the plan's steps outside the trip search.
-var fixedPhases = []string{"power_up", "clock", "idle", "release", "power_down"}
+var fixedPhases = []string{string(sequences.StepPowerUp), string(sequences.StepClock), string(sequences.StepIdle), string(sequences.StepRelease), string(sequences.StepPowerDown)}
 
 func summarise(strategy string, us []demoUnit, cpu, wall time.Duration) demoStats {
 	s := demoStats{Strategy: strategy, Units: len(us), FailCodes: map[string]int{},
@@ -483,7 +479,7 @@ type demoSummary struct {
 	Drift *demoDriftWatch `json:"drift,omitempty"`
 }
 
-func demoSummaryJSON(v *Variant, st *Station, rep timing.Report, strategies []string, results [][]demoUnit, cpu, wall []time.Duration) demoSummary {
+func demoSummaryJSON(v *session.Variant, st *session.Station, rep timing.Report, strategies []string, results [][]demoUnit, cpu, wall []time.Duration) demoSummary {
 	s := demoSummary{Summary: true, Variant: v.Name, Station: st.Name,
 		TestLimitsPF: [2]float64{rep.TestLimits.Low, rep.TestLimits.High},
 		NoiseMVAt5V:  st.Sim.NoiseMVAt5V, JitterNs: st.Sim.JitterNs, RungErrSDPF: st.Sim.RungErrSDPF}
@@ -493,7 +489,7 @@ func demoSummaryJSON(v *Variant, st *Station, rep timing.Report, strategies []st
 	return s
 }
 
-func writeDemoSummary(w io.Writer, v *Variant, st *Station, rep timing.Report, dbPath string, keep bool,
+func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep timing.Report, dbPath string, keep bool,
 	strategies []string, results [][]demoUnit, cpu, wall []time.Duration, trueStray float64) {
 	var ss []demoStats
 	for i, us := range results {
@@ -501,7 +497,7 @@ func writeDemoSummary(w io.Writer, v *Variant, st *Station, rep timing.Report, d
 	}
 	s := ss[0]
 	fmt.Fprintf(w, "simulated shift  %s on %s/%s, %d units\n", v.Name, st.Name, st.Fixture, s.Units)
-	fmt.Fprintf(w, "simulator        noise %.1f mV at 5 V, sample jitter %.1f ns, rung calibration σ %.2f pF (realism floor, DESIGN.md §12)\n",
+	fmt.Fprintf(w, "simulator        noise %.1f mV at 5 V, sample jitter %.1f ns, rung calibration σ %.2f pF (realism floor: DEVELOPERS.md, Simulator realism floor)\n",
 		st.Sim.NoiseMVAt5V, st.Sim.JitterNs, st.Sim.RungErrSDPF)
 	fmt.Fprintf(w, "test limits      trip %.2f … %.2f pF, clock %.0f … %.0f Hz\n\n",
 		rep.TestLimits.Low, rep.TestLimits.High, rep.Clock.CornerLow, rep.Clock.CornerHigh)

@@ -18,6 +18,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/timing"
 	"padline/store"
 	"padline/store/drift"
@@ -42,6 +43,7 @@ const driftFirstAsk = 1 << 20
 type driftOptions struct {
 	db, stationFile, variant string
 	filter                   store.Filter
+	withSim                  bool   // --include-simulated
 	since, until             string // as given, for the report
 	by, chart, rules         string
 	subgroup, baseline       int
@@ -125,13 +127,15 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 			}
 			fl := cmd.Flags()
 			if o.stationFile != "" && !fl.Changed("uncertainty-pf") {
-				st, err := loadStation(o.stationFile)
+				st, err := session.LoadStation(o.stationFile)
 				if err != nil {
 					return fmt.Errorf("drift: %w", err)
 				}
 				// The same U padline run judged with: the station's stored
 				// budget, else its file, else the stand-in.
-				o.uncertainty, o.uncertaintyFrom = stationUncertainty(cmd.Context(), o.db, st)
+				if o.uncertainty, o.uncertaintyFrom, err = session.Uncertainty(cmd.Context(), o.db, st); err != nil {
+					return err
+				}
 			}
 			if fl.Changed("uncertainty-pf") {
 				o.uncertaintyFrom = "--uncertainty-pf"
@@ -195,6 +199,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.StringVar(&station, "station", "", "only runs of this station")
 	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
+	fl.BoolVar(&o.withSim, "include-simulated", false, "in a log with runs of a real station, also watch simulated runs (left out by default)")
 	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift")
 	fl.BoolVar(&o.allVerdicts, "all-verdicts", false, "chart failed units' trip points too (default: passing units only; yield always counts every unit)")
 	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
@@ -212,7 +217,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.Float64Var(&h, "h", drift.DefaultH, "CUSUM decision interval h, in σ")
 	fl.Float64Var(&lambda, "lambda", drift.DefaultLambda, "EWMA weight λ")
 	fl.Float64Var(&wid, "width", 3, fmt.Sprintf("limit half-width in σ (Shewhart; for --chart ewma its L, default %g)", float64(drift.DefaultL)))
-	fl.Float64Var(&o.uncertainty, "uncertainty-pf", defaultUncertaintyPF, "station's expanded uncertainty U (k = 2), pF: the guard band of the test limits")
+	fl.Float64Var(&o.uncertainty, "uncertainty-pf", session.DefaultUncertaintyPF, "station's expanded uncertainty U (k = 2), pF: the guard band of the test limits")
 	fl.Float64Var(&o.lsl, "lsl", 0, "lower limit for capability instead of the variant's test limit")
 	fl.Float64Var(&o.usl, "usl", 0, "upper limit for capability instead of the variant's test limit")
 	fl.IntVar(&o.alarms, "alarms", driftDefaultAlarms, "list at most this many alarms per group, the most recent (0 = all)")
@@ -413,12 +418,15 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 			return fmt.Errorf("drift: %w", err)
 		}
 		defer db.Close()
+		if o.filter.Driver, err = session.DriverFilter(ctx, db, o.withSim); err != nil {
+			return fmt.Errorf("drift: %w", err)
+		}
 		rep.Source = "shift log " + o.db
 		rep.Since, rep.Until = o.since, o.until
 		rep.Station, rep.Fixture, rep.Lot, rep.By = o.filter.Station, o.filter.Fixture, o.filter.Lot, o.by
 	}
 	if o.variant != "" {
-		v, from, err := driftVariant(ctx, db, o.variant)
+		v, from, err := session.VariantFor(ctx, db, o.variant)
 		switch {
 		case err != nil && o.csvFile != "":
 			return fmt.Errorf("drift: %w", err)
@@ -506,41 +514,6 @@ func describeFilter(o driftOptions) string {
 		return ""
 	}
 	return " (" + strings.Join(parts, ", ") + ")"
-}
-
-// driftVariant finds the variant's configuration: a file when ref names
-// one, else the latest configuration the shift log holds for that name (the
-// limits the line judged against), else the built-in.
-func driftVariant(ctx context.Context, db *store.DB, ref string) (*Variant, string, error) {
-	if isConfigPath(ref) {
-		v, err := loadVariant(ref)
-		if err != nil {
-			return nil, "", err
-		}
-		return v, "file " + ref, nil
-	}
-	if db != nil {
-		hist, err := db.ConfigHistory(ctx, ref)
-		if err != nil {
-			return nil, "", err
-		}
-		if n := len(hist); n > 0 {
-			last := hist[n-1]
-			raw, err := db.Snapshot(ctx, ref, last.Hash)
-			if err == nil {
-				v, perr := parseVariant(newSource("shift log config "+histShortHash(last.Hash), raw))
-				if perr == nil {
-					return v, fmt.Sprintf("the shift log's latest configuration %s (first seen %s)",
-						histShortHash(last.Hash), last.FirstSeen.Local().Format("2006-01-02 15:04")), nil
-				}
-			}
-		}
-	}
-	v, err := loadVariant(ref)
-	if err != nil {
-		return nil, "", err
-	}
-	return v, v.Source.Name, nil
 }
 
 // driftGroups reads the trip series and splits it by the --by key, groups

@@ -271,8 +271,11 @@ func TestDemoDrift(t *testing.T) {
 		t.Errorf("drift %+v", d)
 	}
 	// The baseline is the good units among units 1–50: all but the few
-	// with injected defects (rates ≤ 1 % each, DESIGN.md §12).
-	if !strings.HasPrefix(d.Baseline, "units 1–50 (4") {
+	// with injected defects (rates ≤ 1 % each, DEVELOPERS.md "Simulator realism floor").
+	// At the default rates (about 3 % of units carry a defect) 40 to 50
+	// of them are good in all but one shift in many thousands (binomial).
+	var good int
+	if _, err := fmt.Sscanf(d.Baseline, "units 1–50 (%d good units)", &good); err != nil || good < 40 || good > 50 {
 		t.Errorf("baseline %q", d.Baseline)
 	}
 	// σ of the good units' trip points: the timing model's Monte Carlo
@@ -400,7 +403,7 @@ func scaleRuns(n int, hash string) iter.Seq[*sequences.Run] {
 				Serial: fmt.Sprintf("QM205-%07d", i), Variant: "QM-205", ConfigHash: hash,
 				Station: fmt.Sprintf("L%d-S1", 1+i%2), Fixture: fmt.Sprintf("FX-%02d", 7+i%4), Operator: "op-1",
 				Lot: fmt.Sprintf("LOT-%d", i/5000), Software: "padline test", Started: fin.Add(-90 * time.Millisecond),
-				Finished: fin, Verdict: v, FailCode: code,
+				Finished: fin, Verdict: v, FailCode: sequences.FailCode(code),
 				Measurements: []sequences.Measurement{
 					{Step: "clock", Name: "clock_hz", Value: 465, Unit: "Hz", Low: 241, High: 1271, Verdict: sequences.Pass},
 					{Step: store.TripStep, Name: store.TripName, Value: trip, Unit: "pF", Low: 10.3, High: 59.7, Verdict: v},

@@ -16,6 +16,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/store"
 )
 
@@ -25,6 +26,7 @@ type historyOptions struct {
 	filter        store.Filter
 	format        string // table, csv or json
 	limitsHistory bool
+	withSim       bool // --include-simulated
 }
 
 // historyCmd builds `padline history`.
@@ -33,6 +35,7 @@ func (a *app) historyCmd() *cobra.Command {
 		dbFlag, stationFile                         string
 		serial, variant, station, fixture, lot, ver string
 		since, until, format                        string
+		withSim                                     bool
 		asJSON, limitsHistory                       bool
 	)
 	cmd := &cobra.Command{
@@ -110,6 +113,7 @@ history never creates a shift log.`,
 				return fmt.Errorf("history: --verdict must be pass, fail or station-fault, got %q", ver)
 			}
 			opts.filter = f
+			opts.withSim = withSim
 			return a.history(cmd, opts)
 		},
 	}
@@ -123,6 +127,7 @@ history never creates a shift log.`,
 	fl.StringVar(&station, "station", "", "only runs of this station, e.g. L2-S1")
 	fl.StringVar(&fixture, "fixture", "", "only runs on this fixture, e.g. FX-07")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
+	fl.BoolVar(&withSim, "include-simulated", false, "in a log with runs of a real station, also show simulated runs (left out by default)")
 	fl.StringVar(&ver, "verdict", "", "only runs with this verdict: pass, fail or station-fault")
 	fl.StringVar(&format, "format", "table", "output: table, csv or json (JSON lines)")
 	fl.BoolVar(&asJSON, "json", false, "same as --format json")
@@ -141,6 +146,9 @@ func (a *app) history(cmd *cobra.Command, opts historyOptions) error {
 	}
 	defer db.Close()
 	ctx := cmd.Context()
+	if opts.filter.Driver, err = session.DriverFilter(ctx, db, opts.withSim); err != nil {
+		return fmt.Errorf("history: %w", err)
+	}
 	out := bufio.NewWriter(a.stdout)
 	defer out.Flush()
 
@@ -186,7 +194,7 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 			flagged++
 		}
 		fmt.Fprintf(w, row, strconv.FormatInt(e.ID, 10), e.Finished.Local().Format("2006-01-02 15:04:05"),
-			e.Serial, e.Station, e.Fixture, e.Lot, verdict, dashIfEmpty(e.FailCode), histPF(e.TripPF))
+			e.Serial, e.Station, e.Fixture, e.Lot, verdict, dashIfEmpty(string(e.FailCode)), histPF(e.TripPF))
 		if opts.filter.Serial != "" {
 			writeDetail(w, e)
 		}
@@ -210,7 +218,7 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 // because fails came before it.
 func passAfterFail(e *store.Entry) bool {
 	for _, m := range e.Measurements {
-		if m.Step == "retest" && m.Name == "prior_fails" && m.Value > 0 {
+		if m.Step == sequences.StepRetest && m.Name == sequences.MeasPriorFails && m.Value > 0 {
 			return true
 		}
 	}
@@ -260,7 +268,7 @@ func writeConfigHistory(w io.Writer, db *store.DB, cmd *cobra.Command, opts hist
 		for _, c := range hist {
 			fmt.Fprintf(w, "%-19s %-64s %d\n", c.FirstSeen.Local().Format("2006-01-02 15:04:05"), c.Hash, c.Size)
 		}
-		fmt.Fprintf(w, "%s: %d configurations\n", opts.filter.Variant, len(hist))
+		fmt.Fprintf(w, "%s: %s\n", opts.filter.Variant, plural(len(hist), "configuration", "configurations"))
 	}
 	return nil
 }
@@ -322,4 +330,13 @@ func histCSVField(s string) string {
 		return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
 	}
 	return s
+}
+
+// plural is n with the singular or plural noun: "1 configuration",
+// "2 configurations".
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return fmt.Sprintf("%d %s", n, many)
 }

@@ -26,7 +26,7 @@ func historyCLI(t *testing.T, args ...string) (code int, stdout, stderr string) 
 	return code, out.String(), errOut.String()
 }
 
-// seedHistory writes a small shift log of Quillmoor Switchcraft (fictional)
+// seedHistory writes a small shift log of Quillmoor Padworks (fictional)
 // units: QM205-A fails high then passes on retest, QM205-B passes, QM205-C
 // is a station fault, QM212-A passes on another station. QM-205's limits
 // change once, between the first and the second day.
@@ -61,7 +61,7 @@ func seedHistory(t *testing.T) string {
 		r := &sequences.Run{
 			Serial: serial, Variant: variant, ConfigHash: hash, Station: station, Fixture: "FX-07",
 			Operator: "op-3", Lot: "LOT-17", Software: "padline test", Started: at.Add(-3 * time.Second),
-			Finished: at, Verdict: v, FailCode: code,
+			Finished: at, Verdict: v, FailCode: sequences.FailCode(code),
 			Measurements: []sequences.Measurement{
 				{Step: "clock", Name: "clock_hz", Value: 465.2, Unit: "Hz", Low: 380, High: 560, Verdict: sequences.Pass},
 			},

@@ -8,15 +8,9 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"padline/sequences/session"
 	"padline/sequences/timing"
 )
-
-// defaultUncertaintyPF is U (k = 2) when neither --uncertainty-pf nor a
-// station gives one: a stand-in until the station's own uncertainty budget
-// (rung calibration, ladder resolution, repeatability) is computed. The demo
-// ladder's 0.5 pF step alone contributes u = 0.5/√12 = 0.14 pF (GUM), so
-// U = 2u ≈ 0.3 pF.
-const defaultUncertaintyPF = 0.3
 
 // limitsCmd builds `padline limits`.
 func (a *app) limitsCmd() *cobra.Command {
@@ -63,12 +57,12 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if variant == "" {
-				return fmt.Errorf("limits: --variant is required (a .yaml file or one of: %s)", strings.Join(builtinNames("variants"), ", "))
+				return fmt.Errorf("limits: --variant is required (a .yaml file or one of: %s)", strings.Join(session.BuiltinVariants(), ", "))
 			}
 			if draws < 1 {
 				return fmt.Errorf("limits: --draws must be ≥ 1, got %d", draws)
 			}
-			v, err := loadVariant(variant)
+			v, err := session.LoadVariant(variant)
 			if err != nil {
 				return err
 			}
@@ -77,7 +71,7 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 			case cmd.Flags().Changed("uncertainty-pf"):
 				uFrom = "--uncertainty-pf"
 			case station != "":
-				st, err := loadStation(station)
+				st, err := session.LoadStation(station)
 				if err != nil {
 					return err
 				}
@@ -85,7 +79,9 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 				if err != nil {
 					return err
 				}
-				u, uFrom = stationUncertainty(cmd.Context(), dbPath, st)
+				if u, uFrom, err = session.Uncertainty(cmd.Context(), dbPath, st); err != nil {
+					return err
+				}
 			}
 			rep, err := v.Limits(timing.Options{Draws: draws, Seed: seed, UncertaintyPF: u})
 			if err != nil {
@@ -100,10 +96,10 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&variant, "variant", "", "variant: a .yaml file or a built-in name ("+strings.Join(builtinNames("variants"), ", ")+")")
+	f.StringVar(&variant, "variant", "", "variant: a .yaml file or a built-in name ("+strings.Join(session.BuiltinVariants(), ", ")+")")
 	f.StringVar(&station, "station", "", "station file: take U from its shift log (stored by 'padline station study'), else its uncertainty_pf, else the stand-in")
 	f.String("db", "", "shift log for --station (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
-	f.Float64Var(&u, "uncertainty-pf", defaultUncertaintyPF, "station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U")
+	f.Float64Var(&u, "uncertainty-pf", session.DefaultUncertaintyPF, "station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U")
 	f.IntVar(&draws, "draws", timing.DefaultDraws, "Monte Carlo draws")
 	f.Uint64Var(&seed, "seed", 1, "Monte Carlo seed (same seed, same numbers)")
 	f.BoolVar(&asJSON, "json", false, "print one JSON object instead of the report")
@@ -121,7 +117,7 @@ type limitsJSON struct {
 	timing.Report
 }
 
-func writeLimitsJSON(w io.Writer, v *Variant, rep timing.Report, uFrom string) error {
+func writeLimitsJSON(w io.Writer, v *session.Variant, rep timing.Report, uFrom string) error {
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
 	if err := enc.Encode(limitsJSON{Variant: v.Name, Source: v.Source.Name, ConfigHash: v.Source.Hash, USource: uFrom, Report: rep}); err != nil {
@@ -130,14 +126,26 @@ func writeLimitsJSON(w io.Writer, v *Variant, rep timing.Report, uFrom string) e
 	return nil
 }
 
-func writeLimits(w io.Writer, v *Variant, r timing.Report) {
+// cornerPF prints a corner trip point; a negative one is not a capacitance
+// but a unit that trips with nothing at the pad, and is said so.
+func cornerPF(pf float64) string {
+	if pf < 0 {
+		return "below 0 pF (such a unit trips with nothing at the pad)"
+	}
+	return fmt.Sprintf("%.2f", pf)
+}
+
+func writeLimits(w io.Writer, v *session.Variant, r timing.Report) {
 	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
 	p("variant     %s — %s", v.Name, v.Description)
 	p("file        %s (sha256 %.12s)", v.Source.Name, v.Source.Hash)
 	p("")
 	p("clock       nominal %.1f Hz   corners %.1f … %.1f Hz   (half periods %.3f / %.3f ms)",
 		r.Clock.Nominal, r.Clock.CornerLow, r.Clock.CornerHigh, 1e3*r.Clock.HighS, 1e3*r.Clock.LowS)
-	p("trip point  nominal %.2f pF   corners %.2f … %.2f pF", r.Trip.Nominal, r.Trip.CornerLow, r.Trip.CornerHigh)
+	p("trip point  nominal %.2f pF   corners %s … %.2f pF", r.Trip.Nominal, cornerPF(r.Trip.CornerLow), r.Trip.CornerHigh)
+	if n := r.Trip.NoTripCorners; n > 0 {
+		p("            at %d of %d corners the unit cannot trip (the flip-flop samples before the sense node can fall)", n, r.Trip.Corners)
+	}
 	p("            Monte Carlo (%d draws, seed %d): mean %.2f pF, sd %.2f pF", r.Draws, r.Seed, r.Trip.MCMean, r.Trip.MCSD)
 	p("            percentiles 0.135 %% %.2f   50 %% %.2f   99.865 %% %.2f pF", r.Trip.MCP00135, r.Trip.MCP50, r.Trip.MCP99865)
 	p("")

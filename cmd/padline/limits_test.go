@@ -7,6 +7,8 @@ import (
 	"math"
 	"strings"
 	"testing"
+
+	"padline/sequences/session"
 )
 
 // runCLI runs padline in-process and returns its exit status and output.
@@ -28,7 +30,7 @@ func TestLimitsJSON(t *testing.T) {
 			if err := json.Unmarshal([]byte(out), &got); err != nil {
 				t.Fatalf("not one JSON object: %v\n%s", err, out)
 			}
-			// The fields issue 2 requires.
+			// The fields the limits report must carry.
 			for _, path := range []string{
 				"trip_pf.nominal", "trip_pf.corner_low", "trip_pf.corner_high", "trip_pf.mc_mean", "trip_pf.mc_sd",
 				"clock_hz.nominal", "clock_hz.corner_low", "clock_hz.corner_high",
@@ -43,8 +45,8 @@ func TestLimitsJSON(t *testing.T) {
 					t.Errorf("%s missing or not a number: %v", path, cur)
 				}
 			}
-			if got["guard_band_pf"] != defaultUncertaintyPF {
-				t.Errorf("guard band %v, want default %v", got["guard_band_pf"], defaultUncertaintyPF)
+			if got["guard_band_pf"] != session.DefaultUncertaintyPF {
+				t.Errorf("guard band %v, want default %v", got["guard_band_pf"], session.DefaultUncertaintyPF)
 			}
 		})
 	}

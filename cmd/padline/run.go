@@ -1,24 +1,18 @@
 package main
 
 import (
-	"bufio"
 	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
 	"math"
-	"strings"
 	"time"
 
 	"github.com/spf13/cobra"
 
-	"padline/fixture"
-	"padline/fixture/hostpins"
-	"padline/fixture/sim"
 	"padline/sequences"
-	"padline/sequences/timing"
-	"padline/store"
+	"padline/sequences/session"
 )
 
 type runOptions struct {
@@ -82,268 +76,137 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	return cmd
 }
 
-// openPins opens the station's pins: the simulated line's, or the real
-// GPIO lines named in the station file.
-func openPins(st *Station, v *Variant) (fixture.Pins, fixture.Clock, *sim.Line, error) {
-	if st.Driver == "sim" {
-		line, err := newSimLine(st, v)
-		if err != nil {
-			return fixture.Pins{}, nil, nil, err
-		}
-		return line.Pins(), line.Clock(), line, nil
-	}
-	p := st.Pins
-	pins, err := hostpins.Open(hostpins.RoleMap{
-		Latch: p.Latch, Power: p.Power, Clock: p.Clock, Lid: p.Lid,
-		PassLamp: p.PassLamp, FailLamp: p.FailLamp, Ladder: p.Ladder,
+func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) {
+	sess, err := session.Open(ctx, session.Options{
+		Variant: o.variant, Station: o.station, ShiftLog: dbPath,
+		Operator: o.operator, Lot: o.lot, Strategy: o.search,
+		Software: softwareVersion(), GPIO: openGPIO, LidTimeout: o.lidTimeout,
 	})
 	if err != nil {
-		return fixture.Pins{}, nil, nil, fmt.Errorf("station %s: %w", st.Source.Name, err)
-	}
-	return pins, fixture.WallClock{}, nil, nil
-}
-
-func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) {
-	v, err := loadVariant(o.variant)
-	if err != nil {
 		return err
 	}
-	st, err := loadStation(o.station)
-	if err != nil {
-		return err
-	}
-	u, uFrom := stationUncertainty(ctx, dbPath, st)
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
-	if err != nil {
-		return err
-	}
-	pins, clk, line, err := openPins(st, v)
-	if err != nil {
-		return err
-	}
-	fx, err := newFixture(st, pins, clk)
-	if err != nil {
-		return err
-	}
-	// Every exit path leaves every rung open and unit power off.
+	// Every exit path leaves every rung open and unit power off, and the
+	// relay counts saved.
 	defer func() {
-		if herr := fx.Halt(); herr != nil && err == nil {
-			err = fmt.Errorf("halt fixture: %w", herr)
+		if cerr := sess.Close(); cerr != nil && err == nil {
+			err = cerr
 		}
 	}()
-	cfg, err := planConfig(v, rep, st.Pins.Clock != "", o.search)
-	if err != nil {
-		return err
-	}
-	plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
-	if err != nil {
-		return err
-	}
-	db, err := store.Open(dbPath)
-	if err != nil {
-		return err
-	}
-	defer db.Close()
-	// Setting up is quick and must not be cut half-way by a stop request;
-	// the loop below checks for one before every unit.
-	setup := context.WithoutCancel(ctx)
-	hash, err := db.PutVariant(setup, v.Name, v.Source.Raw)
-	if err != nil {
-		return err
-	}
-	if ops, err := db.LoadRelayOps(setup, st.Fixture); err == nil && len(ops) == len(st.Ladder.RungsPF) {
-		if err := fx.SetRelayOps(ops); err != nil {
-			return err
-		}
-	}
-	// Relay wear is saved after every unit (a power cut loses at most the
-	// unit in progress) and once more on the way out.
-	saveOps := func() { _ = db.SaveRelayOps(context.WithoutCancel(ctx), st.Fixture, fx.RelayOps()) }
-	defer saveOps()
-
-	sess := &sequences.Session{
-		Plan: plan, Station: fx, Clock: clk, Recorder: db,
-		Template: sequences.Run{
-			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
-			Operator: o.operator, Lot: o.lot, Software: softwareVersion(),
-		},
-		CheckSerial: func(s string) error { return validSerial(v.Serial, s) },
-		WallClock:   time.Now,
-		Retest:      &sequences.RetestPolicy{Max: v.Plan.Retest.Max, FlagPassAfterFail: v.Plan.Retest.FlagPassAfterFail},
-	}
-	// What the operator must read goes to stdout (the station's screen);
-	// stderr is for the log.
-	if !o.asJSON {
-		fmt.Fprintf(a.stdout, "padline run: %s on station %s, fixture %s; trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
-			v.Name, st.Name, st.Fixture, rep.TestLimits.Low, rep.TestLimits.High, u, uFrom, dbPath)
-		fmt.Fprintln(a.stdout, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
-	}
-
-	// The station gate (station_cmd.go): no production unit without a
-	// current, passing reference check; asked again before every unit.
-	if err := stationReady(ctx, db, st, time.Now()); err != nil {
-		return a.stationRefused(err, v.Name, st, dbPath, o.asJSON)
-	}
-	next := serialSource(ctx, a.stdin, o.serial)
-	tested := 0
-	for {
-		if ctx.Err() != nil {
-			break
-		}
-		if o.serial == "" && !o.asJSON && isTerminal(a.stdin) {
-			fmt.Fprint(a.stdout, "scan serial> ")
-		}
-		raw, ok, err := next()
-		if err != nil {
-			return fmt.Errorf("read serials: %w", err)
-		}
-		if !ok {
-			break
-		}
-		if strings.TrimSpace(raw) == "" {
-			continue
-		}
-		serial, err := cleanSerial(v.Serial, raw)
-		if err != nil {
-			a.refused(o.asJSON, raw, fmt.Sprintf("%v (unit not tested; scan again)", err))
-			continue
-		}
-		if err := stationReady(ctx, db, st, time.Now()); err != nil {
-			return a.stationRefused(err, v.Name, st, dbPath, o.asJSON)
-		}
-		if line != nil {
-			line.Load(serial)
-		}
-		var lidMsg io.Writer = a.stdout
-		if o.asJSON {
-			lidMsg = a.stderr
-		}
-		if err := waitLid(ctx, fx, o.lidTimeout, lidMsg); err != nil {
-			if line != nil {
-				line.Unload()
-			}
-			if errors.Is(err, context.Canceled) {
-				break
-			}
-			a.refused(o.asJSON, serial, fmt.Sprintf("not tested: %v", err))
-			continue
-		}
-		oc, err := sess.Test(ctx, serial)
-		if line != nil {
-			line.Unload()
-		}
-		switch {
-		case errors.Is(err, sequences.ErrAborted):
-			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", serial)
-			return nil
-		case errors.Is(err, sequences.ErrRetestLimit):
-			a.refused(o.asJSON, serial, err.Error())
-			continue
-		case oc == nil:
-			// Not saved: never show a verdict.
-			return err
-		}
-		tested++
-		saveOps()
-		if o.asJSON {
-			if err := json.NewEncoder(a.stdout).Encode(unitJSON(oc)); err != nil {
-				return err
-			}
-		} else {
-			writeVerdict(a.stdout, oc, cfg.Limits)
-		}
-	}
-	if o.asJSON {
-		fmt.Fprintf(a.stderr, "%d unit(s) tested; fixture halted.\n", tested)
+	events, stop := sess.Subscribe(eventBuffer)
+	printed := make(chan error, 1)
+	go func() { printed <- a.printRun(events, o) }()
+	var sc session.Scanner
+	if o.serial != "" {
+		sc = session.OneSerial(o.serial)
 	} else {
-		fmt.Fprintf(a.stdout, "\n%d unit(s) tested; fixture halted.\n", tested)
+		sc = a.promptingScanner(session.LineScanner(a.stdin), o)
 	}
-	return nil
+	err = sess.Run(ctx, sc)
+	stop()
+	if perr := <-printed; perr != nil && err == nil {
+		err = perr
+	}
+	if errors.Is(err, session.ErrNotReady) {
+		return &exitError{code: exitStationRefused, err: err}
+	}
+	return err
 }
 
-// refused tells the operator a scan was not tested: a plain line, or with
-// --json an object {"serial": …, "refused": reason}, so the output stays
-// one JSON object per line.
-func (a *app) refused(asJSON bool, serial, reason string) {
-	if asJSON {
-		_ = json.NewEncoder(a.stdout).Encode(map[string]string{"serial": serial, "refused": reason})
-		return
+// eventBuffer is the terminal consumer's buffer: far more than one unit
+// emits, so a terminal never drops an event while the loop runs.
+const eventBuffer = 1024
+
+// promptingScanner prints the scan prompt before each read when a person
+// types at a terminal.
+func (a *app) promptingScanner(sc session.Scanner, o runOptions) session.Scanner {
+	if o.asJSON || !isTerminal(a.stdin) {
+		return sc
 	}
-	fmt.Fprintf(a.stdout, "REFUSED  %s\n", reason)
+	return session.ScannerFunc(func(ctx context.Context) (string, bool, error) {
+		fmt.Fprint(a.stdout, "scan serial> ")
+		return sc.Scan(ctx)
+	})
 }
 
-// serialSource yields the one --serial, or the lines of r as scanned; a
-// read error (or a line over 1 MiB) ends the source with that error. A stop
-// request ends it at once, even while a read is blocked waiting for a scan.
-func serialSource(ctx context.Context, r io.Reader, one string) func() (string, bool, error) {
-	if one != "" {
-		done := false
-		return func() (string, bool, error) {
-			if done {
-				return "", false, nil
+// printRun is the terminal's consumer of the session's events: what the
+// operator must read goes to stdout (the station's screen), stderr is for
+// the log. With --json stdout carries one JSON object per tested or
+// refused unit.
+func (a *app) printRun(events <-chan session.Event, o runOptions) error {
+	var werr error
+	enc := json.NewEncoder(a.stdout)
+	for e := range events {
+		switch e.Kind {
+		case session.KindSessionStarted:
+			if !o.asJSON {
+				writeRunBanner(a.stdout, e.Started)
 			}
-			done = true
-			return one, true, nil
+		case session.KindStationRefused:
+			if !o.asJSON {
+				fmt.Fprintf(a.stdout, "STATION LOCKED  %s: %s\n", e.Refused.Why, e.Refused.Fix)
+			}
+		case session.KindScanRefused:
+			if o.asJSON {
+				werr = errors.Join(werr, enc.Encode(map[string]string{"serial": e.ScanRefused.Raw, "refused": e.ScanRefused.Reason}))
+			} else {
+				fmt.Fprintf(a.stdout, "NOT TESTED  %s\n", e.ScanRefused.Reason)
+			}
+		case session.KindLidWait:
+			w := a.stdout
+			if o.asJSON {
+				w = a.stderr
+			}
+			fmt.Fprintln(w, "close the lid to start the test")
+		case session.KindUnitAborted:
+			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", e.Scan.Serial)
+		case session.KindVerdictCommitted:
+			if o.asJSON {
+				werr = errors.Join(werr, enc.Encode(unitJSON(e.Verdict)))
+			} else {
+				writeVerdict(a.stdout, e.Verdict)
+			}
+		case session.KindRelayWear:
+			fmt.Fprintf(a.stderr, "relay wear: rung %d has %d of %.0f rated operations (%.0f %%): plan its replacement\n",
+				e.Wear.Rung, e.Wear.Operations, e.Wear.Rated, 100*e.Wear.Fraction)
+		case session.KindDriftAlarm:
+			fmt.Fprintf(a.stderr, "drift alarm: %s\n", e.Drift.Message)
+		case session.KindSessionEnded:
+			if e.Ended.Reason == session.EndRefused {
+				continue
+			}
+			if o.asJSON {
+				fmt.Fprintf(a.stderr, "%d unit(s) tested; fixture halted.\n", e.Ended.Tested)
+			} else {
+				fmt.Fprintf(a.stdout, "\n%d unit(s) tested; fixture halted.\n", e.Ended.Tested)
+			}
 		}
 	}
-	type line struct {
-		text string
-		err  error
-	}
-	lines := make(chan line)
-	go func() {
-		defer close(lines)
-		sc := bufio.NewScanner(r)
-		sc.Buffer(make([]byte, 64*1024), 1<<20)
-		for sc.Scan() {
-			select {
-			case lines <- line{text: sc.Text()}:
-			case <-ctx.Done():
-				return
-			}
-		}
-		if err := sc.Err(); err != nil {
-			select {
-			case lines <- line{err: err}:
-			case <-ctx.Done():
-			}
-		}
-	}()
-	return func() (string, bool, error) {
-		select {
-		case l, ok := <-lines:
-			if !ok {
-				return "", false, nil
-			}
-			if l.err != nil {
-				return "", false, l.err
-			}
-			return l.text, true, nil
-		case <-ctx.Done():
-			return "", false, nil
-		}
-	}
+	return werr
 }
 
-// waitLid asks for the lid to be closed, once, and waits until it is.
-func waitLid(ctx context.Context, fx *fixture.Fixture, timeout time.Duration, msg io.Writer) error {
-	if closed, err := fx.LidClosed(); err != nil || closed {
-		return err
+// writeRunBanner says what the session tests, where, against which limits,
+// and whether the station is simulated.
+func writeRunBanner(w io.Writer, s *session.Started) {
+	sim := ""
+	if s.Simulated {
+		sim = " SIMULATED station (driver sim): these runs are not real units;"
 	}
-	fmt.Fprintln(msg, "close the lid to start the test")
-	return fx.WaitLid(ctx, true, 50*time.Millisecond, timeout)
+	fmt.Fprintf(w, "padline run: %s on station %s, fixture %s;%s trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
+		s.Variant, s.Station, s.Fixture, sim, s.Limits.TripLowPF, s.Limits.TripHighPF, s.UncertaintyPF, s.UncertaintyFrom, s.ShiftLog)
+	fmt.Fprintln(w, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
 }
 
 // unitJSON is one tested unit for --json.
-func unitJSON(oc *sequences.Outcome) map[string]any {
-	r := oc.Run
+func unitJSON(v *session.Verdict) map[string]any {
+	r := v.Run
 	m := map[string]any{
-		"id": oc.ID, "serial": r.Serial, "verdict": r.Verdict, "fail_code": r.FailCode,
-		"fixture_ms": ms(r.Finished.Sub(r.Started)), "prior_fails": oc.PriorFails,
+		"id": v.ID, "serial": r.Serial, "verdict": r.Verdict, "fail_code": r.FailCode,
+		"fixture_ms": ms(r.Finished.Sub(r.Started)), "prior_fails": v.PriorFails,
 	}
 	for _, x := range r.Measurements {
-		if x.Name == "trip_pf" || x.Name == "trip_se_pf" || x.Name == "spread_pf" || x.Name == "clock_hz" {
-			m[x.Name] = jsonNum(x.Value)
+		switch x.Name {
+		case sequences.MeasTripPF, sequences.MeasTripSEPF, sequences.MeasSpreadPF, sequences.MeasClockHz:
+			m[string(x.Name)] = jsonNum(x.Value)
 		}
 	}
 	return m
@@ -358,24 +221,33 @@ func jsonNum(f float64) any {
 }
 
 // writeVerdict prints the verdict large and plain, after the commit.
-func writeVerdict(w io.Writer, oc *sequences.Outcome, lim sequences.Limits) {
-	r := oc.Run
+func writeVerdict(w io.Writer, v *session.Verdict) {
+	r, lim := v.Run, v.Limits
 	trip := "no trip point"
 	for _, x := range r.Measurements {
-		if x.Name == "trip_pf" && !math.IsNaN(x.Value) {
+		if x.Name == sequences.MeasTripPF && !math.IsNaN(x.Value) {
 			trip = fmt.Sprintf("trip %.2f pF (limits %.2f … %.2f pF)", x.Value, lim.TripLowPF, lim.TripHighPF)
 		}
 	}
 	switch r.Verdict {
 	case sequences.Pass:
 		flag := ""
-		if oc.PriorFails > 0 {
-			flag = fmt.Sprintf("   (pass after %d fail(s): flagged in the shift log)", oc.PriorFails)
+		if v.PriorFails > 0 {
+			flag = fmt.Sprintf("   (pass after %d fail(s): flagged in the shift log)", v.PriorFails)
 		}
 		fmt.Fprintf(w, "%s   ======== PASS ========   %s%s\n", r.Serial, trip, flag)
 	case sequences.Fail:
 		fmt.Fprintf(w, "%s   ######## FAIL ########   %s   %s\n", r.Serial, r.FailCode, trip)
 	default:
 		fmt.Fprintf(w, "%s   ???? STATION FAULT ????   %s: the station, not the unit, failed; see the station before retesting\n", r.Serial, r.FailCode)
+		if v.StationError != "" {
+			fmt.Fprintf(w, "   station fault: %s\n", v.StationError)
+		}
+	}
+	if v.PriorPasses > 0 {
+		fmt.Fprintf(w, "   repeat: %s passed %d time(s) before; this run is logged beside those\n", r.Serial, v.PriorPasses)
+	}
+	if v.Action != "" && r.Verdict != sequences.Pass {
+		fmt.Fprintf(w, "   what to do: %s\n", v.Action)
 	}
 }

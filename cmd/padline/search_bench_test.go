@@ -9,6 +9,7 @@ import (
 	"os"
 	"testing"
 
+	"padline/sequences/session"
 	"padline/sequences/timing"
 )
 
@@ -42,7 +43,7 @@ type stationFigures struct {
 
 func writeStationTargets(t testing.TB, w io.Writer, perFixture int) {
 	ctx := context.Background()
-	v, err := loadVariant("QM-205")
+	v, err := session.LoadVariant("QM-205")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -52,18 +53,18 @@ func writeStationTargets(t testing.TB, w io.Writer, perFixture int) {
 	}
 	a := &app{stdout: io.Discard, stderr: io.Discard}
 	const fixtures = 10
-	strategies := []string{"bracket", searchLaplace}
+	strategies := []string{"bracket", session.SearchLaplace}
 	figs := make([]stationFigures, len(strategies))
 	for i := range figs {
 		figs[i].defectCodes = map[string]map[string]int{}
 	}
 	for seed := uint64(1); seed <= fixtures; seed++ {
-		st, err := loadStation("demo-sim")
+		st, err := session.LoadStation("demo-sim")
 		if err != nil {
 			t.Fatal(err)
 		}
 		st.Sim.Seed = seed
-		u, _ := stationU(st)
+		u, _ := session.StatedUncertainty(st)
 		rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
 		if err != nil {
 			t.Fatal(err)

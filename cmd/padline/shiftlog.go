@@ -4,6 +4,8 @@ import (
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
 	"github.com/spf13/viper"
+
+	"padline/sequences/session"
 )
 
 // defaultShiftLog is the shift log every command uses when
@@ -25,7 +27,7 @@ func shiftLogPath(cmd *cobra.Command, stationRef string) (string, error) {
 		return p, nil
 	}
 	if stationRef != "" {
-		st, err := loadStation(stationRef)
+		st, err := session.LoadStation(stationRef)
 		if err != nil {
 			return "", err
 		}

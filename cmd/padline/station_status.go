@@ -6,12 +6,15 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
+	"os"
 	"strings"
 	"time"
 
 	"github.com/spf13/cobra"
 
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/store"
 )
 
@@ -84,18 +87,27 @@ with a WARNING from relay_warn_fraction (default 0.8) of rated life.`,
 }
 
 func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON bool) error {
-	st, err := loadStation(station)
+	st, err := session.LoadStation(station)
 	if err != nil {
 		return err
+	}
+	rep := statusReport{Station: st.Name, Fixture: st.Fixture, ShiftLog: dbPath, RatedOps: st.Ladder.RatedOperations, WarnFraction: st.Trust.RelayWarnFraction}
+	// A read-only command never creates files: no shift log, no history.
+	if _, err := os.Stat(dbPath); errors.Is(err, fs.ErrNotExist) {
+		rep.NotReady = fmt.Sprintf("no shift log at %s yet: nothing was checked or tested with it", dbPath)
+		rep.UPF, rep.USource = session.StatedUncertainty(st)
+		for i := range st.Ladder.RungsPF {
+			rep.Relays = append(rep.Relays, relayWear{Rung: i})
+		}
+		return a.printStatus(rep, st, asJSON)
 	}
 	db, err := store.Open(dbPath)
 	if err != nil {
 		return err
 	}
 	defer db.Close()
-	rep := statusReport{Station: st.Name, Fixture: st.Fixture, ShiftLog: dbPath, RatedOps: st.Ladder.RatedOperations, WarnFraction: st.Trust.RelayWarnFraction}
-	if err := stationReady(ctx, db, st, time.Now()); err != nil {
-		if !errors.Is(err, errNotReady) {
+	if err := session.Ready(ctx, db, st, time.Now()); err != nil {
+		if !errors.Is(err, session.ErrNotReady) {
 			return err
 		}
 		rep.NotReady = err.Error()
@@ -104,7 +116,7 @@ func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON 
 	}
 	if c, err := db.LastCheck(ctx, st.Name, st.Fixture); err == nil {
 		sc := &statusCheck{ID: c.ID, Time: c.Time, OK: c.OK}
-		var d checkReport
+		var d session.CheckReport
 		if json.Unmarshal(c.Details, &d) == nil {
 			sc.Faults = d.Faults
 		}
@@ -143,7 +155,7 @@ func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON 
 		rep.UPF, rep.USource = u.UPF, fmt.Sprintf("shift log %s (%s): %s", dbPath, u.Time.Local().Format("2006-01-02 15:04"), u.Source)
 		_ = json.Unmarshal(u.Components, &rep.UComponents)
 	} else if errors.Is(err, store.ErrNotFound) {
-		rep.UPF, rep.USource = stationU(st)
+		rep.UPF, rep.USource = session.StatedUncertainty(st)
 	} else {
 		return err
 	}
@@ -160,6 +172,11 @@ func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON 
 		w.Warn = w.Fraction >= st.Trust.RelayWarnFraction
 		rep.Relays = append(rep.Relays, w)
 	}
+	return a.printStatus(rep, st, asJSON)
+}
+
+// printStatus prints the status as JSON or as text.
+func (a *app) printStatus(rep statusReport, st *session.Station, asJSON bool) error {
 	if asJSON {
 		enc := json.NewEncoder(a.stdout)
 		enc.SetIndent("", "  ")
@@ -169,7 +186,7 @@ func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON 
 	return nil
 }
 
-func writeStatus(w io.Writer, rep statusReport, st *Station) {
+func writeStatus(w io.Writer, rep statusReport, st *session.Station) {
 	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
 	p("station %s / fixture %s   shift log %s", rep.Station, rep.Fixture, rep.ShiftLog)
 	if rep.Ready {

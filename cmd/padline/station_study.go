@@ -16,6 +16,7 @@ import (
 
 	"padline/fixture/sim"
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/store"
 )
 
@@ -143,7 +144,7 @@ func (a *app) stationStudy(ctx context.Context, o studyOptions, dbPath string) (
 	rep := studyReport{Station: r.st.Name, Fixture: r.st.Fixture, Variant: r.v.Name, Time: time.Now().UTC(), TolPF: tol}
 	if o.type1 {
 		rep.Kind = store.StudyType1
-		var ref *StationRef
+		var ref *session.StationRef
 		for i := range r.st.Trust.References {
 			if o.ref == "" || r.st.Trust.References[i].Serial == o.ref {
 				ref = &r.st.Trust.References[i]
@@ -236,11 +237,11 @@ func (a *app) stationStudy(ctx context.Context, o studyOptions, dbPath string) (
 // goodSerials returns the first n serials of the demo numbering whose
 // simulated units carry no defect: the parts of a GRR study (a real study
 // picks good parts spread over the process range).
-func goodSerials(line *sim.Line, v *Variant, n int) []string {
+func goodSerials(line *sim.Line, v *session.Variant, n int) []string {
 	var out []string
 	for i := 1; len(out) < n && i < 100000; i++ {
 		s := demoSerial(v, i)
-		if validSerial(v.Serial, s) != nil {
+		if v.CheckSerial(s) != nil {
 			continue
 		}
 		if len(line.Draw(s).Truth().Defects) == 0 {

@@ -2,7 +2,7 @@
 
 package main
 
-// Fail-safe and crash-safety tests of 'padline run' (issue 7, items 1 and 2):
+// Fail-safe and crash-safety tests of 'padline run' (DEVELOPERS.md "Benchmarks, studies and torture"):
 // the built binary under SIGTERM and SIGKILL against the simulated station,
 // and the fixture's state after a stop or a panic in-process.
 //
@@ -35,13 +35,14 @@ import (
 
 	"padline/fixture/sim"
 	"padline/sequences"
+	"padline/sequences/session"
 	"padline/sequences/timing"
 	"padline/store"
 )
 
 var (
-	tortureUnits = flag.Int("torture.units", 500, "crash torture: serials to test (issue 7 asks for 500)")
-	tortureKills = flag.Int("torture.kills", 20, "crash torture: SIGKILLs (issue 7 asks for 20)")
+	tortureUnits = flag.Int("torture.units", 500, "crash torture: serials to test (the torture target is 500)")
+	tortureKills = flag.Int("torture.kills", 20, "crash torture: SIGKILLs (the torture target is 20)")
 	tortureSeed  = flag.Uint64("torture.seed", 1, "crash torture: seed of the kill moments")
 )
 
@@ -199,11 +200,11 @@ func sameAsLogged(u unitLine, e *store.Entry) error {
 	if e == nil {
 		return fmt.Errorf("%s: printed as run %d (%s), which is not in the shift log", u.Serial, u.ID, u.Verdict)
 	}
-	if e.Serial != u.Serial || string(e.Verdict) != u.Verdict || e.FailCode != u.FailCode {
+	if e.Serial != u.Serial || string(e.Verdict) != u.Verdict || string(e.FailCode) != u.FailCode {
 		return fmt.Errorf("run %d: printed %s %s %q, logged %s %s %q", u.ID, u.Serial, u.Verdict, u.FailCode, e.Serial, e.Verdict, e.FailCode)
 	}
 	for name, v := range map[string]*float64{"clock_hz": u.ClockHz, "trip_pf": u.TripPF, "trip_se_pf": u.TripSEPF, "spread_pf": u.SpreadPF} {
-		i := slices.IndexFunc(e.Measurements, func(m sequences.Measurement) bool { return m.Name == name })
+		i := slices.IndexFunc(e.Measurements, func(m sequences.Measurement) bool { return string(m.Name) == name })
 		switch {
 		case !u.present[name] && i >= 0:
 			return fmt.Errorf("run %d: %s logged but not printed", u.ID, name)
@@ -240,7 +241,7 @@ func wholeRun(e *store.Entry) error {
 	var names []string
 	at := -1
 	for _, m := range e.Measurements {
-		n := m.Step + "/" + m.Name
+		n := string(m.Step) + "/" + string(m.Name)
 		i := slices.Index(planOrder, n)
 		if i <= at {
 			return fmt.Errorf("run %d (%s): measurement %s out of plan order or repeated: %v", e.ID, e.Serial, n, names)
@@ -324,11 +325,11 @@ func serialRange(from, n int) []string {
 // each of the clock, idle and release steps: a unit then takes a few
 // milliseconds of CPU instead of a fraction of one, so a signal sent just
 // after a verdict line lands inside the next unit's plan. 1500 periods stay
-// inside the 5 s step budget (station_setup.go planConfig) down to 300 Hz;
+// inside the 5 s step budget (station_setup.go session.PlanConfig) down to 300 Hz;
 // the slowest QM-205 clock corner is ≈ 400 Hz ('padline limits --variant QM-205').
 func slowVariant(t *testing.T) string {
 	t.Helper()
-	v, err := loadVariant("QM-205")
+	v, err := session.LoadVariant("QM-205")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -504,7 +505,7 @@ func TestCrashTorture(t *testing.T) {
 		// The process works through its input in order.
 		for i, s := range p.got {
 			serial := remaining[i]
-			if rest, ok := strings.CutPrefix(s, "REFUSED  "); ok {
+			if rest, ok := strings.CutPrefix(s, "NOT TESTED  "); ok {
 				// The retest limit: the serial was logged (and not
 				// shown) by enough killed processes already.
 				refused[serial] = rest
@@ -642,20 +643,20 @@ var errStepPanic = errors.New("torture: a step panicked")
 // and every rung pin must be low, every contact open once the relays had
 // their operate + bounce time, and nothing of the unit logged.
 func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
-	v, err := loadVariant("QM-205")
+	v, err := session.LoadVariant("QM-205")
 	if err != nil {
 		t.Fatal(err)
 	}
-	st, err := loadStation("demo-sim")
+	st, err := session.LoadStation("demo-sim")
 	if err != nil {
 		t.Fatal(err)
 	}
-	u, _ := stationU(st)
+	u, _ := session.StatedUncertainty(st)
 	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
 	if err != nil {
 		t.Fatal(err)
 	}
-	cfg, err := planConfig(v, rep, st.Pins.Clock != "", "")
+	cfg, err := session.PlanConfig(v, rep, st.Pins.Clock != "", "")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -692,11 +693,11 @@ func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
 			how = "panic"
 		}
 		t.Run(fmt.Sprintf("%s_after_%s_%d", how, c.op, c.n), func(t *testing.T) {
-			line, err := newSimLine(st, v)
+			line, err := session.NewSimLine(st, v)
 			if err != nil {
 				t.Fatal(err)
 			}
-			fx, err := newFixture(st, line.Pins(), line.Clock())
+			fx, err := session.NewFixture(st, line.Pins(), line.Clock())
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -1,6 +1,7 @@
 package timing
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -70,6 +71,12 @@ type TripStats struct {
 	// NoTripDraws counts Monte Carlo draws that never trip (left out of the
 	// statistics, counted as out of spec for the yield).
 	NoTripDraws int `json:"no_trip_draws"`
+	// NoTripCorners counts worst-case corners at which the unit cannot
+	// trip (e.g. setup ≥ delay: the flip-flop samples before the sense
+	// node can fall); the corner figures come from the others.
+	NoTripCorners int `json:"no_trip_corners"`
+	// Corners is how many corners were evaluated.
+	Corners int `json:"corners"`
 }
 
 // ClockStats describes the predicted oscillator frequency in Hz.
@@ -157,11 +164,14 @@ func Analyze(c Circuit, spec Spec, opt Options) (Report, error) {
 	rep.Trip.Nominal = trip
 	rep.Clock.HighS, rep.Clock.LowS, rep.Clock.Nominal = Oscillator(nom)
 
-	tLo, tHi, fLo, fHi, err := corners(c)
+	cs, err := corners(c)
 	if err != nil {
 		return Report{}, err
 	}
+	tLo, tHi := cs.tLo, cs.tHi
 	rep.Trip.CornerLow, rep.Trip.CornerHigh = tLo, tHi
+	rep.Trip.NoTripCorners, rep.Trip.Corners = cs.noTrip, cs.n
+	fLo, fHi := cs.fLo, cs.fHi
 	rep.Clock.CornerLow, rep.Clock.CornerHigh = fLo, fHi
 	rep.ModelLimits = Limits{Low: tLo, High: tHi}
 
@@ -204,6 +214,9 @@ func Analyze(c Circuit, spec Spec, opt Options) (Report, error) {
 func warnings(r Report) []string {
 	var w []string
 	t, s := r.Trip, r.Spec
+	if t.NoTripCorners > 0 {
+		w = append(w, fmt.Sprintf("at %d of %d worst-case corners the unit cannot trip (the flip-flop samples before the sense node can fall, e.g. setup ≥ delay): a unit built at such a corner latches whatever the pad carries and fails idle_latched", t.NoTripCorners, t.Corners))
+	}
 	if t.NoTripDraws > 0 {
 		w = append(w, fmt.Sprintf("%d of %d Monte Carlo draws never trip: those units would fail no_trip", t.NoTripDraws, r.Draws))
 	}
@@ -222,14 +235,37 @@ func warnings(r Report) []string {
 	if r.TestLimits.Low >= r.TestLimits.High {
 		w = append(w, fmt.Sprintf("test limits collapse (%.2f ≥ %.2f pF): the guard band of %.2f pF leaves no acceptance zone; reduce the station's uncertainty", r.TestLimits.Low, r.TestLimits.High, r.GuardBandPF))
 	} else if p := r.Trip; p.MCP00135 < r.TestLimits.Low || p.MCP99865 > r.TestLimits.High {
-		w = append(w, fmt.Sprintf("the design's ±3σ spread %.2f..%.2f pF is wider than the test limits %.2f..%.2f pF: good units will be rejected by the guard band", p.MCP00135, p.MCP99865, r.TestLimits.Low, r.TestLimits.High))
+		w = append(w, spreadWarning(p, r.TestLimits))
 	}
 	return w
 }
 
+// spreadWarning says how the design's ±3σ spread passes the test limits:
+// wider than them, or as narrow or narrower but shifted past one of them.
+func spreadWarning(p TripStats, l Limits) string {
+	spread := fmt.Sprintf("the design's ±3σ spread %.2f..%.2f pF", p.MCP00135, p.MCP99865)
+	lim := fmt.Sprintf("the test limits %.2f..%.2f pF", l.Low, l.High)
+	if p.MCP99865-p.MCP00135 > l.High-l.Low {
+		return spread + " is wider than " + lim + ": good units will be rejected by the guard band"
+	}
+	side := "above the high limit"
+	if p.MCP00135 < l.Low {
+		side = "below the low limit"
+	}
+	return spread + " is narrower than " + lim + " but shifted " + side + ": good units will be rejected there; the design's centre, not its spread, needs attention"
+}
+
+// cornerSet is the extremes of trip point and clock over the corners.
+type cornerSet struct {
+	tLo, tHi, fLo, fHi float64
+	n, noTrip          int
+}
+
 // corners evaluates trip point and clock at every Min/Max combination of the
-// toleranced inputs and returns their extremes.
-func corners(c Circuit) (tLo, tHi, fLo, fHi float64, err error) {
+// toleranced inputs and returns their extremes. A corner at which the unit
+// cannot trip (ErrNoTrip) is counted, not an error; when no corner trips
+// the trip extremes are NaN.
+func corners(c Circuit) (cornerSet, error) {
 	vs := c.values()
 	var idx []int
 	for i, v := range vs {
@@ -237,8 +273,9 @@ func corners(c Circuit) (tLo, tHi, fLo, fHi float64, err error) {
 			idx = append(idx, i)
 		}
 	}
-	tLo, fLo = math.Inf(1), math.Inf(1)
-	tHi, fHi = math.Inf(-1), math.Inf(-1)
+	tLo, fLo := math.Inf(1), math.Inf(1)
+	tHi, fHi := math.Inf(-1), math.Inf(-1)
+	noTrip := 0
 	p := c.Nominal()
 	fs := p.fields()
 	for mask := 0; mask < 1<<len(idx); mask++ {
@@ -249,15 +286,23 @@ func corners(c Circuit) (tLo, tHi, fLo, fHi float64, err error) {
 				*fs[i] = vs[i].Min
 			}
 		}
-		t, err := TripPF(p)
-		if err != nil {
-			return 0, 0, 0, 0, fmt.Errorf("corner %s: %w", describe(p), err)
-		}
 		_, _, f := Oscillator(p)
-		tLo, tHi = math.Min(tLo, t), math.Max(tHi, t)
 		fLo, fHi = math.Min(fLo, f), math.Max(fHi, f)
+		t, err := TripPF(p)
+		if errors.Is(err, ErrNoTrip) {
+			noTrip++
+			continue
+		}
+		if err != nil {
+			return cornerSet{}, fmt.Errorf("corner %s: %w", describe(p), err)
+		}
+		tLo, tHi = math.Min(tLo, t), math.Max(tHi, t)
 	}
-	return tLo, tHi, fLo, fHi, nil
+	n := 1 << len(idx)
+	if noTrip == n {
+		return cornerSet{}, fmt.Errorf("%w: the unit cannot trip at any worst-case corner", ErrNoTrip)
+	}
+	return cornerSet{tLo: tLo, tHi: tHi, fLo: fLo, fHi: fHi, n: n, noTrip: noTrip}, nil
 }
 
 // describe names a point's values for an error message.

@@ -1,5 +1,5 @@
 // Package timing is the closed-form timing model of an RC-race touch switch
-// (DESIGN.md §4) and the tolerance analysis built on it (§7): toleranced
+// (DEVELOPERS.md "Physics") and the tolerance analysis built on it (§7): toleranced
 // circuit values, the Schmitt RC oscillator, the sense-node race and its trip
 // capacitance, worst-case corners, a seeded Monte Carlo, the spec window, the
 // ISO 14253-1 guard band and the resulting test limits, and the design's

@@ -11,7 +11,7 @@ import (
 )
 
 // NIST/SEMATECH e-Handbook §6.1.6 worked example, from memory (see
-// ../shared/REFERENCES.md): USL 20, LSL 8, μ 16, σ 2 → Cp 1.000, Cpk 0.667.
+// DEVELOPERS.md "References"): USL 20, LSL 8, μ 16, σ 2 → Cp 1.000, Cpk 0.667.
 // One-sided rows are derived from the definitions.
 func TestIndices(t *testing.T) {
 	nan := math.NaN()
@@ -61,7 +61,7 @@ func TestCapabilityOf(t *testing.T) {
 }
 
 // Clopper–Pearson (Biometrika 26:404–413, 1934). Checks from
-// ../shared/REFERENCES.md (derived: 1 − 0.05^(1/n)): 0 of 100 one-sided 95 %
+// DEVELOPERS.md "References" (derived: 1 − 0.05^(1/n)): 0 of 100 one-sided 95 %
 // upper 0.029513, 0 of 1000 0.0029912; rule of three (Hanley &
 // Lippman-Hand, JAMA 1983) ≈ 3/n.
 func TestClopperPearson(t *testing.T) {

@@ -15,7 +15,7 @@ func near(a, b, tol float64) bool { return math.Abs(a-b) <= tol }
 
 // Hand-derived: x = 1…5, mean 3, MR̄ = 1, σ = 1/d2(2) = 1/1.128;
 // individuals limits 3 ± 3/1.128; MR centre 1, UCL D4(2)·MR̄ = 3.267
-// (D4 from ../shared/REFERENCES.md), LCL 0.
+// (D4 from DEVELOPERS.md "References"), LCL 0.
 func TestIndividualsChartHandWorked(t *testing.T) {
 	s, err := drift.IndividualsChart([]float64{1, 2, 3, 4, 5}, drift.FirstN(5), drift.Options{})
 	if err != nil {
@@ -100,7 +100,7 @@ func TestTimeWindow(t *testing.T) {
 	}
 }
 
-// X̄-R and X̄-s limits against the published factors (REFERENCES.md table,
+// X̄-R and X̄-s limits against the published factors (DEVELOPERS.md "References" table,
 // n = 5): X̿ ± A2·R̄ (A2 = 0.577 is 3/(d2√n) rounded, so 1e-3·R̄),
 // D3·R̄ … D4·R̄, X̿ ± A3·s̄, B3·s̄ … B4·s̄.
 func TestXbarCharts(t *testing.T) {

@@ -10,7 +10,7 @@ import (
 	"padline/store/drift"
 )
 
-// Rows n = 2, 3, 4, 5, 10: ../shared/REFERENCES.md "Shewhart constants"
+// Rows n = 2, 3, 4, 5, 10: DEVELOPERS.md "References" "Shewhart constants"
 // (ASTM E2587; Montgomery, Introduction to SQC, Appendix VI), confirmed.
 // Rows 6–9 are from memory of Montgomery Appendix VI and are held to the
 // relations and the integrals below instead.
@@ -41,7 +41,7 @@ func TestConstantsPublishedRows(t *testing.T) {
 	}
 }
 
-// Relations from ../shared/REFERENCES.md: A2 = 3/(d2√n), A3 = 3/(c4√n),
+// Relations from DEVELOPERS.md "References": A2 = 3/(d2√n), A3 = 3/(c4√n),
 // D3,4 = 1 ∓ 3·d3/d2 floored at 0; and B3,4 = 1 ∓ 3·√(1−c4²)/c4 (the s
 // chart limits c4σ ± 3σ√(1−c4²) divided by c4, Montgomery §6.3). The table
 // is rounded to three places from unrounded d2, d3, so the relations are

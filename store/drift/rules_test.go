@@ -27,7 +27,7 @@ func alternate(a, b float64, n int) []float64 {
 }
 
 // Each series is built to trip exactly one rule (definitions:
-// ../shared/REFERENCES.md, Western Electric Statistical Quality Control
+// DEVELOPERS.md "References", Western Electric Statistical Quality Control
 // Handbook 1956 and Nelson, J. Quality Technology 16(4), 1984). The rule
 // must fire at the point completing the pattern and not one point early,
 // and nothing else may fire up to that point.

@@ -46,7 +46,7 @@ func TestSimulatedARLMatchesPublished(t *testing.T) {
 	}
 }
 
-// Issue 5 targets for the default set: in-control ARL ≥ 150 and a 1σ step
+// The targets (DEVELOPERS.md "Benchmarks, studies and torture") for the default set: in-control ARL ≥ 150 and a 1σ step
 // flagged within a median of 12 units, both zero-state and after 50
 // in-control points, with known parameters and with limits estimated from
 // a 50-point baseline.

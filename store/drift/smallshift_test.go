@@ -7,7 +7,7 @@ import (
 	"padline/store/drift"
 )
 
-// NIST/SEMATECH e-Handbook §6.3.2.4 worked example (../shared/REFERENCES.md):
+// NIST/SEMATECH e-Handbook §6.3.2.4 worked example (DEVELOPERS.md "References"):
 // z0 = 50, s = 2.0539, λ = 0.3, k = 3. The handbook prints the EWMA to two
 // places (tolerance 0.005) and truncates the limits (tolerance 1e-3); by
 // point 20 the exact limits equal the asymptotic ones to 1e-6.
@@ -42,7 +42,7 @@ var montgomery = []float64{9.45, 7.99, 9.29, 11.66, 12.16, 10.18, 8.04, 11.46, 9
 	9.37, 10.62, 10.31, 8.52, 10.84, 10.90, 9.33, 12.29, 11.50, 10.60, 11.08, 10.38, 11.62, 11.31, 10.52}
 
 // Montgomery, Introduction to Statistical Quality Control, Example 9.1 (and
-// ../shared/REFERENCES.md): μ0 = 10, σ = 1, k = 0.5, h = 5. C⁺ printed to
+// DEVELOPERS.md "References"): μ0 = 10, σ = 1, k = 0.5, h = 5. C⁺ printed to
 // two places; first signal at period 29; N⁺ = 7, so the shift began after
 // period 22; shifted mean estimate μ0 + K + C⁺/N⁺ = 10.5 + 5.28/7 = 11.25.
 func TestCUSUMMontgomeryExample(t *testing.T) {

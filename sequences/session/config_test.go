@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"bytes"
@@ -28,9 +28,9 @@ func TestBadConfigCorpus(t *testing.T) {
 			var err error
 			switch {
 			case strings.HasPrefix(name, "variant-"):
-				_, err = loadVariant(f)
+				_, err = LoadVariant(f)
 			case strings.HasPrefix(name, "station-"):
-				_, err = loadStation(f)
+				_, err = LoadStation(f)
 			default:
 				t.Fatalf("corpus file %s must start with variant- or station-", name)
 			}
@@ -70,7 +70,7 @@ func TestBuiltinsMatchTestdata(t *testing.T) {
 			want, _ := os.ReadFile(f)
 			got, err := builtin.ReadFile("defaults/" + dir + "/" + filepath.Base(f))
 			if err != nil || !bytes.Equal(got, want) {
-				t.Errorf("cmd/padline/defaults/%s/%s differs from %s: cp it over (%v)", dir, filepath.Base(f), f, err)
+				t.Errorf("sequences/session/defaults/%s/%s differs from %s: cp it over (%v)", dir, filepath.Base(f), f, err)
 			}
 		}
 	}
@@ -79,7 +79,7 @@ func TestBuiltinsMatchTestdata(t *testing.T) {
 func TestDemoVariants(t *testing.T) {
 	for _, ref := range []string{"QM-205", "QM-212", repo + "/testdata/variants/QM-205.yaml"} {
 		t.Run(filepath.Base(ref), func(t *testing.T) {
-			v, err := loadVariant(ref)
+			v, err := LoadVariant(ref)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -94,13 +94,13 @@ func TestDemoVariants(t *testing.T) {
 			if len(v.Source.Hash) != 64 || len(v.Source.Raw) == 0 {
 				t.Errorf("hash %q, %d raw bytes", v.Source.Hash, len(v.Source.Raw))
 			}
-			if v.Plan != DefaultPlan() {
+			if v.Plan != DefaultPlanSection() {
 				t.Errorf("plan %+v, want defaults", v.Plan)
 			}
 		})
 	}
-	a, _ := loadVariant("QM-205")
-	b, _ := loadVariant(repo + "/testdata/variants/QM-205.yaml")
+	a, _ := LoadVariant("QM-205")
+	b, _ := LoadVariant(repo + "/testdata/variants/QM-205.yaml")
 	if a.Source.Hash != b.Source.Hash {
 		t.Error("built-in and file copy hash differently")
 	}
@@ -121,7 +121,7 @@ func TestVariantPlanSection(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	want := DefaultPlan()
+	want := DefaultPlanSection()
 	want.PowerSettleMS, want.IdlePeriods = 20, 4
 	want.Search.Strategy, want.Search.SETargetPF = "staircase", 0.05
 	want.Retest = PlanRetest{Max: 0, FlagPassAfterFail: false}
@@ -131,18 +131,18 @@ func TestVariantPlanSection(t *testing.T) {
 }
 
 func TestUnknownVariantName(t *testing.T) {
-	_, err := loadVariant("QM-999")
+	_, err := LoadVariant("QM-999")
 	if err == nil || !strings.Contains(err.Error(), "QM-205, QM-212") {
 		t.Errorf("err = %v, want the built-in names listed", err)
 	}
-	if _, err := loadVariant("no/such/file.yaml"); err == nil || !strings.Contains(err.Error(), "read variant") {
+	if _, err := LoadVariant("no/such/file.yaml"); err == nil || !strings.Contains(err.Error(), "read variant") {
 		t.Errorf("missing file: %v", err)
 	}
 }
 
 func TestDemoStation(t *testing.T) {
 	for _, ref := range []string{"demo-sim", repo + "/testdata/stations/demo-sim.yaml"} {
-		s, err := loadStation(ref)
+		s, err := LoadStation(ref)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -161,8 +161,8 @@ func TestDemoStation(t *testing.T) {
 		len(s.Sim.Faults.RungStuckOpen) != 1 || s.Sim.Faults.RungStuckOpen[0] != 3 {
 		t.Errorf("uncertainty %v, sim %+v", s.UncertaintyPF, s.Sim)
 	}
-	// The realism floor (DESIGN.md §12) is the default when the section is absent.
-	if s, _ := loadStation("demo-sim"); s.Sim.NoiseMVAt5V != 10 || s.Sim.JitterNs != 1 || s.Sim.RungErrSDPF != 0.05 {
+	// The realism floor (DEVELOPERS.md "Simulator realism floor") is the default when the section is absent.
+	if s, _ := LoadStation("demo-sim"); s.Sim.NoiseMVAt5V != 10 || s.Sim.JitterNs != 1 || s.Sim.RungErrSDPF != 0.05 {
 		t.Errorf("sim defaults %+v", s.Sim)
 	}
 	bad := append(raw[:len(raw):len(raw)], []byte("  bogus: 1\n")...)

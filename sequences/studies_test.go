@@ -49,7 +49,7 @@ func TestGaugeRRHandExample(t *testing.T) {
 	// 3 parts × 2 trials. Ranges A: 2 0 1, B: 0 2 1 → R̿ = 1; appraiser
 	// means 123/6 = 20.5 and 129/6 = 21.5 → X̄diff = 1; part means 11, 21,
 	// 31 → Rp = 20. AIAG MSA 4th ed. (2010) with K1(2 trials) 0.8862,
-	// K2(2 appraisers) 0.7071, K3(3 parts) 0.5231 (REFERENCES.md):
+	// K2(2 appraisers) 0.7071, K3(3 parts) 0.5231 (DEVELOPERS.md "References"):
 	// EV = 0.8862; AV = √((0.7071)² − 0.8862²/6) = 0.607535;
 	// GRR = √(EV² + AV²) = 1.074453; PV = 20·0.5231 = 10.462;
 	// TV = 10.517030; %GRR = 10.2163 %; ndc = ⌊1.41·10.462/1.074453⌋ = 13.

@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"fmt"
@@ -9,10 +9,10 @@ import (
 	"padline/sequences/timing"
 )
 
-// planConfig turns a variant's plan section and its computed limits into
+// PlanConfig turns a variant's plan section and its computed limits into
 // the plan's parameters. clockWired says whether the station has a clock pin;
 // strategy, when not empty, is --search and overrides plan.search.strategy.
-func planConfig(v *Variant, rep timing.Report, clockWired bool, strategy string) (sequences.PlanConfig, error) {
+func PlanConfig(v *Variant, rep timing.Report, clockWired bool, strategy string) (sequences.PlanConfig, error) {
 	p := v.Plan
 	if strategy == "" {
 		strategy = p.Search.Strategy
@@ -21,11 +21,11 @@ func planConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 	// clock, idle and release steps and the Laplace refinement, kept to
 	// compare against.
 	refine, fold := sequences.Posterior, true
-	if strategy == searchLaplace {
+	if strategy == SearchLaplace {
 		strategy, refine, fold = string(sequences.Bracket), sequences.Laplace, false
 	}
 	if strategy != string(sequences.Bracket) && strategy != string(sequences.Staircase) {
-		return sequences.PlanConfig{}, fmt.Errorf("--search %q: want bracket, staircase or %s", strategy, searchLaplace)
+		return sequences.PlanConfig{}, fmt.Errorf("--search %q: want bracket, staircase or %s", strategy, SearchLaplace)
 	}
 	if rep.TestLimits.Low >= rep.TestLimits.High {
 		return sequences.PlanConfig{}, fmt.Errorf("variant %s: test limits %.2f … %.2f pF leave nothing to pass: see 'padline limits --variant %s'",
@@ -58,14 +58,22 @@ func planConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 	return cfg, nil
 }
 
-// searchLaplace names the earlier plan for --search.
-const searchLaplace = "laplace"
+// SearchLaplace names the earlier plan for --search: separate clock, idle
+// and release steps and the Laplace refinement.
+const SearchLaplace = "laplace"
 
-// stationU is the guard band a station applies: its own stated uncertainty,
+// StatedUncertainty is the guard band a station applies: its own stated uncertainty,
 // else the documented stand-in.
-func stationU(st *Station) (u float64, from string) {
+func StatedUncertainty(st *Station) (u float64, from string) {
 	if st.UncertaintyPF > 0 {
 		return st.UncertaintyPF, "station file " + st.Source.Name
 	}
-	return defaultUncertaintyPF, "stand-in (station file states no uncertainty_pf)"
+	return DefaultUncertaintyPF, "stand-in (station file states no uncertainty_pf)"
 }
+
+// DefaultUncertaintyPF is U (k = 2) when neither --uncertainty-pf nor a
+// station gives one: a stand-in until the station's own uncertainty budget
+// (rung calibration, ladder resolution, repeatability) is computed. The demo
+// ladder's 0.5 pF step alone contributes u = 0.5/√12 = 0.14 pF (GUM), so
+// U = 2u ≈ 0.3 pF.
+const DefaultUncertaintyPF = 0.3

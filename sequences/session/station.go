@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"slices"
@@ -10,7 +10,7 @@ import (
 type Station struct {
 	Name     string
 	Fixture  string
-	Driver   string // "sim" or "gpio"
+	Driver   Driver
 	ShiftLog string
 	Pins     StationPins
 	Ladder   StationLadder
@@ -24,8 +24,18 @@ type Station struct {
 	// reference units and how often they must be checked.
 	Trust StationTrust
 	// Source is where the file came from, its exact bytes and their sha256.
-	Source source
+	Source Source
 }
+
+// Driver says what drives a station's pins; every run records it.
+type Driver string
+
+const (
+	// DriverSim is the built-in simulated line (no hardware).
+	DriverSim Driver = "sim"
+	// DriverGPIO is real GPIO lines, opened by name.
+	DriverGPIO Driver = "gpio"
+)
 
 // StationPins maps each logical fixture pin to a GPIO line name. Clock,
 // PassLamp and FailLamp are optional ("" = not wired).
@@ -67,12 +77,12 @@ type StationTrust struct {
 	RelayWarnFraction float64
 }
 
-// maxRungs is the most rungs a ladder may have (DESIGN.md §5).
+// maxRungs is the most rungs a ladder may have (DEVELOPERS.md "Fixture").
 const maxRungs = 12
 
-// loadStation resolves ref (a file path, or a built-in station name such as
+// LoadStation resolves ref (a file path, or a built-in station name such as
 // demo-sim) and parses it.
-func loadStation(ref string) (*Station, error) {
+func LoadStation(ref string) (*Station, error) {
 	src, err := openConfig(ref, "stations", "station")
 	if err != nil {
 		return nil, err
@@ -81,8 +91,11 @@ func loadStation(ref string) (*Station, error) {
 }
 
 // parseStation parses and validates one station file. Every problem is a
-// one-line *configError naming the file and the key.
-func parseStation(src source) (*Station, error) {
+// one-line *ConfigError naming the file and the key.
+//
+// Length: it reads the station file's keys in the file's own order, one
+// line per key; the reading order is the documentation of the format.
+func parseStation(src Source) (*Station, error) {
 	d, err := parseDoc(src.Name, src.Raw)
 	if err != nil {
 		return nil, err
@@ -90,8 +103,8 @@ func parseStation(src source) (*Station, error) {
 	s := &Station{Source: src}
 	s.Name = d.str("name", true)
 	s.Fixture = d.str("fixture", true)
-	s.Driver = d.str("driver", true)
-	if s.Driver != "" && s.Driver != "sim" && s.Driver != "gpio" {
+	s.Driver = Driver(d.str("driver", true))
+	if s.Driver != "" && s.Driver != DriverSim && s.Driver != DriverGPIO {
 		d.fail("driver", "must be sim or gpio, got %q", s.Driver)
 	}
 	s.ShiftLog = d.str("shift_log", true)

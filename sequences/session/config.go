@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"bytes"
@@ -26,20 +26,20 @@ import (
 //go:embed defaults/variants/*.yaml defaults/stations/*.yaml
 var builtin embed.FS
 
-// configError is a one-line problem in a config file, naming file and key.
-type configError struct {
+// ConfigError is a one-line problem in a config file, naming file and key.
+type ConfigError struct {
 	File, Key, Msg string
 }
 
-func (e *configError) Error() string {
+func (e *ConfigError) Error() string {
 	if e.Key == "" {
 		return e.File + ": " + e.Msg
 	}
 	return e.File + ": " + e.Key + ": " + e.Msg
 }
 
-// source is the exact bytes of one config file and where they came from.
-type source struct {
+// Source is the exact bytes of one config file and where they came from.
+type Source struct {
 	// Name is the file path as given, or "built-in NAME".
 	Name string
 	// Raw is the file's exact bytes (the snapshot the shift log keeps).
@@ -51,17 +51,17 @@ type source struct {
 // openConfig resolves ref the way --variant and --station do: a path when the
 // file exists or ref ends in .yaml/.yml, else a built-in from dir (the
 // embedded defaults/<dir>/NAME.yaml). kind names the thing for errors.
-func openConfig(ref, dir, kind string) (source, error) {
+func openConfig(ref, dir, kind string) (Source, error) {
 	if isConfigPath(ref) {
 		raw, err := os.ReadFile(ref)
 		if err != nil {
-			return source{}, fmt.Errorf("read %s: %w", kind, err)
+			return Source{}, fmt.Errorf("read %s: %w", kind, err)
 		}
 		return newSource(ref, raw), nil
 	}
 	raw, err := builtin.ReadFile(path.Join("defaults", dir, ref+".yaml"))
 	if err != nil || ref == "" || strings.ContainsAny(ref, `/\`) {
-		return source{}, fmt.Errorf("unknown %s %q: give a .yaml file or one of the built-in %ss: %s",
+		return Source{}, fmt.Errorf("unknown %s %q: give a .yaml file or one of the built-in %ss: %s",
 			kind, ref, kind, strings.Join(builtinNames(dir), ", "))
 	}
 	return newSource("built-in "+ref, raw), nil
@@ -75,9 +75,9 @@ func isConfigPath(ref string) bool {
 	return (err == nil && !st.IsDir()) || ext == ".yaml" || ext == ".yml"
 }
 
-func newSource(name string, raw []byte) source {
+func newSource(name string, raw []byte) Source {
 	sum := sha256.Sum256(raw)
-	return source{Name: name, Raw: raw, Hash: hex.EncodeToString(sum[:])}
+	return Source{Name: name, Raw: raw, Hash: hex.EncodeToString(sum[:])}
 }
 
 // builtinNames lists the embedded configs of dir ("variants" or "stations").
@@ -99,7 +99,7 @@ type doc struct {
 	root  map[string]any
 	known map[string]bool // full dotted keys accepted, including sections
 	open  map[string]bool // sections whose content is free-form
-	err   *configError
+	err   *ConfigError
 }
 
 // parseDoc parses raw as YAML through viper (no environment overrides: the
@@ -109,7 +109,7 @@ func parseDoc(file string, raw []byte) (*doc, error) {
 	v.SetConfigType("yaml")
 	if err := v.ReadConfig(bytes.NewReader(raw)); err != nil {
 		msg := strings.Join(strings.Fields(strings.ReplaceAll(err.Error(), "While parsing config: ", "")), " ")
-		return nil, &configError{File: file, Msg: msg}
+		return nil, &ConfigError{File: file, Msg: msg}
 	}
 	return &doc{file: file, root: v.AllSettings(), known: map[string]bool{}, open: map[string]bool{}}, nil
 }
@@ -117,14 +117,14 @@ func parseDoc(file string, raw []byte) (*doc, error) {
 // fail records a problem at key unless an earlier one was recorded.
 func (d *doc) fail(key, format string, args ...any) {
 	if d.err == nil {
-		d.err = &configError{File: d.file, Key: key, Msg: fmt.Sprintf(format, args...)}
+		d.err = &ConfigError{File: d.file, Key: key, Msg: fmt.Sprintf(format, args...)}
 	}
 }
 
 // missing records a missing required key.
 func (d *doc) missing(key string) {
 	if d.err == nil {
-		d.err = &configError{File: d.file, Msg: "missing key " + key}
+		d.err = &ConfigError{File: d.file, Msg: "missing key " + key}
 	}
 }
 
@@ -157,7 +157,7 @@ func (d *doc) finish() error {
 		if len(unknown) > 1 {
 			msg += fmt.Sprintf(" (and %d more)", len(unknown)-1)
 		}
-		return &configError{File: d.file, Msg: msg}
+		return &ConfigError{File: d.file, Msg: msg}
 	}
 	if d.err != nil {
 		return d.err

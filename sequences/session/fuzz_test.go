@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"bytes"
@@ -17,7 +17,7 @@ import (
 	"padline/sequences/timing"
 )
 
-// Hostile-input fuzz targets (issue 7): a config file edited by hand at
+// Hostile-input fuzz targets: a config file edited by hand at
 // 3 a.m. or a scanner gone wrong must give one clear error line, never a
 // panic and never a half-checked config. Seeds are the demo variants and
 // stations and every file of the bad-config corpus; crashers the fuzzer
@@ -75,7 +75,7 @@ func checkErrorLine(t *testing.T, file string, err error) {
 
 // checkSource checks that a loaded config keeps the exact bytes it came from
 // and their hash (the snapshot and config hash every run records).
-func checkSource(t *testing.T, file string, raw []byte, src source) {
+func checkSource(t *testing.T, file string, raw []byte, src Source) {
 	t.Helper()
 	sum := sha256.Sum256(raw)
 	if src.Name != file || !bytes.Equal(src.Raw, raw) || src.Hash != hex.EncodeToString(sum[:]) {
@@ -96,7 +96,7 @@ func TestDeployStationExampleLoads(t *testing.T) {
 	// deploy/station.example.yaml is what the README tells a technician to
 	// copy: it must load, drive real pins and keep the shift log in the
 	// service's state directory (padline.service may write nowhere else).
-	s, err := loadStation(repo + "/deploy/station.example.yaml")
+	s, err := LoadStation(repo + "/deploy/station.example.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -110,10 +110,10 @@ func FuzzVariant(f *testing.F) {
 	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, raw []byte) {
 		file := writeConfig(t, dir, raw)
-		v, err := loadVariant(file)
+		v, err := LoadVariant(file)
 		if err != nil {
 			if v != nil {
-				t.Errorf("loadVariant returned a variant and %v", err)
+				t.Errorf("LoadVariant returned a variant and %v", err)
 			}
 			checkErrorLine(t, file, err)
 			return
@@ -156,10 +156,10 @@ func FuzzStation(f *testing.F) {
 	dir := f.TempDir()
 	f.Fuzz(func(t *testing.T, raw []byte) {
 		file := writeConfig(t, dir, raw)
-		s, err := loadStation(file)
+		s, err := LoadStation(file)
 		if err != nil {
 			if s != nil {
-				t.Errorf("loadStation returned a station and %v", err)
+				t.Errorf("LoadStation returned a station and %v", err)
 			}
 			checkErrorLine(t, file, err)
 			return
@@ -212,7 +212,7 @@ func FuzzStation(f *testing.F) {
 
 func FuzzSerial(f *testing.F) {
 	qm205 := qm205Serial(f)
-	v212, err := loadVariant(repo + "/testdata/variants/QM-212.yaml")
+	v212, err := LoadVariant(repo + "/testdata/variants/QM-212.yaml")
 	if err != nil {
 		f.Fatal(err)
 	}
@@ -227,9 +227,9 @@ func FuzzSerial(f *testing.F) {
 	}
 	f.Fuzz(func(t *testing.T, raw string) {
 		for _, re := range patterns {
-			got, err := cleanSerial(re, raw)
+			got, err := CleanSerial(re, raw)
 			if verr := validSerial(re, raw); (verr == nil) != (err == nil) {
-				t.Fatalf("validSerial %v, cleanSerial %v", verr, err)
+				t.Fatalf("validSerial %v, CleanSerial %v", verr, err)
 			}
 			if err != nil {
 				msg := err.Error()
@@ -258,7 +258,7 @@ func FuzzSerial(f *testing.F) {
 			if re != nil && !re.MatchString(got) {
 				t.Fatalf("accepted %q not matching %s", got, re)
 			}
-			if again, err := cleanSerial(re, got); err != nil || again != got {
+			if again, err := CleanSerial(re, got); err != nil || again != got {
 				t.Fatalf("not idempotent: %q → %q, %v", got, again, err)
 			}
 		}

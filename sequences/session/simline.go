@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"fmt"
@@ -11,7 +11,7 @@ import (
 )
 
 // StationSim is a station file's optional `sim:` section. Every key has the
-// simulator's realism-floor default (DESIGN.md §12); a file that changes one
+// simulator's realism-floor default (DEVELOPERS.md "Simulator realism floor"); a file that changes one
 // says so in its own text.
 type StationSim struct {
 	// Seed seeds the simulated units and fixture (default 1; 'padline demo
@@ -96,20 +96,35 @@ func (d *doc) optIndexList(key string) []int {
 }
 
 // spread turns a toleranced variant value into the simulator's description
-// of how it varies over units: the variant's own distribution (normal, with
-// its stated σ or tolerance = 3σ), clipped to its limits.
+// of how it varies over units, in the variant's own distribution: uniform,
+// triangular (mode typ), or normal — with its stated σ, else a split normal
+// with each side's tolerance at 3σ — clipped to its limits.
 func spread(v timing.Value) sim.Spread {
-	sd := v.SD
-	if sd == 0 {
-		sd = math.Max(v.Typ-v.Min, v.Max-v.Typ) / 3
+	if !(v.Max > v.Min) {
+		return sim.Fixed(v.Typ)
 	}
-	return sim.Spread{Mean: v.Typ, SD: sd, Min: v.Min, Max: v.Max}
+	s := sim.Spread{Mean: v.Typ, Min: v.Min, Max: v.Max}
+	switch v.Dist {
+	case timing.Uniform:
+		s.Shape = sim.Uniform
+	case timing.Triangular:
+		s.Shape = sim.Triangular
+	default:
+		s.SD = v.SD
+		if s.SD == 0 {
+			s.SD = (v.Typ - v.Min) / 3
+			if hi := (v.Max - v.Typ) / 3; hi != s.SD {
+				s.SDHigh = hi
+			}
+		}
+	}
+	return s
 }
 
-// unitModel describes the variant's units to the simulator. This is the one
+// UnitModel describes the variant's units to the simulator. This is the one
 // place the variant file and the simulator meet; the simulator computes its
 // own physics from these component values.
-func unitModel(v *Variant, s StationSim) sim.UnitModel {
+func UnitModel(v *Variant, s StationSim) sim.UnitModel {
 	c := v.Circuit
 	return sim.UnitModel{
 		SupplyV: spread(c.SupplyV), OscR: spread(c.OscROhm), OscC: spread(c.OscCF),
@@ -139,28 +154,28 @@ func fixtureModel(st *Station) sim.FixtureModel {
 	}
 }
 
-// latchDelay is how long after the unit's falling clock edge the fixture
+// LatchDelay is how long after the unit's falling clock edge the fixture
 // reads the latch: past the clock-path delay and the flip-flop's output
 // delay, with margin.
-const latchDelay = 20 * time.Microsecond
+const LatchDelay = 20 * time.Microsecond
 
-// newSimLine builds the simulated line for a station and a variant.
-func newSimLine(st *Station, v *Variant) (*sim.Line, error) {
-	line, err := sim.NewLine(fixtureModel(st), unitModel(v, st.Sim), st.Sim.Seed)
+// NewSimLine builds the simulated line for a station and a variant.
+func NewSimLine(st *Station, v *Variant) (*sim.Line, error) {
+	line, err := sim.NewLine(fixtureModel(st), UnitModel(v, st.Sim), st.Sim.Seed)
 	if err != nil {
 		return nil, fmt.Errorf("station %s: simulated line: %w", st.Source.Name, err)
 	}
 	return line, nil
 }
 
-// newFixture builds the fixture over pins with the station's ladder.
-func newFixture(st *Station, pins fixture.Pins, clk fixture.Clock) (*fixture.Fixture, error) {
+// NewFixture builds the fixture over pins with the station's ladder.
+func NewFixture(st *Station, pins fixture.Pins, clk fixture.Clock) (*fixture.Fixture, error) {
 	lad, err := fixture.NewLadder(st.Ladder.RungsPF, st.Ladder.StrayPF)
 	if err != nil {
 		return nil, fmt.Errorf("station %s: ladder: %w", st.Source.Name, err)
 	}
 	fx, err := fixture.New(pins, lad, fixture.Config{
-		Operate: st.Ladder.Operate, Bounce: st.Ladder.Bounce, LatchDelay: latchDelay,
+		Operate: st.Ladder.Operate, Bounce: st.Ladder.Bounce, LatchDelay: LatchDelay,
 	}, clk)
 	if err != nil {
 		return nil, fmt.Errorf("station %s: fixture: %w", st.Source.Name, err)

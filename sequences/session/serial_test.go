@@ -1,4 +1,4 @@
-package main
+package session
 
 import (
 	"errors"
@@ -11,7 +11,7 @@ import (
 // (`^QM205-[0-9]{6}$` in testdata/variants/QM-205.yaml).
 func qm205Serial(t testing.TB) *regexp.Regexp {
 	t.Helper()
-	v, err := loadVariant(repo + "/testdata/variants/QM-205.yaml")
+	v, err := LoadVariant(repo + "/testdata/variants/QM-205.yaml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -66,10 +66,10 @@ func TestCleanSerial(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			got, err := cleanSerial(tt.pattern, tt.raw)
+			got, err := CleanSerial(tt.pattern, tt.raw)
 			if tt.wantErr == "" {
 				if err != nil || got != tt.want {
-					t.Fatalf("cleanSerial(%q) = %q, %v; want %q, nil", tt.raw, got, err, tt.want)
+					t.Fatalf("CleanSerial(%q) = %q, %v; want %q, nil", tt.raw, got, err, tt.want)
 				}
 				if err := validSerial(tt.pattern, tt.raw); err != nil {
 					t.Errorf("validSerial disagrees: %v", err)
@@ -77,19 +77,19 @@ func TestCleanSerial(t *testing.T) {
 				return
 			}
 			if err == nil {
-				t.Fatalf("cleanSerial(%q) = %q, accepted", tt.raw, got)
+				t.Fatalf("CleanSerial(%q) = %q, accepted", tt.raw, got)
 			}
 			if err.Error() != tt.wantErr {
 				t.Errorf("error\n got %s\nwant %s", err, tt.wantErr)
 			}
-			if !errors.Is(err, errBadSerial) {
-				t.Errorf("%v does not wrap errBadSerial", err)
+			if !errors.Is(err, ErrBadSerial) {
+				t.Errorf("%v does not wrap ErrBadSerial", err)
 			}
 			if strings.ContainsAny(err.Error(), "\r\n") {
 				t.Errorf("error spans lines: %q", err)
 			}
 			if verr := validSerial(tt.pattern, tt.raw); verr == nil || verr.Error() != err.Error() {
-				t.Errorf("validSerial = %v, cleanSerial = %v", verr, err)
+				t.Errorf("validSerial = %v, CleanSerial = %v", verr, err)
 			}
 		})
 	}

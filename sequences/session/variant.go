@@ -1,10 +1,12 @@
-package main
+package session
 
 import (
+	"context"
 	"fmt"
 	"regexp"
 
 	"padline/sequences/timing"
+	"padline/store"
 )
 
 // Variant is one product variant's file, parsed and validated: what the
@@ -18,15 +20,15 @@ type Variant struct {
 	Serial        *regexp.Regexp
 	Circuit       timing.Circuit
 	Spec          timing.Spec
-	Plan          Plan
+	Plan          PlanSection
 	// Source is where the file came from, its exact bytes and their sha256
 	// (the config hash every run records).
-	Source source
+	Source Source
 }
 
-// Plan holds the optional `plan:` section of a variant file; every key has a
+// PlanSection holds the optional `plan:` section of a variant file; every key has a
 // default.
-type Plan struct {
+type PlanSection struct {
 	// PowerSettleMS is the wait after unit power-up, ms (default 50).
 	PowerSettleMS float64
 	// IdlePeriods is how many clock periods the latch must stay 0 with no
@@ -65,18 +67,18 @@ type PlanRetest struct {
 	FlagPassAfterFail bool
 }
 
-// DefaultPlan returns the plan used for keys a variant file leaves out.
-func DefaultPlan() Plan {
-	return Plan{
+// DefaultPlanSection returns the plan used for keys a variant file leaves out.
+func DefaultPlanSection() PlanSection {
+	return PlanSection{
 		PowerSettleMS: 50, IdlePeriods: 8, ClockPeriods: 16, ReleasePeriods: 8,
 		Search: PlanSearch{Strategy: "bracket", SETargetPF: 0.1, MaxRefineSamples: 32, SpreadLimitPF: 1.5},
 		Retest: PlanRetest{Max: 1, FlagPassAfterFail: true},
 	}
 }
 
-// loadVariant resolves ref (a file path, or a built-in variant name) and
+// LoadVariant resolves ref (a file path, or a built-in variant name) and
 // parses it.
-func loadVariant(ref string) (*Variant, error) {
+func LoadVariant(ref string) (*Variant, error) {
 	src, err := openConfig(ref, "variants", "variant")
 	if err != nil {
 		return nil, err
@@ -85,8 +87,8 @@ func loadVariant(ref string) (*Variant, error) {
 }
 
 // parseVariant parses and validates one variant file. Every problem is a
-// one-line *configError naming the file and the key.
-func parseVariant(src source) (*Variant, error) {
+// one-line *ConfigError naming the file and the key.
+func parseVariant(src Source) (*Variant, error) {
 	d, err := parseDoc(src.Name, src.Raw)
 	if err != nil {
 		return nil, err
@@ -121,8 +123,8 @@ func parseVariant(src source) (*Variant, error) {
 	if d.section("clock_path", true) {
 		c.DelayNS = d.toleranced("clock_path.delay_ns", mustBePositive)
 		c.SetupNS = d.toleranced("clock_path.setup_ns", mayBeZero)
-		if d.err == nil && c.SetupNS.Max >= c.DelayNS.Min {
-			d.fail("clock_path.setup_ns", "max %g must be below clock_path.delay_ns min %g", c.SetupNS.Max, c.DelayNS.Min)
+		if d.err == nil && c.SetupNS.Typ >= c.DelayNS.Typ {
+			d.fail("clock_path.setup_ns", "typ %g must be below clock_path.delay_ns typ %g: the nominal unit could never trip", c.SetupNS.Typ, c.DelayNS.Typ)
 		}
 	}
 	c.ThresholdFrac = d.toleranced("threshold_frac", mustBeFraction)
@@ -140,14 +142,14 @@ func parseVariant(src source) (*Variant, error) {
 	// Anything the key-by-key checks missed (e.g. a corner where the sample
 	// instant falls after the clock edge) is caught by the model itself.
 	if err := v.Circuit.Validate(); err != nil {
-		return nil, &configError{File: src.Name, Msg: err.Error()}
+		return nil, &ConfigError{File: src.Name, Msg: err.Error()}
 	}
 	return v, nil
 }
 
 // readPlan reads the optional plan section.
-func readPlan(d *doc) Plan {
-	p := DefaultPlan()
+func readPlan(d *doc) PlanSection {
+	p := DefaultPlanSection()
 	if !d.section("plan", false) {
 		return p
 	}
@@ -184,3 +186,56 @@ func (v *Variant) Limits(opt timing.Options) (timing.Report, error) {
 	}
 	return rep, nil
 }
+
+// VariantFor finds the variant's configuration: a file when ref names
+// one, else the latest configuration the shift log holds for that name (the
+// limits the line judged against), else the built-in.
+func VariantFor(ctx context.Context, db *store.DB, ref string) (*Variant, string, error) {
+	if isConfigPath(ref) {
+		v, err := LoadVariant(ref)
+		if err != nil {
+			return nil, "", err
+		}
+		return v, "file " + ref, nil
+	}
+	if db != nil {
+		hist, err := db.ConfigHistory(ctx, ref)
+		if err != nil {
+			return nil, "", err
+		}
+		if n := len(hist); n > 0 {
+			last := hist[n-1]
+			raw, err := db.Snapshot(ctx, ref, last.Hash)
+			if err == nil {
+				v, perr := parseVariant(newSource("shift log config "+shortHash(last.Hash), raw))
+				if perr == nil {
+					return v, fmt.Sprintf("the shift log's latest configuration %s (first seen %s)",
+						shortHash(last.Hash), last.FirstSeen.Local().Format("2006-01-02 15:04")), nil
+				}
+			}
+		}
+	}
+	v, err := LoadVariant(ref)
+	if err != nil {
+		return nil, "", err
+	}
+	return v, v.Source.Name, nil
+}
+
+// shortHash is the first 12 hex digits of a config hash, as printed.
+func shortHash(h string) string {
+	if len(h) > 12 {
+		return h[:12]
+	}
+	return h
+}
+
+// CheckSerial reports whether s is an acceptable serial of the variant; see
+// CleanSerial, which also returns the trimmed serial to record.
+func (v *Variant) CheckSerial(s string) error { return validSerial(v.Serial, s) }
+
+// BuiltinVariants lists the names of the built-in variants.
+func BuiltinVariants() []string { return builtinNames("variants") }
+
+// BuiltinStations lists the names of the built-in stations.
+func BuiltinStations() []string { return builtinNames("stations") }

@@ -1,0 +1,4 @@
+package main
+
+// repo is the repository root relative to this package.
+const repo = "../.."

@@ -1,0 +1,134 @@
+package session
+
+import (
+	"context"
+	"fmt"
+
+	"padline/fixture"
+	"padline/fixture/sim"
+	"padline/sequences"
+	"padline/sequences/timing"
+)
+
+// The plan drives the fixture as a sequences.Station and finds its lamps
+// by type assertion (sequences.Lamps).
+var (
+	_ sequences.Station = (*fixture.Fixture)(nil)
+	_ sequences.Lamps   = (*fixture.Fixture)(nil)
+)
+
+// Rig is a station made ready to test one variant: the variant and station
+// files, the limits computed for them, the plan, and the fixture over the
+// opened pins. It is built once by the one sequence every command shares
+// (load variant → load station → limits → pins → fixture → plan): 'padline
+// run', 'padline station check|study' and 'padline demo' all call NewRig.
+//
+// A Rig owns hardware: Halt it on every exit path.
+type Rig struct {
+	Variant *Variant
+	Station *Station
+	// Limits is the timing model's report with the guard band applied.
+	Limits timing.Report
+	// UncertaintyPF is the guard band U the limits use; UncertaintyFrom
+	// says where it came from (shift log study, station file or stand-in).
+	UncertaintyPF   float64
+	UncertaintyFrom string
+	// PlanConfig is what the plan was built from (its Limits are the test
+	// limits a verdict is judged against).
+	PlanConfig sequences.PlanConfig
+	Plan       *sequences.Plan
+	Fixture    *fixture.Fixture
+	// Clock is the fixture's clock: virtual on the simulator, the wall
+	// clock on GPIO.
+	Clock fixture.Clock
+	// Line is the simulated line (driver: sim), nil on GPIO.
+	Line *sim.Line
+}
+
+// RigOptions are the choices a command may make over the files.
+type RigOptions struct {
+	// UncertaintyPF and UncertaintyFrom set the guard band; zero takes
+	// the station file's uncertainty_pf or the stand-in (StatedUncertainty).
+	UncertaintyPF   float64
+	UncertaintyFrom string
+	// Strategy overrides plan.search.strategy when not empty ("bracket"
+	// or "staircase"; SearchLaplace for the earlier plan).
+	Strategy string
+	// GPIO opens real pins for driver: gpio (see GPIOOpener).
+	GPIO GPIOOpener
+}
+
+// Load resolves and parses a variant and a station reference: each a .yaml
+// file or a built-in name.
+func Load(variantRef, stationRef string) (*Variant, *Station, error) {
+	v, err := LoadVariant(variantRef)
+	if err != nil {
+		return nil, nil, err
+	}
+	st, err := LoadStation(stationRef)
+	if err != nil {
+		return nil, nil, err
+	}
+	return v, st, nil
+}
+
+// NewRig computes the limits for v on st, opens the station's pins, builds
+// the fixture and the plan. On error nothing is left open.
+func NewRig(v *Variant, st *Station, o RigOptions) (*Rig, error) {
+	r := &Rig{Variant: v, Station: st, UncertaintyPF: o.UncertaintyPF, UncertaintyFrom: o.UncertaintyFrom}
+	if r.UncertaintyPF <= 0 {
+		r.UncertaintyPF, r.UncertaintyFrom = StatedUncertainty(st)
+	}
+	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: r.UncertaintyPF})
+	if err != nil {
+		return nil, err
+	}
+	r.Limits = rep
+	if r.PlanConfig, err = PlanConfig(v, rep, st.Pins.Clock != "", o.Strategy); err != nil {
+		return nil, err
+	}
+	// The search weighs a change of level by the relay time that does not
+	// hide inside a unit clock period.
+	r.PlanConfig.RelaySettle = st.Ladder.Operate + st.Ladder.Bounce
+	pins, clk, line, err := OpenPins(st, v, o.GPIO)
+	if err != nil {
+		return nil, err
+	}
+	r.Clock, r.Line = clk, line
+	if r.Fixture, err = NewFixture(st, pins, clk); err != nil {
+		return nil, err
+	}
+	if r.Plan, err = sequences.NewPlan(r.PlanConfig, r.Fixture.Ladder().Distinct()); err != nil {
+		_ = r.Fixture.Halt()
+		return nil, err
+	}
+	return r, nil
+}
+
+// OpenRig is Load, the shift log's uncertainty for the station (see
+// Uncertainty) and NewRig in one call. Setting up is quick and is not cut
+// half-way by a stop request (ctx's values are kept, its end is not).
+func OpenRig(ctx context.Context, variantRef, stationRef, shiftLog string, o RigOptions) (*Rig, error) {
+	ctx = context.WithoutCancel(ctx)
+	v, st, err := Load(variantRef, stationRef)
+	if err != nil {
+		return nil, err
+	}
+	if o.UncertaintyPF <= 0 {
+		if o.UncertaintyPF, o.UncertaintyFrom, err = Uncertainty(ctx, shiftLog, st); err != nil {
+			return nil, err
+		}
+	}
+	return NewRig(v, st, o)
+}
+
+// Halt opens every rung and removes unit power.
+func (r *Rig) Halt() error {
+	if err := r.Fixture.Halt(); err != nil {
+		return fmt.Errorf("halt fixture: %w", err)
+	}
+	return nil
+}
+
+// Simulated reports whether the rig drives the built-in simulated line.
+func (r *Rig) Simulated() bool { return r.Line != nil }
