@@ -165,31 +165,6 @@ func (p *Plan) sigmaPrior() (sigmaPF, logSD float64, units int) {
 	return math.Exp(m), math.Max(sd, 0.15), len(p.recent)
 }
 
-// ownSigma refits a unit's samples with the search options' own prior on
-// σ (the variant's), not the running one it was searched with: the window
-// must not feed on its own prior.
-func (p *Plan) ownSigma(t *Trial) float64 {
-	var data []Tally
-	if t.idle != nil {
-		data = append(data, Tally{PF: t.idle.PF, N: t.idle.K, Highs: t.idle.Highs})
-	}
-	for _, pr := range t.Trip.Probes {
-		data = append(data, Tally{PF: pr.PF, N: pr.K, Highs: pr.Highs})
-	}
-	o, err := p.cfg.Search.withDefaults()
-	if err != nil {
-		return math.NaN()
-	}
-	// The posterior geometric mean of σ, not the maximum: with the samples
-	// a search takes, most near the trip point, the maximum of ln σ lies
-	// well below the truth (by about a quarter on the demo line).
-	g := newTripGrid(t.Trip.TripPF, ProbitPrior{SigmaPF: o.SpreadPriorPF / spreadPerSigma, LogSD: o.SpreadPriorLogSD}, 0, 0, o.SETargetPF)
-	for _, d := range data {
-		g.add(d.PF, d.N, d.Highs)
-	}
-	return g.moments().SigmaPF
-}
-
 // noteSigma adds a passing unit's fitted σ to the window.
 func (p *Plan) noteSigma(sigmaPF float64) {
 	if p.cfg.SigmaWindow < 0 || !(sigmaPF > 0) || math.IsInf(sigmaPF, 0) || math.IsNaN(sigmaPF) {
@@ -346,7 +321,7 @@ func (p *Plan) ExecuteObserved(ctx context.Context, st Station, clk Clock, run *
 	case stepErr == nil && downErr == nil:
 		run.Verdict, run.FailCode = Pass, ""
 		if t.Trip != nil && t.Trip.Found && !t.Trip.Below && p.cfg.SigmaWindow > 0 {
-			p.noteSigma(p.ownSigma(t))
+			p.noteSigma(t.Trip.SigmaRefPF)
 		}
 	case stepErr != nil && errors.As(stepErr, &uf) && downErr == nil:
 		run.Verdict, run.FailCode = Fail, uf.Code
@@ -609,6 +584,13 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		opt.Known = append(append([]ProbeRecord(nil), opt.Known...), *t.idle)
 	}
 	if opt.Refine != Laplace {
+		// The window notes each unit's σ under the variant's own prior:
+		// the posterior geometric mean, not the maximum, which with the
+		// samples a search takes (most near the trip point) lies well below
+		// the truth (by about a quarter on the demo line).
+		if own, err := opt.withDefaults(); err == nil {
+			opt.SigmaRefPrior = ProbitPrior{SigmaPF: own.SpreadPriorPF / spreadPerSigma, LogSD: own.SpreadPriorLogSD}
+		}
 		sg, lsd, units := p.sigmaPrior()
 		if units > 0 {
 			opt.SpreadPriorPF, opt.SpreadPriorLogSD = sg*spreadPerSigma, lsd

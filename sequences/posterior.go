@@ -23,7 +23,8 @@ type tripGrid struct {
 }
 
 // Grid sizes: ln σ spans the prior's ±3 SD (at most ±2.5) in gridSigma
-// nodes; μ spans 0.5 pF + 6 of the largest σ (at most gridHalfPF) either
+// nodes, or fewer for a narrow prior (steps of at least 0.15); μ spans
+// 0.5 pF + 5 of the largest σ (at most gridHalfPF) either
 // side of the centre, in steps of at most gridMuStep and at most 0.8 of the
 // SE target: the trapezoid sum of a smooth posterior whose SD is h or more
 // errs by about exp(−2π²) ≈ 3e-9 relative, so its moments are exact for
@@ -40,20 +41,21 @@ func newTripGrid(centre float64, prior ProbitPrior, muPrior, muPriorSD, seTarget
 	if !(span > 0) {
 		span = 2.5
 	}
-	half := math.Min(gridHalfPF, 0.5+6*math.Exp(ls0+span))
+	half := math.Min(gridHalfPF, 0.5+5*math.Exp(ls0+span))
 	step := math.Min(gridMuStep, 0.8*seTarget)
 	nMu := 2*int(math.Ceil(half/step)) + 1
 	g := &tripGrid{mu: make([]float64, nMu), cache: map[float64]*[2][]float64{}}
 	for i := range g.mu {
 		g.mu[i] = centre + step*float64(i-nMu/2)
 	}
-	g.logSig = make([]float64, gridSigma)
-	g.sig = make([]float64, gridSigma)
+	nSig := min(gridSigma, max(8, int(math.Ceil(2*span/0.15))+1))
+	g.logSig = make([]float64, nSig)
+	g.sig = make([]float64, nSig)
 	for j := range g.logSig {
-		g.logSig[j] = ls0 - span + 2*span*float64(j)/float64(gridSigma-1)
+		g.logSig[j] = ls0 - span + 2*span*float64(j)/float64(nSig-1)
 		g.sig[j] = math.Exp(g.logSig[j])
 	}
-	g.logp = make([]float64, nMu*gridSigma)
+	g.logp = make([]float64, nMu*nSig)
 	for j, ls := range g.logSig {
 		var lp float64
 		if prior.LogSD > 0 {
@@ -292,13 +294,27 @@ func (s *searcher) finishPosterior(m gridMoments, prior ProbitPrior) {
 	}
 	s.res.TripPF, s.res.SEPF = m.MuPF, m.SDMuPF
 	s.res.Converged = m.SDMuPF <= s.opt.SETargetPF
+	if r := s.opt.SigmaRefPrior; r.SigmaPF > 0 && s.grid != nil {
+		s.res.SigmaRefPF = s.grid.sigmaUnder(prior, r)
+	}
 }
+
+// tailZ is where logPhiPair turns to the asymptotic tail series.
+const tailZ = 10
 
 // logPhiPair returns ln Φ(z) and ln Φ(−z) from one evaluation of the
 // smaller tail.
 func logPhiPair(z float64) (float64, float64) {
-	if math.Abs(z) > bigZ-1 {
-		return logPhi(z), logPhi(-z)
+	if a := math.Abs(z); a > tailZ {
+		// ln Φ(−a) by its asymptotic series (see logPhi; the first
+		// omitted term, 105/a⁸, is below 1e-6 here), and ln Φ(a) =
+		// ln(1 − Φ(−a)) ≈ −Φ(−a).
+		a2 := a * a
+		lt := -a2/2 - math.Log(a) - 0.5*math.Log(2*math.Pi) + math.Log1p(-1/a2+3/(a2*a2)-15/(a2*a2*a2))
+		if z > 0 {
+			return -math.Exp(lt), lt
+		}
+		return lt, -math.Exp(lt)
 	}
 	if z < 0 {
 		p := normCDF(z)
@@ -306,4 +322,35 @@ func logPhiPair(z float64) (float64, float64) {
 	}
 	q := normCDF(-z)
 	return math.Log1p(-q), math.Log(q)
+}
+
+// sigmaUnder is the posterior geometric mean of σ had the prior on σ been
+// ref instead of the grid's own (prior): the grid's posterior reweighted by
+// the ratio of the two priors, within the grid's range of σ.
+func (g *tripGrid) sigmaUnder(prior, ref ProbitPrior) float64 {
+	top := math.Inf(-1)
+	for _, v := range g.logp {
+		top = math.Max(top, v)
+	}
+	lp := func(p ProbitPrior, ls float64) float64 {
+		if !(p.LogSD > 0) {
+			return 0
+		}
+		r := (ls - math.Log(p.SigmaPF)) / p.LogSD
+		return -r * r / 2
+	}
+	nMu := len(g.mu)
+	var w, sl float64
+	for j, ls := range g.logSig {
+		shift := lp(ref, ls) - lp(prior, ls)
+		for _, v := range g.logp[j*nMu : (j+1)*nMu] {
+			if v-top < -45 {
+				continue
+			}
+			p := math.Exp(v - top + shift)
+			w += p
+			sl += p * ls
+		}
+	}
+	return math.Exp(sl / w)
 }

@@ -100,6 +100,11 @@ type SearchOptions struct {
 	// transition at the one or two levels the refinement samples; only
 	// samples away from the trip point show it.
 	GuardPeekK int
+	// SigmaRefPrior, when set, asks the Posterior refinement for
+	// TripResult.SigmaRefPF: σ as the samples show it under this prior
+	// rather than the one searched with (a plan's running prior must be
+	// built from figures that do not feed on it).
+	SigmaRefPrior ProbitPrior
 	// Known are samples taken before the search (for example the idle
 	// check's, at the bottom level): they are booked first and enter the fit,
 	// and a level they cover is not probed again by the bracket's end checks.
@@ -229,6 +234,9 @@ type TripResult struct {
 	Consistent bool
 	// GuardMisread is true when a guard level read on the wrong side.
 	GuardMisread bool
+	// SigmaRefPF is the posterior geometric mean of σ under
+	// SearchOptions.SigmaRefPrior (0 when not asked or not Posterior).
+	SigmaRefPF float64
 	// Suspect is true when the Posterior refinement's fit found the unit
 	// suspect and so took guard samples.
 	Suspect bool
