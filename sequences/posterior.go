@@ -19,7 +19,7 @@ type tripGrid struct {
 	logp   []float64 // log posterior (unnormalised), [j*len(mu)+i]
 	// cache holds, per level probed, ln Φ(z) and ln Φ(−z) at every node,
 	// so repeated samples at one level cost one add per node.
-	cache map[float64]*[2][]float64
+	cache map[float64]*gridCache
 }
 
 // Grid sizes: ln σ spans the prior's ±3 SD (at most ±2.5) in gridSigma
@@ -44,7 +44,7 @@ func newTripGrid(centre float64, prior ProbitPrior, muPrior, muPriorSD, seTarget
 	half := math.Min(gridHalfPF, 0.5+5*math.Exp(ls0+span))
 	step := math.Min(gridMuStep, 0.8*seTarget)
 	nMu := 2*int(math.Ceil(half/step)) + 1
-	g := &tripGrid{mu: make([]float64, nMu), cache: map[float64]*[2][]float64{}}
+	g := &tripGrid{mu: make([]float64, nMu), cache: map[float64]*gridCache{}}
 	for i := range g.mu {
 		g.mu[i] = centre + step*float64(i-nMu/2)
 	}
@@ -84,25 +84,46 @@ func (g *tripGrid) add(pf float64, n, h int) {
 	if n == 0 {
 		return
 	}
-	sMax := g.sig[len(g.sig)-1]
-	if (pf > g.mu[len(g.mu)-1]+farZ*sMax && h == n) || (pf < g.mu[0]-farZ*sMax && h == 0) {
+	nMu := len(g.mu)
+	muLo, muHi := g.mu[0], g.mu[nMu-1]
+	// Rows of σ for which pf lies farZ·σ beyond every μ node read as
+	// expected there (high above, low below) and are left out: their
+	// likelihood differs from 1 by less than Φ(−farZ).
+	expected := func(s float64) bool {
+		return (h == n && pf > muHi+farZ*s) || (h == 0 && pf < muLo-farZ*s)
+	}
+	if expected(g.sig[len(g.sig)-1]) {
 		return
 	}
 	c := g.cache[pf]
 	if c == nil {
-		c = &[2][]float64{make([]float64, len(g.logp)), make([]float64, len(g.logp))}
-		nMu := len(g.mu)
-		for j, s := range g.sig {
-			for i, m := range g.mu {
-				c[0][j*nMu+i], c[1][j*nMu+i] = logPhiPair((pf - m) / s)
-			}
-		}
+		c = &gridCache{v: [2][]float64{make([]float64, len(g.logp)), make([]float64, len(g.logp))}, done: make([]bool, len(g.sig))}
 		g.cache[pf] = c
 	}
-	nh, nl := float64(h), float64(n-h)
-	for k := range g.logp {
-		g.logp[k] += nh*c[0][k] + nl*c[1][k]
+	for j, s := range g.sig {
+		if expected(s) {
+			continue
+		}
+		row := g.logp[j*nMu : (j+1)*nMu]
+		hi, lo := c.v[0][j*nMu:(j+1)*nMu], c.v[1][j*nMu:(j+1)*nMu]
+		if !c.done[j] {
+			for i, m := range g.mu {
+				hi[i], lo[i] = logPhiPair((pf - m) / s)
+			}
+			c.done[j] = true
+		}
+		nh, nl := float64(h), float64(n-h)
+		for i := range row {
+			row[i] += nh*hi[i] + nl*lo[i]
+		}
 	}
+}
+
+// gridCache is ln Φ(z) and ln Φ(−z) at every node for one level, filled
+// row by row of σ as samples need them.
+type gridCache struct {
+	v    [2][]float64
+	done []bool
 }
 
 // gridMoments are the posterior's summaries.
