@@ -614,7 +614,6 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		return err
 	}
 	t.Trip = &res
-	lim := p.cfg.Limits
 	if p.cfg.FoldChecks {
 		if lows := releaseLows(res.Probes); lows >= 0 {
 			prev := t.step
@@ -630,9 +629,21 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 			return err
 		}
 	}
+	return judgeTrip(t, res, p.cfg.Limits, p.levels[len(p.levels)-1].PF)
+}
+
+// measurer records one measurement of the current step and returns its
+// verdict; *Trial and a panel site's record satisfy it.
+type measurer interface {
+	Measure(name Quantity, value float64, unit string, low, high float64) Verdict
+}
+
+// judgeTrip records a trip search's result against the limits and returns
+// the unit's failure, if any; topPF is the highest level searched.
+func judgeTrip(t measurer, res TripResult, lim Limits, topPF float64) error {
 	if !res.Found {
 		t.Measure(MeasTripPF, math.NaN(), "pF", lim.TripLowPF, lim.TripHighPF)
-		return fail(CodeNoTrip, "no latch up to %.1f pF", p.levels[len(p.levels)-1].PF)
+		return fail(CodeNoTrip, "no latch up to %.1f pF", topPF)
 	}
 	if res.Below {
 		// The bottom of the ladder already trips the unit on every sample:

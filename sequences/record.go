@@ -53,6 +53,10 @@ type Run struct {
 	// Fault is the station fault's message on a station-fault verdict
 	// (the pin or step at fault), "" otherwise.
 	Fault string
+	// Panel is the label of the panel the unit was tested on and Site its
+	// board position there (1-based); "" and 0 for a unit tested alone.
+	Panel string
+	Site  int
 }
 
 // Recorder commits a finished run to durable storage. It returns only after

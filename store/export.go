@@ -13,11 +13,13 @@ import (
 )
 
 // CSVHeader is the header row of WriteCSV: the run's columns, then one
-// measurement's (m_verdict is the measurement's own verdict).
+// measurement's (m_verdict is the measurement's own verdict), then the
+// run's panel and site (empty for a unit tested alone).
 var CSVHeader = []string{
 	"run_id", "serial", "variant", "config_hash", "station", "fixture", "operator", "lot",
 	"software", "started", "finished", "verdict", "fail_code", "trip_pf",
 	"step", "name", "value", "unit", "low", "high", "m_verdict",
+	"panel", "site",
 }
 
 // WriteCSV streams the runs matching f to w as CSV, flat: a header row, then
@@ -42,8 +44,12 @@ func (db *DB) WriteCSV(ctx context.Context, w io.Writer, f Filter) (int64, error
 		rec[6], rec[7], rec[8] = e.Operator, e.Lot, e.Software
 		rec[9], rec[10] = timeText(e.Started), timeText(e.Finished)
 		rec[11], rec[12], rec[13] = string(e.Verdict), string(e.FailCode), numText(e.TripPF)
+		rec[21], rec[22] = e.Panel, ""
+		if e.Panel != "" {
+			rec[22] = strconv.Itoa(e.Site)
+		}
 		if len(e.Measurements) == 0 {
-			clear(rec[14:])
+			clear(rec[14:21])
 			if err := cw.Write(rec); err != nil {
 				return n, fmt.Errorf("write csv: %w", err)
 			}
@@ -95,6 +101,9 @@ type JSONRun struct {
 	FailCode     string            `json:"fail_code"`
 	TripPF       *float64          `json:"trip_pf"`
 	Measurements []JSONMeasurement `json:"measurements"`
+	// Panel and Site are set for a unit tested on a panel.
+	Panel string `json:"panel,omitempty"`
+	Site  int    `json:"site,omitempty"`
 }
 
 // JSONMeasurement is one measurement inside a JSONRun.
@@ -116,6 +125,7 @@ func (e *Entry) JSON() JSONRun {
 		Software: e.Software, Finished: e.Finished.UTC(), Verdict: string(e.Verdict),
 		FailCode: string(e.FailCode), TripPF: numPtr(e.TripPF),
 		Measurements: make([]JSONMeasurement, 0, len(e.Measurements)),
+		Panel:        e.Panel, Site: e.Site,
 	}
 	if !e.Started.IsZero() {
 		s := e.Started.UTC()

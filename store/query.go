@@ -27,6 +27,10 @@ type Filter struct {
 	// Driver keeps only runs of stations with this driver ("sim",
 	// "gpio"); "" keeps all.
 	Driver string
+	// Panel and Site narrow to one panel's runs and one site position
+	// (1-based; 0 = any; −1 = units tested alone).
+	Panel string
+	Site  int
 }
 
 // where returns the SQL condition (on runs aliased r) and its arguments.
@@ -60,6 +64,15 @@ func (f Filter) where() (string, []any) {
 	if f.Driver != "" {
 		add("r.driver = ?", f.Driver)
 	}
+	if f.Panel != "" {
+		add("r.panel = ?", f.Panel)
+	}
+	switch {
+	case f.Site > 0:
+		add("r.site = ?", f.Site)
+	case f.Site < 0:
+		conds = append(conds, "r.site IS NULL")
+	}
 	if !f.Since.IsZero() {
 		add("r.finished >= ?", f.Since.UnixNano())
 	}
@@ -86,7 +99,7 @@ type Entry struct {
 // in order and never sorts the whole result.
 const runsSQL = `
 SELECT r.id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
-       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault, r.panel, r.site,
        m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
 FROM runs r
 CROSS JOIN variants v ON v.id = r.variant_id
@@ -120,13 +133,14 @@ func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
 				finished                   int64
 				verdict                    string
 				trip                       sql.NullFloat64
-				seq                        sql.NullInt64
+				seq, site                  sql.NullInt64
+				panel                      sql.NullString
 				step, name, unit, mverdict sql.NullString
 				value, low, high           sql.NullFloat64
 			)
 			if err := rows.Scan(&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
 				&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
-				&seq, &step, &name, &unit, &value, &low, &high, &mverdict); err != nil {
+				&panel, &site, &seq, &step, &name, &unit, &value, &low, &high, &mverdict); err != nil {
 				yield(nil, fmt.Errorf("read run: %w", err))
 				return
 			}
@@ -140,6 +154,7 @@ func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
 				e.Finished = time.Unix(0, finished).UTC()
 				e.Verdict = sequences.Verdict(verdict)
 				e.TripPF = orNaN(trip)
+				e.Panel, e.Site = panel.String, int(site.Int64)
 				cur = &e
 			}
 			if seq.Valid {
@@ -189,6 +204,8 @@ type TripPoint struct {
 	Fixture  string
 	Lot      string
 	Verdict  sequences.Verdict
+	// Site is the run's panel site (1-based), 0 for a unit tested alone.
+	Site int
 }
 
 // TripSeries returns the trip points of the runs matching f (usually with
@@ -219,7 +236,7 @@ func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]
 	}
 	cols := "r.id, r.finished, r.trip_pf"
 	if full {
-		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict"
+		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict, r.site"
 	}
 	q := `SELECT ` + cols + `
 FROM runs r
@@ -257,7 +274,8 @@ ORDER BY r.finished DESC, r.id DESC`
 			out = append(out, p)
 			continue
 		}
-		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict); err != nil {
+		var site sql.NullInt64
+		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict, &site); err != nil {
 			return nil, fmt.Errorf("trip series: %w", err)
 		}
 		if string(lot) != lastLot {
@@ -282,6 +300,7 @@ ORDER BY r.finished DESC, r.id DESC`
 		}
 		p.Finished = time.Unix(0, finished).UTC()
 		p.Station, p.Fixture, p.Lot, p.Verdict = st, fx, lastLot, sequences.Verdict(lastVerdict)
+		p.Site = int(site.Int64)
 		out = append(out, p)
 	}
 	if err := rows.Err(); err != nil {

@@ -35,6 +35,8 @@ type demoOptions struct {
 	asJSON           bool
 	intoRealLog      bool
 	drift            demoDrift
+	panel            int  // sites per panel; 0: single units
+	ownLadders       bool // panel demo: own ladders instead of a ganged one
 }
 
 // demoCmd builds `padline demo`.
@@ -68,12 +70,22 @@ trip D pF higher. --ramp-pf-per-1000 R adds a slow ramp (R pF per 1000
 units) from unit N, or from unit 1 with --drift-at 0. Afterwards the default
 drift watch (individuals 3σ + CUSUM, limits from the first min(50, N−1)
 units) runs over the good units' trip points and the summary gives the
-first alarm at or after unit N: chart, rule, unit and lag.`,
+first alarm at or after unit N: chart, rule, unit and lag.
+
+--panel N tests panels of N boards (sites) in one fixture closure on the
+built-in simulated panel station (demo-panel: one ganged reed-relay ladder,
+each site with its own calibrated capacitors and stray, adjacent pads
+coupled through 0.5 pF), one run per site in the shift log. The summary
+gives the fixture time per panel against one unit tested alone, the trip
+accuracy per site against the simulator's truth, and which injected defect
+ended in which fail code on every site. --own-ladders gives every site its
+own ladder instead: the sites then search concurrently.`,
 		Example: `  padline demo
   padline demo --units 2000 --compare-search
   padline demo --units 100 --json > shift.jsonl
   padline demo --db shift.db && padline history --db shift.db --variant QM-205
-  padline demo --units 300 --drift-at 150 --drift-pf 4`,
+  padline demo --units 300 --drift-at 150 --drift-pf 4
+  padline demo --panel 8 --units 800`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return a.demo(cmd.Context(), o)
@@ -91,6 +103,8 @@ first alarm at or after unit N: chart, rule, unit and lag.`,
 	f.BoolVar(&o.intoRealLog, "into-real-log", false, "allow --db to name a shift log that holds runs of a real (gpio) station")
 	f.IntVar(&o.drift.at, "drift-at", 0, "unit from which the pad capacitance drops (trip points step up); 0 = no step")
 	f.Float64Var(&o.drift.stepPF, "drift-pf", 0, "size of the step at --drift-at, pF of trip point")
+	f.IntVar(&o.panel, "panel", 0, "test panels of this many sites (2–32) on the simulated panel station instead of single units")
+	f.BoolVar(&o.ownLadders, "own-ladders", false, "with --panel: every site has its own ladder (default: one ganged ladder)")
 	f.Float64Var(&o.drift.rampPF, "ramp-pf-per-1000", 0, "slow ramp of the trip point, pF per 1000 units, from --drift-at (or unit 1)")
 	return cmd
 }
@@ -119,6 +133,12 @@ type demoUnit struct {
 func (a *app) demo(ctx context.Context, o demoOptions) error {
 	if o.units < 1 {
 		return errors.New("demo: --units must be at least 1")
+	}
+	if o.panel > 0 {
+		if o.compare || o.drift.at != 0 || o.drift.rampPF != 0 || o.station != "demo-sim" {
+			return errors.New("demo: --panel runs on the built-in demo panel station; it takes --units, --seed, --db, --search, --own-ladders and --json")
+		}
+		return a.demoPanel(ctx, o)
 	}
 	if err := o.drift.check(o.units); err != nil {
 		return err

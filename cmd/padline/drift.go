@@ -101,8 +101,9 @@ same U 'padline run' judged with; --lsl/--usl override
 them. First-pass yield (each serial's first unit verdict) comes with its
 exact Clopper–Pearson 95 % interval.
 
---by station|fixture|lot|shift reports each group on its own (shifts: early
-06–14, late 14–22, night 22–06 local time, named by the day they start).
+--by station|fixture|lot|shift|site reports each group on its own (shifts:
+early 06–14, late 14–22, night 22–06 local time, named by the day they
+start; sites: the board positions of a panel station, one chart per site).
 
 --csv FILE --column NAME analyses a column of numbers from a CSV file with a
 header row instead (blank cells are skipped); --target, --sigma, --k, --h,
@@ -200,7 +201,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.StringVar(&fixtureN, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
 	fl.BoolVar(&o.withSim, "include-simulated", false, "in a log with runs of a real station, also watch simulated runs (left out by default)")
-	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot or shift")
+	fl.StringVar(&o.by, "by", "", "report each group on its own: station, fixture, lot, shift or site (panel position)")
 	fl.BoolVar(&o.allVerdicts, "all-verdicts", false, "chart failed units' trip points too (default: passing units only; yield always counts every unit)")
 	fl.StringVar(&o.chart, "chart", "watch", "chart: watch, imr, xbar-r, xbar-s, ewma or cusum")
 	fl.StringVar(&o.rules, "rules", "", "run rules on the individuals/X̄ chart: we, nelson or limits (default: we; limits for watch)")
@@ -244,9 +245,9 @@ func (o *driftOptions) check() error {
 		return fmt.Errorf("drift: --alarms must be ≥ 0, got %d", o.alarms)
 	}
 	switch o.by {
-	case "", "station", "fixture", "lot", "shift":
+	case "", "station", "fixture", "lot", "shift", "site":
 	default:
-		return fmt.Errorf("drift: --by must be station, fixture, lot or shift, got %q", o.by)
+		return fmt.Errorf("drift: --by must be station, fixture, lot, shift or site, got %q", o.by)
 	}
 	switch o.chart {
 	case "watch", "imr", "ewma", "cusum":
@@ -584,6 +585,14 @@ func driftKey(p store.TripPoint, by string, f store.Filter) (string, store.Filte
 	case "lot":
 		f.Lot = p.Lot
 		return p.Lot, f
+	case "site":
+		// Units tested alone form their own group.
+		if p.Site == 0 {
+			f.Site = -1
+			return "none (units tested alone)", f
+		}
+		f.Site = p.Site
+		return fmt.Sprintf("%02d", p.Site), f
 	}
 	name, start, end := shiftOf(p.Finished.Local())
 	if f.Since.IsZero() || f.Since.Before(start) {

@@ -37,6 +37,8 @@ func (a *app) historyCmd() *cobra.Command {
 		since, until, format                        string
 		withSim                                     bool
 		asJSON, limitsHistory                       bool
+		panel                                       string
+		site                                        int
 	)
 	cmd := &cobra.Command{
 		Use:   "history --serial S | --variant V [filters]",
@@ -45,7 +47,9 @@ func (a *app) historyCmd() *cobra.Command {
 "how has this variant been testing?" from the station's SQLite shift log.
 
 Select runs with --serial (every run of one unit, with its measurements and
-limits) or --variant (runs of one product variant), and narrow them with
+limits), --variant (runs of one product variant) or --panel (every site of
+one panel, and its x-outs: sites marked bad and not tested); --site N keeps
+the runs tested at panel site N. Narrow them with
 --since/--until, --station, --fixture, --lot and --verdict. Runs are listed
 oldest first, by the time their verdict was given.
 
@@ -73,6 +77,7 @@ history never creates a shift log.`,
   padline history --variant QM-205 --station L2-S1 --lot LOT-17 --format csv > lot17.csv
   padline history --variant QM-205 --json | jq .trip_pf
   padline history --limits-history --variant QM-205
+  padline history --panel QM205-0001
   PADLINE_DB=/var/lib/padline/L2-S1.db padline history --serial QM205-001234`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
@@ -92,14 +97,17 @@ history never creates a shift log.`,
 			default:
 				return fmt.Errorf("history: --format must be table, csv or json, got %q", opts.format)
 			}
-			if serial == "" && variant == "" {
-				return errors.New("history: give --serial S or --variant V (see padline history --help)")
+			if serial == "" && variant == "" && panel == "" {
+				return errors.New("history: give --serial S or --variant V, or --panel P (see padline history --help)")
+			}
+			if site < 0 {
+				return fmt.Errorf("history: --site %d: sites count from 1", site)
 			}
 			if limitsHistory && variant == "" {
 				return errors.New("history: --limits-history needs --variant")
 			}
 			now := time.Now()
-			f := store.Filter{Serial: serial, Variant: variant, Station: station, Fixture: fixture, Lot: lot}
+			f := store.Filter{Serial: serial, Variant: variant, Station: station, Fixture: fixture, Lot: lot, Panel: panel, Site: site}
 			if f.Since, err = parseWhen(since, now); err != nil {
 				return fmt.Errorf("history: --since: %w", err)
 			}
@@ -128,6 +136,8 @@ history never creates a shift log.`,
 	fl.StringVar(&fixture, "fixture", "", "only runs on this fixture, e.g. FX-07")
 	fl.StringVar(&lot, "lot", "", "only runs of this lot")
 	fl.BoolVar(&withSim, "include-simulated", false, "in a log with runs of a real station, also show simulated runs (left out by default)")
+	fl.StringVar(&panel, "panel", "", "runs of this panel (every site), with its x-outs")
+	fl.IntVar(&site, "site", 0, "only runs tested at this panel site (1-based)")
 	fl.StringVar(&ver, "verdict", "", "only runs with this verdict: pass, fail or station-fault")
 	fl.StringVar(&format, "format", "table", "output: table, csv or json (JSON lines)")
 	fl.BoolVar(&asJSON, "json", false, "same as --format json")
@@ -195,8 +205,21 @@ func writeHistoryTable(w io.Writer, db *store.DB, cmd *cobra.Command, opts histo
 		}
 		fmt.Fprintf(w, row, strconv.FormatInt(e.ID, 10), e.Finished.Local().Format("2006-01-02 15:04:05"),
 			e.Serial, e.Station, e.Fixture, e.Lot, verdict, dashIfEmpty(string(e.FailCode)), histPF(e.TripPF))
+		if e.Panel != "" {
+			fmt.Fprintf(w, "    panel %s site %02d\n", e.Panel, e.Site)
+		}
 		if opts.filter.Serial != "" {
 			writeDetail(w, e)
+		}
+	}
+	if opts.filter.Panel != "" {
+		xs, err := db.XOuts(cmd.Context(), opts.filter.Panel)
+		if err != nil {
+			return err
+		}
+		for _, x := range xs {
+			fmt.Fprintf(w, "%-8s %-19s %-16s %-8s %-7s %-10s %-13s  site %02d marked bad on the panel (x-out): not tested\n", "-",
+				x.Time.Local().Format("2006-01-02 15:04:05"), x.Serial, x.Station, x.Fixture, "-", "not tested", x.Site)
 		}
 	}
 	if n == 0 {

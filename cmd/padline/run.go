@@ -22,6 +22,8 @@ type runOptions struct {
 	search           string
 	asJSON           bool
 	lidTimeout       time.Duration
+	screen           string // address of the station screen; "" for none
+	xout             string // panel stations: x-out sites of the --serial panel
 }
 
 // runCmd builds `padline run`.
@@ -42,8 +44,24 @@ log, and only then shows the verdict and lights the lamp.
 Ctrl-C or SIGTERM stops cleanly: the fixture opens every rung and removes unit
 power, and a unit stopped half-way gets no verdict and no log entry.
 
+--screen serves the station screen to a browser on this computer
+(` + defaultScreenAddr + `; --screen=ADDR to listen elsewhere, which the log
+says): the verdict large, the fail code's action, the shift's counters, and a
+field that takes scans like stdin does. With --screen a station that needs its
+shift-start check waits for it to be run from the page instead of exiting.
+
 A station file with driver: sim runs against the built-in simulated line;
 driver: gpio drives the real pins named in the station file.
+
+A panel station (a station file with a sites: section, such as the built-in
+demo-panel) tests every board of a panel in one closure. Each input line is
+one panel: its label, optionally followed by x:SITES naming the sites marked
+bad on the panel (x-outs: skipped and logged as not tested), e.g.
+"QM205-0001 x:3". Each site's serial comes from the variant's panel_serial
+({panel}{site:02} turns QM205-0001 into QM205-000101 …); with sites.serials:
+scan the line holds every site's label instead, "-" for an x-out. Every
+tested site gets its own run and verdict in the shift log, with the panel
+label and its site number; the terminal shows a compact panel map.
 
 CAUTION: the unit's supply may be up to 15 V while the station's GPIO is 3.3 V:
 every input must be level-shifted. Products that switch mains must be tested
@@ -51,12 +69,20 @@ with their logic board unpowered from mains; follow local electrical codes and
 your safety engineer. Keep hands clear of the fixture clamp.`,
 		Example: `  padline run --variant QM-205 --station /etc/padline/station.yaml
   padline run --variant QM-205 --station demo-sim --serial QM205-000123
-  printf 'QM205-000001\nQM205-000002\n' | padline run --variant QM-205 --station demo-sim --db shift.db`,
+  printf 'QM205-000001\nQM205-000002\n' | padline run --variant QM-205 --station demo-sim --db shift.db
+  padline run --variant QM-205 --station demo-sim --screen   # then open http://127.0.0.1:8080/
+  printf 'QM205-0001\nQM205-0002 x:3\n' | padline run --variant QM-205 --station demo-panel --db shift.db`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			db, err := shiftLogPath(cmd, o.station)
 			if err != nil {
 				return err
+			}
+			if _, panel := panelStation(o.station); panel {
+				if o.screen != "" {
+					return fmt.Errorf("run: station %s is a panel station; --screen does not serve panels yet (the terminal shows the panel map)", o.station)
+				}
+				return a.runPanel(cmd.Context(), o, db)
 			}
 			return a.run(cmd.Context(), o, db)
 		},
@@ -71,6 +97,8 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f.StringVar(&o.search, "search", "", "trip search: bracket or staircase (default: the variant's plan)")
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per tested unit instead of the verdict banner")
 	f.DurationVar(&o.lidTimeout, "lid-timeout", 0, "give up on a unit whose lid stays open this long (0: wait until stopped)")
+	addScreenFlag(f, &o.screen)
+	f.StringVar(&o.xout, "xout", "", "panel station: sites of the --serial panel marked bad (x-outs), e.g. 2,5")
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
@@ -81,6 +109,8 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		Variant: o.variant, Station: o.station, ShiftLog: dbPath,
 		Operator: o.operator, Lot: o.lot, Strategy: o.search,
 		Software: softwareVersion(), GPIO: openGPIO, LidTimeout: o.lidTimeout,
+		// With a screen the technician runs a due check from the page.
+		WaitForCheck: o.screen != "",
 	})
 	if err != nil {
 		return err
@@ -100,6 +130,17 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		sc = session.OneSerial(o.serial)
 	} else {
 		sc = a.promptingScanner(session.LineScanner(a.stdin), o)
+	}
+	if o.screen != "" {
+		// The screen adds the page's scans to stdin's (or to --serial's
+		// one); the run then goes on until it is stopped.
+		var stopScreen func()
+		if sc, stopScreen, err = a.startScreen(ctx, sess, sc, o.screen); err != nil {
+			stop()
+			<-printed
+			return err
+		}
+		defer stopScreen()
 	}
 	err = sess.Run(ctx, sc)
 	stop()
@@ -145,6 +186,20 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			if !o.asJSON {
 				fmt.Fprintf(a.stdout, "STATION LOCKED  %s: %s\n", e.Refused.Why, e.Refused.Fix)
 			}
+		case session.KindCheckDue:
+			if !o.asJSON {
+				fmt.Fprintln(a.stdout, "waiting for the shift-start check: run it from the station screen")
+			}
+		case session.KindCheckProgress:
+			fmt.Fprintf(a.stderr, "shift-start check: %s\n", e.Check.Message)
+		case session.KindCheckResult:
+			if !o.asJSON {
+				writeCheckResult(a.stdout, e.Check.Report)
+			}
+		case session.KindBadgeScanned:
+			if !o.asJSON {
+				fmt.Fprintf(a.stdout, "%s set to %s\n", e.Badge.Kind, e.Badge.Value)
+			}
 		case session.KindScanRefused:
 			if o.asJSON {
 				werr = errors.Join(werr, enc.Encode(map[string]string{"serial": e.ScanRefused.Raw, "refused": e.ScanRefused.Reason}))
@@ -163,7 +218,7 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			if o.asJSON {
 				werr = errors.Join(werr, enc.Encode(unitJSON(e.Verdict)))
 			} else {
-				writeVerdict(a.stdout, e.Verdict)
+				writeVerdict(a.stdout, e.Verdict, isTerminal(a.stdout))
 			}
 		case session.KindRelayWear:
 			fmt.Fprintf(a.stderr, "relay wear: rung %d has %d of %.0f rated operations (%.0f %%): plan its replacement\n",
@@ -171,8 +226,18 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 		case session.KindDriftAlarm:
 			fmt.Fprintf(a.stderr, "drift alarm: %s\n", e.Drift.Message)
 		case session.KindSessionEnded:
-			if e.Ended.Reason == session.EndRefused {
+			switch e.Ended.Reason {
+			case session.EndRefused:
 				continue
+			case session.EndInput, session.EndStopped:
+			default:
+				// The operator reads the screen, not the log: a halted
+				// station says so where the verdicts appear.
+				if o.asJSON {
+					werr = errors.Join(werr, enc.Encode(map[string]string{"halted": e.Ended.Reason}))
+				} else {
+					fmt.Fprintf(a.stdout, "STATION HALTED  %s\n", e.Ended.Reason)
+				}
 			}
 			if o.asJSON {
 				fmt.Fprintf(a.stderr, "%d unit(s) tested; fixture halted.\n", e.Ended.Tested)
@@ -220,8 +285,9 @@ func jsonNum(f float64) any {
 	return f
 }
 
-// writeVerdict prints the verdict large and plain, after the commit.
-func writeVerdict(w io.Writer, v *session.Verdict) {
+// writeVerdict prints the verdict large and plain, after the commit; in
+// colour (as well as in words) when colour is set: on a terminal only.
+func writeVerdict(w io.Writer, v *session.Verdict, colour bool) {
 	r, lim := v.Run, v.Limits
 	trip := "no trip point"
 	for _, x := range r.Measurements {
@@ -235,11 +301,11 @@ func writeVerdict(w io.Writer, v *session.Verdict) {
 		if v.PriorFails > 0 {
 			flag = fmt.Sprintf("   (pass after %d fail(s): flagged in the shift log)", v.PriorFails)
 		}
-		fmt.Fprintf(w, "%s   ======== PASS ========   %s%s\n", r.Serial, trip, flag)
+		fmt.Fprintf(w, "%s   %s   %s%s\n", r.Serial, paint("======== PASS ========", r.Verdict, colour), trip, flag)
 	case sequences.Fail:
-		fmt.Fprintf(w, "%s   ######## FAIL ########   %s   %s\n", r.Serial, r.FailCode, trip)
+		fmt.Fprintf(w, "%s   %s   %s   %s\n", r.Serial, paint("######## FAIL ########", r.Verdict, colour), r.FailCode, trip)
 	default:
-		fmt.Fprintf(w, "%s   ???? STATION FAULT ????   %s: the station, not the unit, failed; see the station before retesting\n", r.Serial, r.FailCode)
+		fmt.Fprintf(w, "%s   %s   %s: the station, not the unit, failed; see the station before retesting\n", r.Serial, paint("???? STATION FAULT ????", r.Verdict, colour), r.FailCode)
 		if v.StationError != "" {
 			fmt.Fprintf(w, "   station fault: %s\n", v.StationError)
 		}

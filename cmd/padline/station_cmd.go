@@ -151,6 +151,9 @@ driver: gpio the operator is asked to load each one and close the lid.`,
 }
 
 func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string, asJSON bool) (err error) {
+	if _, panel := panelStation(station); panel {
+		return a.stationCheckPanel(ctx, variant, station, dbPath, asJSON)
+	}
 	r, err := a.openRig(ctx, variant, station, dbPath, asJSON)
 	if err != nil {
 		return err

@@ -53,9 +53,9 @@ type Source struct {
 // embedded defaults/<dir>/NAME.yaml). kind names the thing for errors.
 func openConfig(ref, dir, kind string) (Source, error) {
 	if isConfigPath(ref) {
-		raw, err := os.ReadFile(ref)
+		raw, err := readConfigFile(ref, kind)
 		if err != nil {
-			return Source{}, fmt.Errorf("read %s: %w", kind, err)
+			return Source{}, err
 		}
 		return newSource(ref, raw), nil
 	}
@@ -105,6 +105,12 @@ type doc struct {
 // parseDoc parses raw as YAML through viper (no environment overrides: the
 // file's bytes are the snapshot, so nothing may change what they say).
 func parseDoc(file string, raw []byte) (*doc, error) {
+	if len(raw) > MaxConfigBytes {
+		return nil, &ConfigError{File: file, Msg: fmt.Sprintf("file is over %d bytes; not read", MaxConfigBytes)}
+	}
+	if err := strictKeys(file, raw); err != nil {
+		return nil, err
+	}
 	v := viper.New()
 	v.SetConfigType("yaml")
 	if err := v.ReadConfig(bytes.NewReader(raw)); err != nil {

@@ -30,6 +30,9 @@ const (
 	KindCheckResult Kind = "check_result"
 	// KindUnitScanned: Event.Scan — a serial accepted for test.
 	KindUnitScanned Kind = "unit_scanned"
+	// KindBadgeScanned: Event.Badge — a lot or operator badge was
+	// scanned; every following run records the new value.
+	KindBadgeScanned Kind = "badge_scanned"
 	// KindScanRefused: Event.ScanRefused — a scan that was not tested
 	// (bad serial, retest limit, lid not closed in time). The unit is at
 	// issue, not the station.
@@ -65,6 +68,7 @@ type Event struct {
 
 	Started     *Started     `json:"started,omitempty"`
 	Scan        *Scan        `json:"scan,omitempty"`
+	Badge       *Badge       `json:"badge,omitempty"`
 	ScanRefused *ScanRefusal `json:"scan_refused,omitempty"`
 	Step        *StepDone    `json:"step,omitempty"`
 	Verdict     *Verdict     `json:"verdict,omitempty"`
@@ -97,6 +101,12 @@ type Started struct {
 // Scan is a serial accepted for test.
 type Scan struct {
 	Serial string `json:"serial"`
+}
+
+// Badge is a lot or operator badge scanned at the station.
+type Badge struct {
+	Kind  BadgeKind `json:"kind"`
+	Value string    `json:"value"`
 }
 
 // ScanRefusal is a scan that was not tested. Raw is what was scanned (the

@@ -167,8 +167,20 @@ func FuzzStation(f *testing.F) {
 		checkSource(t, file, raw, s.Source)
 		for key, val := range map[string]string{"name": s.Name, "fixture": s.Fixture, "shift_log": s.ShiftLog,
 			"pins.latch": s.Pins.Latch, "pins.power": s.Pins.Power, "pins.lid": s.Pins.Lid} {
+			// A panel station names each site's latch (and power, per
+			// site) under sites.
+			if s.Sites != nil && (key == "pins.latch" || key == "pins.power" && !s.Sites.SharedPower) {
+				continue
+			}
 			if strings.TrimSpace(val) == "" {
 				t.Errorf("empty %s accepted", key)
+			}
+		}
+		if s.Sites != nil {
+			for i, site := range s.Sites.List {
+				if strings.TrimSpace(site.Latch) == "" || len(site.RungsPF) != len(s.Ladder.RungsPF) {
+					t.Errorf("site %d without latch or with %d rungs accepted", i+1, len(site.RungsPF))
+				}
 			}
 		}
 		if s.Driver != "sim" && s.Driver != "gpio" {

@@ -147,10 +147,40 @@ func CheckHint(variant string, st *Station, dbPath string) string {
 // the shift log holds no check of this station and fixture, the last check
 // refused the station, the station file changed since, the check is older
 // than check_every_hours, or check_every_units runs were tested since it.
+//
+// It also refuses (with ErrClockBehind, which a check does not clear) when
+// the wall clock reads earlier than the latest time in the shift log.
 func Ready(ctx context.Context, db *store.DB, st *Station, now time.Time) error {
-	// The gate is two quick reads; a stop request must not turn it into
+	return ready(ctx, db, st, now, func(ctx context.Context, db *store.DB, st *Station, c store.StationCheck) (int64, error) {
+		return db.RunsSince(ctx, st.Name, st.Fixture, c.LastRunID)
+	})
+}
+
+// ErrClockBehind: the station's wall clock reads earlier than an event in
+// its shift log.
+var ErrClockBehind = errors.New("station clock behind the shift log")
+
+// clockSkew is how far the wall clock may read behind the shift log's
+// latest event before the gate refuses: stations sharing a log on one
+// network keep their clocks far closer than this with NTP (common practice,
+// no source).
+const clockSkew = 2 * time.Minute
+
+// sinceCounter counts the runs tested since check c.
+type sinceCounter func(ctx context.Context, db *store.DB, st *Station, c store.StationCheck) (int64, error)
+
+func ready(ctx context.Context, db *store.DB, st *Station, now time.Time, since sinceCounter) error {
+	// The gate is a few quick reads; a stop request must not turn it into
 	// an error (the caller checks for one before every unit anyway).
 	ctx = context.WithoutCancel(ctx)
+	latest, err := db.LatestTime(ctx)
+	if err != nil {
+		return err
+	}
+	if now.Add(clockSkew).Before(latest) {
+		return fmt.Errorf("%w: the clock reads %s but shift log %s holds an event of %s: the clock was set back, so the check schedule cannot be trusted; set the station's clock right (NTP) and start again",
+			ErrClockBehind, now.UTC().Format(time.RFC3339), db.Path(), latest.UTC().Format(time.RFC3339))
+	}
 	c, err := db.LastCheck(ctx, st.Name, st.Fixture)
 	if errors.Is(err, store.ErrNotFound) {
 		return fmt.Errorf("%w: station %s fixture %s has no reference check in the shift log", ErrNotReady, st.Name, st.Fixture)
@@ -168,8 +198,8 @@ func Ready(ctx context.Context, db *store.DB, st *Station, now time.Time) error 
 	if h := st.Trust.CheckEveryHours; h > 0 && now.Sub(c.Time) > time.Duration(h*float64(time.Hour)) {
 		return fmt.Errorf("%w: the reference check of %s is older than %g h", ErrNotReady, at, h)
 	}
-	if n := st.Trust.CheckEveryUnits; n > 0 {
-		since, err := db.RunsSince(ctx, st.Name, st.Fixture, c.LastRunID)
+	if n := st.Trust.CheckEveryUnits; n > 0 && since != nil {
+		since, err := since(ctx, db, st, c)
 		if err != nil {
 			return err
 		}
@@ -178,6 +208,34 @@ func Ready(ctx context.Context, db *store.DB, st *Station, now time.Time) error 
 		}
 	}
 	return nil
+}
+
+// sinceCheck is a session's running count of the runs tested since the
+// station's last check: one query when the check changes, then one step per
+// committed run (counting every run since the check before every unit made
+// each unit slower as the shift went on). Runs another process adds to the
+// same station and fixture meanwhile are not seen until the next check.
+type sinceCheck struct {
+	checkID int64
+	known   bool
+	n       int64
+}
+
+func (c *sinceCheck) count(ctx context.Context, db *store.DB, st *Station, chk store.StationCheck) (int64, error) {
+	if !c.known || c.checkID != chk.ID {
+		n, err := db.RunsSince(ctx, st.Name, st.Fixture, chk.LastRunID)
+		if err != nil {
+			return 0, err
+		}
+		c.checkID, c.known, c.n = chk.ID, true, n
+	}
+	return c.n, nil
+}
+
+func (c *sinceCheck) add(n int64) {
+	if c.known {
+		c.n += n
+	}
 }
 
 // Uncertainty is the guard band U a station applies, and where it

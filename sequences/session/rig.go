@@ -56,6 +56,8 @@ type RigOptions struct {
 	Strategy string
 	// GPIO opens real pins for driver: gpio (see GPIOOpener).
 	GPIO GPIOOpener
+	// PanelGPIO opens a panel station's real pins (see PanelGPIOOpener).
+	PanelGPIO PanelGPIOOpener
 }
 
 // Load resolves and parses a variant and a station reference: each a .yaml
@@ -75,6 +77,11 @@ func Load(variantRef, stationRef string) (*Variant, *Station, error) {
 // NewRig computes the limits for v on st, opens the station's pins, builds
 // the fixture and the plan. On error nothing is left open.
 func NewRig(v *Variant, st *Station, o RigOptions) (*Rig, error) {
+	if st.Sites != nil {
+		// One unit per closure on a panel fixture would drive every
+		// site's ladder with site 1's values: refuse instead.
+		return nil, fmt.Errorf("station %s is a panel station (sites:): this command tests one unit per closure; use 'padline run', 'padline station check' or 'padline demo --panel'", st.Source.Name)
+	}
 	r := &Rig{Variant: v, Station: st, UncertaintyPF: o.UncertaintyPF, UncertaintyFrom: o.UncertaintyFrom}
 	if r.UncertaintyPF <= 0 {
 		r.UncertaintyPF, r.UncertaintyFrom = StatedUncertainty(st)

@@ -78,8 +78,10 @@ type Session struct {
 	// watch is the drift watch over the session's trip points (the
 	// default chart set, centred on the timing model's population); nil
 	// when the model gives no spread. tripN counts its points.
-	watch   *drift.Monitor
-	tripN   int
+	watch *drift.Monitor
+	tripN int
+	// since counts the runs since the last check without a query per unit.
+	since   sinceCheck
 	mu      sync.Mutex
 	closed  bool
 	hash    string
@@ -114,6 +116,11 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 	db, err := store.Open(o.ShiftLog)
 	if err != nil {
 		return nil, errors.Join(err, rig.Halt())
+	}
+	// Damaged pages are found before the first unit, not as "malformed"
+	// half-way through a shift.
+	if err := db.QuickCheck(context.WithoutCancel(ctx)); err != nil {
+		return nil, errors.Join(fmt.Errorf("%w; station not started: restore the shift log from a copy or start a new one with --db", err), db.Close(), rig.Halt())
 	}
 	s := &Session{rig: rig, db: db, opts: o, hub: newHub(o.Now), checkReq: make(chan struct{}, 1), warned: map[int]bool{}}
 	// Setting up is quick and must not be cut half-way by a stop request.
@@ -325,6 +332,14 @@ const (
 // unit takes one scan through gate, lid, test, commit and verdict.
 func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 	r := s.rig
+	if kind, value, ok, err := r.Station.Badges.Badge(raw); ok {
+		if err != nil {
+			s.refuseScan(raw, err.Error(), err)
+		} else {
+			s.badge(kind, value)
+		}
+		return unitRefused, nil
+	}
 	serial, err := CleanSerial(r.Variant.Serial, raw)
 	if err != nil {
 		s.refuseScan(raw, fmt.Sprintf("%v (unit not tested; scan again)", err), err)
@@ -356,6 +371,10 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 		s.refuseScan(serial, fmt.Sprintf("not tested: %v", err), err)
 		return unitRefused, nil
 	}
+	if perr := s.db.CheckPath(); perr != nil {
+		unload()
+		return unitRefused, s.moved("", perr)
+	}
 	s.seq.OnStep = func(d sequences.StepDone) {
 		e := &StepDone{Serial: serial, Step: d.Step, Measurements: d.Measurements, FixtureMS: float64(d.FixtureTime) / float64(time.Millisecond)}
 		if d.Err != nil {
@@ -376,6 +395,13 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 		// Not saved: never show a verdict.
 		return unitRefused, err
 	}
+	s.since.add(1)
+	// The verdict is shown only when the run is in the file the next
+	// start will open: a log deleted or renamed under the station would
+	// otherwise keep every run where nobody finds it.
+	if perr := s.db.CheckPath(); perr != nil {
+		return unitRefused, s.moved(serial, perr)
+	}
 	v := &Verdict{Run: oc.Run, ID: oc.ID, PriorFails: oc.PriorFails, PriorPasses: oc.PriorPasses, Action: sequences.FailAction(oc.Run.FailCode),
 		Limits: r.PlanConfig.Limits, Outcome: oc}
 	if err != nil {
@@ -388,6 +414,21 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 	s.relayWear()
 	s.driftWatch(&oc.Run)
 	return unitTested, nil
+}
+
+// ErrHalted is wrapped by every error that stops the station because the
+// shift log cannot take its runs: moved or deleted, disk full, locked.
+var ErrHalted = errors.New("station halted")
+
+// moved is the error that halts the station when its shift log's path no
+// longer leads to the open file.
+func (s *Session) moved(serial string, err error) error {
+	unit := ""
+	if serial != "" {
+		unit = fmt.Sprintf("; the run of %s went into the old file and its verdict is not shown: test it again", serial)
+	}
+	return fmt.Errorf("%w: %w%s; put the shift log back at %s or start the station with a new --db",
+		ErrHalted, err, unit, s.opts.ShiftLog)
 }
 
 func (s *Session) refuseScan(raw, reason string, err error) {
@@ -440,7 +481,7 @@ func (s *Session) driftWatch(run *sequences.Run) {
 // refusal.
 func (s *Session) gate(ctx context.Context) error {
 	for {
-		err := Ready(ctx, s.db, s.rig.Station, s.opts.Now())
+		err := ready(ctx, s.db, s.rig.Station, s.opts.Now(), s.since.count)
 		if err == nil {
 			return nil
 		}

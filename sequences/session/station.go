@@ -23,6 +23,11 @@ type Station struct {
 	// Trust is how the station proves it still measures right: its
 	// reference units and how often they must be checked.
 	Trust StationTrust
+	// Badges are the prefixes of lot and operator badges (badges.go).
+	Badges StationBadges
+	// Sites is the optional `sites:` section of a panel station (nil for a
+	// station that tests one unit per closure).
+	Sites *StationSites
 	// Source is where the file came from, its exact bytes and their sha256.
 	Source Source
 }
@@ -110,8 +115,9 @@ func parseStation(src Source) (*Station, error) {
 	s.ShiftLog = d.str("shift_log", true)
 	if d.section("pins", true) {
 		p := &s.Pins
-		p.Latch = d.str("pins.latch", true)
-		p.Power = d.str("pins.power", true)
+		panel := d.has("sites") // a panel names each site's latch (and power) under sites
+		p.Latch = d.str("pins.latch", !panel)
+		p.Power = d.str("pins.power", !panel)
 		p.Clock = d.str("pins.clock", false)
 		p.Lid = d.str("pins.lid", true)
 		p.PassLamp = d.str("pins.pass_lamp", false)
@@ -171,8 +177,10 @@ func parseStation(src Source) (*Station, error) {
 		l.CalUncertaintyPF = d.positive("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF)
 	}
 	s.Trust = readStationTrust(d, s.Ladder)
+	s.Badges = readStationBadges(d)
 	s.Sim = readStationSim(d)
 	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
+	s.Sites = readStationSites(d, s)
 	if err := d.finish(); err != nil {
 		return nil, err
 	}

@@ -21,6 +21,9 @@ type Variant struct {
 	Circuit       timing.Circuit
 	Spec          timing.Spec
 	Plan          PlanSection
+	// PanelSerial makes a panel site's serial from the panel label and the
+	// site number (`panel_serial`, default DefaultPanelSerial).
+	PanelSerial string
 	// Source is where the file came from, its exact bytes and their sha256
 	// (the config hash every run records).
 	Source Source
@@ -97,6 +100,7 @@ func parseVariant(src Source) (*Variant, error) {
 	v.Name = d.str("name", true)
 	v.Description = d.str("description", false)
 	v.SerialPattern = d.str("serial_pattern", true)
+	v.PanelSerial = readPanelSerial(d)
 	if v.SerialPattern != "" {
 		re, err := regexp.Compile(v.SerialPattern)
 		if err != nil {
