@@ -6,15 +6,14 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"os/signal"
-	"syscall"
 )
 
 func main() {
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	ctx, which, stop := signalContext(context.Background())
 	code := run(ctx, os.Args[1:], os.Stdin, os.Stdout, os.Stderr)
+	sig := which()
 	stop()
-	os.Exit(code)
+	os.Exit(signalExit(sig, code, os.Stderr))
 }
 
 // exitError carries a specific exit status out of a subcommand.

@@ -24,6 +24,7 @@ type runOptions struct {
 	lidTimeout       time.Duration
 	screen           string // address of the station screen; "" for none
 	xout             string // panel stations: x-out sites of the --serial panel
+	service          bool   // end of input is an error (run as a service)
 }
 
 // runCmd builds `padline run`.
@@ -42,7 +43,11 @@ serial padline waits for the lid, powers the unit, runs the variant's plan
 log, and only then shows the verdict and lights the lamp.
 
 Ctrl-C or SIGTERM stops cleanly: the fixture opens every rung and removes unit
-power, and a unit stopped half-way gets no verdict and no log entry.
+power, and a unit stopped half-way gets no verdict and no log entry. SIGHUP
+and SIGQUIT halt the fixture the same way and exit 129 and 131, so a service
+restarts. With --service (the station's systemd unit) the end of input is an
+error too. Between two units the lid must open: a serial scanned while the
+last unit is still clamped waits for the lid to open and close.
 
 --screen serves the station screen to a browser on this computer
 (` + defaultScreenAddr + `; --screen=ADDR to listen elsewhere, which the log
@@ -99,6 +104,7 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f.DurationVar(&o.lidTimeout, "lid-timeout", 0, "give up on a unit whose lid stays open this long (0: wait until stopped)")
 	addScreenFlag(f, &o.screen)
 	f.StringVar(&o.xout, "xout", "", "panel station: sites of the --serial panel marked bad (x-outs), e.g. 2,5")
+	f.BoolVar(&o.service, "service", false, "run as the station's service: the end of input (console closed, Ctrl-D) is an error, so the service manager restarts padline instead of leaving the line down")
 	_ = cmd.MarkFlagRequired("variant")
 	_ = cmd.MarkFlagRequired("station")
 	return cmd
@@ -110,7 +116,8 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		Operator: o.operator, Lot: o.lot, Strategy: o.search,
 		Software: softwareVersion(), GPIO: openGPIO, LidTimeout: o.lidTimeout,
 		// With a screen the technician runs a due check from the page.
-		WaitForCheck: o.screen != "",
+		WaitForCheck:    o.screen != "",
+		InputEndIsError: o.service,
 	})
 	if err != nil {
 		return err
@@ -211,7 +218,11 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			if o.asJSON {
 				w = a.stderr
 			}
-			fmt.Fprintln(w, "close the lid to start the test")
+			if e.Scan.Prompt != "" {
+				fmt.Fprintln(w, e.Scan.Prompt)
+			} else {
+				fmt.Fprintln(w, "close the lid to start the test")
+			}
 		case session.KindUnitAborted:
 			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", e.Scan.Serial)
 		case session.KindVerdictCommitted:

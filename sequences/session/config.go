@@ -294,6 +294,28 @@ func (d *doc) str(key string, required bool) string {
 	if required && strings.TrimSpace(s) == "" {
 		d.fail(key, "must not be empty")
 	}
+	if len(s) > maxTextBytes {
+		d.fail(key, "%d bytes of text: at most %d", len(s), maxTextBytes)
+		return ""
+	}
+	if off, r, bad := badText(s); bad {
+		d.fail(key, "control or invalid character %U at offset %d: text here is one printable line", r, off)
+		return ""
+	}
+	return s
+}
+
+// maxTextBytes bounds every text key of a config file (a description is a
+// line, a pattern a few dozen characters).
+const maxTextBytes = 1024
+
+// name reads a required name key (station, fixture, variant): text of at
+// most 64 bytes, printed on every banner and history line.
+func (d *doc) name(key string) string {
+	s := d.str(key, true)
+	if len(s) > maxNameBytes {
+		d.fail(key, "%d bytes: a name is at most %d", len(s), maxNameBytes)
+	}
 	return s
 }
 

@@ -101,6 +101,9 @@ type Started struct {
 // Scan is a serial accepted for test.
 type Scan struct {
 	Serial string `json:"serial"`
+	// Prompt (KindLidWait only) is what the operator must do, when it is
+	// more than closing the lid: the lid must open between two units.
+	Prompt string `json:"prompt,omitempty"`
 }
 
 // Badge is a lot or operator badge scanned at the station.

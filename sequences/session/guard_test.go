@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -151,5 +152,135 @@ func TestConfigSizeCapAndKind(t *testing.T) {
 	}
 	if _, err := session.LoadStation(dir + "/"); err == nil {
 		t.Fatal("a directory was read as a station file")
+	}
+}
+
+// The lid must open between two units: a second serial scanned while the
+// first unit is still clamped (lid never opened) is not tested under it.
+func TestLidMustOpenBetweenUnits(t *testing.T) {
+	s := checkedDemo(t, session.Options{LidTimeout: 2 * time.Second})
+	ch, _ := s.Subscribe(1024)
+	serials := make(chan string)
+	done := make(chan error, 1)
+	go func() { done <- s.Run(context.Background(), session.ChanScanner(serials)) }()
+	serials <- "QM205-000001"
+	for e := range ch {
+		if e.Kind == session.KindVerdictCommitted {
+			break
+		}
+	}
+	// The operator leaves the tested unit in and the lid shut.
+	s.Rig().Line.Load("QM205-000001")
+	serials <- "QM205-000002"
+	var refused *session.ScanRefusal
+	var prompted bool
+	for e := range ch {
+		if e.Kind == session.KindLidWait && e.Scan.Prompt != "" {
+			prompted = true
+		}
+		if e.Kind == session.KindVerdictCommitted {
+			t.Fatalf("%s tested without the lid opening after the last unit", e.Verdict.Run.Serial)
+		}
+		if e.Kind == session.KindScanRefused {
+			refused = e.ScanRefused
+			break
+		}
+	}
+	close(serials)
+	if err := <-done; err != nil {
+		t.Fatal(err)
+	}
+	if refused == nil || !errors.Is(refused.Err, session.ErrLidNotOpened) || !prompted {
+		t.Fatalf("refusal %+v, prompted %v; want ErrLidNotOpened after a prompt to open the lid", refused, prompted)
+	}
+	// Opened and closed again: the next scan is tested.
+	s.Rig().Line.Unload()
+	in := make(chan string, 1)
+	in <- "QM205-000002"
+	close(in)
+	ch2, _ := s.Subscribe(1024)
+	if err := s.Run(context.Background(), session.ChanScanner(in)); err != nil {
+		t.Fatal(err)
+	}
+	_ = s.Close()
+	n := 0
+	for e := range ch2 {
+		if e.Kind == session.KindVerdictCommitted {
+			n++
+		}
+	}
+	if n != 1 {
+		t.Fatalf("%d verdicts after the lid opened, want 1", n)
+	}
+}
+
+// A barcode scanner may end a read with CR, LF or CR LF; a line over 1 MiB
+// is refused and the next line is still read.
+func TestLineScannerLineEnds(t *testing.T) {
+	long := make([]byte, 1<<20+10)
+	for i := range long {
+		long[i] = 'A'
+	}
+	in := "S1\rS2\nS3\r\nS4\r\r\n" + string(long) + "\nS5"
+	sc := session.LineScanner(strings.NewReader(in))
+	var got []string
+	tooLong := 0
+	for {
+		raw, ok, err := sc.Scan(context.Background())
+		if errors.Is(err, session.ErrLineTooLong) {
+			tooLong++
+			if len(raw) > 100 {
+				t.Errorf("over-long line returned with %d bytes", len(raw))
+			}
+			continue
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !ok {
+			break
+		}
+		got = append(got, raw)
+	}
+	want := []string{"S1", "S2", "S3", "S4", "", "S5"}
+	if strings.Join(got, "|") != strings.Join(want, "|") || tooLong != 1 {
+		t.Fatalf("lines %q (%d too long), want %q and 1 too long", got, tooLong, want)
+	}
+}
+
+// In a session an over-long line is a refused scan; the run goes on.
+func TestOverLongLineRefusedRunGoesOn(t *testing.T) {
+	s := checkedDemo(t, session.Options{})
+	ch, _ := s.Subscribe(1024)
+	got := collect(ch)
+	in := "QM205-000001\r" + strings.Repeat("x", 1<<20+1) + "\rQM205-000002\r"
+	if err := s.Run(context.Background(), session.LineScanner(strings.NewReader(in))); err != nil {
+		t.Fatal(err)
+	}
+	_ = s.Close()
+	k := kinds(<-got)
+	if k[session.KindVerdictCommitted] != 2 || k[session.KindScanRefused] != 1 {
+		t.Fatalf("events %v: want 2 verdicts and the long line refused", k)
+	}
+}
+
+// ESC and newlines in operator and lot names are refused like bad serials,
+// and so are they in station, fixture and variant names.
+func TestNamesCleaned(t *testing.T) {
+	for _, o := range []session.Options{
+		{Operator: "ana\x1b[2J"}, {Lot: "L7\nQM205-000009 PASS"}, {Operator: strings.Repeat("o", 65)},
+	} {
+		o.Variant, o.Station, o.ShiftLog = "QM-205", "demo-sim", filepath.Join(t.TempDir(), "shift.db")
+		s, err := session.Open(context.Background(), o)
+		if err == nil {
+			_ = s.Close()
+			t.Fatalf("opened with operator %q lot %q", o.Operator, o.Lot)
+		}
+		if !errors.Is(err, session.ErrBadName) {
+			t.Errorf("operator %q lot %q: %v, want ErrBadName", o.Operator, o.Lot, err)
+		}
+	}
+	if s, err := session.CleanName("operator", "  José  "); err != nil || s != "José" {
+		t.Errorf("CleanName(José) = %q, %v", s, err)
 	}
 }

@@ -80,3 +80,42 @@ func quotePattern(p string) string {
 	}
 	return strconv.Quote(p)
 }
+
+// maxNameBytes is the longest operator, lot, station, fixture or variant
+// name accepted: a name is read on a badge or a screen, never a paragraph.
+const maxNameBytes = 64
+
+// ErrBadName is wrapped by every name rejection of CleanName.
+var ErrBadName = errors.New("bad name")
+
+// CleanName checks an operator, lot, station, fixture or variant name the
+// way CleanSerial checks a serial: spaces around it are trimmed; what is
+// left must be at most 64 bytes of valid UTF-8 without control characters
+// (ESC, CR, LF, DEL, C1), which would move the cursor or forge lines on the
+// station's terminal, in the history table and in CSV. Empty is allowed
+// (the caller decides whether the name is required). what names the field
+// for the error, which quotes the value with %q.
+func CleanName(what, raw string) (string, error) {
+	s := strings.TrimSpace(raw)
+	if len(s) > maxNameBytes {
+		return "", fmt.Errorf("%w: %s %s (%d bytes): longer than %d bytes", ErrBadName, what, quoteSerial(s), len(s), maxNameBytes)
+	}
+	if off, r, bad := badText(s); bad {
+		return "", fmt.Errorf("%w: %s %s: control or invalid character %U at offset %d", ErrBadName, what, quoteSerial(s), r, off)
+	}
+	return s, nil
+}
+
+// badText finds the first rune of s that may not appear in a one-line
+// text: an invalid UTF-8 byte, a C0 control (tab included), DEL or a C1
+// control (Unicode, "C0 and C1 control codes").
+func badText(s string) (offset int, r rune, bad bool) {
+	for i := 0; i < len(s); {
+		r, size := utf8.DecodeRuneInString(s[i:])
+		if (r == utf8.RuneError && size <= 1) || r < 0x20 || (r >= 0x7f && r <= 0x9f) {
+			return i, r, true
+		}
+		i += size
+	}
+	return 0, 0, false
+}

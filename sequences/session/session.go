@@ -7,6 +7,7 @@ import (
 	"math"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"padline/sequences"
@@ -37,6 +38,11 @@ type Options struct {
 	// instead of returning the refusal. Without it Run returns an error
 	// wrapping ErrNotReady (the terminal's behaviour: exit status 3).
 	WaitForCheck bool
+	// InputEndIsError makes the end of the scanner's input an error
+	// (ErrInputEnded) instead of a normal end: a station run as a service
+	// must not stop for good because its console closed or someone typed
+	// Ctrl-D; the service manager restarts it on the error.
+	InputEndIsError bool
 	// Now is the wall clock (default time.Now); tests inject one.
 	Now func() time.Time
 }
@@ -81,11 +87,14 @@ type Session struct {
 	watch *drift.Monitor
 	tripN int
 	// since counts the runs since the last check without a query per unit.
-	since   sinceCheck
-	mu      sync.Mutex
-	closed  bool
-	hash    string
-	dropped uint64
+	since sinceCheck
+	// needOpen is set when a unit has been tested (or a check run) in the
+	// fixture and the lid has not been seen open since.
+	needOpen atomic.Bool
+	mu       sync.Mutex
+	closed   bool
+	hash     string
+	dropped  uint64
 }
 
 // Open loads the variant and station, computes the limits (guard band from
@@ -113,6 +122,15 @@ func OpenOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 }
 
 func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
+	// Operator and lot reach the terminal, the history table and CSV:
+	// cleaned like serials, refused when they hold control characters.
+	var err error
+	if o.Operator, err = CleanName("operator", o.Operator); err != nil {
+		return nil, errors.Join(err, rig.Halt())
+	}
+	if o.Lot, err = CleanName("lot", o.Lot); err != nil {
+		return nil, errors.Join(err, rig.Halt())
+	}
 	db, err := store.Open(o.ShiftLog)
 	if err != nil {
 		return nil, errors.Join(err, rig.Halt())
@@ -294,13 +312,23 @@ func (s *Session) Run(ctx context.Context, sc Scanner) (err error) {
 			reason = EndStopped
 			return nil
 		}
+		stopWatch := s.watchLid()
 		raw, ok, err := sc.Scan(ctx)
+		stopWatch()
+		if errors.Is(err, ErrLineTooLong) {
+			s.refuseScan(quoteSerial(raw), fmt.Sprintf("%v (unit not tested; scan again)", err), err)
+			continue
+		}
 		if err != nil {
 			return fmt.Errorf("read serials: %w", err)
 		}
 		if !ok {
 			if ctx.Err() != nil {
 				reason = EndStopped
+				return nil
+			}
+			if s.opts.InputEndIsError {
+				return ErrInputEnded
 			}
 			return nil
 		}
@@ -351,6 +379,16 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 		}
 		return unitRefused, err
 	}
+	// The lid must have opened since the last unit's test: a label
+	// scanned before the units are swapped would otherwise log the unit
+	// still clamped under the new serial.
+	if err := s.lidOpened(ctx, serial); err != nil {
+		if errors.Is(err, context.Canceled) || ctx.Err() != nil {
+			return unitStopped, nil
+		}
+		s.refuseScan(serial, fmt.Sprintf("not tested: %v", err), err)
+		return unitRefused, nil
+	}
 	if r.Line != nil {
 		r.Line.Load(serial)
 	}
@@ -396,6 +434,7 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 		return unitRefused, err
 	}
 	s.since.add(1)
+	s.needOpen.Store(true)
 	// The verdict is shown only when the run is in the file the next
 	// start will open: a log deleted or renamed under the station would
 	// otherwise keep every run where nobody finds it.
@@ -416,6 +455,10 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 	return unitTested, nil
 }
 
+// ErrInputEnded: the scanner's input ended in a run that must not end so
+// (Options.InputEndIsError).
+var ErrInputEnded = errors.New("the scanner input ended (console closed or Ctrl-D): a service station does not stop on that; restarting")
+
 // ErrHalted is wrapped by every error that stops the station because the
 // shift log cannot take its runs: moved or deleted, disk full, locked.
 var ErrHalted = errors.New("station halted")
@@ -429,6 +472,66 @@ func (s *Session) moved(serial string, err error) error {
 	}
 	return fmt.Errorf("%w: %w%s; put the shift log back at %s or start the station with a new --db",
 		ErrHalted, err, unit, s.opts.ShiftLog)
+}
+
+// lidPrompt is what the operator is asked when the lid has not opened
+// since the last unit.
+const lidPrompt = "open the lid, take the tested unit out, load the next one and close the lid"
+
+// ErrLidNotOpened refuses a scan when the lid has not opened since the last
+// unit was tested.
+var ErrLidNotOpened = errors.New("the lid has not opened since the last unit was tested")
+
+// lidOpened returns at once when the lid has opened since the last test (or
+// is open now); else it asks the operator to open it and waits (LidTimeout).
+func (s *Session) lidOpened(ctx context.Context, serial string) error {
+	if !s.needOpen.Load() {
+		return nil
+	}
+	f := s.rig.Fixture
+	closed, err := f.LidClosed()
+	if err != nil {
+		return err
+	}
+	if closed {
+		s.emit(Event{Kind: KindLidWait, Scan: &Scan{Serial: serial, Prompt: lidPrompt}})
+		if err := f.WaitLid(ctx, false, lidPoll, s.opts.LidTimeout); err != nil {
+			if ctx.Err() != nil {
+				return err
+			}
+			return fmt.Errorf("%w (%v): %s", ErrLidNotOpened, err, lidPrompt)
+		}
+	}
+	s.needOpen.Store(false)
+	return nil
+}
+
+// watchLid polls the lid switch while the loop waits for a scan, so a unit
+// swapped before its label is scanned is seen; the returned function stops
+// the watch. Nothing is polled when the lid need not open.
+func (s *Session) watchLid() func() {
+	if !s.needOpen.Load() {
+		return func() {}
+	}
+	stop := make(chan struct{})
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		t := time.NewTicker(lidPoll)
+		defer t.Stop()
+		for {
+			if closed, err := s.rig.Fixture.LidClosed(); err == nil && !closed {
+				s.needOpen.Store(false)
+				return
+			}
+			select {
+			case <-stop:
+				return
+			case <-t.C:
+			}
+		}
+	}()
+	return func() { close(stop); <-done }
 }
 
 func (s *Session) refuseScan(raw, reason string, err error) {
@@ -517,6 +620,7 @@ func (s *Session) Check(ctx context.Context) (CheckReport, error) {
 	if err != nil {
 		return rep, err
 	}
+	s.needOpen.Store(true)
 	s.emit(Event{Kind: KindCheckResult, Check: &CheckInfo{Report: &rep}})
 	return rep, nil
 }

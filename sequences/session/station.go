@@ -106,8 +106,8 @@ func parseStation(src Source) (*Station, error) {
 		return nil, err
 	}
 	s := &Station{Source: src}
-	s.Name = d.str("name", true)
-	s.Fixture = d.str("fixture", true)
+	s.Name = d.name("name")
+	s.Fixture = d.name("fixture")
 	s.Driver = Driver(d.str("driver", true))
 	if s.Driver != "" && s.Driver != DriverSim && s.Driver != DriverGPIO {
 		d.fail("driver", "must be sim or gpio, got %q", s.Driver)

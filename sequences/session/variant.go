@@ -97,7 +97,7 @@ func parseVariant(src Source) (*Variant, error) {
 		return nil, err
 	}
 	v := &Variant{Source: src}
-	v.Name = d.str("name", true)
+	v.Name = d.name("name")
 	v.Description = d.str("description", false)
 	v.SerialPattern = d.str("serial_pattern", true)
 	v.PanelSerial = readPanelSerial(d)

@@ -264,6 +264,9 @@ func reduceSession(s State, e session.Event) (State, bool) {
 		s.ScanRefused, s.Repeat, s.Notice = nil, nil, ""
 	case e.Kind == session.KindLidWait && e.Scan != nil:
 		s.Notice = "close the lid to start the test of " + e.Scan.Serial
+		if e.Scan.Prompt != "" {
+			s.Notice = e.Scan.Prompt + " (" + e.Scan.Serial + ")"
+		}
 	case e.Kind == session.KindScanRefused && e.ScanRefused != nil:
 		s.ScanRefused = &ScanRefused{Scan: e.ScanRefused.Raw, Reason: e.ScanRefused.Reason}
 		if s.Phase == PhaseTesting {
