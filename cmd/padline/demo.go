@@ -128,6 +128,7 @@ type demoUnit struct {
 	samples      int           // the trip search's latch samples
 	floorSamples float64       // the search floor at this unit's trip point and transition
 	floorTime    time.Duration // floorSamples unit clock periods
+	finished     time.Time     // the run's finish time, as logged
 }
 
 func (a *app) demo(ctx context.Context, o demoOptions) error {
@@ -215,12 +216,12 @@ func (a *app) demo(ctx context.Context, o demoOptions) error {
 			}
 		}
 		sum := demoSummaryJSON(v, st, rep, strategies, results, cpu, wall)
-		if sum.Drift, err = o.drift.watch(results[0]); err != nil {
+		if sum.Drift, err = o.drift.watch(results[0], v, st); err != nil {
 			return err
 		}
 		return enc.Encode(sum)
 	}
-	dw, err := o.drift.watch(results[0])
+	dw, err := o.drift.watch(results[0], v, st)
 	if err != nil {
 		return err
 	}
@@ -303,7 +304,7 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 		du := demoUnit{
 			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: string(oc.Run.FailCode),
 			Defects: truth.Defects, Probes: oc.Trial.Probes, RelayOps: sum(fx.RelayOps()) - ops0,
-			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases,
+			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases, finished: oc.Run.Finished,
 			trueSpreadPF: truth.TransitionPF,
 		}
 		if du.Defects == nil {

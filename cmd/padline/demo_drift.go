@@ -8,6 +8,8 @@ import (
 	"strings"
 
 	"padline/fixture/sim"
+	"padline/sequences"
+	"padline/sequences/session"
 	"padline/store/drift"
 )
 
@@ -97,6 +99,12 @@ type demoDriftWatch struct {
 	Alarms        int     `json:"alarms"`
 	// First is the first alarm at or after the step; nil when none.
 	First *demoAlarm `json:"first_alarm"`
+	// Verdict is the sentence 'padline drift' prints on this shift's log;
+	// ChangeAtUnit and ChangeSerial the estimated first unit after the
+	// change (0, "" when there is no alarm).
+	Verdict      string `json:"verdict"`
+	ChangeAtUnit int    `json:"change_at_unit"`
+	ChangeSerial string `json:"change_serial"`
 }
 
 // demoAlarm is one alarm in shift terms.
@@ -115,48 +123,51 @@ type demoAlarm struct {
 	Note         string `json:"note,omitempty"`
 }
 
-// watch runs the default drift watch over the good units' trip points
-// (no injected defect, trip measured), in test order, with limits from the
-// units before the step (at most 50); nil when the demo has no drift.
-func (d demoDrift) watch(us []demoUnit) (*demoDriftWatch, error) {
+// watch runs the default drift watch over the passed units' trip points
+// in test order — the series 'padline drift' reads from the shift log —
+// with limits from the first min(50, passed units before the step)
+// points, as 'padline drift' takes its first 50; nil when the demo has no
+// drift.
+func (d demoDrift) watch(us []demoUnit, v *session.Variant, st *session.Station) (*demoDriftWatch, error) {
 	if !d.active() {
 		return nil, nil
 	}
-	baseUnits := driftDefaultBaseline
-	if d.at > 0 {
-		baseUnits = min(driftDefaultBaseline, d.at-1)
-	}
+	from := max(d.at, 1)
 	var x []float64
-	var unitNo []int
-	var serials []string
-	basePts := 0
+	var idx []int // index into us of each point
+	before := 0
 	for i, u := range us {
-		if len(u.Defects) > 0 || u.TripPF == nil {
+		if u.Verdict != string(sequences.Pass) || u.TripPF == nil {
 			continue
 		}
 		x = append(x, *u.TripPF)
-		unitNo = append(unitNo, i+1)
-		serials = append(serials, u.Serial)
-		if i+1 <= baseUnits {
-			basePts++
+		idx = append(idx, i)
+		if i+1 < from {
+			before++
 		}
 	}
-	win := drift.Window{Start: 0, End: basePts}
+	basePts := min(driftDefaultBaseline, len(x))
+	if d.at > 0 {
+		basePts = min(basePts, before)
+	}
+	if basePts < 2 || len(x) < 2 {
+		return nil, fmt.Errorf("demo: drift watch needs at least 2 passed units before the step, got %d", basePts)
+	}
+	win := drift.FirstN(basePts)
 	w, err := drift.WatchSeries(x, win, drift.Options{}, drift.DefaultSet)
 	if err != nil {
-		return nil, fmt.Errorf("demo: drift watch over %d good units, baseline units 1–%d (%d good): %w", len(x), baseUnits, basePts, err)
+		return nil, fmt.Errorf("demo: drift watch over %d passed units, baseline the first %d: %w", len(x), basePts, err)
 	}
-	from := max(d.at, 1)
+	lastBase := idx[basePts-1] + 1
 	out := &demoDriftWatch{StepAtUnit: d.at, StepPF: d.stepPF, RampPFPer1000: d.rampPF,
 		Charts:    fmt.Sprintf("individuals (3σ limit) + tabular CUSUM (k %gσ, h %gσ)", float64(drift.DefaultK), float64(drift.DefaultH)),
-		GoodUnits: len(x), Baseline: fmt.Sprintf("units 1–%d (%d good units)", baseUnits, basePts),
-		BaselineUnits: [2]int{1, baseUnits}, Alarms: len(w.Alarms)}
-	if len(w.Charts) > 0 {
-		out.TargetPF, out.SigmaPF = w.Charts[0].Target, w.Charts[0].Sigma
-	}
+		GoodUnits: len(x), Baseline: fmt.Sprintf("units 1–%d (the first %d passed units)", lastBase, basePts),
+		BaselineUnits: [2]int{1, lastBase}, Alarms: len(w.Alarms)}
+	c := w.Charts[0]
+	out.TargetPF, out.SigmaPF = c.Target, c.Sigma
 	first := len(x)
-	for i, n := range unitNo {
-		if n >= from {
+	for i, n := range idx {
+		if n+1 >= from {
 			first = i
 			break
 		}
@@ -167,9 +178,20 @@ func (d demoDrift) watch(us []demoUnit) (*demoDriftWatch, error) {
 		}
 	}
 	if al, ok := w.First(first); ok {
+		u := idx[al.Unit] + 1
 		out.First = &demoAlarm{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
-			Unit: unitNo[al.Unit], Serial: serials[al.Unit], LagUnits: unitNo[al.Unit] - from + 1,
+			Unit: u, Serial: us[idx[al.Unit]].Serial, LagUnits: u - from + 1,
 			LagGoodUnits: al.Unit - first + 1, Note: al.Note}
+		if al.Onset >= 0 && al.Chart == drift.CUSUM {
+			out.First.Note = onsetNote(al, us[idx[al.Onset]].Serial)
+		}
+	}
+	f := drift.Assess(x, w.Alarms, c.Target, c.Sigma, win)
+	multiDay := spansDays(us[idx[0]].finished, us[idx[len(idx)-1]].finished)
+	name := func(i int) string { u := us[idx[i]]; return pointName(u.Serial, u.finished, multiDay) }
+	out.Verdict = f.Sentence("trip point of "+v.Name, "pF", st.Name+" / "+st.Fixture, name)
+	if f.Change >= 0 {
+		out.ChangeAtUnit, out.ChangeSerial = idx[f.Change]+1, us[idx[f.Change]].Serial
 	}
 	return out, nil
 }
@@ -186,12 +208,13 @@ func writeDemoDrift(w io.Writer, d *demoDriftWatch) {
 	if d.RampPFPer1000 != 0 {
 		what = append(what, fmt.Sprintf("ramp %+.2f pF per 1000 units from unit %d", d.RampPFPer1000, max(d.StepAtUnit, 1)))
 	}
-	fmt.Fprintf(w, "\ndrift            %s\n", strings.Join(what, "; "))
-	fmt.Fprintf(w, "drift watch      %s over %d good units' trip points\n", d.Charts, d.GoodUnits)
+	fmt.Fprintf(w, "\nverdict          %s\n", d.Verdict)
+	fmt.Fprintf(w, "drift            %s\n", strings.Join(what, "; "))
+	fmt.Fprintf(w, "drift watch      %s over %d passed units' trip points\n", d.Charts, d.GoodUnits)
 	fmt.Fprintf(w, "  baseline       %s: target %.2f pF, σ %.2f pF\n", d.Baseline, d.TargetPF, d.SigmaPF)
 	if f := d.First; f != nil {
-		fmt.Fprintf(w, "  first alarm    #%d %s %s (%s) at unit %d (%s): lag %d units from unit %d (%d good units)\n",
-			f.Seq, f.Chart, f.Rule, f.Description, f.Unit, f.Serial, f.LagUnits, max(d.StepAtUnit, 1), f.LagGoodUnits)
+		fmt.Fprintf(w, "  first alarm    #%d %s %s (%s) at %s (unit %d): lag %d units from unit %d (%d passed units)\n",
+			f.Seq, f.Chart, f.Rule, f.Description, f.Serial, f.Unit, f.LagUnits, max(d.StepAtUnit, 1), f.LagGoodUnits)
 		if f.Note != "" {
 			fmt.Fprintf(w, "                 %s\n", f.Note)
 		}

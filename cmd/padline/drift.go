@@ -221,7 +221,7 @@ the --station-file's shift_log, else ./` + defaultShiftLog + `.`,
 	fl.Float64Var(&o.uncertainty, "uncertainty-pf", session.DefaultUncertaintyPF, "station's expanded uncertainty U (k = 2), pF: the guard band of the test limits")
 	fl.Float64Var(&o.lsl, "lsl", 0, "lower limit for capability instead of the variant's test limit")
 	fl.Float64Var(&o.usl, "usl", 0, "upper limit for capability instead of the variant's test limit")
-	fl.IntVar(&o.alarms, "alarms", driftDefaultAlarms, "list at most this many alarms per group, the most recent (0 = all)")
+	fl.IntVar(&o.alarms, "alarms", driftDefaultAlarms, "list at most this many alarms per group, the earliest (0 = all)")
 	cmd.AddCommand(a.driftStudyCmd())
 	return cmd
 }
@@ -493,6 +493,7 @@ func (a *app) drift(ctx context.Context, o driftOptions) error {
 		}
 		rep.Groups = append(rep.Groups, gr)
 	}
+	rep.Verdict = topVerdict(o.by, rep.Groups)
 	if o.asJSON {
 		enc := json.NewEncoder(a.stdout)
 		enc.SetIndent("", "  ")
@@ -646,15 +647,20 @@ func (a *app) driftGroup(ctx context.Context, db *store.DB, o driftOptions, g dr
 		gr.Charts = append(gr.Charts, chartJSON(c))
 	}
 	gr.AlarmCount = len(an.alarms)
+	gr.Verdict = driftVerdict(ctx, db, o, g, an)
 	shown := an.alarms
 	if o.alarms > 0 && len(shown) > o.alarms {
-		shown = shown[len(shown)-o.alarms:] // the most recent
+		shown = shown[:o.alarms] // the earliest: when the drift began
 	}
 	for _, al := range shown {
 		aj := driftAlarmJSON{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
 			Unit: al.Unit + 1, Point: al.Index + 1, Side: al.Side, Note: al.Note}
 		if al.Onset >= 0 && al.Chart == drift.CUSUM {
 			aj.OnsetUnit = al.Onset + 1
+			if al.Onset < len(g.runIDs) && db != nil {
+				at := time.Unix(0, g.times[al.Onset])
+				aj.Note = onsetNote(al, pointName(runAt(ctx, db, g.filter.Variant, g.runIDs[al.Onset], at).Serial, at, false))
+			}
 		}
 		if al.Unit < len(g.runIDs) {
 			aj.RunID = g.runIDs[al.Unit]

@@ -25,6 +25,7 @@ func (f jnum) MarshalJSON() ([]byte, error) {
 
 // driftReport is the whole answer; --json prints it as one object.
 type driftReport struct {
+	Verdict       string             `json:"verdict"`
 	Source        string             `json:"source"`
 	Variant       string             `json:"variant,omitempty"`
 	Since         string             `json:"since,omitempty"`
@@ -42,19 +43,20 @@ type driftReport struct {
 }
 
 type driftGroupReport struct {
-	Key            string           `json:"key,omitempty"`
-	Points         int              `json:"points"`
-	First          *time.Time       `json:"first,omitempty"`
-	Last           *time.Time       `json:"last,omitempty"`
-	Baseline       driftWindowJSON  `json:"baseline"`
-	Charts         []driftChartJSON `json:"charts"`
-	AlarmCount     int              `json:"alarm_count"`
-	Alarms         []driftAlarmJSON `json:"alarms"`
-	Capability     *capabilityJSON  `json:"capability,omitempty"`
-	CapabilityNote string           `json:"capability_note,omitempty"`
-	Runs           int64            `json:"runs,omitempty"`
-	Yield          *yieldJSON       `json:"first_pass_yield,omitempty"`
-	ChartFile      string           `json:"chart_file,omitempty"`
+	Key            string            `json:"key,omitempty"`
+	Verdict        *driftVerdictJSON `json:"verdict,omitempty"`
+	Points         int               `json:"points"`
+	First          *time.Time        `json:"first,omitempty"`
+	Last           *time.Time        `json:"last,omitempty"`
+	Baseline       driftWindowJSON   `json:"baseline"`
+	Charts         []driftChartJSON  `json:"charts"`
+	AlarmCount     int               `json:"alarm_count"`
+	Alarms         []driftAlarmJSON  `json:"alarms"`
+	Capability     *capabilityJSON   `json:"capability,omitempty"`
+	CapabilityNote string            `json:"capability_note,omitempty"`
+	Runs           int64             `json:"runs,omitempty"`
+	Yield          *yieldJSON        `json:"first_pass_yield,omitempty"`
+	ChartFile      string            `json:"chart_file,omitempty"`
 }
 
 type driftWindowJSON struct {
@@ -149,6 +151,7 @@ func writeDriftReport(w io.Writer, r driftReport) {
 	if len(sel) > 0 {
 		head += " (" + strings.Join(sel, ", ") + ")"
 	}
+	p("verdict          %s", r.Verdict)
 	p("drift            %s", head)
 	p("chart            %s", driftChartDesc(r.Chart))
 	lim := "none"
@@ -164,6 +167,9 @@ func writeDriftReport(w io.Writer, r driftReport) {
 		span := ""
 		if g.First != nil {
 			span = fmt.Sprintf(", %s … %s", fmtTime(*g.First), fmtTime(*g.Last))
+		}
+		if g.Verdict != nil && len(r.Groups) > 1 {
+			p("verdict          %s", g.Verdict.Text)
 		}
 		p("series           %d points%s", g.Points, span)
 		base := g.Baseline.Text
@@ -183,10 +189,10 @@ func writeDriftReport(w io.Writer, r driftReport) {
 		default:
 			more := ""
 			if len(g.Alarms) < g.AlarmCount {
-				more = fmt.Sprintf(", the last %d listed (--alarms)", len(g.Alarms))
+				more = fmt.Sprintf(", the first %d listed (--alarms)", len(g.Alarms))
 			}
 			p("alarms           %d%s", g.AlarmCount, more)
-			p("  %4s  %-12s %-8s %8s  %-19s  %-14s  %s", "#", "chart", "rule", "unit", "time", "serial", "description")
+			p("  %4s  %-14s  %-19s  %-12s %-8s  %s", "#", "serial", "time", "chart", "rule", "description")
 			for _, al := range g.Alarms {
 				when := "-"
 				if al.Time != nil {
@@ -196,7 +202,11 @@ func writeDriftReport(w io.Writer, r driftReport) {
 				if al.Note != "" {
 					desc += "; " + al.Note
 				}
-				p("  %4d  %-12s %-8s %8d  %-19s  %-14s  %s", al.Seq, al.Chart, al.Rule, al.Unit, when, dashIfEmpty(al.Serial), desc)
+				who := al.Serial
+				if who == "" {
+					who = fmt.Sprintf("point %d", al.Unit)
+				}
+				p("  %4d  %-14s  %-19s  %-12s %-8s  %s", al.Seq, who, when, al.Chart, al.Rule, desc)
 			}
 		}
 		if c := g.Capability; c != nil {
