@@ -422,3 +422,23 @@ func (c *idCache) merge(pending map[string]int64) {
 		c.m[k] = v
 	}
 }
+
+// Unwritable reports whether err is a write failure that can clear without
+// a change to the program: the disk (or the log's size cap) is full, the log
+// is locked by another process past the busy timeout, or the file cannot be
+// written for now (read-only, I/O error). A station holds a unit's run and
+// tries again rather than testing the unit again.
+func Unwritable(err error) bool {
+	if errors.Is(err, ErrDiskFull) {
+		return true
+	}
+	var se sqlite3.Error
+	if !errors.As(err, &se) {
+		return false
+	}
+	switch se.Code {
+	case sqlite3.ErrFull, sqlite3.ErrBusy, sqlite3.ErrLocked, sqlite3.ErrReadonly, sqlite3.ErrIoErr, sqlite3.ErrCantOpen:
+		return true
+	}
+	return false
+}

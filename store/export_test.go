@@ -74,3 +74,36 @@ func QueryText(db *DB, q string, args ...any) (string, error) {
 	err := db.sql.QueryRow(q, args...).Scan(&s)
 	return s, err
 }
+
+// DriftPlans returns SQLite's query plans of the trip series (oldest
+// first, newest first, with and without the group columns) and of Counts
+// for f, by name.
+func DriftPlans(db *DB, f Filter) (map[string]string, error) {
+	cond, args := f.where()
+	out := map[string]string{}
+	for name, q := range map[string]string{
+		"trips":             tripsSQL(cond, false, false),
+		"trips, groups":     tripsSQL(cond, false, true),
+		"last trips":        tripsSQL(cond, true, false),
+		"last trips, group": tripsSQL(cond, true, true),
+		"counts":            countsSQL(cond),
+	} {
+		rows, err := db.sql.Query("EXPLAIN QUERY PLAN "+q, args...)
+		if err != nil {
+			return nil, fmt.Errorf("%s: %w", name, err)
+		}
+		var b strings.Builder
+		for rows.Next() {
+			var id, parent, notused int
+			var detail string
+			if err := rows.Scan(&id, &parent, &notused, &detail); err != nil {
+				rows.Close()
+				return nil, err
+			}
+			b.WriteString(detail + "\n")
+		}
+		rows.Close()
+		out[name] = b.String()
+	}
+	return out, nil
+}

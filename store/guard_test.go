@@ -5,6 +5,7 @@ import (
 	"database/sql"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"os"
 	"path/filepath"
 	"syscall"
@@ -174,5 +175,15 @@ func TestQuickCheckFindsDamage(t *testing.T) {
 	defer db2.Close()
 	if err := db2.QuickCheck(ctx); !errors.Is(err, store.ErrCorrupt) {
 		t.Fatalf("QuickCheck on a damaged log: %v, want ErrCorrupt", err)
+	}
+}
+
+// A full disk is a write failure that can clear; a missing item is not.
+func TestUnwritable(t *testing.T) {
+	if !store.Unwritable(fmt.Errorf("record: %w", store.ErrDiskFull)) {
+		t.Error("ErrDiskFull not unwritable")
+	}
+	if store.Unwritable(store.ErrNotFound) || store.Unwritable(nil) {
+		t.Error("ErrNotFound or nil unwritable")
 	}
 }

@@ -3,8 +3,10 @@ package store
 import (
 	"context"
 	"database/sql"
+	"database/sql/driver"
 	"errors"
 	"fmt"
+	"io"
 	"iter"
 	"math"
 	"strings"
@@ -216,100 +218,182 @@ func (db *DB) TripSeries(ctx context.Context, f Filter, last int) ([]TripPoint, 
 }
 
 // TripValues is TripSeries with only RunID, Finished and TripPF filled: for
-// long series it is about twice as fast, since the cost lies in the columns
-// read per row.
+// long series it is faster, since the cost lies in the columns read per
+// row.
 func (db *DB) TripValues(ctx context.Context, f Filter, last int) ([]TripPoint, error) {
 	return db.tripSeries(ctx, f, last, false)
 }
 
-func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]TripPoint, error) {
-	cond, args := f.where()
-	// Station and fixture names come from their small tables, not a join per
-	// row: the series is read at the rate of one index entry per point.
-	stations, err := db.names(ctx, "stations")
-	if err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
+// Trips streams the trip points of the runs matching f that have one,
+// oldest first (by finish time, then id), from one SELECT: a consistent
+// snapshot that never holds more than one point in memory. With groups
+// false only RunID, Finished and TripPF are filled. The strings of a point
+// are shared with the points before it where they are equal, so a long
+// series allocates nothing per point. Stop early by breaking out of the
+// loop.
+func (db *DB) Trips(ctx context.Context, f Filter, groups bool) iter.Seq2[TripPoint, error] {
+	return func(yield func(TripPoint, error) bool) {
+		err := db.scanTrips(ctx, f, 0, groups, func(p TripPoint) bool { return yield(p, nil) })
+		if err != nil {
+			yield(TripPoint{}, err)
+		}
 	}
-	fixtures, err := db.names(ctx, "fixtures")
-	if err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
+}
+
+// tripsSQL reads a trip series from the index runs_variant_trip alone
+// (migration 0006): its columns cover every column named here, and its
+// order (variant, finished, id) is the order asked for, so SQLite neither
+// visits the table nor sorts. With groups, the columns are packed so that
+// few values cross into Go per row, where each costs time and most cost an
+// allocation: the station id with the verdict's code.
+// Station and fixture are named from their small tables, not joined.
+func tripsSQL(cond string, desc, groups bool) string {
+	order := "r.finished, r.id"
+	if desc {
+		order = "r.finished DESC, r.id DESC"
 	}
 	cols := "r.id, r.finished, r.trip_pf"
-	if full {
-		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict, r.site"
+	if groups {
+		cols += `, r.station_id * 4 + CASE r.verdict WHEN 'pass' THEN 0 WHEN 'fail' THEN 1 ELSE 2 END,
+       r.fixture_id, r.lot, r.site`
 	}
-	q := `SELECT ` + cols + `
-FROM runs r
-WHERE ` + cond + ` AND r.trip_pf IS NOT NULL
-ORDER BY r.finished DESC, r.id DESC`
-	if last > 0 {
-		q += " LIMIT ?"
-		args = append(args, last)
-	}
-	rows, err := db.sql.QueryContext(ctx, q, args...)
-	if err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
-	}
-	defer rows.Close()
+	return "SELECT " + cols + " FROM runs r WHERE " + cond + " AND r.trip_pf IS NOT NULL ORDER BY " + order
+}
+
+// verdictCodes decode the verdict packed by tripsSQL.
+var verdictCodes = [...]sequences.Verdict{sequences.Pass, sequences.Fail, sequences.StationFault}
+
+func (db *DB) tripSeries(ctx context.Context, f Filter, last int, full bool) ([]TripPoint, error) {
 	var out []TripPoint
 	if last > 0 {
 		out = make([]TripPoint, 0, min(last, 1<<20))
 	}
-	// Lots and verdicts repeat in runs of equal values: keep the last string
-	// and allocate only when the value changes.
-	var (
-		lot, verdict         sql.RawBytes
-		lastLot, lastVerdict string
-	)
-	for rows.Next() {
-		var (
-			p                  TripPoint
-			finished, sid, fid int64
-		)
-		if !full {
-			if err := rows.Scan(&p.RunID, &finished, &p.TripPF); err != nil {
-				return nil, fmt.Errorf("trip series: %w", err)
-			}
-			p.Finished = time.Unix(0, finished).UTC()
-			out = append(out, p)
-			continue
-		}
-		var site sql.NullInt64
-		if err := rows.Scan(&p.RunID, &finished, &p.TripPF, &sid, &fid, &lot, &verdict, &site); err != nil {
-			return nil, fmt.Errorf("trip series: %w", err)
-		}
-		if string(lot) != lastLot {
-			lastLot = string(lot)
-		}
-		if string(verdict) != lastVerdict {
-			lastVerdict = string(verdict)
-		}
-		st, ok := stations[sid]
-		if !ok {
-			if st, err = db.name(ctx, "stations", sid); err != nil {
-				return nil, fmt.Errorf("trip series: %w", err)
-			}
-			stations[sid] = st
-		}
-		fx, ok := fixtures[fid]
-		if !ok {
-			if fx, err = db.name(ctx, "fixtures", fid); err != nil {
-				return nil, fmt.Errorf("trip series: %w", err)
-			}
-			fixtures[fid] = fx
-		}
-		p.Finished = time.Unix(0, finished).UTC()
-		p.Station, p.Fixture, p.Lot, p.Verdict = st, fx, lastLot, sequences.Verdict(lastVerdict)
-		p.Site = int(site.Int64)
+	err := db.scanTrips(ctx, f, last, full, func(p TripPoint) bool {
 		out = append(out, p)
+		return true
+	})
+	if err != nil {
+		return nil, err
 	}
-	if err := rows.Err(); err != nil {
-		return nil, fmt.Errorf("trip series: %w", err)
-	}
-	for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
-		out[i], out[j] = out[j], out[i]
+	if last > 0 {
+		// Read newest first to stop after last points; put them in time order.
+		for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
+			out[i], out[j] = out[j], out[i]
+		}
 	}
 	return out, nil
+}
+
+// scanTrips calls fn with each trip point matching f, oldest first, or
+// with the last points newest first when last > 0, until fn returns false.
+func (db *DB) scanTrips(ctx context.Context, f Filter, last int, groups bool, fn func(TripPoint) bool) error {
+	cond, args := f.where()
+	var stations, fixtures map[int64]string
+	if groups {
+		var err error
+		if stations, err = db.names(ctx, "stations"); err != nil {
+			return fmt.Errorf("trip series: %w", err)
+		}
+		if fixtures, err = db.names(ctx, "fixtures"); err != nil {
+			return fmt.Errorf("trip series: %w", err)
+		}
+	}
+	q := tripsSQL(cond, last > 0, groups)
+	if last > 0 {
+		q += " LIMIT ?"
+		args = append(args, last)
+	}
+	named := make([]driver.NamedValue, len(args))
+	for i, a := range args {
+		if n, ok := a.(int); ok {
+			a = int64(n)
+		}
+		named[i] = driver.NamedValue{Ordinal: i + 1, Value: a}
+	}
+	conn, err := db.sql.Conn(ctx)
+	if err != nil {
+		return fmt.Errorf("trip series: %w", err)
+	}
+	defer conn.Close()
+	// The rows are read from the driver itself: database/sql's Scan would
+	// convert every value of every row again, by reflection.
+	err = conn.Raw(func(dc any) error {
+		qc, ok := dc.(driver.QueryerContext)
+		if !ok {
+			return fmt.Errorf("driver %T cannot query", dc)
+		}
+		rows, err := qc.QueryContext(ctx, q, named)
+		if err != nil {
+			return err
+		}
+		defer rows.Close()
+		var p TripPoint
+		dest := make([]driver.Value, 3, 7)
+		if groups {
+			dest = dest[:7]
+		}
+		for {
+			if err := rows.Next(dest); err == io.EOF {
+				return nil
+			} else if err != nil {
+				return err
+			}
+			p.RunID = asInt(dest[0])
+			p.Finished = time.Unix(0, asInt(dest[1])).UTC()
+			p.TripPF = asFloat(dest[2])
+			if groups {
+				if lot, _ := dest[5].(string); lot != p.Lot {
+					p.Lot = lot
+				}
+				sv := asInt(dest[3])
+				sid, fid := sv>>2, asInt(dest[4])
+				st, ok := stations[sid]
+				if !ok {
+					if st, err = db.name(ctx, "stations", sid); err != nil {
+						return err
+					}
+					stations[sid] = st
+				}
+				fx, ok := fixtures[fid]
+				if !ok {
+					if fx, err = db.name(ctx, "fixtures", fid); err != nil {
+						return err
+					}
+					fixtures[fid] = fx
+				}
+				p.Station, p.Fixture, p.Verdict = st, fx, verdictCodes[sv&3]
+				p.Site = int(asInt(dest[6])) // NULL (nil) for a unit tested alone: 0
+			}
+			if !fn(p) {
+				return nil
+			}
+		}
+	})
+	if err != nil {
+		return fmt.Errorf("trip series: %w", err)
+	}
+	return nil
+}
+
+// asInt and asFloat read a driver value of an INTEGER or REAL column.
+func asInt(v driver.Value) int64 {
+	switch x := v.(type) {
+	case int64:
+		return x
+	case float64:
+		return int64(x)
+	}
+	return 0
+}
+
+func asFloat(v driver.Value) float64 {
+	switch x := v.(type) {
+	case float64:
+		return x
+	case int64:
+		return float64(x)
+	}
+	return math.NaN()
 }
 
 // name reads one name of a small (id, name) table: one committed after
@@ -358,27 +442,38 @@ type Counts struct {
 // Counts returns the verdict totals of the runs matching f.
 func (db *DB) Counts(ctx context.Context, f Filter) (Counts, error) {
 	cond, args := f.where()
-	q := `SELECT count(*), total(verdict = 'pass'), total(verdict = 'fail'),
-       total(verdict = 'station-fault'), total(first), total(first AND verdict = 'pass')
-FROM (
-  SELECT r.verdict,
-         r.verdict != 'station-fault' AND NOT EXISTS (
-           SELECT 1 FROM runs e
-           WHERE e.serial = r.serial AND e.verdict != 'station-fault'
-             AND (e.finished < r.finished OR (e.finished = r.finished AND e.id < r.id))
-         ) AS first
-  FROM runs r WHERE ` + cond + `
-)`
 	var (
 		c                        Counts
 		pass, fail, sf, fu, fpas float64
 	)
-	if err := db.sql.QueryRowContext(ctx, q, args...).Scan(&c.Runs, &pass, &fail, &sf, &fu, &fpas); err != nil {
+	if err := db.sql.QueryRowContext(ctx, countsSQL(cond), args...).Scan(&c.Runs, &pass, &fail, &sf, &fu, &fpas); err != nil {
 		return Counts{}, fmt.Errorf("counts: %w", err)
 	}
 	c.Pass, c.Fail, c.StationFault = int64(pass), int64(fail), int64(sf)
 	c.FirstUnits, c.FirstPass = int64(fu), int64(fpas)
 	return c, nil
+}
+
+// countsSQL counts verdicts and first unit verdicts. A run is its serial's
+// first unit verdict when no run of the serial that is not a station fault
+// comes before it in (finished, id) order: one probe of the index
+// runs_serial_verdict per run, which covers the probe. LIMIT -1 keeps the
+// inner SELECT a co-routine (SQLite's query flattener leaves a subquery
+// with a LIMIT under an aggregate alone), so that probe runs once per run;
+// flattened, it would run once for each of the two sums that read it.
+func countsSQL(cond string) string {
+	return `SELECT count(*), total(verdict = 'pass'), total(verdict = 'fail'),
+       total(verdict = 'station-fault'), total(first), total(first AND verdict = 'pass')
+FROM (
+  SELECT r.verdict,
+         r.verdict != 'station-fault' AND NOT EXISTS (
+           SELECT 1 FROM runs e
+           WHERE e.serial = r.serial AND (e.finished, e.id) < (r.finished, r.id)
+             AND e.verdict != 'station-fault'
+         ) AS first
+  FROM runs r WHERE ` + cond + `
+  LIMIT -1
+)`
 }
 
 // ConfigChange is one configuration a variant has had.
@@ -453,7 +548,16 @@ func (db *DB) PriorRuns(ctx context.Context, serial string) (tested, failed int,
 // Drivers lists the station drivers the log's runs were recorded with, in
 // name order ("" for runs from before drivers were recorded).
 func (db *DB) Drivers(ctx context.Context) ([]string, error) {
-	rows, err := db.sql.QueryContext(ctx, "SELECT DISTINCT driver FROM runs ORDER BY driver")
+	// Each value is found by one seek of the index runs_driver (the next
+	// driver after the last one found), not by reading every entry as
+	// DISTINCT would: a handful of seeks on a million-run log.
+	rows, err := db.sql.QueryContext(ctx, `
+WITH RECURSIVE d(driver) AS (
+  SELECT min(driver) FROM runs
+  UNION ALL
+  SELECT (SELECT min(driver) FROM runs WHERE driver > d.driver) FROM d WHERE d.driver IS NOT NULL
+)
+SELECT driver FROM d WHERE driver IS NOT NULL`)
 	if err != nil {
 		return nil, fmt.Errorf("query drivers: %w", err)
 	}

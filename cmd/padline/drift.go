@@ -35,10 +35,6 @@ const driftDefaultAlarms = 50
 // driftMemoryLimit is the Go heap's soft limit while drift runs.
 const driftMemoryLimit = 160 << 20
 
-// driftFirstAsk is how many trip points driftGroups asks the store for
-// first (see there).
-const driftFirstAsk = 1 << 20
-
 // driftOptions are the parsed flags of `padline drift`.
 type driftOptions struct {
 	db, stationFile, variant string
@@ -320,15 +316,18 @@ func startCounts(ctx context.Context, db *store.DB, f store.Filter, sem chan str
 // driftAnalysis is what analyseSeries finds in one series.
 type driftAnalysis struct {
 	window drift.Window
-	charts []drift.Chart
-	alarms []drift.Alarm
+	sum    drift.Summary // centre lines, limits, alarm counts and the alarms listed
+	charts []drift.Chart // every point, only when the charts are drawn
 	cap    *drift.Capability
 	capErr error
 }
 
 // analyseSeries runs the chosen chart on x with limits from the first
-// baseline points, and capability against low/high (NaN = none).
-func analyseSeries(x []float64, o driftOptions, low, high float64) (driftAnalysis, error) {
+// baseline points, and capability against low/high (NaN = none). The
+// report comes from one pass that keeps only the alarms it lists
+// (drift.Summarize); the charts with every point are built only when draw
+// is set, for the chart file.
+func analyseSeries(x []float64, o driftOptions, low, high float64, draw bool) (driftAnalysis, error) {
 	var an driftAnalysis
 	if len(x) < 2 {
 		return an, fmt.Errorf("%d points: too few to chart (need at least 2)", len(x))
@@ -341,43 +340,33 @@ func analyseSeries(x []float64, o driftOptions, low, high float64) (driftAnalysi
 	opt := o.o
 	opt.Rules = rules
 	sub, useS := 1, false
+	plan := drift.Plan{Keep: o.alarms, Assess: true}
 	switch o.chart {
 	case "watch":
 		set := drift.DefaultSet
 		set.Rules = rules
-		w, err := drift.WatchSeries(x, an.window, opt, set)
-		if err != nil {
+		plan.Charts = drift.WatchPlan(set, o.alarms).Charts
+	case "imr":
+		plan.Charts = []drift.Kind{drift.Individuals, drift.MovingRange}
+	case "xbar-r":
+		sub = o.subgroup
+		plan.Charts = []drift.Kind{drift.Xbar, drift.Range}
+	case "xbar-s":
+		sub, useS = o.subgroup, true
+		plan.Charts = []drift.Kind{drift.Xbar, drift.StdDev}
+	case "ewma":
+		plan.Charts = []drift.Kind{drift.EWMA}
+	case "cusum":
+		plan.Charts = []drift.Kind{drift.CUSUM}
+	}
+	plan.Subgroup = sub
+	if an.sum, err = drift.Summarize(x, an.window, opt, plan); err != nil {
+		return an, err
+	}
+	if draw {
+		if an.charts, err = driftCharts(x, o.chart, sub, an.window, opt, rules); err != nil {
 			return an, err
 		}
-		an.charts, an.alarms = w.Charts, w.Alarms
-	case "imr", "xbar-r", "xbar-s":
-		var s drift.Shewhart
-		switch o.chart {
-		case "imr":
-			s, err = drift.IndividualsChart(x, an.window, opt)
-		case "xbar-r":
-			sub = o.subgroup
-			s, err = drift.XbarRChart(x, sub, an.window, opt)
-		default:
-			sub, useS = o.subgroup, true
-			s, err = drift.XbarSChart(x, sub, an.window, opt)
-		}
-		if err != nil {
-			return an, err
-		}
-		an.charts, an.alarms = []drift.Chart{s.Location, s.Spread}, s.Alarms
-	case "ewma", "cusum":
-		var c drift.Chart
-		if o.chart == "ewma" {
-			c, err = drift.EWMAChart(x, an.window, opt)
-		} else {
-			c, err = drift.CUSUMChart(x, an.window, opt)
-		}
-		if err != nil {
-			return an, err
-		}
-		an.alarms = drift.Number(&c)
-		an.charts = []drift.Chart{c}
 	}
 	if math.IsNaN(low) && math.IsNaN(high) {
 		an.capErr = errors.New("no limits: give --variant or --lsl/--usl")
@@ -387,6 +376,41 @@ func analyseSeries(x []float64, o driftOptions, low, high float64) (driftAnalysi
 		an.cap = &c
 	}
 	return an, nil
+}
+
+// driftCharts builds the charts of kind with every point, for drawing.
+func driftCharts(x []float64, kind string, sub int, w drift.Window, opt drift.Options, rules []drift.Rule) ([]drift.Chart, error) {
+	switch kind {
+	case "watch":
+		set := drift.DefaultSet
+		set.Rules = rules
+		wt, err := drift.WatchSeries(x, w, opt, set)
+		return wt.Charts, err
+	case "imr", "xbar-r", "xbar-s":
+		var (
+			s   drift.Shewhart
+			err error
+		)
+		switch kind {
+		case "imr":
+			s, err = drift.IndividualsChart(x, w, opt)
+		case "xbar-r":
+			s, err = drift.XbarRChart(x, sub, w, opt)
+		default:
+			s, err = drift.XbarSChart(x, sub, w, opt)
+		}
+		return []drift.Chart{s.Location, s.Spread}, err
+	}
+	var (
+		c   drift.Chart
+		err error
+	)
+	if kind == "ewma" {
+		c, err = drift.EWMAChart(x, w, opt)
+	} else {
+		c, err = drift.CUSUMChart(x, w, opt)
+	}
+	return []drift.Chart{c}, err
 }
 
 // drift runs the command.
@@ -519,8 +543,7 @@ func describeFilter(o driftOptions) string {
 }
 
 // driftGroups reads the trip series and splits it by the --by key, groups
-// in key order (shift keys sort by time). The store's points are copied to
-// compact arrays and dropped.
+// in key order (shift keys sort by time).
 func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string, allVerdicts bool) ([]driftSeries, error) {
 	// A unit that failed has a defect, a special cause the limits already
 	// caught: by default only passing units feed the charts, so one bad
@@ -530,39 +553,26 @@ func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string, a
 	if !allVerdicts {
 		sf.Verdict = sequences.Pass
 	}
-	// Ask for the last driftFirstAsk points first: the store sizes its
-	// slice for them at once instead of growing it (a million points are
-	// 100 MB; growing briefly holds the old array and the new). Only when
-	// the answer is full can there be more, and then ask for all.
-	// Station, fixture and lot are read only when --by needs them.
-	series := db.TripSeries
-	if by == "" || by == "shift" {
-		series = db.TripValues
-	}
-	pts, err := series(ctx, sf, driftFirstAsk)
-	if err == nil && len(pts) == driftFirstAsk {
-		pts = nil
-		pts, err = series(ctx, sf, 0)
-	}
-	if err != nil {
-		return nil, err
-	}
-	if by == "" {
-		g := driftSeries{x: make([]float64, len(pts)), runIDs: make([]int64, len(pts)), times: make([]int64, len(pts)), filter: f}
-		for i, p := range pts {
-			g.x[i], g.runIDs[i], g.times[i] = p.TripPF, p.RunID, p.Finished.UnixNano()
-		}
-		return []driftSeries{g}, nil
-	}
-	idx := map[string]int{}
+	// The points stream from the store into compact arrays, 24 bytes a
+	// point; station, fixture and lot are read only when --by needs them.
 	var out []driftSeries
-	for _, p := range pts {
-		key, gf := driftKey(p, by, f)
-		i, ok := idx[key]
-		if !ok {
-			i = len(out)
-			idx[key] = i
-			out = append(out, driftSeries{key: key, filter: gf})
+	idx := map[string]int{}
+	for p, err := range db.Trips(ctx, sf, by != "" && by != "shift") {
+		if err != nil {
+			return nil, err
+		}
+		key, i := "", 0
+		if by != "" {
+			var gf store.Filter
+			key, gf = driftKey(p, by, f)
+			var ok bool
+			if i, ok = idx[key]; !ok {
+				i = len(out)
+				idx[key] = i
+				out = append(out, driftSeries{key: key, filter: gf})
+			}
+		} else if len(out) == 0 {
+			out = append(out, driftSeries{filter: f})
 		}
 		g := &out[i]
 		g.x = append(g.x, p.TripPF)
@@ -631,7 +641,8 @@ func (a *app) driftGroup(ctx context.Context, db *store.DB, o driftOptions, g dr
 	if len(g.times) > 0 {
 		gr.First, gr.Last = tptr(g.times[0]), tptr(g.times[len(g.times)-1])
 	}
-	an, err := analyseSeries(g.x, o, low, high)
+	path := driftChartPath(o, g.key)
+	an, err := analyseSeries(g.x, o, low, high, path != "")
 	if err != nil {
 		return gr, err
 	}
@@ -643,12 +654,12 @@ func (a *app) driftGroup(ctx context.Context, db *store.DB, o driftOptions, g dr
 	if len(g.times) > 0 {
 		gr.Baseline.From, gr.Baseline.To = &w.From, &w.To
 	}
-	for _, c := range an.charts {
+	for _, c := range an.sum.Charts {
 		gr.Charts = append(gr.Charts, chartJSON(c))
 	}
-	gr.AlarmCount = len(an.alarms)
+	gr.AlarmCount = an.sum.Alarms
 	gr.Verdict = driftVerdict(ctx, db, o, g, an)
-	shown := an.alarms
+	shown := an.sum.First
 	if o.alarms > 0 && len(shown) > o.alarms {
 		shown = shown[:o.alarms] // the earliest: when the drift began
 	}
@@ -694,7 +705,7 @@ func (a *app) driftGroup(ctx context.Context, db *store.DB, o driftOptions, g dr
 			gr.Yield = &yieldJSON{Pass: y.Pass, Total: y.Total, Rate: jnum(y.Rate), Low: jnum(y.Low), High: jnum(y.High), Confidence: y.Confidence}
 		}
 	}
-	if path := driftChartPath(o, g.key); path != "" {
+	if path != "" {
 		title := "trip point"
 		if o.variant != "" {
 			title = o.variant + " trip point"

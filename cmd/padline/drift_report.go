@@ -84,17 +84,10 @@ type driftChartJSON struct {
 	Alarms int    `json:"alarms"`
 }
 
-func chartJSON(c drift.Chart) driftChartJSON {
-	j := driftChartJSON{Kind: string(c.Kind), Title: c.Kind.Title(), Size: c.Size, Points: len(c.Stat),
-		Center: jnum(c.Center), Lower: jnum(math.NaN()), Upper: jnum(math.NaN()),
-		Target: jnum(c.Target), Sigma: jnum(c.Sigma), Method: c.Method, Alarms: len(c.Alarms)}
-	if n := len(c.Upper); n > 0 {
-		j.Upper = jnum(c.Upper[n-1])
-	}
-	if n := len(c.Lower); n > 0 {
-		j.Lower = jnum(c.Lower[n-1])
-	}
-	return j
+func chartJSON(c drift.ChartSummary) driftChartJSON {
+	return driftChartJSON{Kind: string(c.Kind), Title: c.Kind.Title(), Size: c.Size, Points: c.Points,
+		Center: jnum(c.Center), Lower: jnum(c.Lower), Upper: jnum(c.Upper),
+		Target: jnum(c.Target), Sigma: jnum(c.Sigma), Method: c.Method, Alarms: c.Alarms}
 }
 
 type driftAlarmJSON struct {

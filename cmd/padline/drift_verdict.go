@@ -36,11 +36,10 @@ type driftPointJSON struct {
 // naming points by serial and time and the place by the station and
 // fixture of the run at the change.
 func driftVerdict(ctx context.Context, db *store.DB, o driftOptions, g driftSeries, an driftAnalysis) *driftVerdictJSON {
-	if len(an.charts) == 0 {
+	if len(an.sum.Charts) == 0 {
 		return nil
 	}
-	c := an.charts[0]
-	f := drift.Assess(g.x, an.alarms, c.Target, c.Sigma, an.window)
+	f := an.sum.Finding
 	multiDay := len(g.times) > 1 && spansDays(time.Unix(0, g.times[0]), time.Unix(0, g.times[len(g.times)-1]))
 	point := func(i int) (*driftPointJSON, store.Entry) {
 		p := &driftPointJSON{Unit: i + 1}

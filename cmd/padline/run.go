@@ -193,6 +193,17 @@ func (a *app) printRun(events <-chan session.Event, o runOptions) error {
 			if !o.asJSON {
 				fmt.Fprintf(a.stdout, "STATION LOCKED  %s: %s\n", e.Refused.Why, e.Refused.Fix)
 			}
+		case session.KindStationHalted:
+			// Both the screen (stdout) and the log (stderr): nobody may
+			// miss a station that holds an unsaved unit.
+			if o.asJSON {
+				werr = errors.Join(werr, enc.Encode(map[string]string{"halted": e.Refused.Why, "fix": e.Refused.Fix}))
+			} else {
+				fmt.Fprintf(a.stdout, "STATION HALTED  %s: %s\n", e.Refused.Why, e.Refused.Fix)
+			}
+			fmt.Fprintf(a.stderr, "padline: station halted: %s\n", e.Refused.Why)
+		case session.KindStationResumed:
+			fmt.Fprintf(a.stderr, "padline: shift log writable again: the run of %s is saved\n", e.Scan.Serial)
 		case session.KindCheckDue:
 			if !o.asJSON {
 				fmt.Fprintln(a.stdout, "waiting for the shift-start check: run it from the station screen")

@@ -39,6 +39,13 @@ const (
 	KindScanRefused Kind = "scan_refused"
 	// KindLidWait: Event.Scan — the unit waits for the lid to close.
 	KindLidWait Kind = "lid_wait"
+	// KindStationHalted: Event.Refused — the shift log cannot be written
+	// (disk full, locked): the tested unit's run is held, the station
+	// waits until the log takes it. Why and Fix are for the operator.
+	KindStationHalted Kind = "station_halted"
+	// KindStationResumed: Event.Scan — the held run of Serial is saved;
+	// its verdict follows.
+	KindStationResumed Kind = "station_resumed"
 	// KindStepFinished: Event.Step — one plan step of the unit in test.
 	KindStepFinished Kind = "step_finished"
 	// KindVerdictCommitted: Event.Verdict — the run is in the shift log;

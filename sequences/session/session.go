@@ -91,10 +91,13 @@ type Session struct {
 	// needOpen is set when a unit has been tested (or a check run) in the
 	// fixture and the lid has not been seen open since.
 	needOpen atomic.Bool
-	mu       sync.Mutex
-	closed   bool
-	hash     string
-	dropped  uint64
+	// runCtx is Run's context: a held run (holdingRecorder) gives up when
+	// it ends.
+	runCtx  context.Context
+	mu      sync.Mutex
+	closed  bool
+	hash    string
+	dropped uint64
 }
 
 // Open loads the variant and station, computes the limits (guard band from
@@ -156,7 +159,7 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 	}
 	v, st := rig.Variant, rig.Station
 	s.seq = &sequences.Session{
-		Plan: rig.Plan, Station: rig.Fixture, Clock: rig.Clock, Recorder: db,
+		Plan: rig.Plan, Station: rig.Fixture, Clock: rig.Clock, Recorder: holdingRecorder{s: s, db: db},
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: s.hash, Station: st.Name, Fixture: st.Fixture,
 			Operator: o.Operator, Lot: o.Lot, Software: o.Software, Driver: string(st.Driver),
@@ -288,6 +291,7 @@ const (
 // error wrapping ErrNotReady; a run that could not be committed returns an
 // error wrapping sequences.ErrNotSaved.
 func (s *Session) Run(ctx context.Context, sc Scanner) (err error) {
+	s.runCtx = ctx
 	s.emit(Event{Kind: KindSessionStarted, Started: s.started()})
 	tested := 0
 	reason := EndInput

@@ -52,23 +52,41 @@ func CapabilityOf(x []float64, subgroup int, useS bool, low, high float64) (Capa
 	if !math.IsNaN(low) && !math.IsNaN(high) && !(high > low) {
 		return Capability{}, fmt.Errorf("capability: limits %g … %g: %w", low, high, ErrParam)
 	}
+	// σ within is the chart's σ over the whole series as the baseline,
+	// estimated as the chart functions do, without building the charts.
 	all := FirstN(len(x))
-	var sh Shewhart
-	var err error
+	var (
+		e   estimate
+		err error
+	)
 	switch {
 	case subgroup <= 1:
-		sh, err = IndividualsChart(x, all, Options{Rules: []Rule{}})
+		e, err = estimateIndividuals(x, all, Options{})
+		if err != nil {
+			err = fmt.Errorf("individuals chart: %w", err)
+		}
 	case useS:
-		sh, err = XbarSChart(x, subgroup, all, Options{Rules: []Rule{}})
+		if e, _, err = estimateXbar(x, subgroup, all, Options{}, StdDev); err != nil {
+			err = fmt.Errorf("x̄-%s chart: %w", StdDev, err)
+		}
 	default:
-		sh, err = XbarRChart(x, subgroup, all, Options{Rules: []Rule{}})
+		if e, _, err = estimateXbar(x, subgroup, all, Options{}, Range); err != nil {
+			err = fmt.Errorf("x̄-%s chart: %w", Range, err)
+		}
 	}
 	if err != nil {
 		return Capability{}, fmt.Errorf("capability: %w", err)
 	}
 	c := Capability{N: len(x), Low: low, High: high, Mean: stat.Mean(x, nil),
-		SigmaWithin: sh.Location.Sigma, SigmaOverall: stat.StdDev(x, nil)}
-	c.Method = map[Kind]string{MovingRange: "MR̄/d2", Range: "R̄/d2", StdDev: "s̄/c4"}[sh.Spread.Kind]
+		SigmaWithin: e.sigma, SigmaOverall: stat.StdDev(x, nil)}
+	switch {
+	case subgroup <= 1:
+		c.Method = "MR̄/d2"
+	case useS:
+		c.Method = "s̄/c4"
+	default:
+		c.Method = "R̄/d2"
+	}
 	c.Cp, c.Cpk = Indices(c.Mean, c.SigmaWithin, low, high)
 	c.Pp, c.Ppk = Indices(c.Mean, c.SigmaOverall, low, high)
 	return c, nil

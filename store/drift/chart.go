@@ -251,27 +251,23 @@ func pair(loc, sp Chart) Shewhart {
 	return s
 }
 
-// subgroups splits x into consecutive subgroups of n (a trailing partial
-// subgroup is dropped) and maps the window onto whole subgroups inside it.
-func subgroups(x []float64, n int, w Window) ([][]float64, Window, error) {
+// subgroupBase checks x for subgroups of n and maps the window onto the
+// whole subgroups inside it (a trailing partial subgroup is dropped).
+func subgroupBase(x []float64, n int, w Window) (Window, error) {
 	if n < MinSubgroup || n > MaxSubgroup {
-		return nil, Window{}, fmt.Errorf("subgroup size %d: %w", n, ErrSubgroupSize)
+		return Window{}, fmt.Errorf("subgroup size %d: %w", n, ErrSubgroupSize)
 	}
 	if err := finite(x); err != nil {
-		return nil, Window{}, err
+		return Window{}, err
 	}
 	if err := w.check(len(x), 2*n); err != nil {
-		return nil, Window{}, err
-	}
-	g := make([][]float64, len(x)/n)
-	for i := range g {
-		g[i] = x[i*n : (i+1)*n]
+		return Window{}, err
 	}
 	base := Window{Start: (w.Start + n - 1) / n, End: w.End / n, From: w.From, To: w.To}
 	if base.Len() < 2 {
-		return nil, Window{}, fmt.Errorf("baseline %s holds %d whole subgroups of %d: %w", w, base.Len(), n, ErrShortBaseline)
+		return Window{}, fmt.Errorf("baseline %s holds %d whole subgroups of %d: %w", w, base.Len(), n, ErrShortBaseline)
 	}
-	return g, base, nil
+	return base, nil
 }
 
 func meanOf(v []float64) float64 {
@@ -299,6 +295,55 @@ func rangeOf(v []float64) float64 {
 	return hi - lo
 }
 
+// dispersion is a subgroup's range (kind Range) or standard deviation.
+func dispersion(s []float64, kind Kind) float64 {
+	if kind == Range {
+		return rangeOf(s)
+	}
+	return sdOf(s)
+}
+
+// estimateXbar: the grand mean of the subgroup means and σ = R̄/d2 or
+// s̄/c4 over the whole subgroups of n inside the window, summed in
+// subgroup order. It returns the window in subgroups too.
+func estimateXbar(x []float64, n int, w Window, o Options, kind Kind) (estimate, Window, error) {
+	base, err := subgroupBase(x, n, w)
+	if err != nil {
+		return estimate{}, Window{}, err
+	}
+	k := table[n-MinSubgroup]
+	var sumMean, sumDisp float64
+	for i := base.Start; i < base.End; i++ {
+		s := x[i*n : (i+1)*n]
+		sumMean += meanOf(s)
+		sumDisp += dispersion(s, kind)
+	}
+	e := estimate{mean: sumMean / float64(base.Len())}
+	bar := sumDisp / float64(base.Len())
+	how := "R̄/d2"
+	if kind == Range {
+		e.sigma = bar / k.D2
+	} else {
+		e.sigma, how = bar/k.C4, "s̄/c4"
+	}
+	e, err = e.apply(o, w, how)
+	return e, base, err
+}
+
+// xbarSpreadLimits are the centre and limits of the R or s chart that goes
+// with an X̄ chart of subgroups of k.N.
+func xbarSpreadLimits(k Constants, sigma, a float64, kind Kind) (c, u, l float64) {
+	if kind == Range {
+		return rangeLimits(k, sigma, a)
+	}
+	c = k.C4 * sigma
+	if a == 3 {
+		return c, k.B4 * c, k.B3 * c
+	}
+	sd := math.Sqrt(1-k.C4*k.C4) * sigma
+	return c, c + a*sd, math.Max(0, c-a*sd)
+}
+
 // XbarRChart is the X̄-R pair for consecutive subgroups of n (2…10):
 // σ = R̄/d2 over the whole subgroups inside the baseline window.
 func XbarRChart(x []float64, n int, w Window, o Options) (Shewhart, error) {
@@ -312,46 +357,19 @@ func XbarSChart(x []float64, n int, w Window, o Options) (Shewhart, error) {
 }
 
 func xbarChart(x []float64, n int, w Window, o Options, kind Kind) (Shewhart, error) {
-	g, base, err := subgroups(x, n, w)
+	e, base, err := estimateXbar(x, n, w, o, kind)
 	if err != nil {
 		return Shewhart{}, fmt.Errorf("x̄-%s chart: %w", kind, err)
 	}
-	k := table[n-MinSubgroup]
-	means := make([]float64, len(g))
-	disp := make([]float64, len(g))
-	for i, s := range g {
+	means := make([]float64, len(x)/n)
+	disp := make([]float64, len(x)/n)
+	for i := range means {
+		s := x[i*n : (i+1)*n]
 		means[i] = meanOf(s)
-		if kind == Range {
-			disp[i] = rangeOf(s)
-		} else {
-			disp[i] = sdOf(s)
-		}
-	}
-	e := estimate{mean: meanOf(means[base.Start:base.End])}
-	bar := meanOf(disp[base.Start:base.End])
-	how := "R̄/d2"
-	if kind == Range {
-		e.sigma = bar / k.D2
-	} else {
-		e.sigma, how = bar/k.C4, "s̄/c4"
-	}
-	if e, err = e.apply(o, w, how); err != nil {
-		return Shewhart{}, fmt.Errorf("x̄-%s chart: %w", kind, err)
+		disp[i] = dispersion(s, kind)
 	}
 	loc := location(Xbar, means, n, e, o, w, base)
-	var c, u, l float64
-	a := o.width()
-	if kind == Range {
-		c, u, l = rangeLimits(k, e.sigma, a)
-	} else {
-		c = k.C4 * e.sigma
-		if a == 3 {
-			u, l = k.B4*c, k.B3*c
-		} else {
-			sd := math.Sqrt(1-k.C4*k.C4) * e.sigma
-			u, l = c+a*sd, math.Max(0, c-a*sd)
-		}
-	}
+	c, u, l := xbarSpreadLimits(table[n-MinSubgroup], e.sigma, o.width(), kind)
 	return pair(loc, spread(kind, disp, n, c, u, l, e, w, base)), nil
 }
 

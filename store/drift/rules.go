@@ -238,14 +238,21 @@ func (e *ruleEngine) kOfM(i, lo, k, m int, level float64) (firing, bool) {
 	if s == 0 || float64(s)*z[i] <= level {
 		return firing{}, false
 	}
-	var pts []int
-	for j := max(lo, i-m+1); j <= i; j++ {
+	// Count first: the points are listed (allocated) only when it fires.
+	from, beyond := max(lo, i-m+1), 0
+	for j := from; j <= i; j++ {
+		if float64(s)*z[j] > level {
+			beyond++
+		}
+	}
+	if beyond < k {
+		return firing{}, false
+	}
+	pts := make([]int, 0, beyond)
+	for j := from; j <= i; j++ {
 		if float64(s)*z[j] > level {
 			pts = append(pts, j)
 		}
-	}
-	if len(pts) < k {
-		return firing{}, false
 	}
 	return firing{side: s, points: pts}, true
 }

@@ -57,39 +57,67 @@ func ChangePoint(x []float64, mu0 float64, from int) (int, float64) {
 // point is ChangePoint over the points after the baseline window w; the
 // signal is the first alarm at or after it on the side the mean moved to.
 func Assess(x []float64, alarms []Alarm, target, sigma float64, w Window) Finding {
-	f := Finding{Alarms: len(alarms), Change: -1, Target: target, Sigma: sigma, ShiftX: math.NaN(), ShiftSigma: math.NaN()}
-	if len(alarms) == 0 || len(x) == 0 {
-		return f
+	t := newTally(x, target, sigma, w)
+	for _, a := range alarms {
+		t.add(a)
 	}
-	f.Earliest = alarms[0]
-	for _, a := range alarms[1:] {
-		if a.Unit < f.Earliest.Unit {
-			f.Earliest = a
-		}
+	return t.finding()
+}
+
+// tally builds a Finding one alarm at a time, so Summarize can assess a
+// series without keeping its alarms: the change point depends on x and the
+// target only, and each alarm is placed against it as it comes.
+type tally struct {
+	f     Finding
+	at    int
+	shift float64
+	side  int
+}
+
+func newTally(x []float64, target, sigma float64, w Window) *tally {
+	t := &tally{f: Finding{Change: -1, Target: target, Sigma: sigma, ShiftX: math.NaN(), ShiftSigma: math.NaN()}, at: -1}
+	if len(x) == 0 {
+		return t
 	}
 	from := w.End
 	if from >= len(x) {
 		from = 0
 	}
-	at, shift := ChangePoint(x, target, from)
-	if at < 0 {
+	t.at, t.shift = ChangePoint(x, target, from)
+	t.side = 1
+	if t.shift < 0 {
+		t.side = -1
+	}
+	return t
+}
+
+// add takes the next alarm, in Seq order.
+func (t *tally) add(a Alarm) {
+	f := &t.f
+	if f.Alarms == 0 || a.Unit < f.Earliest.Unit {
+		f.Earliest = a
+	}
+	f.Alarms++
+	if t.at < 0 {
+		return
+	}
+	if a.Unit < t.at {
+		f.Before++
+	}
+	if a.Unit >= t.at && (a.Side == t.side || a.Side == 0) && (!f.Drifting || a.Unit < f.Signal.Unit) {
+		f.Signal, f.Drifting = a, true
+	}
+}
+
+// finding is the Finding so far: no change point without an alarm.
+func (t *tally) finding() Finding {
+	f := t.f
+	if f.Alarms == 0 || t.at < 0 {
 		return f
 	}
-	f.Change, f.ShiftX = at, shift
-	if sigma > 0 {
-		f.ShiftSigma = shift / sigma
-	}
-	side := 1
-	if shift < 0 {
-		side = -1
-	}
-	for _, a := range alarms {
-		if a.Unit < at {
-			f.Before++
-		}
-		if a.Unit >= at && (a.Side == side || a.Side == 0) && (!f.Drifting || a.Unit < f.Signal.Unit) {
-			f.Signal, f.Drifting = a, true
-		}
+	f.Change, f.ShiftX = t.at, t.shift
+	if f.Sigma > 0 {
+		f.ShiftSigma = t.shift / f.Sigma
 	}
 	return f
 }

@@ -227,7 +227,9 @@ func reduceSession(s State, e session.Event) (State, bool) {
 		s.Simulated, s.Lot, s.Operator = st.Simulated, st.Lot, st.Operator
 		s.TripLowPF, s.TripHighPF = st.Limits.TripLowPF, st.Limits.TripHighPF
 		s.Phase = PhaseReady
-	case (e.Kind == session.KindStationRefused || e.Kind == session.KindCheckDue) && e.Refused != nil:
+	case e.Kind == session.KindStationResumed && e.Scan != nil:
+		s.Phase, s.Testing, s.Refusal = PhaseTesting, e.Scan.Serial, nil
+	case (e.Kind == session.KindStationRefused || e.Kind == session.KindCheckDue || e.Kind == session.KindStationHalted) && e.Refused != nil:
 		s.Phase, s.Testing = PhaseRefused, ""
 		r := &Refusal{Why: e.Refused.Why, Fix: e.Refused.Fix}
 		if e.Kind == session.KindCheckDue {

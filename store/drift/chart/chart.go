@@ -68,10 +68,14 @@ func Render(w io.Writer, f Format, o Options, charts ...drift.Chart) error {
 	if o.DPI == 0 {
 		o.DPI = 150
 	}
+	// The legend sits in its own column right of the data, never over it.
+	legendW := 5 * vg.Centimeter
+	// A long series is drawn from at most a few points per pixel column.
+	columns := int(float64(o.Width-legendW) / float64(vg.Inch) * float64(o.DPI))
 	plots := make([][]*plot.Plot, len(charts))
 	legends := make([]plot.Legend, len(charts))
 	for i, c := range charts {
-		p, l, err := panel(c, o, i == 0)
+		p, l, err := panel(c, o, i == 0, columns)
 		if err != nil {
 			return fmt.Errorf("render %s chart: %w", c.Kind, err)
 		}
@@ -88,8 +92,6 @@ func Render(w io.Writer, f Format, o Options, charts ...drift.Chart) error {
 		return fmt.Errorf("render chart as %q: %w", f, ErrFormat)
 	}
 	dc := draw.New(canvas)
-	// The legend sits in its own column right of the data, never over it.
-	legendW := 5 * vg.Centimeter
 	plotArea := draw.Crop(dc, 0, -legendW, 0, 0)
 	tiles := draw.Tiles{Rows: len(charts), Cols: 1, PadTop: vg.Millimeter * 2, PadBottom: vg.Millimeter * 2, PadLeft: vg.Millimeter * 2, PadRight: vg.Millimeter * 4, PadY: vg.Millimeter * 4}
 	cs := plot.Align(plots, tiles, plotArea)
@@ -154,10 +156,15 @@ func yLabel(c drift.Chart, o Options) string {
 	return s
 }
 
-func xy(v []float64) plotter.XYs {
+// xy is v at the points idx (numbered from 1 on the x axis), leaving out
+// the undefined ones.
+func xy(v []float64, idx []int) plotter.XYs {
 	var out plotter.XYs
-	for i, y := range v {
-		if !math.IsNaN(y) && !math.IsInf(y, 0) {
+	for _, i := range idx {
+		if i >= len(v) {
+			break
+		}
+		if y := v[i]; !math.IsNaN(y) && !math.IsInf(y, 0) {
 			out = append(out, plotter.XY{X: float64(i + 1), Y: y})
 		}
 	}
@@ -168,8 +175,9 @@ func lineStyle(l *plotter.Line, c color.Color, width vg.Length, dashes ...vg.Len
 	l.Color, l.Width, l.Dashes = c, width, dashes
 }
 
-// panel builds one chart; points are numbered from 1 on the x axis.
-func panel(c drift.Chart, o Options, first bool) (*plot.Plot, plot.Legend, error) {
+// panel builds one chart, drawn columns pixels wide; points are numbered
+// from 1 on the x axis.
+func panel(c drift.Chart, o Options, first bool, columns int) (*plot.Plot, plot.Legend, error) {
 	p := plot.New()
 	leg := plot.NewLegend()
 	leg.Top, leg.Left = true, true
@@ -194,6 +202,7 @@ func panel(c drift.Chart, o Options, first bool) (*plot.Plot, plot.Legend, error
 	p.Y.Label.Text = yLabel(c, o)
 
 	n := len(c.Stat)
+	idx := drawn(c, columns)
 	// Y range from data and limits, padded for the alarm numbers.
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for _, s := range [][]float64{c.Stat, c.Stat2, c.Upper, c.Lower} {
@@ -248,7 +257,7 @@ func panel(c drift.Chart, o Options, first bool) (*plot.Plot, plot.Legend, error
 	p.Add(centre)
 	leg.Add(fmt.Sprintf("centre %.4g", c.Center), centre)
 	for j, lim := range [][]float64{c.Upper, c.Lower} {
-		pts := xy(lim)
+		pts := xy(lim, idx)
 		if len(pts) == 0 || (j == 1 && allZero(lim) && c.Kind != drift.CUSUM) {
 			continue
 		}
@@ -269,7 +278,7 @@ func panel(c drift.Chart, o Options, first bool) (*plot.Plot, plot.Legend, error
 		col   color.Color
 	}{{c.Stat, draw.CircleGlyph{}, black}, {c.Stat2, draw.TriangleGlyph{}, darkGrey}}
 	for _, s := range series {
-		pts := xy(s.v)
+		pts := xy(s.v, idx)
 		if len(pts) == 0 {
 			continue
 		}
