@@ -2,9 +2,12 @@ package sequences
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"time"
+
+	"padline/fixture"
 )
 
 // Station is the hardware a plan drives; *fixture.Fixture satisfies it.
@@ -84,7 +87,21 @@ func (t *Trial) Sample(k int) (int, error) {
 	if err := t.check(); err != nil {
 		return 0, err
 	}
+	if su, ok := t.st.(untilSampler); ok {
+		n, err := su.SampleUntil(t.ctx, t.deadline, k, t.period)
+		if errors.Is(err, fixture.ErrDeadline) {
+			err = ErrStepTimeout
+		}
+		return n, err
+	}
 	return t.st.Sample(k, t.period)
+}
+
+// untilSampler is a station that stops a long sample within one clock
+// period when the context ends or the step budget is spent
+// (*fixture.Fixture).
+type untilSampler interface {
+	SampleUntil(ctx context.Context, deadline time.Time, k int, period time.Duration) (int, error)
 }
 
 // MeasureClock measures the unit's clock frequency over n periods.
@@ -107,6 +124,19 @@ func (t *Trial) LidClosed() (bool, error) {
 func (t *Trial) Sleep(d time.Duration) error {
 	if err := t.check(); err != nil {
 		return err
+	}
+	// A long wait (a power settle of seconds) sleeps one clock period at
+	// a time, so a stop request or a spent budget ends it within a period.
+	step := t.period
+	if step <= 0 {
+		step = d
+	}
+	for d > step {
+		t.clock.Sleep(step)
+		d -= step
+		if err := t.check(); err != nil {
+			return err
+		}
 	}
 	t.clock.Sleep(d)
 	return t.check()

@@ -86,7 +86,7 @@ func DriftPlans(db *DB, f Filter) (map[string]string, error) {
 		"trips, groups":     tripsSQL(cond, false, true),
 		"last trips":        tripsSQL(cond, true, false),
 		"last trips, group": tripsSQL(cond, true, true),
-		"counts":            countsSQL(cond),
+		"counts":            countsSQL(cond, ""),
 	} {
 		rows, err := db.sql.Query("EXPLAIN QUERY PLAN "+q, args...)
 		if err != nil {

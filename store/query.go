@@ -33,6 +33,11 @@ type Filter struct {
 	// (1-based; 0 = any; −1 = units tested alone).
 	Panel string
 	Site  int
+	// FirstInGroup makes Counts take a serial's first unit verdict within
+	// the group the filter's station, fixture, lot and site name (its first
+	// test on that station, …) instead of over the whole log, so a unit
+	// counts in each group it was tested in.
+	FirstInGroup bool
 }
 
 // where returns the SQL condition (on runs aliased r) and its arguments.
@@ -432,11 +437,34 @@ type Counts struct {
 	Fail         int64
 	StationFault int64
 	// FirstUnits counts serials whose first unit verdict (their first run
-	// that is not a station fault, over the whole log) is among the runs;
+	// that is not a station fault, over the whole log or, with
+	// Filter.FirstInGroup, within the group) is among the runs;
 	// FirstPass counts those of them that passed it. First-pass yield is
 	// FirstPass/FirstUnits.
 	FirstUnits int64
 	FirstPass  int64
+}
+
+// sameGroup is the condition that run e lies in r's group under
+// FirstInGroup ("" otherwise).
+func (f Filter) sameGroup() string {
+	if !f.FirstInGroup {
+		return ""
+	}
+	var c string
+	if f.Station != "" {
+		c += " AND e.station_id = r.station_id"
+	}
+	if f.Fixture != "" {
+		c += " AND e.fixture_id = r.fixture_id"
+	}
+	if f.Lot != "" {
+		c += " AND e.lot = r.lot"
+	}
+	if f.Site != 0 {
+		c += " AND e.site = r.site"
+	}
+	return c
 }
 
 // Counts returns the verdict totals of the runs matching f.
@@ -446,7 +474,7 @@ func (db *DB) Counts(ctx context.Context, f Filter) (Counts, error) {
 		c                        Counts
 		pass, fail, sf, fu, fpas float64
 	)
-	if err := db.sql.QueryRowContext(ctx, countsSQL(cond), args...).Scan(&c.Runs, &pass, &fail, &sf, &fu, &fpas); err != nil {
+	if err := db.sql.QueryRowContext(ctx, countsSQL(cond, f.sameGroup()), args...).Scan(&c.Runs, &pass, &fail, &sf, &fu, &fpas); err != nil {
 		return Counts{}, fmt.Errorf("counts: %w", err)
 	}
 	c.Pass, c.Fail, c.StationFault = int64(pass), int64(fail), int64(sf)
@@ -461,7 +489,7 @@ func (db *DB) Counts(ctx context.Context, f Filter) (Counts, error) {
 // inner SELECT a co-routine (SQLite's query flattener leaves a subquery
 // with a LIMIT under an aggregate alone), so that probe runs once per run;
 // flattened, it would run once for each of the two sums that read it.
-func countsSQL(cond string) string {
+func countsSQL(cond, sameGroup string) string {
 	return `SELECT count(*), total(verdict = 'pass'), total(verdict = 'fail'),
        total(verdict = 'station-fault'), total(first), total(first AND verdict = 'pass')
 FROM (
@@ -469,7 +497,7 @@ FROM (
          r.verdict != 'station-fault' AND NOT EXISTS (
            SELECT 1 FROM runs e
            WHERE e.serial = r.serial AND (e.finished, e.id) < (r.finished, r.id)
-             AND e.verdict != 'station-fault'
+             AND e.verdict != 'station-fault'` + sameGroup + `
          ) AS first
   FROM runs r WHERE ` + cond + `
   LIMIT -1

@@ -3,8 +3,24 @@
 // capacitor ladder, judges it against limits from the circuit's timing model,
 // and logs every serial's result to a SQLite shift log.
 //
-// This package is CLI wiring only: cobra commands, viper configuration
-// parsed into plain structs and validated here, and the mapping of errors to
-// exit codes. It is the only package that knows every other padline package;
-// domain logic lives below it.
+// This package is CLI wiring only: cobra commands with their flags and
+// help, printing, and the mapping of errors to exit codes. Every rule of the
+// product (configuration, the gate, the unit loop, limits, drift analysis,
+// the demo shift, studies, status, history views) lives in the library
+// packages below it (DEVELOPERS.md "Package map").
+//
+// Inside the package, files depend one way, top to bottom:
+//
+//  1. the process and the command tree: main.go (signals, exit codes),
+//     root.go, commands.go (the list of command families);
+//  2. command families, each a builder with its flags and help, a call into
+//     the library and the printing of its answer:
+//     limits.go; demo_cmd.go; history_cmd.go; drift_cmd.go with
+//     drift_study.go; run.go with run_screen.go; station_cmd.go (the
+//     family and the bench its check and study share) with
+//     station_study_cmd.go and station_status_cmd.go.
+//     A family uses its own files and floor 3, never another family;
+//  3. helpers that know no command: shiftlog.go (where the shift log is),
+//     progress.go (terminal bar), version.go, gpio.go (the GPIO opener),
+//     testhook.go (the torture test's unit hold).
 package main

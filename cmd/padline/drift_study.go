@@ -4,12 +4,11 @@ import (
 	"bufio"
 	"encoding/json"
 	"fmt"
-	"math"
-	"strconv"
 
 	"github.com/spf13/cobra"
 
 	"padline/store/drift"
+	"padline/store/driftreport"
 )
 
 // driftStudyCmd builds `padline drift study`.
@@ -42,39 +41,12 @@ gives the same table.`,
 				return fmt.Errorf("drift study: %w", err)
 			}
 			if asJSON {
-				type row struct {
-					Chart     string  `json:"chart"`
-					Shift     float64 `json:"shift_sigma"`
-					Runs      int     `json:"runs"`
-					Censored  int     `json:"censored"`
-					Mean      jnum    `json:"arl"`
-					SE        jnum    `json:"arl_se"`
-					Median    jnum    `json:"median"`
-					P10       jnum    `json:"p10"`
-					P90       jnum    `json:"p90"`
-					Published jnum    `json:"published_arl"`
-					Source    string  `json:"source,omitempty"`
-				}
-				out := make([]row, len(rows))
-				for i, r := range rows {
-					out[i] = row{r.Chart, r.Shift, r.Result.Runs, r.Result.Censored, jnum(r.Result.Mean), jnum(r.Result.SE),
-						jnum(r.Result.Median), jnum(r.Result.P10), jnum(r.Result.P90), jnum(r.Published), r.Source}
-				}
 				enc := json.NewEncoder(a.stdout)
 				enc.SetIndent("", "  ")
-				return enc.Encode(map[string]any{"runs": runs, "seed": seed, "rows": out})
+				return enc.Encode(map[string]any{"runs": runs, "seed": seed, "rows": driftreport.StudyRows(rows)})
 			}
 			w := bufio.NewWriter(a.stdout)
-			fmt.Fprintf(w, "zero-state run lengths, known μ and σ, %d runs per cell, seed %d\n\n", runs, seed)
-			fmt.Fprintf(w, "%-44s %6s %9s %7s %7s %6s %7s %10s  %s\n", "chart set", "shift", "ARL", "±SE", "median", "p10", "p90", "reference", "source")
-			for _, r := range rows {
-				pub := "-"
-				if !math.IsNaN(r.Published) {
-					pub = strconv.FormatFloat(r.Published, 'f', 1, 64)
-				}
-				fmt.Fprintf(w, "%-44s %5.1fσ %9.1f %7.1f %7.0f %6.0f %7.0f %10s  %s\n", r.Chart, r.Shift, r.Result.Mean, r.Result.SE,
-					r.Result.Median, r.Result.P10, r.Result.P90, pub, r.Source)
-			}
+			driftreport.WriteStudy(w, rows, runs, seed)
 			return w.Flush()
 		},
 	}
@@ -84,5 +56,3 @@ gives the same table.`,
 	f.BoolVar(&asJSON, "json", false, "print one JSON object instead of the table")
 	return cmd
 }
-
-// ---- demo drift: a step or ramp in the simulated shift, then the watch ----

@@ -139,7 +139,15 @@ func TestHistoryTable(t *testing.T) {
 
 func TestHistoryCSVAndJSON(t *testing.T) {
 	db := seedHistory(t)
+	// One row per run by default: header + 4 runs of QM-205.
 	code, out, errOut := historyCLI(t, "history", "--db", db, "--variant", "QM-205", "--format", "csv")
+	if code != 0 {
+		t.Fatalf("csv: exit %d: %s", code, errOut)
+	}
+	if recs, err := csv.NewReader(strings.NewReader(out)).ReadAll(); err != nil || len(recs) != 5 || strings.Join(recs[0], ",") != strings.Join(store.RunCSVHeader, ",") {
+		t.Errorf("csv per run: %d rows, %v", len(recs), err)
+	}
+	code, out, errOut = historyCLI(t, "history", "--db", db, "--variant", "QM-205", "--format", "csv", "--per", "measurement")
 	if code != 0 {
 		t.Fatalf("csv: exit %d: %s", code, errOut)
 	}
@@ -270,33 +278,6 @@ func TestHistoryHelp(t *testing.T) {
 	for _, s := range []string{"padline history --serial", "PADLINE_DB", defaultShiftLog, "--limits-history", "--since"} {
 		if !strings.Contains(out, s) {
 			t.Errorf("help lacks %q", s)
-		}
-	}
-}
-
-func TestParseWhen(t *testing.T) {
-	now := time.Date(2026, 11, 30, 14, 0, 0, 0, time.UTC)
-	tests := []struct {
-		in   string
-		want time.Time
-	}{
-		{"", time.Time{}},
-		{"8h", now.Add(-8 * time.Hour)},
-		{"90m", now.Add(-90 * time.Minute)},
-		{"2d", now.Add(-48 * time.Hour)},
-		{"2026-11-30", time.Date(2026, 11, 30, 0, 0, 0, 0, time.Local)},
-		{"2026-11-30 06:30", time.Date(2026, 11, 30, 6, 30, 0, 0, time.Local)},
-		{"2026-11-30T06:30:00Z", time.Date(2026, 11, 30, 6, 30, 0, 0, time.UTC)},
-	}
-	for _, tt := range tests {
-		got, err := parseWhen(tt.in, now)
-		if err != nil || !got.Equal(tt.want) {
-			t.Errorf("parseWhen(%q) = %v, %v; want %v", tt.in, got, err, tt.want)
-		}
-	}
-	for _, bad := range []string{"-8h", "tomorrow", "2026-13-01"} {
-		if _, err := parseWhen(bad, now); err == nil {
-			t.Errorf("parseWhen(%q) accepted", bad)
 		}
 	}
 }

@@ -40,7 +40,14 @@ From the variant file's circuit values and tolerances it computes:
   test limits the tighter of the model corners and the spec window, shrunk
              by U: what 'padline run' judges the measured trip against;
   capability the design's predicted Cpk and yield against the spec window.
-Warnings say plainly when the design cannot meet its spec window.
+  gates      the gates' output resistance (in series with R_s and R_o) and
+             the clock edge time the model includes, what ideal gates would
+             predict instead, and the race's length in edge times;
+  sensitivity which input moves the trip point most: ∂trip/∂input times the
+             input's tolerance (3σ where the file gives sd), ranked.
+Warnings say plainly when the design cannot meet its spec window, and when
+the race lasts fewer than ten clock edge times (measure units then: the
+model is least trustworthy there; README, "What the timing model includes").
 
 --variant takes a file path (anything ending in .yaml/.yml, or an existing
 file) or the name of a built-in demo variant (QM-205, QM-212). The
@@ -148,6 +155,9 @@ func writeLimits(w io.Writer, v *session.Variant, r timing.Report) {
 	}
 	p("            Monte Carlo (%d draws, seed %d): mean %.2f pF, sd %.2f pF", r.Draws, r.Seed, r.Trip.MCMean, r.Trip.MCSD)
 	p("            percentiles 0.135 %% %.2f   50 %% %.2f   99.865 %% %.2f pF", r.Trip.MCP00135, r.Trip.MCP50, r.Trip.MCP99865)
+	writeGate(w, r)
+	p("")
+	writeSensitivity(w, r)
 	p("")
 	p("spec window no trip at ≤ %.2f pF, trip by %.2f pF", r.Spec.NoTripAtPF, r.Spec.TripByPF)
 	p("model       %.2f … %.2f pF (worst-case corners)", r.ModelLimits.Low, r.ModelLimits.High)

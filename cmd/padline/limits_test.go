@@ -57,7 +57,10 @@ func TestLimitsReport(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errOut)
 	}
-	for _, want := range []string{"clock", "trip point", "nominal 29.70 pF", "Monte Carlo (5000 draws, seed 9)", "99.865 %",
+	// Nominal trip worked by hand: the gate's 400 Ω (0.4 V / 1.0 mA) joins
+	// R_s, C_total = 2.96 µs/(100.4 kΩ·ln 2) = 42.53 pF, less 13 pF = 29.53 pF;
+	// the loaded clock pin crosses 0.25 ns later, +0.01 pF.
+	for _, want := range []string{"clock", "trip point", "nominal 29.54 pF", "sensitivity", "threshold_frac", "race        2960 ns", "Monte Carlo (5000 draws, seed 9)", "99.865 %",
 		"spec window no trip at ≤ 10.00 pF, trip by 60.00 pF", "guard band  0.50 pF", "test limits 10.50 … 59.50 pF", "Cpk", "yield"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("report lacks %q:\n%s", want, out)
@@ -120,5 +123,44 @@ func TestLimitsHelp(t *testing.T) {
 		if !strings.Contains(out, want) {
 			t.Errorf("help lacks %q", want)
 		}
+	}
+}
+
+func TestLimitsGatesAndSensitivity(t *testing.T) {
+	// The fast 9 V stress variant: a 130 ns race against a 60 ns edge warns;
+	// QM-205 (2960 ns against 100 ns) does not. Both rank their inputs.
+	fast := repo + "/sequences/timing/spicecheck/testdata/QM-909F.yaml"
+	code, out, errOut := runCLI(t, "limits", "--variant", fast, "--draws", "500")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errOut)
+	}
+	for _, want := range []string{"WARNING     the race lasts 130 ns, only 2.2 clock edge times", "sensitivity what moves the trip point",
+		"gates       R_out 294 Ω", "ideal gates would give trip 54.46 pF"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("QM-909F report lacks %q:\n%s", want, out)
+		}
+	}
+	code, out, _ = runCLI(t, "limits", "--variant", "QM-205", "--draws", "500")
+	if code != 0 || strings.Contains(out, "race lasts") || !strings.Contains(out, "threshold_frac") {
+		t.Errorf("QM-205 report (exit %d):\n%s", code, out)
+	}
+	code, out, _ = runCLI(t, "limits", "--variant", fast, "--draws", "500", "--json")
+	var got struct {
+		Gate struct {
+			ShortRace bool    `json:"short_race"`
+			ROhm      float64 `json:"r_out_ohm"`
+		} `json:"gate"`
+		Sensitivity []struct {
+			Input string  `json:"input"`
+			PF    float64 `json:"trip_pf"`
+			Share float64 `json:"share"`
+		} `json:"sensitivity"`
+		Warnings []string `json:"warnings"`
+	}
+	if err := json.Unmarshal([]byte(out), &got); err != nil || code != 0 {
+		t.Fatalf("json (exit %d): %v\n%s", code, err, out)
+	}
+	if !got.Gate.ShortRace || len(got.Sensitivity) == 0 || got.Sensitivity[0].Input != "delay_ns" || !strings.Contains(strings.Join(got.Warnings, "|"), "race lasts") {
+		t.Errorf("json gate %+v sensitivity %+v warnings %q", got.Gate, got.Sensitivity, got.Warnings)
 	}
 }

@@ -16,6 +16,10 @@ func main() {
 	os.Exit(signalExit(sig, code, os.Stderr))
 }
 
+// exitStationRefused is the exit status of a refused check and of a run
+// the gate refused.
+const exitStationRefused = 3
+
 // exitError carries a specific exit status out of a subcommand.
 type exitError struct {
 	code int

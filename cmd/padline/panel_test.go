@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"padline/sequences/demo"
 	"padline/store"
 )
 
@@ -87,7 +88,7 @@ func TestDemoPanel(t *testing.T) {
 	if len(lines) != 81 {
 		t.Fatalf("%d JSON lines, want 80 sites and a summary", len(lines))
 	}
-	var sum demoPanelSummary
+	var sum demo.PanelSummary
 	if err := json.Unmarshal([]byte(lines[80]), &sum); err != nil {
 		t.Fatal(err)
 	}

@@ -31,7 +31,8 @@ func newProgress(w io.Writer, n int, label string, quiet bool) *progress {
 	return &progress{w: w, n: n, label: label, quiet: quiet}
 }
 
-func (p *progress) step() {
+// Step counts one unit and redraws the bar when it moved.
+func (p *progress) Step() {
 	p.i++
 	if p.quiet {
 		return
@@ -45,7 +46,8 @@ func (p *progress) step() {
 	fmt.Fprintf(p.w, "\r%s [%s%s] %d/%d", p.label, strings.Repeat("=", filled), strings.Repeat(" ", width-filled), p.i, p.n)
 }
 
-func (p *progress) done() {
+// Done ends the bar's line.
+func (p *progress) Done() {
 	if !p.quiet && p.i > 0 {
 		fmt.Fprintln(p.w)
 	}

@@ -2,17 +2,14 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
-	"math"
 	"time"
 
 	"github.com/spf13/cobra"
 
-	"padline/sequences"
 	"padline/sequences/session"
+	"padline/sequences/station/console"
 )
 
 type runOptions struct {
@@ -118,6 +115,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		// With a screen the technician runs a due check from the page.
 		WaitForCheck:    o.screen != "",
 		InputEndIsError: o.service,
+		AfterStep:       holdHook(), // nil unless the torture test asks (testhook.go)
 	})
 	if err != nil {
 		return err
@@ -131,7 +129,9 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 	}()
 	events, stop := sess.Subscribe(eventBuffer)
 	printed := make(chan error, 1)
-	go func() { printed <- a.printRun(events, o) }()
+	go func() {
+		printed <- console.Print(events, console.Options{Stdout: a.stdout, Stderr: a.stderr, JSON: o.asJSON, Colour: isTerminal(a.stdout)})
+	}()
 	var sc session.Scanner
 	if o.serial != "" {
 		sc = session.OneSerial(o.serial)
@@ -174,168 +174,4 @@ func (a *app) promptingScanner(sc session.Scanner, o runOptions) session.Scanner
 		fmt.Fprint(a.stdout, "scan serial> ")
 		return sc.Scan(ctx)
 	})
-}
-
-// printRun is the terminal's consumer of the session's events: what the
-// operator must read goes to stdout (the station's screen), stderr is for
-// the log. With --json stdout carries one JSON object per tested or
-// refused unit.
-func (a *app) printRun(events <-chan session.Event, o runOptions) error {
-	var werr error
-	enc := json.NewEncoder(a.stdout)
-	for e := range events {
-		switch e.Kind {
-		case session.KindSessionStarted:
-			if !o.asJSON {
-				writeRunBanner(a.stdout, e.Started)
-			}
-		case session.KindStationRefused:
-			if !o.asJSON {
-				fmt.Fprintf(a.stdout, "STATION LOCKED  %s: %s\n", e.Refused.Why, e.Refused.Fix)
-			}
-		case session.KindStationHalted:
-			// Both the screen (stdout) and the log (stderr): nobody may
-			// miss a station that holds an unsaved unit.
-			if o.asJSON {
-				werr = errors.Join(werr, enc.Encode(map[string]string{"halted": e.Refused.Why, "fix": e.Refused.Fix}))
-			} else {
-				fmt.Fprintf(a.stdout, "STATION HALTED  %s: %s\n", e.Refused.Why, e.Refused.Fix)
-			}
-			fmt.Fprintf(a.stderr, "padline: station halted: %s\n", e.Refused.Why)
-		case session.KindStationResumed:
-			fmt.Fprintf(a.stderr, "padline: shift log writable again: the run of %s is saved\n", e.Scan.Serial)
-		case session.KindCheckDue:
-			if !o.asJSON {
-				fmt.Fprintln(a.stdout, "waiting for the shift-start check: run it from the station screen")
-			}
-		case session.KindCheckProgress:
-			fmt.Fprintf(a.stderr, "shift-start check: %s\n", e.Check.Message)
-		case session.KindCheckResult:
-			if !o.asJSON {
-				writeCheckResult(a.stdout, e.Check.Report)
-			}
-		case session.KindBadgeScanned:
-			if !o.asJSON {
-				fmt.Fprintf(a.stdout, "%s set to %s\n", e.Badge.Kind, e.Badge.Value)
-			}
-		case session.KindScanRefused:
-			if o.asJSON {
-				werr = errors.Join(werr, enc.Encode(map[string]string{"serial": e.ScanRefused.Raw, "refused": e.ScanRefused.Reason}))
-			} else {
-				fmt.Fprintf(a.stdout, "NOT TESTED  %s\n", e.ScanRefused.Reason)
-			}
-		case session.KindLidWait:
-			w := a.stdout
-			if o.asJSON {
-				w = a.stderr
-			}
-			if e.Scan.Prompt != "" {
-				fmt.Fprintln(w, e.Scan.Prompt)
-			} else {
-				fmt.Fprintln(w, "close the lid to start the test")
-			}
-		case session.KindUnitAborted:
-			fmt.Fprintf(a.stderr, "\nstopped: %s was not finished; it has no verdict and nothing was logged. Fixture halted.\n", e.Scan.Serial)
-		case session.KindVerdictCommitted:
-			if o.asJSON {
-				werr = errors.Join(werr, enc.Encode(unitJSON(e.Verdict)))
-			} else {
-				writeVerdict(a.stdout, e.Verdict, isTerminal(a.stdout))
-			}
-		case session.KindRelayWear:
-			fmt.Fprintf(a.stderr, "relay wear: rung %d has %d of %.0f rated operations (%.0f %%): plan its replacement\n",
-				e.Wear.Rung, e.Wear.Operations, e.Wear.Rated, 100*e.Wear.Fraction)
-		case session.KindDriftAlarm:
-			fmt.Fprintf(a.stderr, "drift alarm: %s\n", e.Drift.Message)
-		case session.KindSessionEnded:
-			switch e.Ended.Reason {
-			case session.EndRefused:
-				continue
-			case session.EndInput, session.EndStopped:
-			default:
-				// The operator reads the screen, not the log: a halted
-				// station says so where the verdicts appear.
-				if o.asJSON {
-					werr = errors.Join(werr, enc.Encode(map[string]string{"halted": e.Ended.Reason}))
-				} else {
-					fmt.Fprintf(a.stdout, "STATION HALTED  %s\n", e.Ended.Reason)
-				}
-			}
-			if o.asJSON {
-				fmt.Fprintf(a.stderr, "%d unit(s) tested; fixture halted.\n", e.Ended.Tested)
-			} else {
-				fmt.Fprintf(a.stdout, "\n%d unit(s) tested; fixture halted.\n", e.Ended.Tested)
-			}
-		}
-	}
-	return werr
-}
-
-// writeRunBanner says what the session tests, where, against which limits,
-// and whether the station is simulated.
-func writeRunBanner(w io.Writer, s *session.Started) {
-	sim := ""
-	if s.Simulated {
-		sim = " SIMULATED station (driver sim): these runs are not real units;"
-	}
-	fmt.Fprintf(w, "padline run: %s on station %s, fixture %s;%s trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
-		s.Variant, s.Station, s.Fixture, sim, s.Limits.TripLowPF, s.Limits.TripHighPF, s.UncertaintyPF, s.UncertaintyFrom, s.ShiftLog)
-	fmt.Fprintln(w, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
-}
-
-// unitJSON is one tested unit for --json.
-func unitJSON(v *session.Verdict) map[string]any {
-	r := v.Run
-	m := map[string]any{
-		"id": v.ID, "serial": r.Serial, "verdict": r.Verdict, "fail_code": r.FailCode,
-		"fixture_ms": ms(r.Finished.Sub(r.Started)), "prior_fails": v.PriorFails,
-	}
-	for _, x := range r.Measurements {
-		switch x.Name {
-		case sequences.MeasTripPF, sequences.MeasTripSEPF, sequences.MeasSpreadPF, sequences.MeasClockHz:
-			m[string(x.Name)] = jsonNum(x.Value)
-		}
-	}
-	return m
-}
-
-// jsonNum is f for JSON, or nil (null) when f is NaN.
-func jsonNum(f float64) any {
-	if math.IsNaN(f) {
-		return nil
-	}
-	return f
-}
-
-// writeVerdict prints the verdict large and plain, after the commit; in
-// colour (as well as in words) when colour is set: on a terminal only.
-func writeVerdict(w io.Writer, v *session.Verdict, colour bool) {
-	r, lim := v.Run, v.Limits
-	trip := "no trip point"
-	for _, x := range r.Measurements {
-		if x.Name == sequences.MeasTripPF && !math.IsNaN(x.Value) {
-			trip = fmt.Sprintf("trip %.2f pF (limits %.2f … %.2f pF)", x.Value, lim.TripLowPF, lim.TripHighPF)
-		}
-	}
-	switch r.Verdict {
-	case sequences.Pass:
-		flag := ""
-		if v.PriorFails > 0 {
-			flag = fmt.Sprintf("   (pass after %d fail(s): flagged in the shift log)", v.PriorFails)
-		}
-		fmt.Fprintf(w, "%s   %s   %s%s\n", r.Serial, paint("======== PASS ========", r.Verdict, colour), trip, flag)
-	case sequences.Fail:
-		fmt.Fprintf(w, "%s   %s   %s   %s\n", r.Serial, paint("######## FAIL ########", r.Verdict, colour), r.FailCode, trip)
-	default:
-		fmt.Fprintf(w, "%s   %s   %s: the station, not the unit, failed; see the station before retesting\n", r.Serial, paint("???? STATION FAULT ????", r.Verdict, colour), r.FailCode)
-		if v.StationError != "" {
-			fmt.Fprintf(w, "   station fault: %s\n", v.StationError)
-		}
-	}
-	if v.PriorPasses > 0 {
-		fmt.Fprintf(w, "   repeat: %s passed %d time(s) before; this run is logged beside those\n", r.Serial, v.PriorPasses)
-	}
-	if v.Action != "" && r.Verdict != sequences.Pass {
-		fmt.Fprintf(w, "   what to do: %s\n", v.Action)
-	}
 }

@@ -145,7 +145,7 @@ func (a *app) runPanel(ctx context.Context, o runOptions, dbPath string) (err er
 			for i, run := range oc.Runs {
 				m := map[string]any{"panel": label, "site": i + 1, "serial": oc.Serials[i], "verdict": "not-tested", "fail_code": "x_out"}
 				if run != nil {
-					m = unitJSON(&session.Verdict{Run: *run, ID: oc.IDs[i]})
+					m = (&session.Verdict{Run: *run, ID: oc.IDs[i]}).Record()
 					m["panel"], m["site"] = label, i+1
 				}
 				if err := enc.Encode(m); err != nil {
@@ -292,7 +292,7 @@ func (a *app) stationCheckPanel(ctx context.Context, variant, station, dbPath st
 			return err
 		}
 	} else {
-		writeCheck(a.stdout, rep, r.Station)
+		session.WriteCheck(a.stdout, rep, r.Station)
 	}
 	if !rep.OK {
 		return &exitError{code: exitStationRefused, err: fmt.Errorf("station %s fixture %s refused: %s", r.Station.Name, r.Station.Fixture, strings.Join(rep.Faults, "; "))}

@@ -3,12 +3,9 @@ package main
 import (
 	"context"
 	"fmt"
-	"io"
-	"strings"
 
 	"github.com/spf13/pflag"
 
-	"padline/sequences"
 	"padline/sequences/session"
 	"padline/sequences/station/screen"
 )
@@ -42,31 +39,4 @@ func (a *app) startScreen(ctx context.Context, sess *session.Session, stdin sess
 		}
 	}()
 	return sv.Scanner(), sv.Close, nil
-}
-
-// writeCheckResult prints the end of a shift-start check run from the
-// station screen.
-func writeCheckResult(w io.Writer, rep *session.CheckReport) {
-	if rep.OK {
-		fmt.Fprintf(w, "shift-start check passed (check %d): testing goes on\n", rep.CheckID)
-		return
-	}
-	fmt.Fprintf(w, "shift-start check REFUSED the station (check %d): %s\n", rep.CheckID, strings.Join(rep.Faults, "; "))
-}
-
-// paint colours a verdict banner for a terminal (ECMA-48 SGR: bold, then
-// black on green for a pass, white on red for a fail, black on yellow for a
-// station fault); the words stay, so colour only adds to them.
-func paint(banner string, v sequences.Verdict, on bool) string {
-	if !on {
-		return banner
-	}
-	sgr := "1;30;43"
-	switch v {
-	case sequences.Pass:
-		sgr = "1;30;42"
-	case sequences.Fail:
-		sgr = "1;97;41"
-	}
-	return "\x1b[" + sgr + "m" + banner + "\x1b[0m"
 }

@@ -1,10 +1,7 @@
 package main
 
 import (
-	"strings"
 	"testing"
-
-	"padline/sequences"
 )
 
 // --screen alone serves on this computer only; --screen=ADDR elsewhere;
@@ -25,19 +22,6 @@ func TestScreenFlag(t *testing.T) {
 		}
 		if got := cmd.Flags().Lookup("screen").Value.String(); got != c.want {
 			t.Errorf("%v: screen %q, want %q", c.args, got, c.want)
-		}
-	}
-}
-
-// Colour only on a terminal, and never instead of the words.
-func TestPaint(t *testing.T) {
-	if got := paint("== PASS ==", sequences.Pass, false); got != "== PASS ==" {
-		t.Errorf("no terminal: %q", got)
-	}
-	for v, sgr := range map[sequences.Verdict]string{sequences.Pass: "42", sequences.Fail: "41", sequences.StationFault: "43"} {
-		got := paint("WORD", v, true)
-		if !strings.HasPrefix(got, "\x1b[1;") || !strings.Contains(got, sgr+"mWORD\x1b[0m") {
-			t.Errorf("%s: %q", v, got)
 		}
 	}
 }

@@ -3,25 +3,14 @@ package main
 import (
 	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"strings"
-	"time"
 
 	"github.com/spf13/cobra"
 
-	"padline/fixture"
-	"padline/fixture/sim"
-	"padline/sequences"
 	"padline/sequences/session"
-	"padline/sequences/timing"
-	"padline/store"
 )
-
-// exitStationRefused is the exit status of a refused check and of a run
-// the gate refused.
-const exitStationRefused = 3
 
 // stationCmd builds `padline station`.
 func (a *app) stationCmd() *cobra.Command {
@@ -44,63 +33,14 @@ func (a *app) stationCmd() *cobra.Command {
 	return cmd
 }
 
-// rig is a station opened for a trust command: the session package's rig
-// (variant, station, limits, fixture, simulated line) and the shift log.
-type rig struct {
-	*session.Rig
-	a      *app
-	v      *session.Variant
-	st     *session.Station
-	rep    timing.Report
-	plan   sequences.PlanConfig
-	fx     *fixture.Fixture
-	clk    fixture.Clock
-	line   *sim.Line
-	db     *store.DB
-	dbPath string
-	ld     *session.Loader
-	quiet  bool // --json: prompts go to stderr
-}
-
-func (a *app) openRig(ctx context.Context, variant, station, dbPath string, quiet bool) (*rig, error) {
-	sr, err := session.OpenRig(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
-	if err != nil {
-		return nil, err
+// openRig opens the station for a trust command (check, study) and says
+// where its operator prompts go: stdout, or stderr under --json.
+func (a *app) openRig(ctx context.Context, variant, station, dbPath string, asJSON bool) (*session.Bench, io.Writer, error) {
+	b, err := session.OpenBench(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
+	if asJSON {
+		return b, a.stderr, err
 	}
-	db, err := store.Open(dbPath)
-	if err != nil {
-		return nil, errors.Join(err, sr.Halt())
-	}
-	r := &rig{Rig: sr, a: a, v: sr.Variant, st: sr.Station, rep: sr.Limits, plan: sr.PlanConfig, fx: sr.Fixture,
-		clk: sr.Clock, line: sr.Line, db: db, dbPath: dbPath, quiet: quiet}
-	r.ld = &session.Loader{Rig: sr, Prompt: func(msg string) { fmt.Fprintln(r.msg(), msg) }}
-	if err := session.LoadRelayWear(ctx, db, sr); err != nil {
-		return nil, errors.Join(err, r.close(ctx))
-	}
-	return r, nil
-}
-
-// close halts the fixture, saves the relay counts and closes the log.
-func (r *rig) close(ctx context.Context) error {
-	herr := r.Halt()
-	serr := session.SaveRelayWear(ctx, r.db, r.Rig)
-	cerr := r.db.Close()
-	if err := errors.Join(herr, serr, cerr); err != nil {
-		return fmt.Errorf("close station: %w", err)
-	}
-	return nil
-}
-
-func (r *rig) msg() io.Writer {
-	if r.quiet {
-		return r.a.stderr
-	}
-	return r.a.stdout
-}
-
-// load puts the unit with serial in the fixture (see session.Loader).
-func (r *rig) load(ctx context.Context, serial string, simDefects []string, what string) error {
-	return r.ld.Load(ctx, serial, simDefects, what)
+	return b, a.stdout, err
 }
 
 func (a *app) stationCheckCmd() *cobra.Command {
@@ -154,18 +94,18 @@ func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string,
 	if _, panel := panelStation(station); panel {
 		return a.stationCheckPanel(ctx, variant, station, dbPath, asJSON)
 	}
-	r, err := a.openRig(ctx, variant, station, dbPath, asJSON)
+	r, prompts, err := a.openRig(ctx, variant, station, dbPath, asJSON)
 	if err != nil {
 		return err
 	}
 	defer func() {
-		if cerr := r.close(ctx); cerr != nil && err == nil {
+		if cerr := r.Close(ctx); cerr != nil && err == nil {
 			err = cerr
 		}
 	}()
-	rep, err := session.RunCheck(ctx, r.Rig, r.db, func(ci session.CheckInfo) {
+	rep, err := session.RunCheck(ctx, r.Rig, r.DB, func(ci session.CheckInfo) {
 		if ci.Serial == "" && ci.Message != "" {
-			fmt.Fprintln(r.msg(), ci.Message)
+			fmt.Fprintln(prompts, ci.Message)
 		}
 	})
 	if err != nil {
@@ -178,62 +118,10 @@ func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string,
 			return err
 		}
 	} else {
-		writeCheck(a.stdout, rep, r.st)
+		session.WriteCheck(a.stdout, rep, r.Station)
 	}
 	if !rep.OK {
-		return &exitError{code: exitStationRefused, err: fmt.Errorf("station %s fixture %s refused: %s", r.st.Name, r.st.Fixture, strings.Join(rep.Faults, "; "))}
+		return &exitError{code: exitStationRefused, err: fmt.Errorf("station %s fixture %s refused: %s", r.Station.Name, r.Station.Fixture, strings.Join(rep.Faults, "; "))}
 	}
 	return nil
-}
-
-func fmtPF(p *float64) string {
-	if p == nil {
-		return "—"
-	}
-	return fmt.Sprintf("%.3f", *p)
-}
-
-func writeCheck(w io.Writer, rep session.CheckReport, st *session.Station) {
-	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
-	p("station check  %s / fixture %s   (%s, sha256 %.12s; plan timing of %s)", rep.Station, rep.Fixture, rep.StationFile, rep.StationHash, rep.Variant)
-	for _, c := range rep.References {
-		verdict := "ok"
-		if !c.OK {
-			verdict = "FAULT"
-		}
-		p("")
-		p("reference %s: trip %s pF ± %s (registered %.3f, allowed ±%.2f): deviation %s pF   %s   [%d searches, fixture time %.2f s]",
-			c.Serial, fmtPF(c.MeasuredPF), fmtPF(c.SEPF), c.TripPF, c.AllowedDevPF, fmtPF(c.DevPF), verdict, c.Searches, c.FixtureTime.Seconds())
-		for _, f := range c.Faults {
-			p("  fault: %s", f)
-		}
-		if c.Suspects != "" {
-			p("  suspects: %s", c.Suspects)
-		}
-	}
-	p("")
-	p("ladder self-test (all reference units)")
-	p("  rung  entered pF  status        how")
-	for _, f := range rep.Ladder {
-		p("  %4d  %10.2f  %-12s  %s", f.Rung, f.EnteredPF, f.Status, f.Test)
-	}
-	p("")
-	p("fixture time %.2f s for %d reference unit(s) (target < 30 s)", rep.FixtureS, len(rep.References))
-	if rep.OK {
-		var due []string
-		if n := st.Trust.CheckEveryUnits; n > 0 {
-			due = append(due, fmt.Sprintf("%d units", n))
-		}
-		if h := st.Trust.CheckEveryHours; h > 0 {
-			due = append(due, rep.Time.Add(time.Duration(h*float64(time.Hour))).Local().Format("15:04 Jan 2"))
-		}
-		next := ""
-		if len(due) > 0 {
-			next = "; next check due after " + strings.Join(due, " or at ")
-		}
-		p("PASSED (check %d): the station may test production units%s", rep.CheckID, next)
-		return
-	}
-	p("REFUSED (check %d): %s", rep.CheckID, strings.Join(rep.Faults, "; "))
-	p("'padline run' will test no production unit on fixture %s until a check passes. Repair the fixture (or correct the station file) and check again.", rep.Fixture)
 }

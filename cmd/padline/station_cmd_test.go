@@ -229,13 +229,13 @@ const driftPF = 0.5
 // enters that rung driftPF below its true value.
 func simCheck(t testing.TB, ctx context.Context, station string, drift int) session.CheckReport {
 	t.Helper()
-	r, err := (&app{}).openRig(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), true)
+	r, _, err := (&app{}).openRig(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), true)
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer r.close(ctx)
+	defer r.Close(ctx)
 	cfg := r.CheckConfig()
-	fx := r.fx
+	fx := r.Fixture
 	if drift >= 0 {
 		cfg.RungsPF = append([]float64(nil), cfg.RungsPF...)
 		cfg.RungsPF[drift] -= driftPF
@@ -243,17 +243,17 @@ func simCheck(t testing.TB, ctx context.Context, station string, drift int) sess
 		if err != nil {
 			t.Fatal(err)
 		}
-		if fx, err = fixture.New(r.line.Pins(), lad, fixture.Config{Operate: r.st.Ladder.Operate, Bounce: r.st.Ladder.Bounce, LatchDelay: session.LatchDelay}, r.clk); err != nil {
+		if fx, err = fixture.New(r.Line.Pins(), lad, fixture.Config{Operate: r.Station.Ladder.Operate, Bounce: r.Station.Ladder.Bounce, LatchDelay: session.LatchDelay}, r.Clock); err != nil {
 			t.Fatal(err)
 		}
 	}
 	var rep session.CheckReport
 	var total time.Duration
-	for _, ref := range r.st.Trust.References {
-		if err := r.load(ctx, ref.Serial, ref.SimDefects, ref.Serial); err != nil {
+	for _, ref := range r.Station.Trust.References {
+		if err := (&session.Loader{Rig: r.Rig}).Load(ctx, ref.Serial, ref.SimDefects, ref.Serial); err != nil {
 			t.Fatal(err)
 		}
-		res, err := sequences.CheckReference(ctx, fx, r.clk, ref.Reference, cfg)
+		res, err := sequences.CheckReference(ctx, fx, r.Clock, ref.Reference, cfg)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -289,17 +289,17 @@ func TestStationCheckHealthy1000(t *testing.T) {
 	maxLLR, maxDev := math.Inf(-1), 0.0
 	for seed := 1; seed <= seeds; seed++ {
 		path := stationVariant(t, nil, fmt.Sprintf("sim:\n  seed: %d\n", seed))
-		r, err := (&app{}).openRig(ctx, "QM-205", path, filepath.Join(t.TempDir(), "x.db"), true)
+		r, _, err := (&app{}).openRig(ctx, "QM-205", path, filepath.Join(t.TempDir(), "x.db"), true)
 		if err != nil {
 			t.Fatal(err)
 		}
 		cfg := r.CheckConfig()
-		refs := r.st.Trust.References
+		refs := r.Station.Trust.References
 		measure := func(ref session.StationRef) sequences.RefCheck {
-			if err := r.load(ctx, ref.Serial, ref.SimDefects, ref.Serial); err != nil {
+			if err := (&session.Loader{Rig: r.Rig}).Load(ctx, ref.Serial, ref.SimDefects, ref.Serial); err != nil {
 				t.Fatal(err)
 			}
-			res, err := sequences.CheckReference(ctx, r.fx, r.clk, ref.Reference, cfg)
+			res, err := sequences.CheckReference(ctx, r.Fixture, r.Clock, ref.Reference, cfg)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -315,16 +315,16 @@ func TestStationCheckHealthy1000(t *testing.T) {
 			reg := refs[i]
 			reg.AllowedDevPF = 50
 			for n := 2; ; n++ {
-				if err := r.line.ForceDefects(reg.Serial, reg.SimDefects...); err != nil {
+				if err := r.Line.ForceDefects(reg.Serial, reg.SimDefects...); err != nil {
 					t.Fatal(err)
 				}
-				if slices.Equal(r.line.Draw(reg.Serial).Truth().Defects, reg.SimDefects) {
+				if slices.Equal(r.Line.Draw(reg.Serial).Truth().Defects, reg.SimDefects) {
 					break
 				}
 				reg.Serial = fmt.Sprintf("%s-%d", refs[i].Serial, n)
 			}
 			refs[i].Serial = reg.Serial
-			reg.TripPF = r.line.Draw(reg.Serial).Truth().TripPF // a first estimate
+			reg.TripPF = r.Line.Draw(reg.Serial).Truth().TripPF // a first estimate
 			var sum float64
 			for range 10 {
 				res := measure(reg)
@@ -355,7 +355,7 @@ func TestStationCheckHealthy1000(t *testing.T) {
 				t.Errorf("seed %d shift %d: healthy station refused: %q", seed, shift, faults)
 			}
 		}
-		r.close(ctx)
+		r.Close(ctx)
 	}
 	t.Logf("%d checks of a healthy station: %d refused; slowest check %v of fixture time; largest stuck-rung log LR %.1f nats (named from %.1f); largest |deviation| %.2f of the allowance",
 		seeds*shifts, refused, worst, maxLLR, math.Log(1e6), maxDev)
@@ -373,7 +373,7 @@ func TestStationStudiesStatusAndLimits(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("grr: exit %d: %s", code, errs)
 	}
-	var grr studyReport
+	var grr session.StudyReport
 	if err := json.Unmarshal([]byte(out), &grr); err != nil || grr.GRR == nil {
 		t.Fatalf("grr json: %v\n%s", err, out)
 	}
@@ -431,7 +431,7 @@ func TestStationStudiesStatusAndLimits(t *testing.T) {
 	// Relay wear: the warning fraction applies to the persisted counts.
 	warn := stationVariant(t, map[string]string{"rated_operations: 1.0e9": "rated_operations: 100"}, "")
 	out, _, _ = runPadline(t, ctx, "", "station", "status", "--station", warn, "--db", db, "--json")
-	var st statusReport
+	var st session.StatusReport
 	if err := json.Unmarshal([]byte(out), &st); err != nil {
 		t.Fatal(err)
 	}

@@ -99,7 +99,16 @@ type proc struct {
 // (closed after it); with input == nil stdin is a pipe left open (p.stdin).
 func startPadline(t *testing.T, bin string, input *string, args ...string) *proc {
 	t.Helper()
+	return startPadlineEnv(t, bin, input, nil, args...)
+}
+
+// startPadlineEnv is startPadline with env added to the environment.
+func startPadlineEnv(t *testing.T, bin string, input *string, env []string, args ...string) *proc {
+	t.Helper()
 	p := &proc{cmd: exec.Command(bin, args...), lines: make(chan string, 1<<16), eof: make(chan struct{})}
+	if env != nil {
+		p.cmd.Env = append(os.Environ(), env...)
+	}
 	if input != nil {
 		p.cmd.Stdin = strings.NewReader(*input)
 	} else {
@@ -321,96 +330,115 @@ func serialRange(from, n int) []string {
 	return s
 }
 
-// slowVariant writes QM-205 with a plan that samples 1500 clock periods in
-// each of the clock, idle and release steps: a unit then takes a few
-// milliseconds of CPU instead of a fraction of one, so a signal sent just
-// after a verdict line lands inside the next unit's plan. 1500 periods stay
-// inside the 5 s step budget (station_setup.go session.PlanConfig) down to 300 Hz;
-// the slowest QM-205 clock corner is ≈ 400 Hz ('padline limits --variant QM-205').
-func slowVariant(t *testing.T) string {
+// holdAt starts 'padline run --json' on serials with the unit hold of
+// testhook.go at serial/step, and returns once the binary says it holds
+// that unit: the fixture is then powered, mid-test, and stays so until the
+// signal. No timer races the machine's load; the bound is only a hang
+// guard.
+func holdAt(t *testing.T, bin, db string, serials []string, serial string, step sequences.StepName) *proc {
 	t.Helper()
-	v, err := session.LoadVariant("QM-205")
-	if err != nil {
+	fifo := filepath.Join(t.TempDir(), "held")
+	if err := syscall.Mkfifo(fifo, 0o600); err != nil {
 		t.Fatal(err)
 	}
-	raw := string(v.Source.Raw) + "\nplan:\n  idle_periods: 1500\n  clock_periods: 1500\n  release_periods: 1500\n"
-	path := filepath.Join(t.TempDir(), "QM-205-slow.yaml")
-	if err := os.WriteFile(path, []byte(raw), 0o600); err != nil {
-		t.Fatal(err)
+	input := strings.Join(serials, "\n") + "\n"
+	p := startPadlineEnv(t, bin, &input, []string{"PADLINE_TEST_HOLD=" + serial + "/" + string(step), "PADLINE_TEST_HOLD_MARK=" + fifo},
+		"run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--json")
+	held := make(chan string, 1)
+	go func() {
+		f, err := os.Open(fifo) // blocks until the binary opens it to write
+		if err != nil {
+			held <- err.Error()
+			return
+		}
+		defer f.Close()
+		line, _ := bufio.NewReader(f).ReadString('\n')
+		held <- strings.TrimSpace(line)
+	}()
+	select {
+	case got := <-held:
+		if want := "held " + serial + " " + string(step); got != want {
+			p.wait(time.Minute)
+			t.Fatalf("hold marker %q, want %q", got, want)
+		}
+	case <-p.eof:
+		p.wait(time.Minute)
+		// Unblock the reader's open.
+		if f, err := os.OpenFile(fifo, os.O_WRONLY|syscall.O_NONBLOCK, 0); err == nil {
+			f.Close()
+		}
+		t.Fatalf("padline ended before holding %s at %s: %s", serial, step, p.stderr.String())
+	case <-time.After(2 * time.Minute):
+		_ = p.cmd.Process.Kill()
+		p.wait(time.Minute)
+		t.Fatalf("no hold of %s at %s within 2 minutes: %s", serial, step, p.stderr.String())
 	}
-	return path
+	return p
 }
 
-// TestSIGTERMMidUnit sends SIGTERM to 'padline run --json' just after a
-// verdict line, while the next unit is on the fixture. Every attempt must
-// exit 0 with exactly the printed runs in the log; the attempts whose signal
-// landed inside a unit must say so on stderr and log nothing of that unit.
+// TestSIGTERMMidUnit sends SIGTERM to 'padline run --json' while a unit is
+// held mid-test at a known step (testhook.go): after power-up, in the
+// middle of the plan and after the trip search, on the first, second and
+// fifth unit. Each must exit 0 with exactly the printed runs in the log,
+// say on stderr that the held unit was stopped with the fixture halted, and
+// log nothing of that unit.
 func TestSIGTERMMidUnit(t *testing.T) {
 	bin := padlineBinary(t)
-	variant := slowVariant(t)
-	serials := serialRange(1, 200)
-	input := strings.Join(serials, "\n") + "\n"
-	rng := rand.New(rand.NewPCG(2, 0x5157))
-	const wantHits, maxAttempts = 3, 100
-	hits, between := 0, 0
-	for attempt := 0; attempt < maxAttempts && hits < wantHits; attempt++ {
-		db := filepath.Join(t.TempDir(), fmt.Sprintf("shift-%d.db", attempt))
-		checkStation(t, db)
-		p := startPadline(t, bin, &input, "run", "--variant", variant, "--station", "demo-sim", "--db", db, "--json")
-		after := 1 + rng.IntN(3)
-		delay := time.Duration(rng.IntN(1000)) * time.Microsecond
-		if !p.waitLines(after) {
-			p.wait(time.Minute)
-			t.Fatalf("attempt %d: padline ended before %d lines: %s", attempt, after, p.stderr.String())
-		}
-		time.Sleep(delay)
-		if err := p.cmd.Process.Signal(syscall.SIGTERM); err != nil {
-			t.Fatal(err)
-		}
-		if !p.wait(time.Minute) {
-			t.Fatalf("attempt %d: still running a minute after SIGTERM", attempt)
-		}
-		stderr := p.stderr.String()
-		if code := p.cmd.ProcessState.ExitCode(); code != 0 {
-			t.Fatalf("attempt %d: exit %d after SIGTERM (signaled: %v)\nstderr:\n%s", attempt, code, p.signaled(syscall.SIGTERM), stderr)
-		}
-		if p.tail != "" || strings.Contains(stderr, "padline:") {
-			t.Fatalf("attempt %d: partial stdout line %q or an error on stderr:\n%s", attempt, p.tail, stderr)
-		}
-		runs := logRuns(t, db)
-		for i, s := range p.got {
-			u, err := parseUnitLine(s)
-			if err != nil {
-				t.Fatalf("attempt %d: %v", attempt, err)
+	serials := serialRange(1, 20)
+	for _, tc := range []struct {
+		unit int // 0-based index of the held unit
+		step sequences.StepName
+	}{
+		{0, sequences.StepPowerUp},
+		{1, sequences.StepIdle},
+		{4, sequences.StepTripSearch},
+	} {
+		held := serials[tc.unit]
+		t.Run(string(tc.step), func(t *testing.T) {
+			db := filepath.Join(t.TempDir(), "shift.db")
+			checkStation(t, db)
+			p := holdAt(t, bin, db, serials, held, tc.step)
+			if err := p.cmd.Process.Signal(syscall.SIGTERM); err != nil {
+				t.Fatal(err)
 			}
-			if u.Serial != serials[i] {
-				t.Fatalf("attempt %d: line %d is %s, want %s (units in scan order)", attempt, i, u.Serial, serials[i])
+			if !p.wait(time.Minute) {
+				t.Fatalf("still running a minute after SIGTERM")
 			}
-			if err := sameAsLogged(u, runs[u.ID]); err != nil {
-				t.Errorf("attempt %d: %v", attempt, err)
+			stderr := p.stderr.String()
+			if code := p.cmd.ProcessState.ExitCode(); code != 0 {
+				t.Fatalf("exit %d after SIGTERM (signaled: %v)\nstderr:\n%s", code, p.signaled(syscall.SIGTERM), stderr)
 			}
-		}
-		if len(runs) != len(p.got) {
-			t.Errorf("attempt %d: %d runs logged, %d verdicts printed", attempt, len(runs), len(p.got))
-		}
-		next := serials[len(p.got)]
-		if strings.Contains(stderr, "stopped: "+next+" was not finished") {
-			hits++
-			if !strings.Contains(stderr, "Fixture halted") {
-				t.Errorf("attempt %d: stop note does not say the fixture was halted:\n%s", attempt, stderr)
+			if p.tail != "" || strings.Contains(stderr, "padline:") {
+				t.Fatalf("partial stdout line %q or an error on stderr:\n%s", p.tail, stderr)
 			}
-			for _, e := range runs {
-				if e.Serial == next {
-					t.Errorf("attempt %d: the interrupted unit %s was logged as run %d", attempt, next, e.ID)
+			if len(p.got) != tc.unit {
+				t.Errorf("%d verdicts printed, want the %d units before the held one", len(p.got), tc.unit)
+			}
+			runs := logRuns(t, db)
+			for i, s := range p.got {
+				u, err := parseUnitLine(s)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if u.Serial != serials[i] {
+					t.Fatalf("line %d is %s, want %s (units in scan order)", i, u.Serial, serials[i])
+				}
+				if err := sameAsLogged(u, runs[u.ID]); err != nil {
+					t.Error(err)
 				}
 			}
-		} else {
-			between++
-		}
-	}
-	t.Logf("SIGTERM: %d stops inside a unit, %d between units or in a commit", hits, between)
-	if hits == 0 {
-		t.Fatalf("no SIGTERM in %d attempts landed inside a unit; the unit is too fast to catch (a real-time knob for the simulated clock would make this deterministic)", maxAttempts)
+			if len(runs) != len(p.got) {
+				t.Errorf("%d runs logged, %d verdicts printed", len(runs), len(p.got))
+			}
+			if !strings.Contains(stderr, "stopped: "+held+" was not finished") || !strings.Contains(stderr, "Fixture halted") {
+				t.Errorf("stderr does not say %s was stopped with the fixture halted:\n%s", held, stderr)
+			}
+			for _, e := range runs {
+				if e.Serial == held {
+					t.Errorf("the interrupted unit %s was logged as run %d", held, e.ID)
+				}
+			}
+		})
 	}
 }
 

@@ -8,6 +8,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
@@ -81,8 +82,13 @@ func TestCrashTortureText(t *testing.T) {
 			default:
 				t.Fatalf("start %d: unreadable verdict line %q", starts, s)
 			}
-			if i := strings.Index(s, "trip "); i >= 0 {
-				sh.trip = strings.Fields(s[i:])[1]
+			// "trip 31.78 pF (limits …)"; a unit without one says "no trip point".
+			if i := strings.Index(s, "   trip "); i >= 0 {
+				if x := strings.Fields(s[i:]); len(x) > 1 {
+					if _, err := strconv.ParseFloat(x[1], 64); err == nil {
+						sh.trip = x[1]
+					}
+				}
 			}
 			printed[f[0]] = sh
 			next++

@@ -116,7 +116,9 @@ func readStationTrust(d *doc, lad StationLadder) StationTrust {
 		}
 	}
 	tr.CheckEveryUnits = d.count("check_every_units", 1, 0)
-	tr.CheckEveryHours = d.positive("check_every_hours", false, 0)
+	// At most 30 days: a check schedule longer than that is a typo (and
+	// hours beyond ~2.5e6 overflow a time.Duration).
+	tr.CheckEveryHours = d.atMost("check_every_hours", d.positive("check_every_hours", false, 0), 720)
 	if f, ok := d.num("relay_warn_fraction", false, defaultRelayWarnFraction); ok {
 		if !(f > 0 && f <= 1) {
 			d.fail("relay_warn_fraction", "must be a fraction in (0, 1], got %g", f)

@@ -155,65 +155,6 @@ func TestConfigSizeCapAndKind(t *testing.T) {
 	}
 }
 
-// The lid must open between two units: a second serial scanned while the
-// first unit is still clamped (lid never opened) is not tested under it.
-func TestLidMustOpenBetweenUnits(t *testing.T) {
-	s := checkedDemo(t, session.Options{LidTimeout: 2 * time.Second})
-	ch, _ := s.Subscribe(1024)
-	serials := make(chan string)
-	done := make(chan error, 1)
-	go func() { done <- s.Run(context.Background(), session.ChanScanner(serials)) }()
-	serials <- "QM205-000001"
-	for e := range ch {
-		if e.Kind == session.KindVerdictCommitted {
-			break
-		}
-	}
-	// The operator leaves the tested unit in and the lid shut.
-	s.Rig().Line.Load("QM205-000001")
-	serials <- "QM205-000002"
-	var refused *session.ScanRefusal
-	var prompted bool
-	for e := range ch {
-		if e.Kind == session.KindLidWait && e.Scan.Prompt != "" {
-			prompted = true
-		}
-		if e.Kind == session.KindVerdictCommitted {
-			t.Fatalf("%s tested without the lid opening after the last unit", e.Verdict.Run.Serial)
-		}
-		if e.Kind == session.KindScanRefused {
-			refused = e.ScanRefused
-			break
-		}
-	}
-	close(serials)
-	if err := <-done; err != nil {
-		t.Fatal(err)
-	}
-	if refused == nil || !errors.Is(refused.Err, session.ErrLidNotOpened) || !prompted {
-		t.Fatalf("refusal %+v, prompted %v; want ErrLidNotOpened after a prompt to open the lid", refused, prompted)
-	}
-	// Opened and closed again: the next scan is tested.
-	s.Rig().Line.Unload()
-	in := make(chan string, 1)
-	in <- "QM205-000002"
-	close(in)
-	ch2, _ := s.Subscribe(1024)
-	if err := s.Run(context.Background(), session.ChanScanner(in)); err != nil {
-		t.Fatal(err)
-	}
-	_ = s.Close()
-	n := 0
-	for e := range ch2 {
-		if e.Kind == session.KindVerdictCommitted {
-			n++
-		}
-	}
-	if n != 1 {
-		t.Fatalf("%d verdicts after the lid opened, want 1", n)
-	}
-}
-
 // A barcode scanner may end a read with CR, LF or CR LF; a line over 1 MiB
 // is refused and the next line is still read.
 func TestLineScannerLineEnds(t *testing.T) {
@@ -282,5 +223,37 @@ func TestNamesCleaned(t *testing.T) {
 	}
 	if s, err := session.CleanName("operator", "  José  "); err != nil || s != "José" {
 		t.Errorf("CleanName(José) = %q, %v", s, err)
+	}
+}
+
+// The step budget derives from the plan: a 6 s power settle (allowed up to
+// 60 s) no longer makes every unit a station fault under a fixed 5 s budget.
+func TestStepBudgetFromPlan(t *testing.T) {
+	raw, err := os.ReadFile("../../testdata/variants/QM-205.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	v := filepath.Join(t.TempDir(), "QM-205.yaml")
+	if err := os.WriteFile(v, append(raw, []byte("plan:\n  power_settle_ms: 6000\n")...), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	o := session.Options{Variant: v, Station: "demo-sim", ShiftLog: filepath.Join(t.TempDir(), "shift.db")}
+	s, err := session.Open(context.Background(), o)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	if rep, err := s.Check(context.Background()); err != nil || !rep.OK {
+		t.Fatalf("check %+v %v", rep, err)
+	}
+	ch, _ := s.Subscribe(1024)
+	if err := s.Run(context.Background(), session.OneSerial("QM205-000001")); err != nil {
+		t.Fatal(err)
+	}
+	s.Close()
+	for e := range ch {
+		if e.Kind == session.KindVerdictCommitted && e.Verdict.Run.Verdict == sequences.StationFault {
+			t.Fatalf("station fault with a 6 s settle: %s", e.Verdict.StationError)
+		}
 	}
 }

@@ -2,6 +2,7 @@ package session
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"path/filepath"
 	"sync/atomic"
@@ -74,5 +75,41 @@ func TestUnwritableLogHoldsRun(t *testing.T) {
 	defer db.Close()
 	if tested, _, err := db.PriorRuns(ctx, "QM205-000001"); err != nil || tested != 1 {
 		t.Fatalf("%d runs of the unit in the log (%v), want 1", tested, err)
+	}
+}
+
+// The lid must open between two units: a serial scanned while the last
+// tested unit is still clamped (lid never opened) is refused after a
+// prompt; once the lid has opened (seen even while waiting for the scan)
+// the next unit goes on.
+func TestLidMustOpenBetweenUnits(t *testing.T) {
+	ctx := context.Background()
+	s, err := Open(ctx, Options{Variant: "QM-205", Station: "demo-sim", ShiftLog: filepath.Join(t.TempDir(), "shift.db"), LidTimeout: 2 * time.Second})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	ch, _ := s.Subscribe(64)
+	s.rig.Line.Load("QM205-000001") // the tested unit stays in, lid shut
+	s.needOpen.Store(true)
+	if err := s.lidOpened(ctx, "QM205-000002"); !errors.Is(err, ErrLidNotOpened) {
+		t.Fatalf("next unit with the lid never opened: %v, want ErrLidNotOpened", err)
+	}
+	if e := <-ch; e.Kind != KindLidWait || e.Scan.Prompt == "" {
+		t.Errorf("event %s %+v, want a lid_wait asking to open the lid", e.Kind, e.Scan)
+	}
+	s.rig.Line.Unload() // the operator opens the lid while the station waits for a scan
+	stop := s.watchLid()
+	deadline := time.Now().Add(5 * time.Second)
+	for s.needOpen.Load() && time.Now().Before(deadline) {
+		time.Sleep(10 * time.Millisecond)
+	}
+	stop()
+	if s.needOpen.Load() {
+		t.Fatal("the lid opened while waiting for a scan, not seen")
+	}
+	s.rig.Line.Load("QM205-000002")
+	if err := s.lidOpened(ctx, "QM205-000002"); err != nil {
+		t.Fatalf("after the lid opened: %v", err)
 	}
 }

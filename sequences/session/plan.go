@@ -31,14 +31,16 @@ func PlanConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 		return sequences.PlanConfig{}, fmt.Errorf("variant %s: test limits %.2f … %.2f pF leave nothing to pass: see 'padline limits --variant %s'",
 			v.Name, rep.TestLimits.Low, rep.TestLimits.High, v.Name)
 	}
+	period := time.Duration(math.Ceil(1e9 / rep.Clock.CornerLow))
+	settle := time.Duration(p.PowerSettleMS * float64(time.Millisecond))
 	cfg := sequences.PlanConfig{
-		PowerSettle:    time.Duration(p.PowerSettleMS * float64(time.Millisecond)),
+		PowerSettle:    settle,
 		IdlePeriods:    p.IdlePeriods,
 		ReleasePeriods: p.ReleasePeriods,
 		// Without a clock pin a sample waits the slowest period a good
 		// unit can have, so every wait spans at least one latch update.
-		Period:      time.Duration(math.Ceil(1e9 / rep.Clock.CornerLow)),
-		StepTimeout: 5 * time.Second,
+		Period:      period,
+		StepTimeout: StepBudget(settle, period, max(p.IdlePeriods, p.ReleasePeriods+2, p.ClockPeriods+4)),
 		FoldChecks:  fold,
 		Search: sequences.SearchOptions{
 			Strategy:         sequences.Strategy(strategy),
@@ -61,6 +63,21 @@ func PlanConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 // SearchLaplace names the earlier plan for --search: separate clock, idle
 // and release steps and the Laplace refinement.
 const SearchLaplace = "laplace"
+
+// baseStepBudget is the fixed part of every step's budget: the trip
+// search's probes and the fixture's own waits (common practice, no source:
+// well above the slowest search the demo line shows).
+const baseStepBudget = 5 * time.Second
+
+// StepBudget is each step's fixture-time budget, derived from the plan: the
+// fixed part plus twice the longest step the plan asks for (the power
+// settle, or the most clock periods one step samples at the slowest good
+// clock), so a plan with a long settle or many periods is not failed as a
+// station fault, and a stuck step still ends.
+func StepBudget(settle, period time.Duration, periods int) time.Duration {
+	longest := max(settle, time.Duration(periods)*period)
+	return baseStepBudget + 2*longest
+}
 
 // StatedUncertainty is the guard band a station applies: its own stated uncertainty,
 // else the documented stand-in.

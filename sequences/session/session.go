@@ -45,6 +45,12 @@ type Options struct {
 	InputEndIsError bool
 	// Now is the wall clock (default time.Now); tests inject one.
 	Now func() time.Time
+	// AfterStep, when not nil, runs on the unit's goroutine after each
+	// plan step's KindStepFinished, before the next step: the unit waits
+	// while it runs. ctx is the unit's (it ends when the session is
+	// stopped). A test hook: it holds a unit at a known step so a stop
+	// lands inside the unit without racing a timer.
+	AfterStep func(ctx context.Context, step *StepDone)
 }
 
 // Scanner is where a session's serials come from: a barcode scanner on
@@ -423,6 +429,9 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 			e.Error = d.Err.Error()
 		}
 		s.emit(Event{Kind: KindStepFinished, Step: e})
+		if s.opts.AfterStep != nil {
+			s.opts.AfterStep(ctx, e)
+		}
 	}
 	oc, err := s.seq.Test(ctx, serial)
 	unload()

@@ -3,6 +3,7 @@ package session
 import (
 	"fmt"
 	"math"
+	"strings"
 	"time"
 
 	"padline/fixture"
@@ -125,7 +126,9 @@ func spread(v timing.Value) sim.Spread {
 // place the variant file and the simulator meet; the simulator computes its
 // own physics from these component values.
 func UnitModel(v *Variant, s StationSim) sim.UnitModel {
-	c := v.Circuit
+	// The simulator takes one value per input: a supply table is read at the
+	// nominal supply (Validate has checked that it covers it).
+	c, _ := v.Circuit.AtSupply(v.Circuit.SupplyV.Typ)
 	return sim.UnitModel{
 		SupplyV: spread(c.SupplyV), OscR: spread(c.OscROhm), OscC: spread(c.OscCF),
 		VTPosFrac: spread(c.VtPosFrac), VTNegFrac: spread(c.VtNegFrac),
@@ -181,4 +184,11 @@ func NewFixture(st *Station, pins fixture.Pins, clk fixture.Clock) (*fixture.Fix
 		return nil, fmt.Errorf("station %s: fixture: %w", st.Source.Name, err)
 	}
 	return fx, nil
+}
+
+// DemoSerial is serial number i (from 1) of the variant's simulated units:
+// the variant name without dashes, a dash and six digits (QM-205, 1 →
+// QM205-000001).
+func DemoSerial(v *Variant, i int) string {
+	return fmt.Sprintf("%s-%06d", strings.ReplaceAll(v.Name, "-", ""), i)
 }

@@ -85,6 +85,15 @@ type StationTrust struct {
 // maxRungs is the most rungs a ladder may have (DEVELOPERS.md "Fixture").
 const maxRungs = 12
 
+// Plausible ranges of a station file's numbers (common practice, no
+// source): a touch-pad ladder's rungs and stray are tens of pF, so 1,000 pF
+// is a typo; an uncertainty of a tenth of a pF is usual, 10 pF would accept
+// anything.
+const (
+	maxPlausiblePF   = 1000.0
+	maxUncertaintyPF = 10.0
+)
+
 // LoadStation resolves ref (a file path, or a built-in station name such as
 // demo-sim) and parses it.
 func LoadStation(ref string) (*Station, error) {
@@ -158,6 +167,9 @@ func parseStation(src Source) (*Station, error) {
 				if c <= 0 {
 					d.fail(fmtIndex("ladder.rungs_pf", i), "must be > 0, got %g", c)
 				}
+				if c > maxPlausiblePF {
+					d.fail(fmtIndex("ladder.rungs_pf", i), "%g pF is not a touch-pad ladder rung (at most %g pF)", c, maxPlausiblePF)
+				}
 				// Each rung is measured on its own: two identical readings
 				// are almost always one line pasted twice.
 				if j := slices.Index(l.RungsPF[:i], c); j >= 0 {
@@ -165,21 +177,21 @@ func parseStation(src Source) (*Station, error) {
 				}
 			}
 		}
-		l.StrayPF = d.nonNegative("ladder.stray_pf", true, 0)
+		l.StrayPF = d.atMost("ladder.stray_pf", d.nonNegative("ladder.stray_pf", true, 0), maxPlausiblePF)
 		l.Operate = msDuration(d.atMost("ladder.operate_ms", d.positive("ladder.operate_ms", true, 0), maxRelayMS))
 		l.Bounce = msDuration(d.atMost("ladder.bounce_ms", d.nonNegative("ladder.bounce_ms", true, 0), maxRelayMS))
 		if l.Operate <= 0 && d.err == nil {
 			d.fail("ladder.operate_ms", "must be at least 1 µs")
 		}
-		l.RatedOperations = d.positive("ladder.rated_operations", true, 0)
+		l.RatedOperations = d.atMost("ladder.rated_operations", d.positive("ladder.rated_operations", true, 0), 1e12)
 		// > 0: no LCR meter reads a rung exactly, and the reference check
 		// takes this as the levels' calibration uncertainty.
-		l.CalUncertaintyPF = d.positive("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF)
+		l.CalUncertaintyPF = d.atMost("ladder.cal_uncertainty_pf", d.positive("ladder.cal_uncertainty_pf", false, defaultCalUncertaintyPF), maxUncertaintyPF)
 	}
 	s.Trust = readStationTrust(d, s.Ladder)
 	s.Badges = readStationBadges(d)
 	s.Sim = readStationSim(d)
-	s.UncertaintyPF = d.positive("uncertainty_pf", false, 0)
+	s.UncertaintyPF = d.atMost("uncertainty_pf", d.positive("uncertainty_pf", false, 0), maxUncertaintyPF)
 	s.Sites = readStationSites(d, s)
 	if err := d.finish(); err != nil {
 		return nil, err

@@ -109,6 +109,7 @@ func parseVariant(src Source) (*Variant, error) {
 		v.Serial = re
 	}
 	c := &v.Circuit
+	tabled := readBySupply(d, c)
 	c.SupplyV = d.toleranced("supply_v", mustBePositive)
 	if d.section("oscillator", true) {
 		c.OscROhm = d.toleranced("oscillator.r_ohm", mustBePositive)
@@ -125,13 +126,14 @@ func parseVariant(src Source) (*Variant, error) {
 		c.InputPF = d.toleranced("sense.input_pf", mustBePositive)
 	}
 	if d.section("clock_path", true) {
-		c.DelayNS = d.toleranced("clock_path.delay_ns", mustBePositive)
-		c.SetupNS = d.toleranced("clock_path.setup_ns", mayBeZero)
-		if d.err == nil && c.SetupNS.Typ >= c.DelayNS.Typ {
+		c.DelayNS = d.tolerancedUnless("clock_path.delay_ns", "delay_ns", mustBePositive, tabled)
+		c.SetupNS = d.tolerancedUnless("clock_path.setup_ns", "setup_ns", mayBeZero, tabled)
+		if d.err == nil && c.BySupply == nil && c.SetupNS.Typ >= c.DelayNS.Typ {
 			d.fail("clock_path.setup_ns", "typ %g must be below clock_path.delay_ns typ %g: the nominal unit could never trip", c.SetupNS.Typ, c.DelayNS.Typ)
 		}
 	}
-	c.ThresholdFrac = d.toleranced("threshold_frac", mustBeFraction)
+	c.ThresholdFrac = d.tolerancedUnless("threshold_frac", "threshold_frac", mustBeFraction, tabled)
+	readGate(d, c, tabled)
 	if d.section("spec", true) {
 		v.Spec.NoTripAtPF = d.nonNegative("spec.no_trip_at_pf", true, 0)
 		v.Spec.TripByPF = d.positive("spec.trip_by_pf", true, 0)
@@ -151,6 +153,11 @@ func parseVariant(src Source) (*Variant, error) {
 	return v, nil
 }
 
+// maxPlanPeriods bounds the clock periods one step samples: 10,000 periods
+// take 25 s at the slowest good QM-205 clock (≈ 400 Hz, 'padline limits'),
+// far beyond any plan that fits a production takt.
+const maxPlanPeriods = 10000
+
 // readPlan reads the optional plan section.
 func readPlan(d *doc) PlanSection {
 	p := DefaultPlanSection()
@@ -161,6 +168,11 @@ func readPlan(d *doc) PlanSection {
 	p.IdlePeriods = d.count("plan.idle_periods", 1, p.IdlePeriods)
 	p.ClockPeriods = d.count("plan.clock_periods", 1, p.ClockPeriods)
 	p.ReleasePeriods = d.count("plan.release_periods", 1, p.ReleasePeriods)
+	for key, n := range map[string]int{"plan.idle_periods": p.IdlePeriods, "plan.clock_periods": p.ClockPeriods, "plan.release_periods": p.ReleasePeriods} {
+		if n > maxPlanPeriods {
+			d.fail(key, "%d clock periods: at most %d (a step of seconds per unit; more is a typo)", n, maxPlanPeriods)
+		}
+	}
 	if d.section("plan.search", false) {
 		s := &p.Search
 		if d.has("plan.search.strategy") {

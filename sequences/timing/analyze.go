@@ -122,9 +122,66 @@ type Report struct {
 	Predicted  Capability `json:"predicted"`
 	Draws      int        `json:"draws"`
 	Seed       uint64     `json:"seed"`
+	// Gate summarises the gate effects the model includes at the nominal
+	// point and how long the race is against the clock edge.
+	Gate GateStats `json:"gate"`
+	// Sensitivity ranks the toleranced inputs by how far each alone moves
+	// the trip point across its tolerance (largest first).
+	Sensitivity []Sensitivity `json:"sensitivity"`
 	// Warnings are plain sentences for the test engineer; empty when the
 	// design comfortably meets its spec window.
 	Warnings []string `json:"warnings"`
+}
+
+// GateStats are the nominal gate figures and the race they act on.
+type GateStats struct {
+	// ROhm and EdgeNS are the nominal gate output resistance and 10–90 %
+	// clock edge time.
+	ROhm   float64 `json:"r_out_ohm"`
+	EdgeNS float64 `json:"edge_ns"`
+	// RaceNS is t_d − t_su at the nominal point: from CK crossing the clock
+	// path's threshold to the effective sample.
+	RaceNS float64 `json:"race_ns"`
+	// RaceEdges is RaceNS/EdgeNS (0 with an ideal edge).
+	RaceEdges float64 `json:"race_edges"`
+	// ShortRace is true when the race lasts fewer than ShortRaceEdges edge
+	// times.
+	ShortRace bool `json:"short_race"`
+	// IdealTripPF is the nominal trip point with ideal gates (R_g = 0 and
+	// an ideal step), for comparison with Trip.Nominal.
+	IdealTripPF float64 `json:"ideal_trip_pf"`
+	// IdealClockHz is the nominal clock with an ideal gate.
+	IdealClockHz float64 `json:"ideal_clock_hz"`
+	// BySupply lists the inputs taken from the supply table (sorted).
+	BySupply []string `json:"by_supply"`
+}
+
+// ShortRaceEdges is the race length, in clock edge times, below which
+// Analyze warns: with a race of a few edges the node's decay and the
+// clock's switching overlap, and a linear ramp and a single switching
+// threshold are the model's least trustworthy assumptions. Ten is common
+// practice for "an edge is fast against the interval", no source.
+const ShortRaceEdges = 10
+
+// Sensitivity is one input's share of the trip point's spread: the partial
+// derivative ∂trip/∂input at the nominal point (a central difference) times
+// the input's tolerance: 3·SD when the value states its SD (the spread the
+// Monte Carlo draws), else the half range (Max − Min)/2 (3σ by the
+// convention of [Normal]).
+type Sensitivity struct {
+	Input string `json:"input"`
+	Unit  string `json:"unit"`
+	// PerUnit is ∂trip/∂input in pF per unit of the input.
+	PerUnit float64 `json:"dtrip_dinput"`
+	// Tol is the input's tolerance at the nominal supply: 3·SD when the value
+	// states an SD, else (Max − Min)/2.
+	Tol float64 `json:"tolerance"`
+	// PF is PerUnit × Tol: how far the input alone moves the trip point
+	// from nominal to either end of its tolerance, to first order (signed).
+	PF float64 `json:"trip_pf"`
+	// Share is PF² over the sum of all PF² (the input's share of a
+	// root-sum-square spread).
+	Share float64 `json:"share"`
 }
 
 // Analyze predicts the trip point and clock of circuit c over its tolerances
@@ -163,6 +220,12 @@ func Analyze(c Circuit, spec Spec, opt Options) (Report, error) {
 	}
 	rep.Trip.Nominal = trip
 	rep.Clock.HighS, rep.Clock.LowS, rep.Clock.Nominal = Oscillator(nom)
+	if rep.Gate, err = gateStats(c, nom); err != nil {
+		return Report{}, err
+	}
+	if rep.Sensitivity, err = sensitivity(c); err != nil {
+		return Report{}, err
+	}
 
 	cs, err := corners(c)
 	if err != nil {
@@ -214,6 +277,10 @@ func Analyze(c Circuit, spec Spec, opt Options) (Report, error) {
 func warnings(r Report) []string {
 	var w []string
 	t, s := r.Trip, r.Spec
+	if g := r.Gate; g.ShortRace {
+		w = append(w, fmt.Sprintf("the race lasts %.0f ns, only %.1f clock edge times (edge %.0f ns): the closed form is least trustworthy when the race is under %d edges; measure units on the bench before trusting these limits",
+			g.RaceNS, g.RaceEdges, g.EdgeNS, ShortRaceEdges))
+	}
 	if t.NoTripCorners > 0 {
 		w = append(w, fmt.Sprintf("at %d of %d worst-case corners the unit cannot trip (the flip-flop samples before the sense node can fall, e.g. setup ≥ delay): a unit built at such a corner latches whatever the pad carries and fails idle_latched", t.NoTripCorners, t.Corners))
 	}
@@ -262,47 +329,170 @@ type cornerSet struct {
 }
 
 // corners evaluates trip point and clock at every Min/Max combination of the
-// toleranced inputs and returns their extremes. A corner at which the unit
-// cannot trip (ErrNoTrip) is counted, not an error; when no corner trips
-// the trip extremes are NaN.
+// toleranced inputs and returns their extremes. With a supply table the
+// supply's corners are its Min, its Max and every table row in between (the
+// interpolated inputs bend there), and the other inputs take their Min/Max
+// at that supply. A corner at which the unit cannot trip (ErrNoTrip) is
+// counted, not an error; when no corner trips it is an error.
 func corners(c Circuit) (cornerSet, error) {
-	vs := c.values()
-	var idx []int
-	for i, v := range vs {
-		if v.toleranced() {
-			idx = append(idx, i)
-		}
-	}
 	tLo, fLo := math.Inf(1), math.Inf(1)
 	tHi, fHi := math.Inf(-1), math.Inf(-1)
-	noTrip := 0
-	p := c.Nominal()
-	fs := p.fields()
-	for mask := 0; mask < 1<<len(idx); mask++ {
-		for b, i := range idx {
-			if mask&(1<<b) != 0 {
-				*fs[i] = vs[i].Max
-			} else {
-				*fs[i] = vs[i].Min
+	n, noTrip := 0, 0
+	for _, s := range supplyCorners(c) {
+		vs, err := c.valuesAt(s)
+		if err != nil {
+			return cornerSet{}, err
+		}
+		var idx []int
+		for i, v := range vs {
+			if i != inSupply && v.toleranced() {
+				idx = append(idx, i)
 			}
 		}
-		_, _, f := Oscillator(p)
-		fLo, fHi = math.Min(fLo, f), math.Max(fHi, f)
-		t, err := TripPF(p)
-		if errors.Is(err, ErrNoTrip) {
-			noTrip++
-			continue
+		var p Point
+		fs := p.fields()
+		for i := range vs {
+			*fs[i] = vs[i].Typ
 		}
-		if err != nil {
-			return cornerSet{}, fmt.Errorf("corner %s: %w", describe(p), err)
+		p.SupplyV = s
+		for mask := 0; mask < 1<<len(idx); mask++ {
+			for b, i := range idx {
+				if mask&(1<<b) != 0 {
+					*fs[i] = vs[i].Max
+				} else {
+					*fs[i] = vs[i].Min
+				}
+			}
+			n++
+			_, _, f := Oscillator(p)
+			fLo, fHi = math.Min(fLo, f), math.Max(fHi, f)
+			t, err := TripPF(p)
+			if errors.Is(err, ErrNoTrip) {
+				noTrip++
+				continue
+			}
+			if err != nil {
+				return cornerSet{}, fmt.Errorf("corner %s: %w", describe(p), err)
+			}
+			tLo, tHi = math.Min(tLo, t), math.Max(tHi, t)
 		}
-		tLo, tHi = math.Min(tLo, t), math.Max(tHi, t)
 	}
-	n := 1 << len(idx)
 	if noTrip == n {
 		return cornerSet{}, fmt.Errorf("%w: the unit cannot trip at any worst-case corner", ErrNoTrip)
 	}
 	return cornerSet{tLo: tLo, tHi: tHi, fLo: fLo, fHi: fHi, n: n, noTrip: noTrip}, nil
+}
+
+// supplyCorners returns the supplies corners visits.
+func supplyCorners(c Circuit) []float64 {
+	s := c.SupplyV
+	if !s.toleranced() {
+		return []float64{s.Typ}
+	}
+	out := []float64{s.Min}
+	if c.BySupply != nil {
+		for _, v := range c.BySupply.SupplyV {
+			if v > s.Min && v < s.Max {
+				out = append(out, v)
+			}
+		}
+	}
+	return append(out, s.Max)
+}
+
+// gateStats fills the report's gate summary at the nominal point.
+func gateStats(c Circuit, nom Point) (GateStats, error) {
+	g := GateStats{ROhm: nom.GateROhm, EdgeNS: nom.EdgeNS, RaceNS: RaceS(nom) * 1e9, BySupply: []string{}}
+	if nom.EdgeNS > 0 {
+		g.RaceEdges = g.RaceNS / nom.EdgeNS
+		g.ShortRace = g.RaceEdges < ShortRaceEdges
+	}
+	ideal := nom
+	ideal.GateROhm, ideal.EdgeNS = 0, 0
+	t, err := TripPF(ideal)
+	if err != nil {
+		return g, fmt.Errorf("nominal trip with ideal gates: %w", err)
+	}
+	g.IdealTripPF = t
+	_, _, g.IdealClockHz = Oscillator(ideal)
+	if c.BySupply != nil {
+		g.BySupply = c.BySupply.names()
+	}
+	return g, nil
+}
+
+// sensitivity ranks the toleranced inputs by |∂trip/∂input × tolerance|. The derivative is a central difference of ±1 % of the
+// tolerance around the nominal point; moving the supply moves the table's
+// inputs with it (their Typ follows the supply).
+func sensitivity(c Circuit) ([]Sensitivity, error) {
+	vs, err := c.valuesAt(c.SupplyV.Typ)
+	if err != nil {
+		return nil, err
+	}
+	nom := c.Nominal()
+	out := []Sensitivity{}
+	sum := 0.0
+	for i, v := range vs {
+		if !v.toleranced() {
+			continue
+		}
+		h := (v.Max - v.Min) / 100
+		at := func(x float64) (float64, error) {
+			p := nom
+			if i == inSupply {
+				q := c.Nominal()
+				at, err := c.valuesAt(x)
+				if err != nil {
+					return 0, err
+				}
+				fs := q.fields()
+				for k := range at {
+					*fs[k] = at[k].Typ
+				}
+				q.SupplyV = x
+				p = q
+			} else {
+				*p.fields()[i] = x
+			}
+			return TripPF(p)
+		}
+		lo, hi := math.Max(v.Typ-h, v.Min), math.Min(v.Typ+h, v.Max)
+		tLo, err := at(lo)
+		if err != nil {
+			return nil, fmt.Errorf("sensitivity to %s: %w", inputNames[i], err)
+		}
+		tHi, err := at(hi)
+		if err != nil {
+			return nil, fmt.Errorf("sensitivity to %s: %w", inputNames[i], err)
+		}
+		d := (tHi - tLo) / (hi - lo)
+		s := Sensitivity{Input: inputNames[i], Unit: inputUnits[i], PerUnit: d, Tol: (v.Max - v.Min) / 2}
+		if v.SD > 0 && dist(v) == Normal {
+			s.Tol = 3 * v.SD
+		}
+		s.PF = d * s.Tol
+		sum += s.PF * s.PF
+		out = append(out, s)
+	}
+	for k := range out {
+		if sum > 0 {
+			out[k].Share = out[k].PF * out[k].PF / sum
+		}
+	}
+	slices.SortStableFunc(out, func(a, b Sensitivity) int {
+		return cmpFloat(math.Abs(b.PF), math.Abs(a.PF))
+	})
+	return out, nil
+}
+
+func cmpFloat(a, b float64) int {
+	switch {
+	case a < b:
+		return -1
+	case a > b:
+		return 1
+	}
+	return 0
 }
 
 // describe names a point's values for an error message.
@@ -322,14 +512,19 @@ func describe(p Point) string {
 // draw, and the number of draws that never trip.
 func monteCarlo(c Circuit, n int, seed uint64) (trips, hz []float64, noTrip int) {
 	r := rand.New(rand.NewPCG(seed, 0x7061646c696e65)) // "padline"
-	vs := c.values()
+	plain := c.values()
 	trips = make([]float64, 0, n)
 	hz = make([]float64, n)
 	var p Point
 	fs := p.fields()
 	for k := range n {
-		for i, v := range vs {
-			*fs[i] = v.Draw(r)
+		p.SupplyV = plain[inSupply].Draw(r)
+		vs := plain
+		if c.BySupply != nil {
+			vs, _ = c.valuesAt(p.SupplyV) // Validate checked the table covers every supply
+		}
+		for i := inSupply + 1; i < numInputs; i++ {
+			*fs[i] = vs[i].Draw(r)
 		}
 		_, _, hz[k] = Oscillator(p)
 		t, err := TripPF(p)

@@ -3,7 +3,12 @@
 // circuit values, the Schmitt RC oscillator, the sense-node race and its trip
 // capacitance, worst-case corners, a seeded Monte Carlo, the spec window, the
 // ISO 14253-1 guard band and the resulting test limits, and the design's
-// predicted Cpk and yield.
+// predicted Cpk and yield. Gates need not be ideal: an output resistance in
+// series with R_o and R_s, a ramped clock edge whose (loaded) threshold
+// crossing starts the race, and figures by supply voltage ([SupplyTable]);
+// [Report] ranks the inputs by their effect on the trip point and warns when
+// the race lasts only a few edge times. The package spicecheck below this
+// one cross-checks the model against ngspice.
 //
 // It is pure: no I/O, no clocks, no configuration. It must not import any
 // other padline package (and in particular fixture/sim must not import it:

@@ -221,6 +221,7 @@ func panel(c drift.Chart, o Options, first bool, columns int) (*plot.Plot, plot.
 	pad := 0.12 * (hi - lo)
 	p.Y.Min, p.Y.Max = lo-pad, hi+pad
 	p.X.Min, p.X.Max = 0.5, float64(n)+0.5
+	p.X.Tick.Marker = wholeTicks{}
 
 	// Baseline window, shaded.
 	if c.Base.Len() > 0 {
@@ -407,4 +408,18 @@ func addAlarms(p *plot.Plot, leg *plot.Legend, c drift.Chart) error {
 		p.Add(lb)
 	}
 	return nil
+}
+
+// wholeTicks are plot.DefaultTicks labelled as whole numbers (unit 250,
+// not 250.00).
+type wholeTicks struct{}
+
+func (wholeTicks) Ticks(min, max float64) []plot.Tick {
+	t := plot.DefaultTicks{}.Ticks(min, max)
+	for i := range t {
+		if t[i].Label != "" {
+			t[i].Label = strconv.FormatFloat(math.Round(t[i].Value), 'f', 0, 64)
+		}
+	}
+	return t
 }

@@ -1,8 +1,8 @@
-package main
+package demo
 
 import (
 	"context"
-	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"maps"
@@ -41,8 +41,8 @@ func demoPanelStation(sites int, seed uint64) (*session.Station, error) {
 	return st, nil
 }
 
-// demoSite is one site's result in the panel demo, beside its truth.
-type demoSite struct {
+// Site is one site's result in the panel demo, beside its truth.
+type Site struct {
 	Panel      string   `json:"panel"`
 	Site       int      `json:"site"`
 	Serial     string   `json:"serial"`
@@ -53,8 +53,8 @@ type demoSite struct {
 	Defects    []string `json:"defects"`
 }
 
-// demoPanelSummary is the panel demo's summary.
-type demoPanelSummary struct {
+// PanelSummary is the panel demo's summary.
+type PanelSummary struct {
 	Summary         bool                        `json:"summary"`
 	Sites           int                         `json:"sites"`
 	Ganged          bool                        `json:"ganged"`
@@ -74,20 +74,36 @@ type demoPanelSummary struct {
 	CPUPerSiteMS    float64                     `json:"cpu_ms_per_site"`
 }
 
-// demoPanel is 'padline demo --panel N': a simulated shift of panels.
-func (a *app) demoPanel(ctx context.Context, o demoOptions) error {
-	if o.panel < 2 || o.panel > sim.MaxSites {
-		return fmt.Errorf("demo: --panel %d: want 2 to %d sites", o.panel, sim.MaxSites)
+// PanelResult is a finished panel demo.
+type PanelResult struct {
+	Variant *session.Variant
+	Station *session.Station
+	Limits  sequences.Limits
+	DBPath  string
+	Kept    bool // false: DBPath was a temporary log, removed by now
+	Sites   []Site
+	Summary PanelSummary
+}
+
+// RunPanel is 'padline demo --panel N': a simulated shift of panels, one
+// run per site in the shift log, with the same serials tested alone on the
+// single-unit demo station for comparison.
+func RunPanel(ctx context.Context, o Options) (*PanelResult, error) {
+	if o.Compare || o.Drift.At != 0 || o.Drift.RampPF != 0 || o.Station != "demo-sim" {
+		return nil, errors.New("demo: --panel runs on the built-in demo panel station; it takes --units, --seed, --db, --search, --own-ladders and --json")
 	}
-	v, err := session.LoadVariant(o.variant)
+	if o.Panel < 2 || o.Panel > sim.MaxSites {
+		return nil, fmt.Errorf("demo: --panel %d: want 2 to %d sites", o.Panel, sim.MaxSites)
+	}
+	v, err := session.LoadVariant(o.Variant)
 	if err != nil {
-		return err
+		return nil, err
 	}
-	st, err := demoPanelStation(o.panel, o.seed)
+	st, err := demoPanelStation(o.Panel, o.Seed)
 	if err != nil {
-		return err
+		return nil, err
 	}
-	if o.ownLadders {
+	if o.OwnLadders {
 		st.Sites.Ganged = false
 		for i := range st.Sites.List {
 			for r := range st.Sites.List[i].RungsPF {
@@ -96,49 +112,65 @@ func (a *app) demoPanel(ctx context.Context, o demoOptions) error {
 		}
 	}
 	u, uFrom := session.StatedUncertainty(st)
-	r, err := session.NewPanelRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: o.search})
+	r, err := session.NewPanelRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: o.Search})
 	if err != nil {
-		return err
+		return nil, err
 	}
 	defer r.Halt()
-	dbPath := o.db
-	if dbPath == "" {
+	res := &PanelResult{Variant: v, Station: st, Limits: r.PlanConfig.Limits, DBPath: o.DB, Kept: o.DB != ""}
+	if res.DBPath == "" {
 		dir, err := os.MkdirTemp("", "padline-demo-")
 		if err != nil {
-			return fmt.Errorf("demo: %w", err)
+			return nil, fmt.Errorf("demo: %w", err)
 		}
 		defer os.RemoveAll(dir)
-		dbPath = filepath.Join(dir, "shift.db")
+		res.DBPath = filepath.Join(dir, "shift.db")
 	}
-	db, err := store.Open(dbPath)
+	panels, fixture, cpu, err := res.panels(ctx, r, o)
 	if err != nil {
-		return err
+		return nil, err
+	}
+	single, singleRMS, err := demoSingleBaseline(ctx, v, o, res.Sites)
+	if err != nil {
+		return nil, err
+	}
+	res.Summary = summarisePanel(res.Sites, r.Sites(), panels, fixture, single, singleRMS, cpu)
+	res.Summary.Ganged, res.Summary.CouplingPF = st.Sites.Ganged, st.Sites.CouplingPF
+	return res, nil
+}
+
+// panels tests the shift's panels on r, logging one run per site.
+func (res *PanelResult) panels(ctx context.Context, r *session.PanelRig, o Options) (panels int, fixture, cpu time.Duration, err error) {
+	v, st := res.Variant, res.Station
+	db, err := store.Open(res.DBPath)
+	if err != nil {
+		return 0, 0, 0, err
 	}
 	defer db.Close()
 	hash, err := db.PutVariant(ctx, v.Name, v.Source.Raw)
 	if err != nil {
-		return err
+		return 0, 0, 0, err
 	}
 	tmpl := sequences.Run{Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
-		Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: softwareVersion(),
+		Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: o.Software,
 		Driver: string(st.Driver)}
 	n := r.Sites()
-	panels := max(1, (o.units+n-1)/n)
-	var sites []demoSite
-	var fixture time.Duration
-	prog := newProgress(a.stderr, panels, "testing panels", o.asJSON || !isTerminal(a.stderr))
+	panels = max(1, (o.Units+n-1)/n)
+	var prog Progress = noProgress{}
+	if o.Progress != nil {
+		prog = o.Progress("testing panels", panels)
+	}
+	defer prog.Done()
 	c0 := cpuTime()
 	for p := range panels {
 		label := fmt.Sprintf("%s-%04d", strings.ReplaceAll(v.Name, "-", ""), p+1)
 		serials, err := session.PanelSerials(v, n, label, nil, nil)
 		if err != nil {
-			prog.done()
-			return fmt.Errorf("demo: %w", err)
+			return 0, 0, 0, fmt.Errorf("demo: %w", err)
 		}
 		units, err := r.Sim.Load(serials)
 		if err != nil {
-			prog.done()
-			return err
+			return 0, 0, 0, err
 		}
 		truth := make([]float64, n)
 		for i := range truth {
@@ -147,12 +179,11 @@ func (a *app) demoPanel(ctx context.Context, o demoOptions) error {
 		oc, err := r.TestPanel(ctx, db, tmpl, label, serials, nil, time.Now)
 		r.Sim.Unload()
 		if oc == nil {
-			prog.done()
-			return err
+			return 0, 0, 0, err
 		}
 		fixture += oc.Runs[0].Finished.Sub(oc.Runs[0].Started)
 		for i, run := range oc.Runs {
-			ds := demoSite{Panel: label, Site: i + 1, Serial: run.Serial, Verdict: string(run.Verdict),
+			ds := Site{Panel: label, Site: i + 1, Serial: run.Serial, Verdict: string(run.Verdict),
 				FailCode: string(run.FailCode), Defects: units[i].Truth().Defects}
 			if ds.Defects == nil {
 				ds.Defects = []string{}
@@ -163,43 +194,25 @@ func (a *app) demoPanel(ctx context.Context, o demoOptions) error {
 			if tr := oc.Trial.Trips[i]; tr != nil && tr.Found && !tr.Below {
 				ds.TripPF = ptr(tr.TripPF)
 			}
-			sites = append(sites, ds)
+			res.Sites = append(res.Sites, ds)
 		}
-		prog.step()
+		prog.Step()
 	}
-	prog.done()
-	cpu := cpuTime() - c0
-	single, singleRMS, err := a.demoSingleBaseline(ctx, v, o, sites)
-	if err != nil {
-		return err
-	}
-	sum := summarisePanel(sites, n, panels, fixture, single, singleRMS, cpu)
-	sum.Ganged, sum.CouplingPF = st.Sites.Ganged, st.Sites.CouplingPF
-	if o.asJSON {
-		enc := json.NewEncoder(a.stdout)
-		for _, s := range sites {
-			if err := enc.Encode(s); err != nil {
-				return err
-			}
-		}
-		return enc.Encode(sum)
-	}
-	writePanelDemo(a.stdout, v, st, r, sum, dbPath, o.db != "")
-	return nil
+	return panels, fixture, cpuTime() - c0, nil
 }
 
 // demoSingleBaseline tests the same serials one at a time on the built-in
 // single-unit demo station (at most 200 of them, good units and defective
 // alike) and returns the mean fixture time per unit and the trip RMS error
 // of its good units.
-func (a *app) demoSingleBaseline(ctx context.Context, v *session.Variant, o demoOptions, sites []demoSite) (float64, float64, error) {
+func demoSingleBaseline(ctx context.Context, v *session.Variant, o Options, sites []Site) (float64, float64, error) {
 	st, err := session.LoadStation("demo-sim")
 	if err != nil {
 		return 0, 0, err
 	}
-	st.Sim.Seed = o.seed
+	st.Sim.Seed = o.Seed
 	u, uFrom := session.StatedUncertainty(st)
-	r, err := session.NewRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: o.search})
+	r, err := session.NewRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: o.Search})
 	if err != nil {
 		return 0, 0, err
 	}
@@ -227,8 +240,8 @@ func (a *app) demoSingleBaseline(ctx context.Context, v *session.Variant, o demo
 	return ms(total) / float64(n), math.Sqrt(sq / float64(max(good, 1))), nil
 }
 
-func summarisePanel(sites []demoSite, n, panels int, fixture time.Duration, single, singleRMS float64, cpu time.Duration) demoPanelSummary {
-	s := demoPanelSummary{Summary: true, Sites: n, Panels: panels, Units: len(sites),
+func summarisePanel(sites []Site, n, panels int, fixture time.Duration, single, singleRMS float64, cpu time.Duration) PanelSummary {
+	s := PanelSummary{Summary: true, Sites: n, Panels: panels, Units: len(sites),
 		FixtureMSPanel: ms(fixture) / float64(panels), FixtureMSSingle: single, RMSSinglePF: singleRMS,
 		RMSPerSitePF: make([]float64, n), DefectOutcomes: make([]map[string]map[string]int, n),
 		CPUPerSiteMS: ms(cpu) / float64(len(sites))}
@@ -280,7 +293,9 @@ func summarisePanel(sites []demoSite, n, panels int, fixture time.Duration, sing
 	return s
 }
 
-func writePanelDemo(w io.Writer, v *session.Variant, st *session.Station, r *session.PanelRig, s demoPanelSummary, dbPath string, keep bool) {
+// WritePanelText prints the panel demo's summary for people.
+func WritePanelText(w io.Writer, res *PanelResult) {
+	v, st, s, dbPath := res.Variant, res.Station, res.Summary, res.DBPath
 	ladder := "ganged ladder (one pattern on every site)"
 	if !s.Ganged {
 		ladder = "own ladders (sites search concurrently)"
@@ -288,7 +303,7 @@ func writePanelDemo(w io.Writer, v *session.Variant, st *session.Station, r *ses
 	fmt.Fprintf(w, "simulated panels  %s on %s/%s: %d panels of %d sites, %s\n", v.Name, st.Name, st.Fixture, s.Panels, s.Sites, ladder)
 	fmt.Fprintf(w, "simulator         noise %.1f mV at 5 V, sample jitter %.1f ns, rung calibration σ %.2f pF per site, adjacent pads coupled through %.2f pF\n",
 		st.Sim.NoiseMVAt5V, st.Sim.JitterNs, st.Sim.RungErrSDPF, s.CouplingPF)
-	lim := r.PlanConfig.Limits
+	lim := res.Limits
 	fmt.Fprintf(w, "test limits       trip %.2f … %.2f pF, clock %.0f … %.0f Hz\n\n", lim.TripLowPF, lim.TripHighPF, lim.ClockLowHz, lim.ClockHighHz)
 	fmt.Fprintf(w, "sites             %d tested: %d pass, %d fail, %d station-fault\n", s.Units, s.Pass, s.Fail, s.StationFault)
 	fmt.Fprintf(w, "fixture time      %.1f ms per panel = %.1f ms per site; one unit alone %.1f ms: the panel takes %.2f× one unit (%.1f× faster than %d units in a row)\n",
@@ -310,7 +325,7 @@ func writePanelDemo(w io.Writer, v *session.Variant, st *session.Station, r *ses
 		fmt.Fprintf(w, "  %02d  %8.2f  %11.3f  %s\n", i+1, st.Sites.List[i].StrayPF, s.RMSPerSitePF[i], strings.Join(parts, ", "))
 	}
 	fmt.Fprintf(w, "\ncomputer time     %.3f ms CPU per site\n", s.CPUPerSiteMS)
-	if keep {
+	if res.Kept {
 		fmt.Fprintf(w, "shift log         %s (see 'padline history --db %s --variant %s' and 'padline drift --db %s --variant %s --by site')\n",
 			dbPath, dbPath, v.Name, dbPath, v.Name)
 	}

@@ -1,4 +1,4 @@
-package main
+package driftreport
 
 import (
 	"fmt"
@@ -11,11 +11,11 @@ import (
 	"padline/store/drift"
 )
 
-// jnum is a float that encodes NaN and ±Inf as JSON null.
-type jnum float64
+// Num is a float that encodes NaN and ±Inf as JSON null.
+type Num float64
 
 // MarshalJSON writes the number, or null when it is not finite.
-func (f jnum) MarshalJSON() ([]byte, error) {
+func (f Num) MarshalJSON() ([]byte, error) {
 	v := float64(f)
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return []byte("null"), nil
@@ -23,74 +23,79 @@ func (f jnum) MarshalJSON() ([]byte, error) {
 	return strconv.AppendFloat(nil, v, 'g', -1, 64), nil
 }
 
-// driftReport is the whole answer; --json prints it as one object.
-type driftReport struct {
-	Verdict       string             `json:"verdict"`
-	Source        string             `json:"source"`
-	Variant       string             `json:"variant,omitempty"`
-	Since         string             `json:"since,omitempty"`
-	Until         string             `json:"until,omitempty"`
-	Station       string             `json:"station,omitempty"`
-	Fixture       string             `json:"fixture,omitempty"`
-	Lot           string             `json:"lot,omitempty"`
-	By            string             `json:"by,omitempty"`
-	Chart         string             `json:"chart"`
-	Baseline      int                `json:"baseline_points"`
-	Limits        [2]jnum            `json:"limits"`
-	LimitsFrom    string             `json:"limits_from,omitempty"`
-	UncertaintyPF jnum               `json:"uncertainty_pf"`
-	Groups        []driftGroupReport `json:"groups"`
+// Report is the whole answer; --json prints it as one object.
+type Report struct {
+	Verdict       string        `json:"verdict"`
+	Source        string        `json:"source"`
+	Variant       string        `json:"variant,omitempty"`
+	Since         string        `json:"since,omitempty"`
+	Until         string        `json:"until,omitempty"`
+	Station       string        `json:"station,omitempty"`
+	Fixture       string        `json:"fixture,omitempty"`
+	Lot           string        `json:"lot,omitempty"`
+	By            string        `json:"by,omitempty"`
+	Chart         string        `json:"chart"`
+	Baseline      int           `json:"baseline_points"`
+	Limits        [2]Num        `json:"limits"`
+	LimitsFrom    string        `json:"limits_from,omitempty"`
+	UncertaintyPF Num           `json:"uncertainty_pf"`
+	Groups        []GroupReport `json:"groups"`
 }
 
-type driftGroupReport struct {
-	Key            string            `json:"key,omitempty"`
-	Verdict        *driftVerdictJSON `json:"verdict,omitempty"`
-	Points         int               `json:"points"`
-	First          *time.Time        `json:"first,omitempty"`
-	Last           *time.Time        `json:"last,omitempty"`
-	Baseline       driftWindowJSON   `json:"baseline"`
-	Charts         []driftChartJSON  `json:"charts"`
-	AlarmCount     int               `json:"alarm_count"`
-	Alarms         []driftAlarmJSON  `json:"alarms"`
-	Capability     *capabilityJSON   `json:"capability,omitempty"`
-	CapabilityNote string            `json:"capability_note,omitempty"`
-	Runs           int64             `json:"runs,omitempty"`
-	Yield          *yieldJSON        `json:"first_pass_yield,omitempty"`
-	ChartFile      string            `json:"chart_file,omitempty"`
+type GroupReport struct {
+	Key            string         `json:"key,omitempty"`
+	Verdict        *Verdict       `json:"verdict,omitempty"`
+	Points         int            `json:"points"`
+	First          *time.Time     `json:"first,omitempty"`
+	Last           *time.Time     `json:"last,omitempty"`
+	Baseline       Window         `json:"baseline"`
+	Charts         []ChartSummary `json:"charts"`
+	AlarmCount     int            `json:"alarm_count"`
+	Alarms         []Alarm        `json:"alarms"`
+	Capability     *Capability    `json:"capability,omitempty"`
+	CapabilityNote string         `json:"capability_note,omitempty"`
+	Runs           int64          `json:"runs,omitempty"`
+	Yield          *Yield         `json:"first_pass_yield,omitempty"`
+	ChartFile      string         `json:"chart_file,omitempty"`
 }
 
-type driftWindowJSON struct {
+type Window struct {
 	FirstUnit int        `json:"first_unit"` // 1-based
 	LastUnit  int        `json:"last_unit"`  // 1-based, inclusive
 	Points    int        `json:"points"`
 	From      *time.Time `json:"from,omitempty"`
 	To        *time.Time `json:"to,omitempty"`
 	Text      string     `json:"text"`
+	// Kind is "approved" (a stored baseline; the unit fields then count
+	// nothing), "provisional" (the first points of the selection) or
+	// "given" (--baseline, --target or --sigma).
+	Kind     string        `json:"kind"`
+	Approved *BaselineJSON `json:"approved,omitempty"`
 }
 
-type driftChartJSON struct {
+type ChartSummary struct {
 	Kind   string `json:"kind"`
 	Title  string `json:"title"`
 	Size   int    `json:"size"`
 	Points int    `json:"points"`
-	Center jnum   `json:"center"`
+	Center Num    `json:"center"`
 	// Lower and Upper are the limits at the last point (EWMA limits widen
 	// towards their steady value; the others are constant).
-	Lower  jnum   `json:"lower"`
-	Upper  jnum   `json:"upper"`
-	Target jnum   `json:"target"`
-	Sigma  jnum   `json:"sigma"`
+	Lower  Num    `json:"lower"`
+	Upper  Num    `json:"upper"`
+	Target Num    `json:"target"`
+	Sigma  Num    `json:"sigma"`
 	Method string `json:"method"`
 	Alarms int    `json:"alarms"`
 }
 
-func chartJSON(c drift.ChartSummary) driftChartJSON {
-	return driftChartJSON{Kind: string(c.Kind), Title: c.Kind.Title(), Size: c.Size, Points: c.Points,
-		Center: jnum(c.Center), Lower: jnum(c.Lower), Upper: jnum(c.Upper),
-		Target: jnum(c.Target), Sigma: jnum(c.Sigma), Method: c.Method, Alarms: c.Alarms}
+func chartSummary(c drift.ChartSummary) ChartSummary {
+	return ChartSummary{Kind: string(c.Kind), Title: c.Kind.Title(), Size: c.Size, Points: c.Points,
+		Center: Num(c.Center), Lower: Num(c.Lower), Upper: Num(c.Upper),
+		Target: Num(c.Target), Sigma: Num(c.Sigma), Method: c.Method, Alarms: c.Alarms}
 }
 
-type driftAlarmJSON struct {
+type Alarm struct {
 	Seq         int        `json:"seq"`
 	Chart       string     `json:"chart"`
 	Rule        string     `json:"rule"`
@@ -105,31 +110,31 @@ type driftAlarmJSON struct {
 	Serial      string     `json:"serial,omitempty"`
 }
 
-type capabilityJSON struct {
+type Capability struct {
 	N            int    `json:"n"`
-	Low          jnum   `json:"low"`
-	High         jnum   `json:"high"`
-	Mean         jnum   `json:"mean"`
-	SigmaWithin  jnum   `json:"sigma_within"`
-	SigmaOverall jnum   `json:"sigma_overall"`
+	Low          Num    `json:"low"`
+	High         Num    `json:"high"`
+	Mean         Num    `json:"mean"`
+	SigmaWithin  Num    `json:"sigma_within"`
+	SigmaOverall Num    `json:"sigma_overall"`
 	Method       string `json:"sigma_within_method"`
-	Cp           jnum   `json:"cp"`
-	Cpk          jnum   `json:"cpk"`
-	Pp           jnum   `json:"pp"`
-	Ppk          jnum   `json:"ppk"`
+	Cp           Num    `json:"cp"`
+	Cpk          Num    `json:"cpk"`
+	Pp           Num    `json:"pp"`
+	Ppk          Num    `json:"ppk"`
 }
 
-type yieldJSON struct {
+type Yield struct {
 	Pass       int     `json:"first_pass"`
 	Total      int     `json:"first_units"`
-	Rate       jnum    `json:"rate"`
-	Low        jnum    `json:"low"`
-	High       jnum    `json:"high"`
+	Rate       Num     `json:"rate"`
+	Low        Num     `json:"low"`
+	High       Num     `json:"high"`
 	Confidence float64 `json:"confidence"`
 }
 
-// writeDriftReport prints the report for people.
-func writeDriftReport(w io.Writer, r driftReport) {
+// WriteText prints the report for people.
+func WriteText(w io.Writer, r Report) {
 	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
 	head := r.Source
 	if r.Variant != "" {
@@ -166,11 +171,17 @@ func writeDriftReport(w io.Writer, r driftReport) {
 		}
 		p("series           %d points%s", g.Points, span)
 		base := g.Baseline.Text
-		if g.Baseline.From != nil {
+		if g.Baseline.Kind == "approved" {
+			p("baseline         %s", base)
+		} else if g.Baseline.From != nil && g.Baseline.Kind == "provisional" {
+			base = fmt.Sprintf("%s, %s … %s", base, fmtTime(*g.Baseline.From), fmtTime(*g.Baseline.To))
+		} else if g.Baseline.From != nil {
 			base = fmt.Sprintf("units %d–%d (%d points), %s … %s", g.Baseline.FirstUnit, g.Baseline.LastUnit,
 				g.Baseline.Points, fmtTime(*g.Baseline.From), fmtTime(*g.Baseline.To))
 		}
-		p("baseline         %s (phase I: limits from these points, applied to all)", base)
+		if g.Baseline.Kind != "approved" {
+			p("baseline         %s%s (phase I: limits from these points, applied to all)", baselinePrefix(g.Baseline.Kind), base)
+		}
 		p("%-16s %10s %10s %10s   %s", "chart", "centre", "lower", "upper", "target, σ from")
 		for _, c := range g.Charts {
 			p("%-16s %10s %10s %10s   %s", c.Kind, fmtNum(float64(c.Center), "-"), fmtNum(float64(c.Lower), "-"),
@@ -244,7 +255,7 @@ func fmtNum(v float64, none string) string {
 	return strconv.FormatFloat(v, 'f', 3, 64)
 }
 
-func fmtIdx(v jnum) string {
+func fmtIdx(v Num) string {
 	if math.IsNaN(float64(v)) || math.IsInf(float64(v), 0) {
 		return "-"
 	}

@@ -1,14 +1,18 @@
-package main
+package driftreport
 
 import (
 	"context"
+	"flag"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"path/filepath"
 	"reflect"
 	"slices"
 	"testing"
+	"time"
 
+	"padline/sequences"
 	"padline/store"
 	"padline/store/drift"
 )
@@ -82,16 +86,16 @@ func checkSameOnLog(t *testing.T, path string, alarms int) {
 			}
 			for _, chartKind := range []string{"watch", "imr", "xbar-r", "xbar-s", "ewma", "cusum"} {
 				for _, rules := range []string{"", "nelson"} {
-					o := driftOptions{chart: chartKind, rules: rules, subgroup: 5, baseline: driftDefaultBaseline, alarms: alarms}
+					o := Options{Chart: chartKind, Rules: rules, Subgroup: 5, Baseline: DefaultBaseline, Alarms: alarms}
 					for _, g := range groups {
-						if len(g.x) < 2*o.subgroup {
+						if len(g.x) < 2*o.Subgroup {
 							continue
 						}
 						an, err := analyseSeries(g.x, o, 10.3, 59.7, true)
 						if err != nil {
 							t.Fatalf("%s by %q %s: %v", chartKind, by, g.key, err)
 						}
-						if d := sameAnalysis(an, o.alarms); d != "" {
+						if d := sameAnalysis(an, o.Alarms); d != "" {
 							t.Fatalf("%s, rules %q, by %q, group %q, all verdicts %v: %s", chartKind, rules, by, g.key, all, d)
 						}
 						checked++
@@ -103,25 +107,70 @@ func checkSameOnLog(t *testing.T, path string, alarms int) {
 	t.Logf("%s: %d analyses the same both ways", filepath.Base(path), checked)
 }
 
-// TestDriftSameResults: on the demo's shift logs (with a step of 4 pF, and
-// a quiet one of another seed) the report 'padline drift' prints now comes
-// out exactly as the charts built with every point give it: same alarms,
-// same centre lines and limits. With -drift.scale.db it checks the
-// 1,000,000-run log too (see TestDriftScale).
+// sameDB is a shift log to check as well, e.g. the 1,000,000-run log of
+// cmd/padline's TestDriftScale (-drift.scale.db there).
+var sameDB = flag.String("same.db", "", "TestDriftSameResults: also check this shift log")
+
+// seedLog writes n QM-205 runs 4 s apart into a new shift log: trip points
+// N(29.8, 4.2) pF (the model's Monte Carlo spread, 'padline limits
+// --variant QM-205') with a step of stepPF from run stepAt on (0: none), on
+// two stations, 2 % failing.
+func seedLog(t *testing.T, path string, n, stepAt int, stepPF float64, seed uint64) {
+	t.Helper()
+	ctx := context.Background()
+	db, err := store.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	hash, err := db.PutVariant(ctx, "QM-205", []byte("name: QM-205\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	r := rand.New(rand.NewPCG(seed, 2))
+	t0 := time.Date(2026, 1, 5, 6, 0, 0, 0, time.UTC)
+	runs := func(yield func(*sequences.Run) bool) {
+		for i := range n {
+			trip := 29.8 + 4.2*r.NormFloat64()
+			if stepAt > 0 && i >= stepAt {
+				trip += stepPF
+			}
+			v, code := sequences.Pass, sequences.FailCode("")
+			if i%50 == 7 {
+				v, code = sequences.Fail, sequences.CodeTripHigh
+			}
+			fin := t0.Add(time.Duration(i) * 4 * time.Second)
+			run := &sequences.Run{Serial: fmt.Sprintf("QM205-%06d", i+1), Variant: "QM-205", ConfigHash: hash,
+				Station: fmt.Sprintf("L%d-S1", 1+i%2), Fixture: "FX-07", Started: fin.Add(-90 * time.Millisecond), Finished: fin,
+				Verdict: v, FailCode: code, Driver: "sim",
+				Measurements: []sequences.Measurement{{Step: store.TripStep, Name: store.TripName, Value: trip, Unit: "pF", Low: 10.3, High: 59.7, Verdict: v}}}
+			if !yield(run) {
+				return
+			}
+		}
+	}
+	if _, err := db.Import(ctx, runs, 1000); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// TestDriftSameResults: on shift logs with a step of 4 pF (about 1σ) and
+// a quiet one of another seed, the report's one-pass summary comes out
+// exactly as the charts built with every point give it: same alarms, same
+// centre lines and limits. With -same.db it checks that log too.
 func TestDriftSameResults(t *testing.T) {
 	dir := t.TempDir()
-	for i, args := range [][]string{
-		{"--units", "400", "--drift-at", "200", "--drift-pf", "4"},
-		{"--units", "300", "--seed", "7"},
-	} {
-		path := filepath.Join(dir, fmt.Sprintf("demo-%d.db", i))
-		if _, errs, code := runPadline(t, context.Background(), "", append([]string{"demo", "--db", path}, args...)...); code != 0 {
-			t.Fatalf("demo %v: %s", args, errs)
-		}
+	for i, c := range []struct {
+		n, at int
+		step  float64
+		seed  uint64
+	}{{400, 200, 4, 1}, {300, 0, 0, 7}} {
+		path := filepath.Join(dir, fmt.Sprintf("log-%d.db", i))
+		seedLog(t, path, c.n, c.at, c.step, c.seed)
 		checkSameOnLog(t, path, 0)
 		checkSameOnLog(t, path, 3)
 	}
-	if *driftScaleDB != "" {
-		checkSameOnLog(t, *driftScaleDB, driftDefaultAlarms)
+	if *sameDB != "" {
+		checkSameOnLog(t, *sameDB, DefaultAlarms)
 	}
 }

@@ -1,4 +1,4 @@
-package main
+package demo
 
 import (
 	"context"
@@ -16,7 +16,7 @@ import (
 // shift log. Target (DEVELOPERS.md "Benchmarks, studies and torture"): ≤ 1 ms CPU per unit. It also reports the
 // unit's fixture time, which is virtual and exact.
 //
-//	go test ./cmd/padline -run '^$' -bench SimulatedUnit
+//	go test ./sequences/demo -run '^$' -bench SimulatedUnit
 func BenchmarkSimulatedUnit(b *testing.B) {
 	for _, strategy := range []string{"bracket", "staircase"} {
 		b.Run(strategy, func(b *testing.B) {

@@ -1,4 +1,4 @@
-package main
+package demo
 
 import (
 	"errors"
@@ -11,52 +11,53 @@ import (
 	"padline/sequences"
 	"padline/sequences/session"
 	"padline/store/drift"
+	"padline/store/driftreport"
 )
 
-// demoDrift is the drift the demo puts into its shift: from unit at on, the
+// Drift is the drift the demo puts into its shift: from unit at on, the
 // pad laminate changes and the pad capacitance mean drops by stepPF (units
 // trip stepPF higher: the node needs the same total capacitance to trip);
 // a ramp drops it a further rampPF per 1000 units from unit at (or 1).
-type demoDrift struct {
-	at             int
-	stepPF, rampPF float64
+type Drift struct {
+	At             int
+	StepPF, RampPF float64
 }
 
-func (d demoDrift) active() bool { return d.at > 0 || d.stepPF != 0 || d.rampPF != 0 }
+func (d Drift) active() bool { return d.At > 0 || d.StepPF != 0 || d.RampPF != 0 }
 
 // check validates the drift flags against the shift length.
-func (d demoDrift) check(units int) error {
+func (d Drift) Check(units int) error {
 	switch {
 	case !d.active():
 		return nil
-	case math.IsNaN(d.stepPF) || math.IsInf(d.stepPF, 0) || math.IsNaN(d.rampPF) || math.IsInf(d.rampPF, 0):
+	case math.IsNaN(d.StepPF) || math.IsInf(d.StepPF, 0) || math.IsNaN(d.RampPF) || math.IsInf(d.RampPF, 0):
 		return errors.New("demo: --drift-pf and --ramp-pf-per-1000 must be finite numbers")
-	case d.at < 0:
-		return fmt.Errorf("demo: --drift-at must be ≥ 0, got %d", d.at)
-	case d.at == 0 && d.stepPF != 0:
+	case d.At < 0:
+		return fmt.Errorf("demo: --drift-at must be ≥ 0, got %d", d.At)
+	case d.At == 0 && d.StepPF != 0:
 		return errors.New("demo: --drift-pf needs --drift-at N, the unit the step starts at")
-	case d.at == 1:
+	case d.At == 1:
 		return errors.New("demo: --drift-at must be 0 (a ramp from unit 1) or at least 2: the watch takes its baseline from the units before the step")
-	case d.at > units:
-		return fmt.Errorf("demo: --drift-at %d is past the shift's %d units", d.at, units)
+	case d.At > units:
+		return fmt.Errorf("demo: --drift-at %d is past the shift's %d units", d.At, units)
 	}
 	return nil
 }
 
 // offset is the trip-point shift of unit n (1-based), pF.
-func (d demoDrift) offset(n int) float64 {
+func (d Drift) offset(n int) float64 {
 	var off float64
-	if d.at > 0 && n >= d.at {
-		off += d.stepPF
+	if d.At > 0 && n >= d.At {
+		off += d.StepPF
 	}
-	if start := max(d.at, 1); d.rampPF != 0 && n >= start {
-		off += d.rampPF * float64(n-start) / 1000
+	if start := max(d.At, 1); d.RampPF != 0 && n >= start {
+		off += d.RampPF * float64(n-start) / 1000
 	}
 	return off
 }
 
 // apply sets the line's unit model for unit n when the drift changes it.
-func (d demoDrift) apply(line *sim.Line, base sim.UnitModel, n int) error {
+func (d Drift) apply(line *sim.Line, base sim.UnitModel, n int) error {
 	if !d.active() {
 		return nil
 	}
@@ -84,8 +85,8 @@ func (d demoDrift) apply(line *sim.Line, base sim.UnitModel, n int) error {
 	return nil
 }
 
-// demoDriftWatch is the drift part of the demo summary.
-type demoDriftWatch struct {
+// DriftWatch is the drift part of the demo summary.
+type DriftWatch struct {
 	StepAtUnit    int     `json:"step_at_unit"`
 	StepPF        float64 `json:"step_pf"`
 	RampPFPer1000 float64 `json:"ramp_pf_per_1000"`
@@ -98,7 +99,7 @@ type demoDriftWatch struct {
 	AlarmsBefore  int     `json:"alarms_before_step"`
 	Alarms        int     `json:"alarms"`
 	// First is the first alarm at or after the step; nil when none.
-	First *demoAlarm `json:"first_alarm"`
+	First *Alarm `json:"first_alarm"`
 	// Verdict is the sentence 'padline drift' prints on this shift's log;
 	// ChangeAtUnit and ChangeSerial the estimated first unit after the
 	// change (0, "" when there is no alarm).
@@ -107,8 +108,8 @@ type demoDriftWatch struct {
 	ChangeSerial string `json:"change_serial"`
 }
 
-// demoAlarm is one alarm in shift terms.
-type demoAlarm struct {
+// Alarm is one alarm in shift terms.
+type Alarm struct {
 	Seq         int    `json:"seq"`
 	Chart       string `json:"chart"`
 	Rule        string `json:"rule"`
@@ -128,11 +129,11 @@ type demoAlarm struct {
 // with limits from the first min(50, passed units before the step)
 // points, as 'padline drift' takes its first 50; nil when the demo has no
 // drift.
-func (d demoDrift) watch(us []demoUnit, v *session.Variant, st *session.Station) (*demoDriftWatch, error) {
+func (d Drift) watch(us []Unit, v *session.Variant, st *session.Station) (*DriftWatch, error) {
 	if !d.active() {
 		return nil, nil
 	}
-	from := max(d.at, 1)
+	from := max(d.At, 1)
 	var x []float64
 	var idx []int // index into us of each point
 	before := 0
@@ -146,8 +147,8 @@ func (d demoDrift) watch(us []demoUnit, v *session.Variant, st *session.Station)
 			before++
 		}
 	}
-	basePts := min(driftDefaultBaseline, len(x))
-	if d.at > 0 {
+	basePts := min(driftreport.DefaultBaseline, len(x))
+	if d.At > 0 {
 		basePts = min(basePts, before)
 	}
 	if basePts < 2 || len(x) < 2 {
@@ -159,7 +160,7 @@ func (d demoDrift) watch(us []demoUnit, v *session.Variant, st *session.Station)
 		return nil, fmt.Errorf("demo: drift watch over %d passed units, baseline the first %d: %w", len(x), basePts, err)
 	}
 	lastBase := idx[basePts-1] + 1
-	out := &demoDriftWatch{StepAtUnit: d.at, StepPF: d.stepPF, RampPFPer1000: d.rampPF,
+	out := &DriftWatch{StepAtUnit: d.At, StepPF: d.StepPF, RampPFPer1000: d.RampPF,
 		Charts:    fmt.Sprintf("individuals (3σ limit) + tabular CUSUM (k %gσ, h %gσ)", float64(drift.DefaultK), float64(drift.DefaultH)),
 		GoodUnits: len(x), Baseline: fmt.Sprintf("units 1–%d (the first %d passed units)", lastBase, basePts),
 		BaselineUnits: [2]int{1, lastBase}, Alarms: len(w.Alarms)}
@@ -179,16 +180,16 @@ func (d demoDrift) watch(us []demoUnit, v *session.Variant, st *session.Station)
 	}
 	if al, ok := w.First(first); ok {
 		u := idx[al.Unit] + 1
-		out.First = &demoAlarm{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
+		out.First = &Alarm{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
 			Unit: u, Serial: us[idx[al.Unit]].Serial, LagUnits: u - from + 1,
 			LagGoodUnits: al.Unit - first + 1, Note: al.Note}
 		if al.Onset >= 0 && al.Chart == drift.CUSUM {
-			out.First.Note = onsetNote(al, us[idx[al.Onset]].Serial)
+			out.First.Note = driftreport.OnsetNote(al, us[idx[al.Onset]].Serial)
 		}
 	}
 	f := drift.Assess(x, w.Alarms, c.Target, c.Sigma, win)
-	multiDay := spansDays(us[idx[0]].finished, us[idx[len(idx)-1]].finished)
-	name := func(i int) string { u := us[idx[i]]; return pointName(u.Serial, u.finished, multiDay) }
+	multiDay := driftreport.SpansDays(us[idx[0]].finished, us[idx[len(idx)-1]].finished)
+	name := func(i int) string { u := us[idx[i]]; return driftreport.PointName(u.Serial, u.finished, multiDay) }
 	out.Verdict = f.Sentence("trip point of "+v.Name, "pF", st.Name+" / "+st.Fixture, name)
 	if f.Change >= 0 {
 		out.ChangeAtUnit, out.ChangeSerial = idx[f.Change]+1, us[idx[f.Change]].Serial
@@ -196,8 +197,8 @@ func (d demoDrift) watch(us []demoUnit, v *session.Variant, st *session.Station)
 	return out, nil
 }
 
-// writeDemoDrift prints the drift lines of the demo summary.
-func writeDemoDrift(w io.Writer, d *demoDriftWatch) {
+// writeDrift prints the drift lines of the demo summary.
+func writeDrift(w io.Writer, d *DriftWatch) {
 	if d == nil {
 		return
 	}

@@ -1,4 +1,4 @@
-package main
+package driftreport
 
 import (
 	"context"
@@ -10,23 +10,23 @@ import (
 	"padline/store/drift"
 )
 
-// driftVerdictJSON is a group's finding: the one sentence and its parts.
-type driftVerdictJSON struct {
-	Text       string          `json:"text"`
-	Drifting   bool            `json:"drifting"`
-	Alarms     int             `json:"alarms"`
-	Earlier    int             `json:"alarms_before_change"`
-	ShiftPF    jnum            `json:"shift"`
-	ShiftSigma jnum            `json:"shift_sigma"`
-	Change     *driftPointJSON `json:"change,omitempty"`
-	Signal     *driftPointJSON `json:"signal,omitempty"`
-	Rule       string          `json:"rule,omitempty"`
-	Where      string          `json:"where,omitempty"`
+// Verdict is a group's finding: the one sentence and its parts.
+type Verdict struct {
+	Text       string `json:"text"`
+	Drifting   bool   `json:"drifting"`
+	Alarms     int    `json:"alarms"`
+	Earlier    int    `json:"alarms_before_change"`
+	ShiftPF    Num    `json:"shift"`
+	ShiftSigma Num    `json:"shift_sigma"`
+	Change     *Point `json:"change,omitempty"`
+	Signal     *Point `json:"signal,omitempty"`
+	Rule       string `json:"rule,omitempty"`
+	Where      string `json:"where,omitempty"`
 }
 
-// driftPointJSON is one point named as people find it: by serial and time
+// Point is one point named as people find it: by serial and time
 // (Unit, the 1-based position in the series, only for cross-reference).
-type driftPointJSON struct {
+type Point struct {
 	Serial string     `json:"serial,omitempty"`
 	Time   *time.Time `json:"time,omitempty"`
 	Unit   int        `json:"unit"`
@@ -35,19 +35,19 @@ type driftPointJSON struct {
 // driftVerdict assesses one group's series and puts the finding in words,
 // naming points by serial and time and the place by the station and
 // fixture of the run at the change.
-func driftVerdict(ctx context.Context, db *store.DB, o driftOptions, g driftSeries, an driftAnalysis) *driftVerdictJSON {
+func driftVerdict(ctx context.Context, db *store.DB, o Options, g driftSeries, an driftAnalysis) *Verdict {
 	if len(an.sum.Charts) == 0 {
 		return nil
 	}
 	f := an.sum.Finding
-	multiDay := len(g.times) > 1 && spansDays(time.Unix(0, g.times[0]), time.Unix(0, g.times[len(g.times)-1]))
-	point := func(i int) (*driftPointJSON, store.Entry) {
-		p := &driftPointJSON{Unit: i + 1}
+	multiDay := len(g.times) > 1 && SpansDays(time.Unix(0, g.times[0]), time.Unix(0, g.times[len(g.times)-1]))
+	point := func(i int) (*Point, store.Entry) {
+		p := &Point{Unit: i + 1}
 		var e store.Entry
 		if i >= 0 && i < len(g.times) {
 			p.Time = tptr(g.times[i])
 			if db != nil {
-				e = runAt(ctx, db, g.filter.Variant, g.runIDs[i], *p.Time)
+				e = db.RunAt(ctx, g.filter.Variant, g.runIDs[i], *p.Time)
 				p.Serial = e.Serial
 			}
 		}
@@ -58,15 +58,15 @@ func driftVerdict(ctx context.Context, db *store.DB, o driftOptions, g driftSeri
 		if p.Time == nil {
 			return fmt.Sprintf("point %d", i+1)
 		}
-		return pointName(p.Serial, *p.Time, multiDay)
+		return PointName(p.Serial, *p.Time, multiDay)
 	}
-	v := &driftVerdictJSON{Drifting: f.Drifting, Alarms: f.Alarms, Earlier: f.Before, ShiftPF: jnum(f.ShiftX), ShiftSigma: jnum(f.ShiftSigma)}
+	v := &Verdict{Drifting: f.Drifting, Alarms: f.Alarms, Earlier: f.Before, ShiftPF: Num(f.ShiftX), ShiftSigma: Num(f.ShiftSigma)}
 	what, unit := "trip point", "pF"
-	if o.variant != "" {
-		what += " of " + o.variant
+	if o.Variant != "" {
+		what += " of " + o.Variant
 	}
-	if o.csvFile != "" {
-		what, unit = o.column, ""
+	if o.CSVFile != "" {
+		what, unit = o.Column, ""
 	}
 	if f.Change >= 0 {
 		var e store.Entry
@@ -83,25 +83,11 @@ func driftVerdict(ctx context.Context, db *store.DB, o driftOptions, g driftSeri
 	return v
 }
 
-// runAt looks up one run (found by its finish time, an indexed range of
-// one nanosecond); the zero Entry when it cannot be found.
-func runAt(ctx context.Context, db *store.DB, variant string, id int64, at time.Time) store.Entry {
-	for e, err := range db.Runs(ctx, store.Filter{Variant: variant, Since: at, Until: at.Add(1)}) {
-		if err != nil {
-			return store.Entry{}
-		}
-		if e.ID == id {
-			return *e
-		}
-	}
-	return store.Entry{}
-}
-
 // topVerdict is the report's first line: the only group's sentence, or
 // under --by the drifting group whose change came first (named), else a
 // count of groups in control.
-func topVerdict(by string, groups []driftGroupReport) string {
-	var best *driftGroupReport
+func topVerdict(by string, groups []GroupReport) string {
+	var best *GroupReport
 	for i := range groups {
 		g := &groups[i]
 		if g.Verdict == nil {
@@ -129,9 +115,9 @@ func topVerdict(by string, groups []driftGroupReport) string {
 	return fmt.Sprintf("%s %s: %s (%d of %d %s groups drifting)", by, best.Key, best.Verdict.Text, n, len(groups), by)
 }
 
-// pointName names a point as the verdict does, the same in the demo and in
+// PointName names a point as the verdict does, the same in the demo and in
 // drift: serial and time of day (with the date when the series spans days).
-func pointName(serial string, t time.Time, multiDay bool) string {
+func PointName(serial string, t time.Time, multiDay bool) string {
 	layout := "15:04"
 	if multiDay {
 		layout = "2006-01-02 15:04"
@@ -139,16 +125,16 @@ func pointName(serial string, t time.Time, multiDay bool) string {
 	return dashIfEmpty(serial) + " at " + t.Local().Format(layout)
 }
 
-// spansDays reports whether the first and last time fall on different
+// SpansDays reports whether the first and last time fall on different
 // local days.
-func spansDays(first, last time.Time) bool {
+func SpansDays(first, last time.Time) bool {
 	a, b := first.Local(), last.Local()
 	return a.YearDay() != b.YearDay() || a.Year() != b.Year()
 }
 
-// onsetNote restates a CUSUM alarm's note with its onset named by serial
+// OnsetNote restates a CUSUM alarm's note with its onset named by serial
 // and time instead of a point number: "sums above zero from S at T, mean
 // now ≈ …".
-func onsetNote(al drift.Alarm, onset string) string {
+func OnsetNote(al drift.Alarm, onset string) string {
 	return strings.Replace(al.Note, fmt.Sprintf("change after point %d", al.Onset), "sums above zero from "+onset, 1)
 }

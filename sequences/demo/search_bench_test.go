@@ -1,4 +1,4 @@
-package main
+package demo
 
 import (
 	"context"
@@ -24,7 +24,7 @@ var benchFixtureUnits = flag.Int("search.fixture-units", 300, "units per simulat
 // With the sequences benchmark of the same name it is the search's one
 // benchmark command:
 //
-//	go test -run '^$' -bench SearchTargets -benchtime 1x ./sequences ./cmd/padline
+//	go test -run '^$' -bench SearchTargets -benchtime 1x ./sequences ./sequences/demo
 func BenchmarkSearchTargets(b *testing.B) {
 	for b.Loop() {
 		writeStationTargets(b, os.Stdout, *benchFixtureUnits)
@@ -47,11 +47,10 @@ func writeStationTargets(t testing.TB, w io.Writer, perFixture int) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	serials, err := demoSerials(v, perFixture)
+	serials, err := serials(v, perFixture)
 	if err != nil {
 		t.Fatal(err)
 	}
-	a := &app{stdout: io.Discard, stderr: io.Discard}
 	const fixtures = 10
 	strategies := []string{"bracket", session.SearchLaplace}
 	figs := make([]stationFigures, len(strategies))
@@ -69,8 +68,9 @@ func writeStationTargets(t testing.TB, w io.Writer, perFixture int) {
 		if err != nil {
 			t.Fatal(err)
 		}
+		res := &Result{Variant: v, Station: st, Limits: rep}
 		for i, strategy := range strategies {
-			us, err := a.demoShift(ctx, v, st, rep, "bench", strategy, serials, discard{}, true, demoDrift{})
+			us, err := shift(ctx, res, "bench", strategy, serials, discard{}, noProgress{}, Options{})
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -1,4 +1,4 @@
-package main
+package driftreport
 
 import (
 	"bufio"
@@ -13,25 +13,33 @@ import (
 	"unicode/utf8"
 )
 
-// readSeriesCSV opens path and parses its column; errors name the file.
-func readSeriesCSV(path, column string) ([]float64, error) {
+// ReadSeriesCSV opens path and parses its column; errors name the file.
+func ReadSeriesCSV(path, column, keep string) ([]float64, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, err
 	}
 	defer f.Close()
-	x, err := parseSeriesCSV(bufio.NewReader(f), column)
+	x, err := ParseSeriesCSVKeep(bufio.NewReader(f), column, keep)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	return x, nil
 }
 
-// parseSeriesCSV reads a CSV table with a header row and returns the
+// ParseSeriesCSV reads a CSV table with a header row and returns the
 // numbers of the named column, in row order. Blank cells are skipped; any
 // other cell that is not a finite number is an error naming its line and
 // column. Rows may be ragged as long as they reach the column.
-func parseSeriesCSV(r io.Reader, column string) ([]float64, error) {
+func ParseSeriesCSV(r io.Reader, column string) ([]float64, error) {
+	return ParseSeriesCSVKeep(r, column, "")
+}
+
+// ParseSeriesCSVKeep is ParseSeriesCSV for a file that may have a
+// "serial" column: a serial on several rows (one row per measurement, or
+// a retest) is refused unless keep says which row counts — "first" or
+// "last" — so no unit is charted several times over.
+func ParseSeriesCSVKeep(r io.Reader, column, keep string) ([]float64, error) {
 	cr := csv.NewReader(r)
 	cr.FieldsPerRecord = -1
 	cr.ReuseRecord = true
@@ -42,11 +50,14 @@ func parseSeriesCSV(r io.Reader, column string) ([]float64, error) {
 	if err != nil {
 		return nil, fmt.Errorf("header: %w", err)
 	}
-	col := -1
+	col, scol := -1, -1
 	var names []string
 	for i, h := range head {
 		h = strings.TrimSpace(strings.TrimPrefix(h, "\ufeff"))
 		names = append(names, h)
+		if strings.EqualFold(h, "serial") && scol < 0 {
+			scol = i
+		}
 		if h == column {
 			if col >= 0 {
 				return nil, fmt.Errorf("line 1: column %q appears twice in the header", column)
@@ -58,9 +69,20 @@ func parseSeriesCSV(r io.Reader, column string) ([]float64, error) {
 		return nil, fmt.Errorf("line 1: no column %q in the header (columns: %s)", column, quoteList(names))
 	}
 	var out []float64
+	seen := map[string]int{}      // serial → index in out of its row that counts
+	firstLine := map[string]int{} // serial → line it was first on
 	for {
 		rec, err := cr.Read()
 		if errors.Is(err, io.EOF) {
+			if keep == "last" {
+				var kept []float64
+				for _, v := range out {
+					if !math.IsNaN(v) {
+						kept = append(kept, v)
+					}
+				}
+				return kept, nil
+			}
 			return out, nil
 		}
 		if err != nil {
@@ -81,6 +103,24 @@ func parseSeriesCSV(r io.Reader, column string) ([]float64, error) {
 		v, err := strconv.ParseFloat(cell, 64)
 		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
 			return nil, fmt.Errorf("line %d, column %q: %s is not a finite number", line, column, quoteCell(cell))
+		}
+		if scol >= 0 && scol < len(rec) {
+			serial := strings.TrimSpace(rec[scol])
+			if i, ok := seen[serial]; ok && serial != "" {
+				switch keep {
+				case "first":
+					continue
+				case "last":
+					out[i] = math.NaN() // dropped: a later row of the serial counts
+				default:
+					return nil, fmt.Errorf("line %d: serial %s again (first on line %d): the file has several rows per unit "+
+						"('padline history --format csv --per measurement' writes one per measurement); export one row per run "+
+						"('--per run') or give --keep first|last", line, serial, firstLine[serial])
+				}
+			} else {
+				firstLine[serial] = line
+			}
+			seen[serial] = len(out)
 		}
 		out = append(out, v)
 	}

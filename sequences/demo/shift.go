@@ -1,8 +1,7 @@
-package main
+package demo
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -16,8 +15,6 @@ import (
 	"syscall"
 	"time"
 
-	"github.com/spf13/cobra"
-
 	"padline/fixture/sim"
 	"padline/sequences"
 	"padline/sequences/session"
@@ -25,92 +22,48 @@ import (
 	"padline/store"
 )
 
-type demoOptions struct {
-	variant, station string
-	units            int
-	seed             uint64
-	db               string
-	search           string
-	compare          bool
-	asJSON           bool
-	intoRealLog      bool
-	drift            demoDrift
-	panel            int  // sites per panel; 0: single units
-	ownLadders       bool // panel demo: own ladders instead of a ganged one
+// Options are what a demo shift simulates.
+type Options struct {
+	// Variant and Station are each a built-in name or a .yaml file; the
+	// station must have driver: sim.
+	Variant, Station string
+	// Units is the shift's length; Seed seeds the simulated units and
+	// fixture (same seed, same shift).
+	Units int
+	Seed  uint64
+	// DB is the shift log to write; empty = a temporary one, removed.
+	DB string
+	// Search is the trip search ("bracket" or "staircase"); Compare runs
+	// the same units with both.
+	Search  string
+	Compare bool
+	// IntoRealLog allows DB to hold runs of a real (gpio) station.
+	IntoRealLog bool
+	// Drift puts a step or ramp into the shift.
+	Drift Drift
+	// Panel tests panels of this many sites (RunPanel); 0: single units.
+	// OwnLadders gives every site its own ladder instead of a ganged one.
+	Panel      int
+	OwnLadders bool
+	// Software is the version string every run records.
+	Software string
+	// Progress, when not nil, is asked for a bar per pass.
+	Progress func(label string, units int) Progress
 }
 
-// demoCmd builds `padline demo`.
-func (a *app) demoCmd() *cobra.Command {
-	var o demoOptions
-	cmd := &cobra.Command{
-		Use:   "demo",
-		Short: "Run a simulated shift on the built-in simulated line",
-		Long: `demo runs a whole shift of units through the real plan, search and shift log
-on a simulated station: no hardware and no files needed.
-
-The built-in demo variant (QM-205, a 5 V touch-lamp dimmer of the fictional
-maker Quillmoor Padworks) is tested on the built-in simulated station
-(FX-07: 8 reed-relay rungs, 0.5 … 64 pF). Simulated units carry the variant's
-component tolerances and, at realistic rates, every kind of unit defect; the
-simulator's noise, relay timing and rung calibration error sit at the realism
-floor of a real bench, never below it.
-
-The summary gives the yield, the count per fail code, which defects ended in
-which fail code, the trip accuracy against the simulator's ground truth on
-good units, and fixture time per unit split into fixed steps, bracketing and
-refinement, and the search's floor: the fewest samples any search could
-expect with the unit's transition known. --compare-search runs the same
-units again with the earlier plan (laplace: separate clock, idle and release
-checks, guard levels on every unit) and with the plain staircase (one sample
-per ladder value from the bottom up) and shows them side by side.
-
---drift-at N --drift-pf D puts a step into the shift: from unit N on, the
-pad laminate changes and the pad capacitance mean drops by D pF, so units
-trip D pF higher. --ramp-pf-per-1000 R adds a slow ramp (R pF per 1000
-units) from unit N, or from unit 1 with --drift-at 0. Afterwards the default
-drift watch (individuals 3σ + CUSUM, limits from the first min(50, N−1)
-units) runs over the good units' trip points and the summary gives the
-first alarm at or after unit N: chart, rule, unit and lag.
-
---panel N tests panels of N boards (sites) in one fixture closure on the
-built-in simulated panel station (demo-panel: one ganged reed-relay ladder,
-each site with its own calibrated capacitors and stray, adjacent pads
-coupled through 0.5 pF), one run per site in the shift log. The summary
-gives the fixture time per panel against one unit tested alone, the trip
-accuracy per site against the simulator's truth, and which injected defect
-ended in which fail code on every site. --own-ladders gives every site its
-own ladder instead: the sites then search concurrently.`,
-		Example: `  padline demo
-  padline demo --units 2000 --compare-search
-  padline demo --units 100 --json > shift.jsonl
-  padline demo --db shift.db && padline history --db shift.db --variant QM-205
-  padline demo --units 300 --drift-at 150 --drift-pf 4
-  padline demo --panel 8 --units 800`,
-		Args: cobra.NoArgs,
-		RunE: func(cmd *cobra.Command, _ []string) error {
-			return a.demo(cmd.Context(), o)
-		},
-	}
-	f := cmd.Flags()
-	f.StringVar(&o.variant, "variant", "QM-205", "variant to simulate: a built-in name or a .yaml file")
-	f.StringVar(&o.station, "station", "demo-sim", "simulated station: a built-in name or a .yaml file with driver: sim")
-	f.IntVar(&o.units, "units", 500, "number of units in the shift")
-	f.Uint64Var(&o.seed, "seed", 1, "seed of the simulated units and fixture (same seed, same shift)")
-	f.StringVar(&o.db, "db", "", "shift log to write (default: a temporary file, removed afterwards)")
-	f.StringVar(&o.search, "search", "bracket", "trip search: bracket, staircase or laplace (the earlier plan: separate clock, idle and release checks)")
-	f.BoolVar(&o.compare, "compare-search", false, "run the same units with the staircase too and compare")
-	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per unit, then a summary object")
-	f.BoolVar(&o.intoRealLog, "into-real-log", false, "allow --db to name a shift log that holds runs of a real (gpio) station")
-	f.IntVar(&o.drift.at, "drift-at", 0, "unit from which the pad capacitance drops (trip points step up); 0 = no step")
-	f.Float64Var(&o.drift.stepPF, "drift-pf", 0, "size of the step at --drift-at, pF of trip point")
-	f.IntVar(&o.panel, "panel", 0, "test panels of this many sites (2–32) on the simulated panel station instead of single units")
-	f.BoolVar(&o.ownLadders, "own-ladders", false, "with --panel: every site has its own ladder (default: one ganged ladder)")
-	f.Float64Var(&o.drift.rampPF, "ramp-pf-per-1000", 0, "slow ramp of the trip point, pF per 1000 units, from --drift-at (or unit 1)")
-	return cmd
+// Progress is told about each tested unit of a pass, then that it is done.
+type Progress interface {
+	Step()
+	Done()
 }
 
-// demoUnit is one simulated unit's result beside its ground truth.
-type demoUnit struct {
+type noProgress struct{}
+
+func (noProgress) Step() {}
+func (noProgress) Done() {}
+
+// Unit is one simulated unit's result beside its ground truth.
+type Unit struct {
 	Serial     string   `json:"serial"`
 	Verdict    string   `json:"verdict"`
 	FailCode   string   `json:"fail_code"`
@@ -131,106 +84,110 @@ type demoUnit struct {
 	finished     time.Time     // the run's finish time, as logged
 }
 
-func (a *app) demo(ctx context.Context, o demoOptions) error {
-	if o.units < 1 {
-		return errors.New("demo: --units must be at least 1")
+// Result is a finished demo shift: what was simulated, each pass's units
+// beside their ground truth, and the drift watch.
+type Result struct {
+	Variant *session.Variant
+	Station *session.Station
+	Limits  timing.Report
+	// DBPath is the shift log; Kept is false when it was a temporary one
+	// (removed by now).
+	DBPath string
+	Kept   bool
+	// Strategies names each pass; Passes holds its units in test order,
+	// CPU and Wall its computer time.
+	Strategies []string
+	Passes     [][]Unit
+	CPU, Wall  []time.Duration
+	// TrueStrayPF is the simulated fixture's true stray capacitance.
+	TrueStrayPF float64
+	// Drift is the drift watch over the first pass; nil without drift.
+	Drift *DriftWatch
+}
+
+// Run simulates the shift: every serial through the real plan, search and
+// shift log on a fresh simulated line per pass.
+func Run(ctx context.Context, o Options) (*Result, error) {
+	if o.Units < 1 {
+		return nil, errors.New("demo: --units must be at least 1")
 	}
-	if o.panel > 0 {
-		if o.compare || o.drift.at != 0 || o.drift.rampPF != 0 || o.station != "demo-sim" {
-			return errors.New("demo: --panel runs on the built-in demo panel station; it takes --units, --seed, --db, --search, --own-ladders and --json")
-		}
-		return a.demoPanel(ctx, o)
+	if err := o.Drift.Check(o.Units); err != nil {
+		return nil, err
 	}
-	if err := o.drift.check(o.units); err != nil {
-		return err
-	}
-	v, err := session.LoadVariant(o.variant)
+	v, st, err := session.Load(o.Variant, o.Station)
 	if err != nil {
-		return err
-	}
-	st, err := session.LoadStation(o.station)
-	if err != nil {
-		return err
+		return nil, err
 	}
 	if st.Driver != session.DriverSim {
-		return fmt.Errorf("demo: station %s has driver %q; the demo needs driver: sim", st.Source.Name, st.Driver)
+		return nil, fmt.Errorf("demo: station %s has driver %q; the demo needs driver: sim", st.Source.Name, st.Driver)
 	}
-	st.Sim.Seed = o.seed
+	st.Sim.Seed = o.Seed
 	u, _ := session.StatedUncertainty(st)
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
-	if err != nil {
-		return err
+	res := &Result{Variant: v, Station: st, DBPath: o.DB, Kept: o.DB != "", Strategies: []string{o.Search}}
+	if res.Limits, err = v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u}); err != nil {
+		return nil, err
 	}
-	dbPath := o.db
-	if dbPath == "" {
+	if o.Compare {
+		res.Strategies = []string{"bracket", session.SearchLaplace, "staircase"}
+	}
+	if res.DBPath == "" {
 		dir, err := os.MkdirTemp("", "padline-demo-")
 		if err != nil {
-			return fmt.Errorf("demo: %w", err)
+			return nil, fmt.Errorf("demo: %w", err)
 		}
 		defer os.RemoveAll(dir)
-		dbPath = filepath.Join(dir, "shift.db")
+		res.DBPath = filepath.Join(dir, "shift.db")
 	}
-	db, err := store.Open(dbPath)
+	if err := res.passes(ctx, o); err != nil {
+		return nil, err
+	}
+	if res.Drift, err = o.Drift.watch(res.Passes[0], v, st); err != nil {
+		return nil, err
+	}
+	line, err := session.NewSimLine(st, v)
+	if err != nil {
+		return nil, err
+	}
+	res.TrueStrayPF = line.TrueStrayPF()
+	return res, nil
+}
+
+// passes runs the shift once per strategy; only the first pass is logged.
+func (res *Result) passes(ctx context.Context, o Options) error {
+	db, err := store.Open(res.DBPath)
 	if err != nil {
 		return err
 	}
 	defer db.Close()
-	if err := session.CheckSimulatedInto(ctx, db, dbPath, o.intoRealLog); err != nil {
+	if err := session.CheckSimulatedInto(ctx, db, res.DBPath, o.IntoRealLog); err != nil {
 		return fmt.Errorf("demo: %w", err)
 	}
-	hash, err := db.PutVariant(ctx, v.Name, v.Source.Raw)
+	hash, err := db.PutVariant(ctx, res.Variant.Name, res.Variant.Source.Raw)
 	if err != nil {
 		return err
 	}
-
-	serials, err := demoSerials(v, o.units)
+	serials, err := serials(res.Variant, o.Units)
 	if err != nil {
 		return err
 	}
-	strategies := []string{o.search}
-	if o.compare {
-		strategies = []string{"bracket", session.SearchLaplace, "staircase"}
-	}
-	var results [][]demoUnit
-	var cpu []time.Duration
-	var wall []time.Duration
-	for i, strategy := range strategies {
+	for i, strategy := range res.Strategies {
 		var rec sequences.Recorder = db
 		if i > 0 {
 			rec = discard{} // the comparison pass re-tests the same serials; log the shift once
 		}
+		var prog Progress = noProgress{}
+		if o.Progress != nil {
+			prog = o.Progress("testing ("+strategy+")", len(serials))
+		}
 		t0, c0 := time.Now(), cpuTime()
-		us, err := a.demoShift(ctx, v, st, rep, hash, strategy, serials, rec, o.asJSON || !isTerminal(a.stderr), o.drift)
+		us, err := shift(ctx, res, hash, strategy, serials, rec, prog, o)
 		if err != nil {
 			return err
 		}
-		cpu = append(cpu, cpuTime()-c0)
-		wall = append(wall, time.Since(t0))
-		results = append(results, us)
+		res.CPU = append(res.CPU, cpuTime()-c0)
+		res.Wall = append(res.Wall, time.Since(t0))
+		res.Passes = append(res.Passes, us)
 	}
-	if o.asJSON {
-		enc := json.NewEncoder(a.stdout)
-		for _, u := range results[0] {
-			if err := enc.Encode(u); err != nil {
-				return err
-			}
-		}
-		sum := demoSummaryJSON(v, st, rep, strategies, results, cpu, wall)
-		if sum.Drift, err = o.drift.watch(results[0], v, st); err != nil {
-			return err
-		}
-		return enc.Encode(sum)
-	}
-	dw, err := o.drift.watch(results[0], v, st)
-	if err != nil {
-		return err
-	}
-	line, err := session.NewSimLine(st, v)
-	if err != nil {
-		return err
-	}
-	writeDemoSummary(a.stdout, v, st, rep, dbPath, o.db != "", strategies, results, cpu, wall, line.TrueStrayPF())
-	writeDemoDrift(a.stdout, dw)
 	return nil
 }
 
@@ -241,19 +198,12 @@ var _ sequences.Recorder = discard{}
 
 func (discard) Record(context.Context, *sequences.Run) (int64, error) { return 0, nil }
 
-// demoSerial is serial number i (from 1) of the variant's simulated units:
-// the variant name without dashes, a dash and six digits (QM-205, 1 →
-// QM205-000001).
-func demoSerial(v *session.Variant, i int) string {
-	return fmt.Sprintf("%s-%06d", strings.ReplaceAll(v.Name, "-", ""), i)
-}
-
-// demoSerials makes the shift's serials (see demoSerial) and checks them
+// serials makes the shift's serials (see session.DemoSerial) and checks them
 // against the variant's own pattern.
-func demoSerials(v *session.Variant, n int) ([]string, error) {
+func serials(v *session.Variant, n int) ([]string, error) {
 	out := make([]string, n)
 	for i := range out {
-		out[i] = demoSerial(v, i+1)
+		out[i] = session.DemoSerial(v, i+1)
 		if !v.Serial.MatchString(out[i]) {
 			return nil, fmt.Errorf("demo: serial %s does not match variant %s's serial_pattern %q; the demo numbers serials NAME-000001",
 				out[i], v.Name, v.SerialPattern)
@@ -262,9 +212,9 @@ func demoSerials(v *session.Variant, n int) ([]string, error) {
 	return out, nil
 }
 
-// demoShift tests every serial on a fresh simulated line.
-func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Station, rep timing.Report, hash, strategy string,
-	serials []string, rec sequences.Recorder, quiet bool, dr demoDrift) ([]demoUnit, error) {
+// shift tests every serial on a fresh simulated line.
+func shift(ctx context.Context, res *Result, hash, strategy string, serials []string, rec sequences.Recorder, prog Progress, o Options) ([]Unit, error) {
+	v, st, dr := res.Variant, res.Station, o.Drift
 	u, uFrom := session.StatedUncertainty(st)
 	r, err := session.NewRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: strategy})
 	if err != nil {
@@ -272,11 +222,17 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 	}
 	defer r.Halt()
 	line, fx, lv := r.Line, r.Fixture, r.Plan.Levels()
+	// The shift's units are stamped on a plant timetable, not at the speed
+	// the simulator runs: a takt of 5–7 s with breaks, starting 12:30 so a
+	// long run crosses from the early into the late shift, on days that
+	// end before today.
+	shift := sim.NewShiftClock(demoShiftStart(time.Now(), len(serials)), demoTakt, demoJitter, sim.DemoPauses, 1)
+	var stamp time.Time
 	sess := &sequences.Session{
-		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: time.Now,
+		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: func() time.Time { return stamp },
 		Template: sequences.Run{
 			Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture,
-			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: softwareVersion(),
+			Operator: "demo", Lot: "DEMO-" + time.Now().UTC().Format("20060102"), Software: o.Software,
 			Driver: string(session.DriverSim),
 		},
 	}
@@ -284,24 +240,24 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 	for i, l := range lv {
 		lvPF[i] = l.PF
 	}
-	prog := newProgress(a.stderr, len(serials), "testing ("+strategy+")", quiet)
-	out := make([]demoUnit, 0, len(serials))
+	out := make([]Unit, 0, len(serials))
 	base := session.UnitModel(v, st.Sim)
 	for i, serial := range serials {
 		if err := dr.apply(line, base, i+1); err != nil {
-			prog.done()
+			prog.Done()
 			return nil, err
 		}
+		stamp = shift.Next()
 		unit := line.Load(serial)
 		ops0 := sum(fx.RelayOps())
 		oc, err := sess.Test(ctx, serial)
 		line.Unload()
 		if oc == nil {
-			prog.done()
+			prog.Done()
 			return nil, err
 		}
 		truth := unit.Truth()
-		du := demoUnit{
+		du := Unit{
 			Serial: serial, Verdict: string(oc.Run.Verdict), FailCode: string(oc.Run.FailCode),
 			Defects: truth.Defects, Probes: oc.Trial.Probes, RelayOps: sum(fx.RelayOps()) - ops0,
 			FixtureMS: ms(oc.Run.Finished.Sub(oc.Run.Started)), phases: oc.Trial.Phases, finished: oc.Run.Finished,
@@ -329,9 +285,9 @@ func (a *app) demoShift(ctx context.Context, v *session.Variant, st *session.Sta
 			}
 		}
 		out = append(out, du)
-		prog.step()
+		prog.Step()
 	}
-	prog.done()
+	prog.Done()
 	return out, nil
 }
 
@@ -356,8 +312,8 @@ func cpuTime() time.Duration {
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
 }
 
-// demoStats summarises one pass over the shift.
-type demoStats struct {
+// Stats summarises one pass over the shift.
+type Stats struct {
 	Strategy          string                    `json:"strategy"`
 	Units             int                       `json:"units"`
 	Pass              int                       `json:"pass"`
@@ -389,8 +345,8 @@ type demoStats struct {
 // fixedPhases are the plan's steps outside the trip search.
 var fixedPhases = []string{string(sequences.StepPowerUp), string(sequences.StepClock), string(sequences.StepIdle), string(sequences.StepRelease), string(sequences.StepPowerDown)}
 
-func summarise(strategy string, us []demoUnit, cpu, wall time.Duration) demoStats {
-	s := demoStats{Strategy: strategy, Units: len(us), FailCodes: map[string]int{},
+func summarise(strategy string, us []Unit, cpu, wall time.Duration) Stats {
+	s := Stats{Strategy: strategy, Units: len(us), FailCodes: map[string]int{},
 		DefectOutcomes: map[string]map[string]int{}, PhaseMSMean: map[string]float64{}}
 	var sq, bias float64
 	var errs, spreads, trueSpreads []float64
@@ -487,35 +443,35 @@ func median(xs []float64) float64 {
 	return (ys[len(ys)/2-1] + ys[len(ys)/2]) / 2
 }
 
-type demoSummary struct {
-	Summary      bool        `json:"summary"`
-	Variant      string      `json:"variant"`
-	Station      string      `json:"station"`
-	TestLimitsPF [2]float64  `json:"test_limits_pf"`
-	NoiseMVAt5V  float64     `json:"noise_mv_at_5v"`
-	JitterNs     float64     `json:"jitter_ns"`
-	RungErrSDPF  float64     `json:"rung_err_sd_pf"`
-	Passes       []demoStats `json:"passes"`
+type Summary struct {
+	Summary      bool       `json:"summary"`
+	Variant      string     `json:"variant"`
+	Station      string     `json:"station"`
+	TestLimitsPF [2]float64 `json:"test_limits_pf"`
+	NoiseMVAt5V  float64    `json:"noise_mv_at_5v"`
+	JitterNs     float64    `json:"jitter_ns"`
+	RungErrSDPF  float64    `json:"rung_err_sd_pf"`
+	Passes       []Stats    `json:"passes"`
 	// Drift is the drift watch over the shift; nil without drift flags.
-	Drift *demoDriftWatch `json:"drift,omitempty"`
+	Drift *DriftWatch `json:"drift,omitempty"`
 }
 
-func demoSummaryJSON(v *session.Variant, st *session.Station, rep timing.Report, strategies []string, results [][]demoUnit, cpu, wall []time.Duration) demoSummary {
-	s := demoSummary{Summary: true, Variant: v.Name, Station: st.Name,
+// Summary is the shift's summary object (the demo's last JSON line).
+func (res *Result) Summary() Summary {
+	v, st, rep := res.Variant, res.Station, res.Limits
+	s := Summary{Summary: true, Variant: v.Name, Station: st.Name,
 		TestLimitsPF: [2]float64{rep.TestLimits.Low, rep.TestLimits.High},
-		NoiseMVAt5V:  st.Sim.NoiseMVAt5V, JitterNs: st.Sim.JitterNs, RungErrSDPF: st.Sim.RungErrSDPF}
-	for i, us := range results {
-		s.Passes = append(s.Passes, summarise(strategies[i], us, cpu[i], wall[i]))
+		NoiseMVAt5V:  st.Sim.NoiseMVAt5V, JitterNs: st.Sim.JitterNs, RungErrSDPF: st.Sim.RungErrSDPF, Drift: res.Drift}
+	for i, us := range res.Passes {
+		s.Passes = append(s.Passes, summarise(res.Strategies[i], us, res.CPU[i], res.Wall[i]))
 	}
 	return s
 }
 
-func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep timing.Report, dbPath string, keep bool,
-	strategies []string, results [][]demoUnit, cpu, wall []time.Duration, trueStray float64) {
-	var ss []demoStats
-	for i, us := range results {
-		ss = append(ss, summarise(strategies[i], us, cpu[i], wall[i]))
-	}
+// WriteText prints the shift's summary for people.
+func WriteText(w io.Writer, res *Result) {
+	v, st, rep := res.Variant, res.Station, res.Limits
+	ss := res.Summary().Passes
 	s := ss[0]
 	fmt.Fprintf(w, "simulated shift  %s on %s/%s, %d units\n", v.Name, st.Name, st.Fixture, s.Units)
 	fmt.Fprintf(w, "simulator        noise %.1f mV at 5 V, sample jitter %.1f ns, rung calibration σ %.2f pF (realism floor: DEVELOPERS.md, Simulator realism floor)\n",
@@ -525,6 +481,24 @@ func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep 
 
 	fmt.Fprintf(w, "yield            %.1f %%  (%d pass, %d fail, %d station-fault)\n", s.YieldPct, s.Pass, s.Fail, s.StationFault)
 	fmt.Fprintf(w, "good units       %d, false fails %d\n", s.GoodUnits, s.GoodFalseFails)
+	writeOutcomes(w, s)
+	fmt.Fprintf(w, "\ntrip accuracy on good units against the simulator's ground truth\n")
+	fmt.Fprintf(w, "  RMS error %.3f pF   max %.3f pF   bias %+.3f pF\n", s.TripRMSErrPF, s.TripMaxErrPF, s.TripBiasPF)
+	fmt.Fprintf(w, "  RMS about the bias %.3f pF; the bias is this fixture's calibration error where units trip: its stray\n", s.TripRMSLessBiasPF)
+	fmt.Fprintf(w, "  (true %.2f pF, entered %.2f pF) plus the errors of the rungs closed there; the same for every unit,\n", res.TrueStrayPF, st.Ladder.StrayPF)
+	fmt.Fprintf(w, "  it differs from fixture to fixture (--seed) and a reference unit of known trip point shows it\n")
+	fmt.Fprintf(w, "  transition (10–90 %%) median: fitted %.2f pF, simulator's noise model %.2f pF\n", s.SpreadMedianPF, s.TrueSpreadMedian)
+	writeTiming(w, ss, v.Plan.Search.SETargetPF)
+	fmt.Fprintf(w, "\ncomputer time    %.3f ms CPU per unit, %.2f s wall for %d units\n", s.CPUPerUnitMS, s.WallS, s.Units)
+	if res.Kept {
+		fmt.Fprintf(w, "shift log        %s (see 'padline history --db %s --variant %s')\n", res.DBPath, res.DBPath, v.Name)
+	}
+	writeDrift(w, res.Drift)
+}
+
+// writeOutcomes prints the count per fail code and what each injected
+// defect ended as.
+func writeOutcomes(w io.Writer, s Stats) {
 	codes := slices.Sorted(maps.Keys(s.FailCodes))
 	if len(codes) > 0 {
 		fmt.Fprintln(w, "\nfail code        units")
@@ -543,45 +517,43 @@ func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep 
 			fmt.Fprintf(w, "  %-15s %s\n", d, strings.Join(parts, ", "))
 		}
 	}
-	fmt.Fprintf(w, "\ntrip accuracy on good units against the simulator's ground truth\n")
-	fmt.Fprintf(w, "  RMS error %.3f pF   max %.3f pF   bias %+.3f pF\n", s.TripRMSErrPF, s.TripMaxErrPF, s.TripBiasPF)
-	fmt.Fprintf(w, "  RMS about the bias %.3f pF; the bias is this fixture's calibration error where units trip: its stray\n", s.TripRMSLessBiasPF)
-	fmt.Fprintf(w, "  (true %.2f pF, entered %.2f pF) plus the errors of the rungs closed there; the same for every unit,\n", trueStray, st.Ladder.StrayPF)
-	fmt.Fprintf(w, "  it differs from fixture to fixture (--seed) and a reference unit of known trip point shows it\n")
-	fmt.Fprintf(w, "  transition (10–90 %%) median: fitted %.2f pF, simulator's noise model %.2f pF\n", s.SpreadMedianPF, s.TrueSpreadMedian)
+}
 
+// writeTiming prints fixture time per unit, one column per pass.
+func writeTiming(w io.Writer, ss []Stats, seTarget float64) {
+	s := ss[0]
 	fmt.Fprintf(w, "\nfixture time per unit (mean, ms)")
 	for _, x := range ss {
 		fmt.Fprintf(w, "  %12s", x.Strategy)
 	}
 	fmt.Fprintln(w)
-	row := func(name string, f func(demoStats) float64) {
+	row := func(name string, f func(Stats) float64) {
 		fmt.Fprintf(w, "  %-30s", name)
 		for _, x := range ss {
 			fmt.Fprintf(w, "  %12.1f", f(x))
 		}
 		fmt.Fprintln(w)
 	}
-	row("fixed steps", func(x demoStats) float64 {
+	row("fixed steps", func(x Stats) float64 {
 		var t float64
 		for _, p := range fixedPhases {
 			t += x.PhaseMSMean[p]
 		}
 		return t
 	})
-	row("bracketing (bisection / climb)", func(x demoStats) float64 {
+	row("bracketing (bisection / climb)", func(x Stats) float64 {
 		return x.PhaseMSMean[sequences.PhaseBracket] + x.PhaseMSMean[sequences.PhaseClimb]
 	})
-	row("refinement (incl. guard levels)", func(x demoStats) float64 {
+	row("refinement (incl. guard levels)", func(x Stats) float64 {
 		return x.PhaseMSMean[sequences.PhaseRefine] + x.PhaseMSMean[sequences.PhaseGuard]
 	})
-	row("whole unit", func(x demoStats) float64 { return x.FixtureMSMean })
-	row("probes per unit", func(x demoStats) float64 { return x.ProbesMean })
-	row("relay operations per unit", func(x demoStats) float64 { return x.RelayOpsMean })
-	row("trip RMS error, pF ×1000", func(x demoStats) float64 { return 1000 * x.TripRMSErrPF })
-	row("search samples, good units", func(x demoStats) float64 { return x.SearchSamples })
+	row("whole unit", func(x Stats) float64 { return x.FixtureMSMean })
+	row("probes per unit", func(x Stats) float64 { return x.ProbesMean })
+	row("relay operations per unit", func(x Stats) float64 { return x.RelayOpsMean })
+	row("trip RMS error, pF ×1000", func(x Stats) float64 { return 1000 * x.TripRMSErrPF })
+	row("search samples, good units", func(x Stats) float64 { return x.SearchSamples })
 	fmt.Fprintf(w, "  search floor on good units: %.1f samples = %.1f ms at each unit's clock (the bisection's probes, then\n", s.FloorSamples, s.FloorMS)
-	fmt.Fprintf(w, "  the samples at the nearest level that reach SE %.2f pF with the transition known; relays settle inside a\n", v.Plan.Search.SETargetPF)
+	fmt.Fprintf(w, "  the samples at the nearest level that reach SE %.2f pF with the transition known; relays settle inside a\n", seTarget)
 	fmt.Fprintf(w, "  period here); the %s search took %.1f samples, %.1f ms (%.2f× the floor)\n", s.Strategy, s.SearchSamples, s.SearchMS, s.SearchSamples/s.FloorSamples)
 	for _, c := range ss[1:] {
 		if c.Strategy == "staircase" {
@@ -590,8 +562,20 @@ func writeDemoSummary(w io.Writer, v *session.Variant, st *session.Station, rep 
 				c.PhaseMSMean[sequences.PhaseClimb]/b.PhaseMSMean[sequences.PhaseBracket], c.FixtureMSMean/b.FixtureMSMean, c.FixtureMSMean-b.FixtureMSMean)
 		}
 	}
-	fmt.Fprintf(w, "\ncomputer time    %.3f ms CPU per unit, %.2f s wall for %d units\n", s.CPUPerUnitMS, s.WallS, s.Units)
-	if keep {
-		fmt.Fprintf(w, "shift log        %s (see 'padline history --db %s --variant %s')\n", dbPath, dbPath, v.Name)
-	}
+}
+
+// The demo shift's timetable (invented demo data): one unit every 5 s plus
+// up to 2 s of handling.
+const (
+	demoTakt   = 5 * time.Second
+	demoJitter = 2 * time.Second
+)
+
+// demoShiftStart is 12:30 local on a day early enough that n units (about
+// 6 s each, 14 working hours a day under sim.DemoPauses) finish before
+// the day now falls on.
+func demoShiftStart(now time.Time, n int) time.Time {
+	days := 1 + int(time.Duration(n)*(demoTakt+demoJitter/2)/(14*time.Hour))
+	d := time.Date(now.Year(), now.Month(), now.Day(), 12, 30, 0, 0, now.Location())
+	return d.AddDate(0, 0, -days)
 }

@@ -1,0 +1,58 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"padline/sequences/session"
+
+	"github.com/spf13/cobra"
+)
+
+func (a *app) stationStatusCmd() *cobra.Command {
+	var station string
+	var asJSON bool
+	cmd := &cobra.Command{
+		Use:   "status --station FILE",
+		Short: "Last check, last studies, the station's uncertainty U and relay wear",
+		Long: `status shows, from the shift log, whether 'padline run' would test production
+units now (and why not), the last reference check, the last type-1 and gauge
+R&R studies, the station's uncertainty U with its components and where they
+came from, and each rung's relay operations against ladder.rated_operations,
+with a WARNING from relay_warn_fraction (default 0.8) of rated life.`,
+		Example: `  padline station status --station demo-sim --db shift.db
+  padline station status --station /etc/padline/station.yaml --json`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			dbPath, err := shiftLogPath(cmd, station)
+			if err != nil {
+				return err
+			}
+			return a.stationStatus(cmd.Context(), station, dbPath, asJSON)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&station, "station", "", "station file: a .yaml file or a built-in name (required)")
+	addShiftLogFlag(f)
+	f.BoolVar(&asJSON, "json", false, "print the status as one JSON object")
+	_ = cmd.MarkFlagRequired("station")
+	return cmd
+}
+
+// stationStatus prints the station's status from its shift log.
+func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON bool) error {
+	st, err := session.LoadStation(station)
+	if err != nil {
+		return err
+	}
+	rep, err := session.Status(ctx, st, dbPath)
+	if err != nil {
+		return err
+	}
+	if asJSON {
+		enc := json.NewEncoder(a.stdout)
+		enc.SetIndent("", "  ")
+		return enc.Encode(rep)
+	}
+	session.WriteStatus(a.stdout, rep, st)
+	return nil
+}

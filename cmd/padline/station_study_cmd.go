@@ -1,0 +1,105 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"padline/sequences/session"
+
+	"github.com/spf13/cobra"
+)
+
+func (a *app) stationStudyCmd() *cobra.Command {
+	var (
+		o                session.StudyOptions
+		grr              bool
+		asJSON           bool
+		variant, station string
+	)
+	cmd := &cobra.Command{
+		Use:   "study --variant V --station FILE (--type1 [--n 25] | --grr [--parts 10 --trials 3 --appraisers 3])",
+		Short: "Type-1 or gauge R&R study of the station; stores it and the station's uncertainty U",
+		Long: `study measures the station as a measurement system, with the variant's own
+production plan (the same trip search every unit gets).
+
+--type1  one reference unit (the first in the station file, or --ref) measured
+         n times (n ≥ 25): bias against its registered trip, repeatability sd,
+         Cg = 0.2·T/(6·s) and Cgk = (0.1·T − |bias|)/(3·s), T = the width of the
+         variant's test limits (both ≥ 1.33 wanted).
+--grr    gauge R&R by the AIAG average-and-range method (MSA 4th ed.): parts ×
+         appraisers × trials; EV, AV, GRR, PV, TV, %GRR, ndc and the verdict
+         (< 10 % acceptable, 10–30 % conditional, > 30 % not). Parts are
+         different good units (--serials, or on the simulated line the first
+         good serials of the variant). On the simulated line an appraiser is a
+         separate round of loads: the sim has no operators, so AV measures
+         load-to-load reproducibility only.
+
+After either study the station's GUM budget is recomputed and stored: ladder
+resolution δ/√12 (δ = the smallest rung), rung calibration
+(cal_uncertainty_pf × √(rungs closed at the variant's nominal trip)), and
+repeatability from the latest type-1 study (else the latest GRR);
+U = 2·u_c. 'padline limits --station' and 'padline run' use U as the guard
+band from then on.`,
+		Example: `  padline station study --variant QM-205 --station demo-sim --db shift.db --type1
+  padline station study --variant QM-205 --station demo-sim --db shift.db --grr --json`,
+		Args: cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			if o.Type1 == grr {
+				return errors.New("station study: give exactly one of --type1 or --grr")
+			}
+			if o.Type1 && o.N < 25 {
+				return fmt.Errorf("station study: --n must be at least 25 for a type-1 study, got %d", o.N)
+			}
+			dbPath, err := shiftLogPath(cmd, station)
+			if err != nil {
+				return err
+			}
+			return a.stationStudy(cmd.Context(), variant, station, dbPath, o, asJSON)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&variant, "variant", "", "variant whose plan and test limits the study uses (required)")
+	f.StringVar(&station, "station", "", "station file: a .yaml file or a built-in name (required)")
+	addShiftLogFlag(f)
+	f.BoolVar(&o.Type1, "type1", false, "type-1 study of one reference unit")
+	f.IntVar(&o.N, "n", 25, "type-1: measurements of the reference unit")
+	f.StringVar(&o.Ref, "ref", "", "type-1: the reference unit's serial (default: the first in the station file)")
+	f.BoolVar(&grr, "grr", false, "gauge R&R study (AIAG average-and-range)")
+	f.IntVar(&o.Parts, "parts", 10, "GRR: parts (2–10)")
+	f.IntVar(&o.Trials, "trials", 3, "GRR: trials per part and appraiser (2–3)")
+	f.IntVar(&o.Appraisers, "appraisers", 3, "GRR: appraisers (2–3; on the simulated line, rounds of loads)")
+	f.StringSliceVar(&o.Serials, "serials", nil, "GRR: the parts' serials (default on the simulated line: the first good serials)")
+	f.BoolVar(&asJSON, "json", false, "print the study as one JSON object")
+	_ = cmd.MarkFlagRequired("variant")
+	_ = cmd.MarkFlagRequired("station")
+	return cmd
+}
+
+// measure runs the variant's production plan on the unit in the fixture and
+// returns its trip point; nothing is recorded as a run.
+
+// stationStudy opens the station, makes the study and prints it.
+func (a *app) stationStudy(ctx context.Context, variant, station, dbPath string, o session.StudyOptions, asJSON bool) (err error) {
+	r, prompts, err := a.openRig(ctx, variant, station, dbPath, asJSON)
+	if err != nil {
+		return err
+	}
+	defer func() {
+		if cerr := r.Close(ctx); cerr != nil && err == nil {
+			err = cerr
+		}
+	}()
+	o.Prompt = func(msg string) { fmt.Fprintln(prompts, msg) }
+	rep, err := session.RunStudy(ctx, r.Rig, r.DB, o)
+	if err != nil {
+		return err
+	}
+	if asJSON {
+		enc := json.NewEncoder(a.stdout)
+		enc.SetIndent("", "  ")
+		return enc.Encode(rep)
+	}
+	session.WriteStudy(a.stdout, rep)
+	return nil
+}

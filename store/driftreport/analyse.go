@@ -1,0 +1,691 @@
+package driftreport
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io/fs"
+	"math"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"time"
+
+	"padline/sequences"
+	"padline/sequences/session"
+	"padline/sequences/timing"
+	"padline/store"
+	"padline/store/drift"
+	"padline/store/drift/chart"
+)
+
+// DefaultBaseline is the phase I window when --baseline is not given:
+// the first 50 points (the drift package's own studies use 50).
+const DefaultBaseline = 50
+
+// DefaultAlarms is how many alarms the report lists by default.
+const DefaultAlarms = 50
+
+// MemoryLimit is the Go heap's soft limit while drift runs.
+const MemoryLimit = 160 << 20
+
+// Options are what `padline drift` asks for, its flags parsed.
+type Options struct {
+	// DB is the shift log's path (resolved by the caller).
+	DB string
+	// StationFile, when set and UncertaintyGiven is false, gives the
+	// station whose uncertainty U judges capability: the budget its last
+	// study stored in the shift log, else its file's uncertainty_pf.
+	StationFile string
+	// Variant whose trip points to watch (a name or a .yaml file).
+	Variant          string
+	Filter           store.Filter
+	IncludeSimulated bool   // also simulated runs in a log with real ones
+	Since, Until     string // as given, for the report
+	By, Chart, Rules string
+	Subgroup         int
+	Baseline         int
+	SVG, PNG         string
+	CSVFile, Column  string
+	// Keep says which row of a serial on several CSV rows counts: "first"
+	// or "last" ("": refuse such a file).
+	Keep             string
+	UncertaintyPF    float64
+	UncertaintyFrom  string
+	UncertaintyGiven bool    // UncertaintyPF came from the command line
+	LSL, USL         float64 // NaN = from the variant
+	Alarms           int
+	AllVerdicts      bool // chart failed units' trip points too
+	// OwnBaseline: --baseline, --target or --sigma given, so no approved
+	// baseline is used.
+	OwnBaseline bool
+	approved    *store.Baseline
+	Drift       drift.Options
+}
+
+// Check validates the options that do not need the data.
+func (o *Options) Check() error {
+	switch {
+	case o.CSVFile == "" && o.Variant == "":
+		return errors.New("drift: give --variant V, or --csv FILE --column NAME (see padline drift --help)")
+	case o.CSVFile != "" && o.Column == "":
+		return errors.New("drift: --csv needs --column NAME (the header of the column to analyse)")
+	case o.Keep != "" && o.Keep != "first" && o.Keep != "last":
+		return fmt.Errorf("drift: --keep must be first or last, got %q", o.Keep)
+	case o.CSVFile == "" && o.Column != "":
+		return errors.New("drift: --column goes with --csv FILE")
+	case o.CSVFile != "" && o.By != "":
+		return errors.New("drift: --by works on the shift log, not on --csv")
+	case o.SVG != "" && o.PNG != "":
+		return errors.New("drift: give --svg or --png, not both")
+	case o.Baseline < 2:
+		return fmt.Errorf("drift: --baseline must be at least 2 points, got %d", o.Baseline)
+	case o.Alarms < 0:
+		return fmt.Errorf("drift: --alarms must be ≥ 0, got %d", o.Alarms)
+	}
+	switch o.By {
+	case "", "station", "fixture", "lot", "shift", "site":
+	default:
+		return fmt.Errorf("drift: --by must be station, fixture, lot, shift or site, got %q", o.By)
+	}
+	switch o.Chart {
+	case "watch", "imr", "ewma", "cusum":
+	case "xbar-r", "xbar-s":
+		if o.Subgroup < drift.MinSubgroup || o.Subgroup > drift.MaxSubgroup {
+			return fmt.Errorf("drift: --subgroup must be %d…%d, got %d", drift.MinSubgroup, drift.MaxSubgroup, o.Subgroup)
+		}
+	default:
+		return fmt.Errorf("drift: --chart must be watch, imr, xbar-r, xbar-s, ewma or cusum, got %q", o.Chart)
+	}
+	if _, err := RulesFor(o.Rules, o.Chart); err != nil {
+		return err
+	}
+	return nil
+}
+
+// RulesFor resolves --rules for a chart.
+func RulesFor(name, chartKind string) ([]drift.Rule, error) {
+	switch name {
+	case "":
+		if chartKind == "watch" {
+			return drift.DefaultSet.Rules, nil
+		}
+		return drift.WesternElectric, nil
+	case "we":
+		return drift.WesternElectric, nil
+	case "nelson":
+		return drift.NelsonRules, nil
+	case "limits":
+		return drift.LimitsOnly, nil
+	}
+	return nil, fmt.Errorf("drift: --rules must be we, nelson or limits, got %q", name)
+}
+
+// driftSeries is one group's series: values with, when they come from the
+// shift log, each point's run id and finish time.
+type driftSeries struct {
+	key    string
+	x      []float64
+	runIDs []int64
+	times  []int64 // Unix ns
+	filter store.Filter
+	counts <-chan countsResult // the group's verdict totals, computed alongside
+}
+
+// countsResult is one Counts answer.
+type countsResult struct {
+	c   store.Counts
+	err error
+}
+
+// driftCountWorkers bounds the Counts queries running at once (each holds
+// a SQLite connection).
+const driftCountWorkers = 4
+
+// startCounts runs db.Counts(f) in the background, at most
+// driftCountWorkers at a time (sem), so the first-pass yield query overlaps
+// the trip series read and the charts.
+func startCounts(ctx context.Context, db *store.DB, f store.Filter, sem chan struct{}) <-chan countsResult {
+	ch := make(chan countsResult, 1)
+	go func() {
+		sem <- struct{}{}
+		defer func() { <-sem }()
+		c, err := db.Counts(ctx, f)
+		ch <- countsResult{c, err}
+	}()
+	return ch
+}
+
+// driftAnalysis is what analyseSeries finds in one series.
+type driftAnalysis struct {
+	window drift.Window
+	sum    drift.Summary // centre lines, limits, alarm counts and the alarms listed
+	charts []drift.Chart // every point, only when the charts are drawn
+	cap    *drift.Capability
+	capErr error
+}
+
+// analyseSeries runs the chosen chart on x with limits from the first
+// baseline points, and capability against low/high (NaN = none). The
+// report comes from one pass that keeps only the alarms it lists
+// (drift.Summarize); the charts with every point are built only when draw
+// is set, for the chart file.
+func analyseSeries(x []float64, o Options, low, high float64, draw bool) (driftAnalysis, error) {
+	var an driftAnalysis
+	if len(x) < 2 {
+		return an, fmt.Errorf("%d points: too few to chart (need at least 2)", len(x))
+	}
+	an.window = drift.FirstN(min(o.Baseline, len(x)))
+	if o.approved != nil {
+		// Target and σ come from the approved baseline, outside the series:
+		// the window only bounds where the change point is sought, so a
+		// change may come at the series' first points.
+		an.window = drift.FirstN(min(2, len(x)))
+	}
+	rules, err := RulesFor(o.Rules, o.Chart)
+	if err != nil {
+		return an, err
+	}
+	opt := o.Drift
+	opt.Rules = rules
+	sub, useS := 1, false
+	plan := drift.Plan{Keep: o.Alarms, Assess: true}
+	switch o.Chart {
+	case "watch":
+		set := drift.DefaultSet
+		set.Rules = rules
+		plan.Charts = drift.WatchPlan(set, o.Alarms).Charts
+	case "imr":
+		plan.Charts = []drift.Kind{drift.Individuals, drift.MovingRange}
+	case "xbar-r":
+		sub = o.Subgroup
+		plan.Charts = []drift.Kind{drift.Xbar, drift.Range}
+	case "xbar-s":
+		sub, useS = o.Subgroup, true
+		plan.Charts = []drift.Kind{drift.Xbar, drift.StdDev}
+	case "ewma":
+		plan.Charts = []drift.Kind{drift.EWMA}
+	case "cusum":
+		plan.Charts = []drift.Kind{drift.CUSUM}
+	}
+	plan.Subgroup = sub
+	if an.sum, err = drift.Summarize(x, an.window, opt, plan); err != nil {
+		return an, err
+	}
+	if draw {
+		if an.charts, err = driftCharts(x, o.Chart, sub, an.window, opt, rules); err != nil {
+			return an, err
+		}
+	}
+	if math.IsNaN(low) && math.IsNaN(high) {
+		an.capErr = errors.New("no limits: give --variant or --lsl/--usl")
+	} else if c, err := drift.CapabilityOf(x, sub, useS, low, high); err != nil {
+		an.capErr = err
+	} else {
+		an.cap = &c
+	}
+	return an, nil
+}
+
+// driftCharts builds the charts of kind with every point, for drawing.
+func driftCharts(x []float64, kind string, sub int, w drift.Window, opt drift.Options, rules []drift.Rule) ([]drift.Chart, error) {
+	switch kind {
+	case "watch":
+		set := drift.DefaultSet
+		set.Rules = rules
+		wt, err := drift.WatchSeries(x, w, opt, set)
+		return wt.Charts, err
+	case "imr", "xbar-r", "xbar-s":
+		var (
+			s   drift.Shewhart
+			err error
+		)
+		switch kind {
+		case "imr":
+			s, err = drift.IndividualsChart(x, w, opt)
+		case "xbar-r":
+			s, err = drift.XbarRChart(x, sub, w, opt)
+		default:
+			s, err = drift.XbarSChart(x, sub, w, opt)
+		}
+		return []drift.Chart{s.Location, s.Spread}, err
+	}
+	var (
+		c   drift.Chart
+		err error
+	)
+	if kind == "ewma" {
+		c, err = drift.EWMAChart(x, w, opt)
+	} else {
+		c, err = drift.CUSUMChart(x, w, opt)
+	}
+	return []drift.Chart{c}, err
+}
+
+// Run reads the series o selects (the shift log, or a CSV column), analyses
+// each group and returns the report; with SVG/PNG it writes the charts.
+func Run(ctx context.Context, o Options) (Report, error) {
+	rep := Report{Chart: o.Chart, Baseline: o.Baseline, UncertaintyPF: Num(math.NaN())}
+	if err := o.resolveUncertainty(ctx); err != nil {
+		return rep, err
+	}
+	var groups []driftSeries
+	var db *store.DB
+	if o.CSVFile != "" {
+		x, err := ReadSeriesCSV(o.CSVFile, o.Column, o.Keep)
+		if err != nil {
+			return rep, fmt.Errorf("drift: %w", err)
+		}
+		rep.Source = fmt.Sprintf("CSV %s, column %s", o.CSVFile, o.Column)
+		groups = []driftSeries{{x: x}}
+	} else {
+		var err error
+		if db, err = openLog(ctx, &o); err != nil {
+			return rep, err
+		}
+		defer db.Close()
+		rep.Source = "shift log " + o.DB
+		rep.Since, rep.Until = o.Since, o.Until
+		rep.Station, rep.Fixture, rep.Lot, rep.By = o.Filter.Station, o.Filter.Fixture, o.Filter.Lot, o.By
+	}
+	low, high, err := o.limits(ctx, db, &rep)
+	if err != nil {
+		return rep, err
+	}
+	rep.Limits = [2]Num{Num(low), Num(high)}
+	if err := useApprovedBaseline(ctx, db, &o, &rep); err != nil {
+		return rep, fmt.Errorf("drift: %w", err)
+	}
+	if db != nil {
+		ctx, cancel := context.WithCancel(ctx)
+		defer cancel() // stops Counts queries nobody waits for after an error
+		if groups, err = logGroups(ctx, db, o, rep.Variant); err != nil {
+			return rep, err
+		}
+	}
+	for _, g := range groups {
+		gr, err := driftGroup(ctx, db, o, g, low, high)
+		if err != nil {
+			if o.By != "" {
+				err = fmt.Errorf("%s %s: %w", o.By, g.key, err)
+			}
+			return rep, fmt.Errorf("drift: %w", err)
+		}
+		rep.Groups = append(rep.Groups, gr)
+	}
+	rep.Verdict = topVerdict(o.By, rep.Groups)
+	return rep, nil
+}
+
+// resolveUncertainty sets U: given on the command line, else the station
+// file's (the same U padline run judged with: the station's stored budget,
+// else its file, else the stand-in).
+func (o *Options) resolveUncertainty(ctx context.Context) error {
+	switch {
+	case o.UncertaintyGiven:
+		o.UncertaintyFrom = "--uncertainty-pf"
+	case o.StationFile != "":
+		st, err := session.LoadStation(o.StationFile)
+		if err != nil {
+			return fmt.Errorf("drift: %w", err)
+		}
+		if o.UncertaintyPF, o.UncertaintyFrom, err = session.Uncertainty(ctx, o.DB, st); err != nil {
+			return err
+		}
+	}
+	if o.UncertaintyFrom == "" {
+		o.UncertaintyFrom = "stand-in (no station file)"
+	}
+	return nil
+}
+
+// openLog opens the shift log (never creating one) and narrows the filter
+// to the drivers the view keeps.
+func openLog(ctx context.Context, o *Options) (*store.DB, error) {
+	if _, err := os.Stat(o.DB); errors.Is(err, fs.ErrNotExist) {
+		return nil, fmt.Errorf("drift: no shift log at %s (give --db PATH, set PADLINE_DB, or --station-file)", o.DB)
+	}
+	db, err := store.Open(o.DB)
+	if err != nil {
+		return nil, fmt.Errorf("drift: %w", err)
+	}
+	if o.Filter.Driver, err = session.DriverFilter(ctx, db, o.IncludeSimulated); err != nil {
+		db.Close()
+		return nil, fmt.Errorf("drift: %w", err)
+	}
+	return db, nil
+}
+
+// limits are the capability limits: LSL/USL when given, else the variant's
+// test limits with U; it fills the report's variant and where the limits
+// came from.
+func (o *Options) limits(ctx context.Context, db *store.DB, rep *Report) (low, high float64, err error) {
+	low, high = o.LSL, o.USL
+	if o.Variant != "" {
+		v, from, err := session.VariantFor(ctx, db, o.Variant)
+		switch {
+		case err != nil && o.CSVFile != "":
+			return low, high, fmt.Errorf("drift: %w", err)
+		case err != nil:
+			// Runs of a variant this program has no file for: the trip
+			// series is still there, capability needs --lsl/--usl.
+			rep.Variant = o.Variant
+			rep.LimitsFrom = "none: " + err.Error()
+		default:
+			rep.Variant = v.Name
+			lr, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: o.UncertaintyPF})
+			if err != nil {
+				return low, high, fmt.Errorf("drift: %w", err)
+			}
+			if math.IsNaN(low) {
+				low = lr.TestLimits.Low
+			}
+			if math.IsNaN(high) {
+				high = lr.TestLimits.High
+			}
+			rep.UncertaintyPF = Num(o.UncertaintyPF)
+			rep.LimitsFrom = fmt.Sprintf("variant %s from %s, U %.2f pF (%s)", v.Name, from, o.UncertaintyPF, o.UncertaintyFrom)
+		}
+	}
+	if !math.IsNaN(o.LSL) || !math.IsNaN(o.USL) {
+		rep.LimitsFrom = "--lsl/--usl"
+		if !math.IsNaN(o.LSL) && !math.IsNaN(o.USL) && o.LSL >= o.USL {
+			return low, high, fmt.Errorf("drift: --lsl %g must be below --usl %g", o.LSL, o.USL)
+		}
+	}
+	return low, high, nil
+}
+
+// logGroups reads the variant's trip series from the log, split by --by,
+// each group with its verdict counts computing in the background.
+func logGroups(ctx context.Context, db *store.DB, o Options, variant string) ([]driftSeries, error) {
+	o.Filter.Variant = variant
+	sem := make(chan struct{}, driftCountWorkers)
+	var whole <-chan countsResult
+	if o.By == "" {
+		whole = startCounts(ctx, db, o.Filter, sem)
+	}
+	groups, err := driftGroups(ctx, db, o.Filter, o.By, o.AllVerdicts)
+	if err != nil {
+		return nil, fmt.Errorf("drift: %w", err)
+	}
+	if len(groups) == 0 {
+		return nil, fmt.Errorf("drift: no trip points of %s in %s%s", variant, o.DB, describeFilter(o))
+	}
+	for i := range groups {
+		if whole != nil {
+			groups[i].counts = whole
+		} else {
+			groups[i].counts = startCounts(ctx, db, groups[i].filter, sem)
+		}
+	}
+	return groups, nil
+}
+
+// describeFilter states the filters for a "nothing found" message.
+func describeFilter(o Options) string {
+	var parts []string
+	for _, p := range [][2]string{{"since", o.Since}, {"until", o.Until}, {"station", o.Filter.Station}, {"fixture", o.Filter.Fixture}, {"lot", o.Filter.Lot}} {
+		if p[1] != "" {
+			parts = append(parts, p[0]+" "+p[1])
+		}
+	}
+	if len(parts) == 0 {
+		return ""
+	}
+	return " (" + strings.Join(parts, ", ") + ")"
+}
+
+// driftGroups reads the trip series and splits it by the --by key, groups
+// in key order (shift keys sort by time).
+func driftGroups(ctx context.Context, db *store.DB, f store.Filter, by string, allVerdicts bool) ([]driftSeries, error) {
+	// A unit that failed has a defect, a special cause the limits already
+	// caught: by default only passing units feed the charts, so one bad
+	// unit does not read as the process moving. f itself (every verdict)
+	// stays the groups' filter, for their yield.
+	sf := f
+	if !allVerdicts {
+		sf.Verdict = sequences.Pass
+	}
+	// The points stream from the store into compact arrays, 24 bytes a
+	// point; station, fixture and lot are read only when --by needs them.
+	var out []driftSeries
+	idx := map[string]int{}
+	for p, err := range db.Trips(ctx, sf, by != "" && by != "shift") {
+		if err != nil {
+			return nil, err
+		}
+		key, i := "", 0
+		if by != "" {
+			var gf store.Filter
+			key, gf = driftKey(p, by, f)
+			var ok bool
+			if i, ok = idx[key]; !ok {
+				i = len(out)
+				idx[key] = i
+				out = append(out, driftSeries{key: key, filter: gf})
+			}
+		} else if len(out) == 0 {
+			out = append(out, driftSeries{filter: f})
+		}
+		g := &out[i]
+		g.x = append(g.x, p.TripPF)
+		g.runIDs = append(g.runIDs, p.RunID)
+		g.times = append(g.times, p.Finished.UnixNano())
+	}
+	slices.SortStableFunc(out, func(a, b driftSeries) int { return strings.Compare(a.key, b.key) })
+	return out, nil
+}
+
+// driftKey is a point's group under --by, and the filter that selects the
+// group's runs (for its yield).
+func driftKey(p store.TripPoint, by string, f store.Filter) (string, store.Filter) {
+	// A unit counts in the yield of each group it was tested in: its
+	// first verdict on that station, fixture, lot or site.
+	f.FirstInGroup = by != "shift"
+	switch by {
+	case "station":
+		f.Station = p.Station
+		return p.Station, f
+	case "fixture":
+		f.Fixture = p.Fixture
+		return p.Fixture, f
+	case "lot":
+		f.Lot = p.Lot
+		return p.Lot, f
+	case "site":
+		// Units tested alone form their own group.
+		if p.Site == 0 {
+			f.Site = -1
+			return "none (units tested alone)", f
+		}
+		f.Site = p.Site
+		return fmt.Sprintf("%02d", p.Site), f
+	}
+	name, start, end := shiftOf(p.Finished.Local())
+	if f.Since.IsZero() || f.Since.Before(start) {
+		f.Since = start
+	}
+	if f.Until.IsZero() || f.Until.After(end) {
+		f.Until = end
+	}
+	return name, f
+}
+
+// shiftOf names the shift t falls in (early 06–14, late 14–22, night
+// 22–06, dated by the day it starts) and gives its bounds, in t's zone.
+func shiftOf(t time.Time) (name string, start, end time.Time) {
+	day := time.Date(t.Year(), t.Month(), t.Day(), 0, 0, 0, 0, t.Location())
+	h := t.Hour()
+	var which string
+	switch {
+	case h < 6:
+		day = day.AddDate(0, 0, -1)
+		which, start = "night", day.Add(22*time.Hour)
+	case h < 14:
+		which, start = "early", day.Add(6*time.Hour)
+	case h < 22:
+		which, start = "late", day.Add(14*time.Hour)
+	default:
+		which, start = "night", day.Add(22*time.Hour)
+	}
+	return day.Format("2006-01-02") + " " + which, start, start.Add(8 * time.Hour)
+}
+
+// driftGroup analyses one group and assembles its report.
+func driftGroup(ctx context.Context, db *store.DB, o Options, g driftSeries, low, high float64) (GroupReport, error) {
+	gr := GroupReport{Key: g.key, Points: len(g.x)}
+	if len(g.times) > 0 {
+		gr.First, gr.Last = tptr(g.times[0]), tptr(g.times[len(g.times)-1])
+	}
+	path := driftChartPath(o, g.key)
+	an, err := analyseSeries(g.x, o, low, high, path != "")
+	if err != nil {
+		return gr, err
+	}
+	w := an.window
+	if len(g.times) > 0 {
+		w.From, w.To = time.Unix(0, g.times[w.Start]), time.Unix(0, g.times[w.End-1])
+	}
+	gr.Baseline = Window{FirstUnit: w.Start + 1, LastUnit: w.End, Points: w.Len(), Text: w.String()}
+	if len(g.times) > 0 {
+		gr.Baseline.From, gr.Baseline.To = &w.From, &w.To
+	}
+	describeBaseline(ctx, db, o, g, &gr.Baseline)
+	defer func() {
+		if o.approved != nil {
+			for i := range gr.Charts {
+				gr.Charts[i].Method = fmt.Sprintf("approved baseline %q", o.approved.Name)
+			}
+		}
+	}()
+	for _, c := range an.sum.Charts {
+		gr.Charts = append(gr.Charts, chartSummary(c))
+	}
+	gr.AlarmCount = an.sum.Alarms
+	gr.Verdict = driftVerdict(ctx, db, o, g, an)
+	gr.Alarms = groupAlarms(ctx, db, g, an.sum.First, o.Alarms)
+	if an.cap != nil {
+		c := an.cap
+		gr.Capability = &Capability{N: c.N, Low: Num(c.Low), High: Num(c.High), Mean: Num(c.Mean),
+			SigmaWithin: Num(c.SigmaWithin), SigmaOverall: Num(c.SigmaOverall), Method: c.Method,
+			Cp: Num(c.Cp), Cpk: Num(c.Cpk), Pp: Num(c.Pp), Ppk: Num(c.Ppk)}
+	} else {
+		gr.CapabilityNote = an.capErr.Error()
+	}
+	if err := groupYield(&gr, g); err != nil {
+		return gr, err
+	}
+	if path != "" {
+		if err := writeChart(path, o, g.key, an.charts); err != nil {
+			return gr, err
+		}
+		gr.ChartFile = path
+	}
+	return gr, nil
+}
+
+// groupAlarms lists the earliest limit alarms (0 = all) with each one's
+// run, time and serial when the series came from the shift log.
+func groupAlarms(ctx context.Context, db *store.DB, g driftSeries, alarms []drift.Alarm, limit int) []Alarm {
+	shown := alarms
+	if limit > 0 && len(shown) > limit {
+		shown = shown[:limit] // the earliest: when the drift began
+	}
+	var out []Alarm
+	for _, al := range shown {
+		aj := Alarm{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
+			Unit: al.Unit + 1, Point: al.Index + 1, Side: al.Side, Note: al.Note}
+		if al.Onset >= 0 && al.Chart == drift.CUSUM {
+			aj.OnsetUnit = al.Onset + 1
+			if al.Onset < len(g.runIDs) && db != nil {
+				at := time.Unix(0, g.times[al.Onset])
+				aj.Note = OnsetNote(al, PointName(db.RunAt(ctx, g.filter.Variant, g.runIDs[al.Onset], at).Serial, at, false))
+			}
+		}
+		if al.Unit < len(g.runIDs) {
+			aj.RunID = g.runIDs[al.Unit]
+			aj.Time = tptr(g.times[al.Unit])
+			if db != nil {
+				aj.Serial = db.RunAt(ctx, g.filter.Variant, aj.RunID, *aj.Time).Serial
+			}
+		}
+		out = append(out, aj)
+	}
+	return out
+}
+
+// groupYield waits for the group's verdict counts and adds the first-pass
+// yield with its exact Clopper–Pearson 95 % interval.
+func groupYield(gr *GroupReport, g driftSeries) error {
+	if g.counts == nil {
+		return nil
+	}
+	res := <-g.counts
+	cnt, err := res.c, res.err
+	if err != nil {
+		return err
+	}
+	gr.Runs = cnt.Runs
+	if cnt.FirstUnits > 0 {
+		y, err := drift.FirstPassYield(int(cnt.FirstPass), int(cnt.FirstUnits), 0.95)
+		if err != nil {
+			return err
+		}
+		gr.Yield = &Yield{Pass: y.Pass, Total: y.Total, Rate: Num(y.Rate), Low: Num(y.Low), High: Num(y.High), Confidence: y.Confidence}
+	}
+	return nil
+}
+
+// writeChart renders a group's charts to path.
+func writeChart(path string, o Options, key string, charts []drift.Chart) error {
+	title := "trip point"
+	if o.Variant != "" {
+		title = o.Variant + " trip point"
+	}
+	if key != "" {
+		title += " — " + o.By + " " + key
+	}
+	unit := "pF"
+	if o.CSVFile != "" {
+		title, unit = o.Column, ""
+	}
+	copts := chart.Options{Title: title + " (" + driftChartTitle(o.Chart) + ")", Quantity: "trip point", Unit: unit}
+	if o.CSVFile != "" {
+		copts.Quantity = o.Column
+	}
+	return chart.WriteFile(path, copts, charts...)
+}
+
+func driftChartTitle(kind string) string {
+	if kind == "watch" {
+		return "default watch"
+	}
+	return kind
+}
+
+// driftChartPath is the chart file of a group: --svg/--png as given, with
+// the group's name before the extension under --by.
+func driftChartPath(o Options, key string) string {
+	path := o.SVG
+	if path == "" {
+		path = o.PNG
+	}
+	if path == "" || key == "" {
+		return path
+	}
+	ext := filepath.Ext(path)
+	safe := strings.Map(func(r rune) rune {
+		if r == '-' || r == '_' || r == '.' || (r >= '0' && r <= '9') || (r >= 'a' && r <= 'z') || (r >= 'A' && r <= 'Z') {
+			return r
+		}
+		return '_'
+	}, key)
+	return strings.TrimSuffix(path, ext) + "-" + safe + ext
+}
+
+func tptr(ns int64) *time.Time {
+	t := time.Unix(0, ns)
+	return &t
+}
