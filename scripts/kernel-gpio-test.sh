@@ -77,20 +77,28 @@ mount -t configfs configfs /sys/kernel/config
 echo "GPIOVM booted: uptime $(cut -d' ' -f1 /proc/uptime) s"
 start=$(cut -d' ' -f1 /proc/uptime)
 cd /tmp
-/bin/gpiovm run /vm
+cmd=run
+for w in $(cat /proc/cmdline); do case $w in gpiovm.cmd=*) cmd=${w#gpiovm.cmd=} ;; esac; done
+/bin/gpiovm $cmd /vm
 echo "GPIOVM exit $? after $(cut -d' ' -f1 /proc/uptime) s uptime (test started at $start s)"
 poweroff -f
 INIT
 chmod +x "$r/init"
 (cd "$r" && find . | busybox cpio -o -H newc 2>/dev/null | gzip -1) >"$work/initrd.gz"
 
+# Instruction counting: the guest's clock advances with the instructions it
+# runs (2 ns each, sleep=off skips idle time), not with the host's wall
+# clock, so a busy host slows the test down but cannot make the guest see
+# late clock edges. PADLINE_VM_ICOUNT=off runs on the wall clock instead.
+icount="-icount shift=1,sleep=off"
+[ "${PADLINE_VM_ICOUNT:-on}" = off ] && icount=""
 log=${PADLINE_VM_LOG:-$work/console.log}
 echo "kernel-gpio-test: booting qemu-system-x86_64 (software emulation); console in $log"
 t2=$(date +%s.%N)
 set +e
-timeout "${PADLINE_VM_TIMEOUT:-1800}" qemu-system-x86_64 -accel tcg -m 512 -nographic -no-reboot \
+timeout "${PADLINE_VM_TIMEOUT:-1800}" qemu-system-x86_64 -accel tcg $icount -m 512 -nographic -no-reboot \
 	-kernel "$kernel" -initrd "$work/initrd.gz" \
-	-append "console=ttyS0 panic=-1 quiet" </dev/null >"$log" 2>&1
+	-append "console=ttyS0 panic=-1 quiet gpiovm.cmd=${PADLINE_VM_CMD:-run}" </dev/null >"$log" 2>&1
 rc=$?
 set -e
 t3=$(date +%s.%N)
