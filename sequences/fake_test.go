@@ -174,6 +174,18 @@ func (f *fakeStation) Sample(k int, period time.Duration) (int, error) {
 	return highs, nil
 }
 
+var _ sequences.EdgeSampler = (*fakeStation)(nil)
+
+// SampleEdges is Sample with the span of the edges sampled on: k−1 periods
+// of the unit's clock (0 without a clock pin).
+func (f *fakeStation) SampleEdges(k int, period time.Duration) (int, time.Duration, error) {
+	highs, err := f.Sample(k, period)
+	if err != nil || !f.ClockWired || k < 2 {
+		return highs, 0, err
+	}
+	return highs, time.Duration(float64(k-1) / f.ClockHz * float64(time.Second)), nil
+}
+
 // latch is one clocked read of the unit's latch.
 func (f *fakeStation) latch() bool {
 	switch {

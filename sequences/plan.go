@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sync"
 	"time"
 
 	"padline/fixture"
@@ -67,6 +68,29 @@ type PlanConfig struct {
 	Period time.Duration
 	// StepTimeout is each step's fixture-time budget (default 5 s).
 	StepTimeout time.Duration
+	// FoldChecks folds the clock, idle and release checks into the trip
+	// search where the physics allows (see NewPlan). The clock is then
+	// read from the edges the idle samples wait for, which needs a station
+	// that is an EdgeSampler and ClockPeriods > 0; without them the clock is
+	// not measured.
+	FoldChecks bool
+	// RelaySettle is the relays' operate + bounce time. When set (and
+	// Search.MoveCostSamples is 0) the search is told what a change of level
+	// costs: with the clock read from edges, the periods a sample waits
+	// beyond its own, ⌈settle/period⌉ − 1 (0 when the relays settle inside
+	// one period of this unit's clock); without, settle/Period.
+	RelaySettle time.Duration
+	// SigmaWindow is how many recent passing units' fitted σ set the trip
+	// search's prior on σ (default 50; −1: never, keep Search's prior):
+	// once SigmaMinUnits (default 20) of them are in, the prior is centred
+	// on their geometric mean with their SD of ln σ (at least 0.15) — the
+	// variant's recent σ on this station. Until then the prior is Search's
+	// (the variant's expected spread). RecentSigmaPF seeds the window, for
+	// example from the shift log's last runs of the variant. Each run
+	// records the prior it was searched with (prior_sigma_pf,
+	// prior_sigma_log_sd, prior_sigma_units: 0 for the variant's own).
+	SigmaWindow, SigmaMinUnits int
+	RecentSigmaPF              []float64
 	// Search tunes the trip search; Limits are what the plan judges against.
 	Search SearchOptions
 	Limits Limits
@@ -101,6 +125,12 @@ const (
 	MeasTripSEPF     Quantity = "trip_se_pf"    // standard error of the trip point, pF
 	MeasSpreadPF     Quantity = "spread_pf"     // 10–90 % transition width, pF
 	MeasPriorFails   Quantity = "prior_fails"   // fails before a pass (retest flag)
+	// The folded checks (PlanConfig.FoldChecks) and the search's prior.
+	MeasIdleLows        Quantity = "idle_lows"          // latch lows at or above the bottom level, idle check
+	MeasReleaseLows     Quantity = "release_lows"       // latch lows after the first high reading
+	MeasPriorSigmaPF    Quantity = "prior_sigma_pf"     // centre of the search's prior on σ, pF
+	MeasPriorSigmaLogSD Quantity = "prior_sigma_log_sd" // its SD of ln σ
+	MeasPriorSigmaUnits Quantity = "prior_sigma_units"  // recent passing units it rests on (0: the variant's)
 )
 
 // Plan is the ordered steps run on every unit of a variant.
@@ -110,6 +140,42 @@ type Plan struct {
 	steps     []Step
 	names     []StepName
 	powerDown Step
+
+	mu     sync.Mutex
+	recent []float64 // ln σ of the last SigmaWindow passing units
+}
+
+// sigmaPrior is the prior on σ for the next unit and how many recent units
+// it rests on (0: the search options' own).
+func (p *Plan) sigmaPrior() (sigmaPF, logSD float64, units int) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	if p.cfg.SigmaWindow < 0 || len(p.recent) < p.cfg.SigmaMinUnits {
+		return 0, 0, 0
+	}
+	var m, m2 float64
+	for _, l := range p.recent {
+		m += l
+	}
+	m /= float64(len(p.recent))
+	for _, l := range p.recent {
+		m2 += (l - m) * (l - m)
+	}
+	sd := math.Sqrt(m2 / float64(len(p.recent)-1))
+	return math.Exp(m), math.Max(sd, 0.15), len(p.recent)
+}
+
+// noteSigma adds a passing unit's fitted σ to the window.
+func (p *Plan) noteSigma(sigmaPF float64) {
+	if p.cfg.SigmaWindow < 0 || !(sigmaPF > 0) || math.IsInf(sigmaPF, 0) || math.IsNaN(sigmaPF) {
+		return
+	}
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.recent = append(p.recent, math.Log(sigmaPF))
+	if n := len(p.recent); n > p.cfg.SigmaWindow {
+		p.recent = append(p.recent[:0], p.recent[n-p.cfg.SigmaWindow:]...)
+	}
 }
 
 // NewPlan builds the standard plan — power up and settle, clock frequency
@@ -117,6 +183,22 @@ type Plan struct {
 // power-down step that always runs last. The release check comes before the
 // search: a latch that cannot fall again would make every later probe read
 // high and pass for a low trip point.
+//
+// With FoldChecks the plan is power up, idle, trip search, power down:
+//   - idle samples the bottom level (no rung closed) for 3 periods (fewer
+//     when IdlePeriods is smaller, at least 2) and reads the unit's clock
+//     from the span of the edges those samples waited for: no edge is
+//     clock_dead, a frequency outside the limits clock_low or clock_high
+//     (judged first, as the clock step would), any high sample
+//     idle_latched. The rest of the IdlePeriods low readings come from the
+//     search (see idleRest), after the release judgement;
+//   - the trip search books those samples as its own bottom level (so it
+//     does not probe the bottom again) and judges release from its own
+//     probes: the latch is re-sampled every clock period, so a latch that
+//     reads low at any probe after its first high reading has fallen again.
+//     A unit that latched and never read low afterwards, although the
+//     bottom level read low before, is stuck_latched; this is judged before
+//     the trip point, as the release step came before the search.
 func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	if len(levels) < 2 {
 		return nil, fmt.Errorf("plan needs at least 2 ladder levels, have %d", len(levels))
@@ -135,12 +217,27 @@ func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	if cfg.StepTimeout <= 0 {
 		cfg.StepTimeout = 5 * time.Second
 	}
+	if cfg.SigmaWindow == 0 {
+		cfg.SigmaWindow = 50
+	}
+	if cfg.SigmaMinUnits <= 0 {
+		cfg.SigmaMinUnits = 20
+	}
 	p := &Plan{cfg: cfg, levels: levels}
+	for _, sg := range cfg.RecentSigmaPF {
+		p.noteSigma(sg)
+	}
 	add := func(name StepName, s Step) {
 		p.steps = append(p.steps, Wrap(s, Named(name), Timeout(cfg.StepTimeout)))
 		p.names = append(p.names, name)
 	}
 	add(StepPowerUp, StepFunc(p.powerUp))
+	if cfg.FoldChecks {
+		add(StepIdle, StepFunc(p.idleClock))
+		add(StepTripSearch, StepFunc(p.tripSearch))
+		p.powerDown = Wrap(StepFunc(powerDown), Named(StepPowerDown), Timeout(cfg.StepTimeout))
+		return p, nil
+	}
 	if cfg.ClockPeriods > 0 {
 		add(StepClock, StepFunc(p.clock))
 	}
@@ -223,6 +320,9 @@ func (p *Plan) ExecuteObserved(ctx context.Context, st Station, clk Clock, run *
 	switch {
 	case stepErr == nil && downErr == nil:
 		run.Verdict, run.FailCode = Pass, ""
+		if t.Trip != nil && t.Trip.Found && !t.Trip.Below && p.cfg.SigmaWindow > 0 {
+			p.noteSigma(t.Trip.SigmaRefPF)
+		}
 	case stepErr != nil && errors.As(stepErr, &uf) && downErr == nil:
 		run.Verdict, run.FailCode = Fail, uf.Code
 	default:
@@ -277,23 +377,27 @@ func (p *Plan) powerUp(ctx context.Context, t *Trial) error {
 }
 
 func (p *Plan) clock(ctx context.Context, t *Trial) error {
-	return t.timed(string(StepClock), func() error {
-		hz, err := t.MeasureClock(p.cfg.ClockPeriods)
-		if err != nil {
-			if errors.Is(err, fixture.ErrNoClockEdges) {
-				t.Measure(MeasClockHz, 0, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz)
-				return fail(CodeClockDead, "no edges at the clock test point")
-			}
-			return err
+	return t.timed(string(StepClock), func() error { return p.clockCheck(t) })
+}
+
+// clockCheck measures the clock over ClockPeriods and judges it.
+func (p *Plan) clockCheck(t *Trial) error {
+	hz, err := t.MeasureClock(p.cfg.ClockPeriods)
+	if err != nil {
+		if errors.Is(err, fixture.ErrNoClockEdges) {
+			t.Measure(MeasClockHz, 0, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz)
+			return fail(CodeClockDead, "no edges at the clock test point")
 		}
-		if t.Measure(MeasClockHz, hz, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz) == Fail {
-			if hz < p.cfg.Limits.ClockLowHz {
-				return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, p.cfg.Limits.ClockLowHz)
-			}
-			return fail(CodeClockHigh, "%.1f Hz > %.1f Hz", hz, p.cfg.Limits.ClockHighHz)
+		return err
+	}
+	t.clockHz = hz
+	if t.Measure(MeasClockHz, hz, "Hz", p.cfg.Limits.ClockLowHz, p.cfg.Limits.ClockHighHz) == Fail {
+		if hz < p.cfg.Limits.ClockLowHz {
+			return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, p.cfg.Limits.ClockLowHz)
 		}
-		return nil
-	})
+		return fail(CodeClockHigh, "%.1f Hz > %.1f Hz", hz, p.cfg.Limits.ClockHighHz)
+	}
+	return nil
 }
 
 func (p *Plan) idle(ctx context.Context, t *Trial) error {
@@ -310,6 +414,143 @@ func (p *Plan) idle(ctx context.Context, t *Trial) error {
 		}
 		return nil
 	})
+}
+
+// EdgeSampler is the optional station capability of sampling the latch and
+// returning the span of clock edges the samples waited for (k−1 periods);
+// *fixture.Fixture has it.
+type EdgeSampler interface {
+	SampleEdges(k int, period time.Duration) (highs int, span time.Duration, err error)
+}
+
+// idleClock is the folded idle check: the bottom level for IdlePeriods
+// (at least 2) periods, the clock read from the samples' edges.
+func (p *Plan) idleClock(ctx context.Context, t *Trial) error {
+	return t.timed(string(StepIdle), func() error {
+		if err := t.SetPattern(p.levels[0].Pattern); err != nil {
+			return err
+		}
+		k := idleLead(p.cfg.IdlePeriods)
+		es, edges := t.st.(EdgeSampler)
+		if !edges && p.cfg.ClockPeriods > 0 {
+			// The station cannot time its samples' edges: measure the
+			// clock apart, as the clock step does.
+			if err := p.clockCheck(t); err != nil {
+				return err
+			}
+		}
+		edges = edges && p.cfg.ClockPeriods > 0
+		var highs int
+		var span time.Duration
+		var err error
+		if edges {
+			if err = t.check(); err == nil {
+				// Wait for each edge as long as the clock step's gate
+				// would ((ClockPeriods + 4) slowest periods; the fixture
+				// waits four of the periods given): a clock far below its
+				// limits is clock_low, not clock_dead.
+				wait := t.period * time.Duration(p.cfg.ClockPeriods+4) / 4
+				highs, span, err = es.SampleEdges(k, wait)
+			}
+		} else {
+			highs, err = t.Sample(k)
+		}
+		lim := p.cfg.Limits
+		if err != nil {
+			if edges && errors.Is(err, fixture.ErrNoClockEdges) {
+				t.Measure(MeasClockHz, 0, "Hz", lim.ClockLowHz, lim.ClockHighHz)
+				return fail(CodeClockDead, "no edges at the clock test point")
+			}
+			return err
+		}
+		if edges {
+			if !(span > 0) {
+				return fmt.Errorf("%d clock periods in %v: the station clock did not advance", k-1, span)
+			}
+			hz := float64(k-1) / span.Seconds()
+			t.clockHz = hz
+			if t.Measure(MeasClockHz, hz, "Hz", lim.ClockLowHz, lim.ClockHighHz) == Fail {
+				if hz < lim.ClockLowHz {
+					return fail(CodeClockLow, "%.1f Hz < %.1f Hz", hz, lim.ClockLowHz)
+				}
+				return fail(CodeClockHigh, "%.1f Hz > %.1f Hz", hz, lim.ClockHighHz)
+			}
+		}
+		t.idle = &ProbeRecord{Level: 0, PF: p.levels[0].PF, K: k, Highs: highs, Phase: string(StepIdle)}
+		if t.Measure(MeasIdleHighs, float64(highs), "count", 0, 0) == Fail {
+			return fail(CodeIdleLatched, "latch high %d of %d periods at %.2f pF", highs, k, p.levels[0].PF)
+		}
+		return nil
+	})
+}
+
+// moveCost is a change of level's cost in sample periods beyond its
+// samples: with a measured clock (hz > 0) the whole periods the relays'
+// settle adds before the next edge, else settle over the fixed period.
+func moveCost(settle time.Duration, hz float64, period time.Duration) float64 {
+	if hz > 0 {
+		return math.Max(0, math.Ceil(settle.Seconds()*hz)-1)
+	}
+	return settle.Seconds() / period.Seconds()
+}
+
+// idleLead is how many of the idle periods the folded idle check samples
+// at the bottom level before the search: 3 (a two-period span for the
+// clock), or all of them when fewer are asked.
+func idleLead(idlePeriods int) int { return max(min(idlePeriods, 3), 2) }
+
+// idleRest completes the folded idle check after the search: the latch
+// must have read low IdlePeriods times with the ladder at or above the
+// bottom level. A low reading at a higher capacitance is stronger evidence
+// than one at the bottom (the race only slows as capacitance grows, so a
+// latch low at C stays low below C), so the search's low readings count;
+// any shortfall is sampled at the bottom level.
+func (p *Plan) idleRest(t *Trial, probes []ProbeRecord) error {
+	if t.idle == nil {
+		return nil
+	}
+	lows := t.idle.K - t.idle.Highs
+	for _, pr := range probes {
+		lows += pr.K - pr.Highs
+	}
+	highs := 0
+	if short := p.cfg.IdlePeriods - lows; short > 0 {
+		start := t.clock.Now()
+		err := t.SetPattern(p.levels[0].Pattern)
+		if err == nil {
+			highs, err = t.Sample(short)
+		}
+		t.Phases[string(StepIdle)] += t.clock.Now().Sub(start)
+		if err != nil {
+			return err
+		}
+		lows += short - highs
+	}
+	prev := t.step
+	t.step = StepIdle
+	v := t.Measure(MeasIdleLows, float64(lows), "count", float64(p.cfg.IdlePeriods), NoLimit)
+	t.step = prev
+	if highs > 0 || v == Fail {
+		return fail(CodeIdleLatched, "latch high %d times at %.2f pF after the search", highs, p.levels[0].PF)
+	}
+	return nil
+}
+
+// releaseLows counts the samples that read low after the first high
+// reading among the probes: 0 with a high reading means the latch never
+// fell again; −1 means it never read high.
+func releaseLows(probes []ProbeRecord) int {
+	lows, latched := 0, false
+	for _, pr := range probes {
+		if latched {
+			lows += pr.K - pr.Highs
+		}
+		latched = latched || pr.Highs > 0
+	}
+	if !latched {
+		return -1
+	}
+	return lows
 }
 
 // prober presents the trial's station to the search as ladder levels and
@@ -335,7 +576,34 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		pf[i] = l.PF
 	}
 	pr := &prober{t: t, levels: p.levels}
-	res, err := FindTrip(pr, pf, p.cfg.Search)
+	opt := p.cfg.Search
+	if opt.MoveCostSamples == 0 && p.cfg.RelaySettle > 0 {
+		opt.MoveCostSamples = moveCost(p.cfg.RelaySettle, t.clockHz, p.cfg.Period)
+	}
+	if t.idle != nil {
+		opt.Known = append(append([]ProbeRecord(nil), opt.Known...), *t.idle)
+	}
+	if opt.Refine != Laplace {
+		// The window notes each unit's σ under the variant's own prior:
+		// the posterior geometric mean, not the maximum, which with the
+		// samples a search takes (most near the trip point) lies well below
+		// the truth (by about a quarter on the demo line).
+		if own, err := opt.withDefaults(); err == nil {
+			opt.SigmaRefPrior = ProbitPrior{SigmaPF: own.SpreadPriorPF / spreadPerSigma, LogSD: own.SpreadPriorLogSD}
+		}
+		sg, lsd, units := p.sigmaPrior()
+		if units > 0 {
+			opt.SpreadPriorPF, opt.SpreadPriorLogSD = sg*spreadPerSigma, lsd
+		}
+		o, err := opt.withDefaults()
+		if err != nil {
+			return err
+		}
+		t.Measure(MeasPriorSigmaPF, o.SpreadPriorPF/spreadPerSigma, "pF", NoLimit, NoLimit)
+		t.Measure(MeasPriorSigmaLogSD, o.SpreadPriorLogSD, "", NoLimit, NoLimit)
+		t.Measure(MeasPriorSigmaUnits, float64(units), "count", NoLimit, NoLimit)
+	}
+	res, err := FindTrip(pr, pf, opt)
 	for i, d := range pr.elapsed {
 		if i < len(res.Probes) {
 			t.Phases[res.Probes[i].Phase] += d
@@ -346,6 +614,21 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		return err
 	}
 	t.Trip = &res
+	if p.cfg.FoldChecks {
+		if lows := releaseLows(res.Probes); lows >= 0 {
+			prev := t.step
+			t.step = StepRelease
+			v := t.Measure(MeasReleaseLows, float64(lows), "count", 1, NoLimit)
+			t.step = prev
+			if v == Fail {
+				return fail(CodeStuckLatched, "latch never read low again after it latched at %.1f pF, though %.2f pF read low before",
+					firstHigh(res.Probes), p.levels[0].PF)
+			}
+		}
+		if err := p.idleRest(t, res.Probes); err != nil {
+			return err
+		}
+	}
 	return judgeTrip(t, res, p.cfg.Limits, p.levels[len(p.levels)-1].PF)
 }
 
@@ -416,6 +699,16 @@ func (p *Plan) release(ctx context.Context, t *Trial) error {
 		}
 		return nil
 	})
+}
+
+// firstHigh is the capacitance of the first probe that read high.
+func firstHigh(probes []ProbeRecord) float64 {
+	for _, pr := range probes {
+		if pr.Highs > 0 {
+			return pr.PF
+		}
+	}
+	return math.NaN()
 }
 
 func powerDown(ctx context.Context, t *Trial) error {

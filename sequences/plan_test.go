@@ -111,6 +111,13 @@ func TestPlanGoodUnitPasses(t *testing.T) {
 				return v > 0 && v <= spreadMaxPF
 			}},
 			{"release_highs", "release", "count", 0, 0, func(v float64) bool { return v == 0 }},
+			// The prior on σ the search used: the variant's default (0.6
+			// pF spread, ln-SD 0.7) until 20 passing units are in.
+			{"prior_sigma_pf", "trip_search", "pF", sequences.NoLimit, sequences.NoLimit, func(v float64) bool {
+				return math.Abs(v-0.6/2.5631031310892007) < 1e-12
+			}},
+			{"prior_sigma_log_sd", "trip_search", "", sequences.NoLimit, sequences.NoLimit, func(v float64) bool { return v == 0.7 }},
+			{"prior_sigma_units", "trip_search", "count", sequences.NoLimit, sequences.NoLimit, func(v float64) bool { return v == 0 }},
 		}
 		if len(run.Measurements) != len(want) {
 			t.Errorf("seed %d: %d measurements, want %d: %+v", seed, len(run.Measurements), len(want), run.Measurements)

@@ -75,6 +75,11 @@ func (c CheckConfig) withDefaults() CheckConfig {
 	if c.Search.SETargetPF == 0 {
 		c.Search.SETargetPF = 0.03
 	}
+	if c.Search.Refine == "" {
+		// The reference check's allowances and rung inference were set
+		// on the Laplace search's probes; it keeps them.
+		c.Search.Refine = Laplace
+	}
 	if c.Search.MaxRefineSamples == 0 {
 		c.Search.MaxRefineSamples = 96
 	}

@@ -27,6 +27,22 @@ func (f ProberFunc) Probe(level, k int) (int, error) { return f(level, k) }
 // refines.
 type Strategy string
 
+// Refinement selects how the trip search refines the bracket.
+type Refinement string
+
+// The refinements. Posterior keeps a grid posterior over (μ, ln σ), takes
+// one sample at a time where it most reduces the trip point's expected
+// posterior variance per unit of fixture cost, stops on the posterior
+// standard deviation and takes guard samples only when the fit says the unit
+// is suspect. Laplace is the earlier refinement: a maximum-a-posteriori fit
+// whose curvature gives the standard error, batches of BatchK at the level
+// that most shrinks it (staying put when that is at most 15 % worse), and
+// guard samples on every unit; it is kept to compare against.
+const (
+	Posterior Refinement = "posterior"
+	Laplace   Refinement = "laplace"
+)
+
 // The search strategies. Bracket bisects the level set with one sample per
 // probe; Staircase climbs one level at a time from the bottom with one
 // sample per level until the first high reading (the baseline to compare
@@ -56,10 +72,48 @@ var ErrSearchOptions = errors.New("sequences: invalid search options")
 type SearchOptions struct {
 	// Strategy is Bracket (default) or Staircase.
 	Strategy Strategy
+	// Refine is Posterior (default) or Laplace.
+	Refine Refinement
+	// MoveCostSamples is what a change of level costs beyond its samples,
+	// in sample periods: the relay settling that does not hide inside a
+	// unit clock period (0 when operate + bounce end before the next edge).
+	// Posterior only.
+	MoveCostSamples float64
+	// TripPriorPF and TripPriorSDPF put a normal prior on the trip point
+	// (the variant's predicted trip distribution); SD 0 leaves it flat.
+	// Posterior only.
+	TripPriorPF, TripPriorSDPF float64
+	// SuspectP marks a unit suspect, so that it gets guard samples, when
+	// the fit's deviance has a chi-square tail probability below it
+	// (default 0.05); SuspectSigmaPF when the fitted σ exceeds it; and
+	// any one sample that the fit gave less
+	// than SuspectReadingP of reading as it did (default 0.005). Posterior
+	// only; Laplace guards every unit. The default SuspectSigmaPF, 0.16 of
+	// NoisySpreadPF, is 0.4 pF: a 1.03 pF transition, above the widest a
+	// good unit of the demo variant shows (0.9 pF).
+	SuspectP, SuspectSigmaPF, SuspectReadingP float64
+	// GuardPeekK is the number of samples the Posterior refinement takes at
+	// each guard level of a unit the fit does not find suspect (default 2;
+	// −1 takes none): a wrong reading there makes the unit suspect and the
+	// full GuardK follows. A latch that reads at random (a coin flip, or a
+	// probability that jumps from level to level) looks like a clean
+	// transition at the one or two levels the refinement samples; only
+	// samples away from the trip point show it.
+	GuardPeekK int
+	// SigmaRefPrior, when set, asks the Posterior refinement for
+	// TripResult.SigmaRefPF: σ as the samples show it under this prior
+	// rather than the one searched with (a plan's running prior must be
+	// built from figures that do not feed on it).
+	SigmaRefPrior ProbitPrior
+	// Known are samples taken before the search (for example the idle
+	// check's, at the bottom level): they are booked first and enter the fit,
+	// and a level they cover is not probed again by the bracket's end checks.
+	Known []ProbeRecord
 	// SETargetPF ends refinement once the trip point's standard error is
 	// at most this (default 0.1 pF).
 	SETargetPF float64
-	// MaxRefineSamples caps the latch samples spent refining (default 32).
+	// MaxRefineSamples caps the latch samples spent refining (default 32
+	// for Laplace; 64·(0.1 pF/SETargetPF)² for Posterior).
 	MaxRefineSamples int
 	// BatchK is the number of latch samples per refinement probe
 	// (default 4).
@@ -97,6 +151,9 @@ func (o SearchOptions) withDefaults() (SearchOptions, error) {
 	if o.Strategy == "" {
 		o.Strategy = Bracket
 	}
+	if o.Refine == "" {
+		o.Refine = Posterior
+	}
 	def := func(v *float64, d float64) {
 		if *v == 0 {
 			*v = d
@@ -108,7 +165,13 @@ func (o SearchOptions) withDefaults() (SearchOptions, error) {
 	def(&o.NoisySpreadPF, 2.5)
 	def(&o.ConsistencyP, 1e-3)
 	if o.MaxRefineSamples == 0 {
+		// Laplace: 32. Posterior: 64 at 0.1 pF (2.4 × the floor's
+		// refinement at σ 0.35 pF: its honest SE needs more samples than
+		// the Laplace SE claimed), scaled as a target needs, (1/SE)².
 		o.MaxRefineSamples = 32
+		if o.Refine == Posterior && o.SETargetPF > 0 {
+			o.MaxRefineSamples = max(64, int(math.Ceil(64*0.01/(o.SETargetPF*o.SETargetPF))))
+		}
 	}
 	if o.BatchK == 0 {
 		o.BatchK = 4
@@ -119,14 +182,24 @@ func (o SearchOptions) withDefaults() (SearchOptions, error) {
 	if o.GuardK == 0 {
 		o.GuardK = 3
 	}
+	if o.GuardPeekK == 0 {
+		o.GuardPeekK = 2
+	}
 	def(&o.GuardPF, 0.6*o.NoisySpreadPF)
+	def(&o.SuspectP, 0.05)
+	def(&o.SuspectSigmaPF, 0.16*o.NoisySpreadPF)
+	def(&o.SuspectReadingP, 0.005)
 	switch {
 	case o.Strategy != Bracket && o.Strategy != Staircase:
 		return o, fmt.Errorf("strategy %q: %w", o.Strategy, ErrSearchOptions)
+	case o.Refine != Posterior && o.Refine != Laplace:
+		return o, fmt.Errorf("refinement %q: %w", o.Refine, ErrSearchOptions)
+	case !(o.MoveCostSamples >= 0), !(o.TripPriorSDPF >= 0):
+		return o, fmt.Errorf("negative move cost or prior width: %w", ErrSearchOptions)
 	case !(o.SETargetPF > 0), !(o.SpreadPriorPF > 0), !(o.SpreadPriorLogSD > 0),
 		!(o.NoisySpreadPF > 0), !(o.GuardPF > 0), !(o.ConsistencyP >= 0 && o.ConsistencyP < 1):
 		return o, fmt.Errorf("non-positive target, prior or threshold: %w", ErrSearchOptions)
-	case o.MaxRefineSamples < 0, o.BatchK < 0, o.ConfirmK < 0, o.GuardK < -1:
+	case o.MaxRefineSamples < 0, o.BatchK < 0, o.ConfirmK < 0, o.GuardK < -1, o.GuardPeekK < -1:
 		return o, fmt.Errorf("negative sample count: %w", ErrSearchOptions)
 	}
 	return o, nil
@@ -161,6 +234,12 @@ type TripResult struct {
 	Consistent bool
 	// GuardMisread is true when a guard level read on the wrong side.
 	GuardMisread bool
+	// SigmaRefPF is the posterior geometric mean of σ under
+	// SearchOptions.SigmaRefPrior (0 when not asked or not Posterior).
+	SigmaRefPF float64
+	// Suspect is true when the Posterior refinement's fit found the unit
+	// suspect and so took guard samples.
+	Suspect bool
 	// Noisy is true when the unit looks like trip_noisy: readings not
 	// Consistent, SpreadPF above the noisy threshold, or a guard misread.
 	Noisy bool
@@ -208,6 +287,12 @@ func FindTrip(p Prober, levels []float64, opt SearchOptions) (TripResult, error)
 	}
 	s := &searcher{p: p, levels: levels, opt: opt, n: make([]int, len(levels)), h: make([]int, len(levels)), cur: -1}
 	s.res.TripPF, s.res.SEPF, s.res.SigmaPF, s.res.SpreadPF = math.NaN(), math.NaN(), math.NaN(), math.NaN()
+	for _, k := range opt.Known {
+		if k.Level < 0 || k.Level >= len(levels) || k.K < 0 || k.Highs < 0 || k.Highs > k.K {
+			return TripResult{}, fmt.Errorf("known samples %+v: %w", k, ErrSearchOptions)
+		}
+		s.book(k.Level, k.K, k.Highs)
+	}
 	err = s.run()
 	return s.res, err
 }
@@ -221,6 +306,16 @@ type searcher struct {
 	touched []int // levels with samples, in first-probe order
 	cur     int   // level of the last probe, −1 before the first
 	res     TripResult
+	grid    *tripGrid // the Posterior refinement's posterior, once it runs
+}
+
+// book adds k samples at level, highs of them high, to the tallies.
+func (s *searcher) book(level, k, highs int) {
+	if s.n[level] == 0 && k > 0 {
+		s.touched = append(s.touched, level)
+	}
+	s.n[level] += k
+	s.h[level] += highs
 }
 
 // probe takes k samples at level and books them.
@@ -237,11 +332,10 @@ func (s *searcher) probe(level, k int, phase string) (int, error) {
 		s.res.Moves++
 	}
 	s.cur = level
-	if s.n[level] == 0 {
-		s.touched = append(s.touched, level)
+	s.book(level, k, highs)
+	if s.grid != nil {
+		s.grid.add(s.levels[level], k, highs)
 	}
-	s.n[level] += k
-	s.h[level] += highs
 	s.res.Samples += k
 	switch phase {
 	case PhaseRefine:
@@ -293,7 +387,11 @@ func (s *searcher) run() error {
 		}
 	}
 	s.res.Found = true
-	return s.refine((s.levels[max(lo, 0)] + s.levels[min(hi, top)]) / 2)
+	mid := (s.levels[max(lo, 0)] + s.levels[min(hi, top)]) / 2
+	if s.opt.Refine == Laplace {
+		return s.refine(mid)
+	}
+	return s.refinePosterior(mid)
 }
 
 // bisect halves the index range with one sample per probe, taking level 0
@@ -374,7 +472,7 @@ func (s *searcher) refine(mu0 float64) error {
 		fit, ok = s.fit(prior, fit.MuPF, math.Log(fit.SigmaPF))
 	}
 	if ok && s.opt.GuardK > 0 {
-		misread, err := s.guard(fit.MuPF)
+		misread, err := s.guard(fit.MuPF, s.opt.GuardK)
 		if err != nil {
 			s.finish(fit, ok)
 			return err
@@ -386,11 +484,10 @@ func (s *searcher) refine(mu0 float64) error {
 	return nil
 }
 
-// guard samples the highest level at least GuardPF below mu and the lowest
-// at least GuardPF above it, and reports whether either read on the wrong
-// side of mu.
-func (s *searcher) guard(mu float64) (misread bool, err error) {
-	k := s.opt.GuardK
+// guard takes k samples at the highest level at least GuardPF below mu and
+// at the lowest at least GuardPF above it, and reports whether either read
+// on the wrong side of mu.
+func (s *searcher) guard(mu float64, k int) (misread bool, err error) {
 	// Highest level ≤ mu − GuardPF.
 	if lo := sort.SearchFloat64s(s.levels, math.Nextafter(mu-s.opt.GuardPF, math.Inf(1))) - 1; lo >= 0 {
 		hs, err := s.probe(lo, k, PhaseGuard)

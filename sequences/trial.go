@@ -47,6 +47,9 @@ type Trial struct {
 	Trip *TripResult
 	// Probes counts the trip search's probes.
 	Probes int
+
+	idle    *ProbeRecord // the folded idle check's samples, for the search
+	clockHz float64      // the unit's measured clock, 0 until measured
 }
 
 // Run returns the record the trial fills.

@@ -30,9 +30,11 @@ floor of a real bench, never below it.
 The summary gives the yield, the count per fail code, which defects ended in
 which fail code, the trip accuracy against the simulator's ground truth on
 good units, and fixture time per unit split into fixed steps, bracketing and
-refinement. --compare-search runs the same units again with the plain
-staircase (one sample per ladder value from the bottom up) and shows both
-side by side.
+refinement, and the search's floor: the fewest samples any search could
+expect with the unit's transition known. --compare-search runs the same
+units again with the earlier plan (laplace: separate clock, idle and release
+checks, guard levels on every unit) and with the plain staircase (one sample
+per ladder value from the bottom up) and shows them side by side.
 
 --drift-at N --drift-pf D puts a step into the shift: from unit N on, the
 pad laminate changes and the pad capacitance mean drops by D pF, so units
@@ -67,8 +69,8 @@ own ladder instead: the sites then search concurrently.`,
 	f.IntVar(&o.Units, "units", 500, "number of units in the shift")
 	f.Uint64Var(&o.Seed, "seed", 1, "seed of the simulated units and fixture (same seed, same shift)")
 	f.StringVar(&o.DB, "db", "", "shift log to write (default: a temporary file, removed afterwards)")
-	f.StringVar(&o.Search, "search", "bracket", "trip search: bracket or staircase")
-	f.BoolVar(&o.Compare, "compare-search", false, "run the same units with the staircase too and compare")
+	f.StringVar(&o.Search, "search", "bracket", "trip search: bracket, staircase or laplace (the earlier plan: separate clock, idle and release checks)")
+	f.BoolVar(&o.Compare, "compare-search", false, "run the same units with the earlier plan and the staircase too and compare")
 	f.BoolVar(&asJSON, "json", false, "print one JSON object per unit, then a summary object")
 	f.BoolVar(&o.IntoRealLog, "into-real-log", false, "allow --db to name a shift log that holds runs of a real (gpio) station")
 	f.IntVar(&o.Drift.At, "drift-at", 0, "unit from which the pad capacitance drops (trip points step up); 0 = no step")

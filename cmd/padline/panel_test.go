@@ -95,8 +95,11 @@ func TestDemoPanel(t *testing.T) {
 	if sum.Panels != 10 || sum.Units != 80 || sum.Pass+sum.Fail+sum.StationFault != 80 || len(sum.RMSPerSitePF) != 8 {
 		t.Fatalf("summary %+v", sum)
 	}
-	// A panel of eight takes far less than eight units in a row.
-	if !(sum.RatioToSingle > 1 && sum.RatioToSingle < 4) {
+	// A panel of eight takes far less than eight units in a row. The single
+	// unit folds its clock, idle and release checks into the search (about
+	// 110 ms instead of 187 on the demo station); the panel plan still runs
+	// them as separate steps, so the bound is 5, not the 4 it was.
+	if !(sum.RatioToSingle > 1 && sum.RatioToSingle < 5) {
 		t.Fatalf("panel takes %.2f× one unit", sum.RatioToSingle)
 	}
 }

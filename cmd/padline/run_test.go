@@ -108,7 +108,7 @@ func TestDemoSummaryAndJSON(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	for _, want := range []string{"yield", "trip accuracy on good units", "bracketing (bisection / climb)", "staircase", "faster than the climb"} {
+	for _, want := range []string{"yield", "trip accuracy on good units", "bracketing (bisection / climb)", "staircase", "faster than the climb", "laplace", "search floor on good units"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("summary lacks %q:\n%s", want, out)
 		}

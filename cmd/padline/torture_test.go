@@ -228,18 +228,22 @@ func sameAsLogged(u unitLine, e *store.Entry) error {
 	return nil
 }
 
-// planOrder is the order in which the standard plan records measurements:
-// steps clock, idle, release, trip_search (sequences/plan.go NewPlan and its
-// step functions), then the retest flag Session.Test appends to a pass after
+// planOrder is the order in which the standard plan, with its checks folded
+// into the search, records measurements: the idle step's clock and idle
+// readings, then the trip search's prior, release and the rest of the idle
+// check, and its trip point (sequences/plan.go NewPlan and its step
+// functions), then the retest flag Session.Test appends to a pass after
 // fails (sequences/session.go).
 var planOrder = []string{
-	"clock/clock_hz", "idle/idle_highs", "release/release_highs",
+	"idle/clock_hz", "idle/idle_highs",
+	"trip_search/prior_sigma_pf", "trip_search/prior_sigma_log_sd", "trip_search/prior_sigma_units",
+	"release/release_lows", "idle/idle_lows",
 	"trip_search/trip_pf", "trip_search/trip_se_pf", "trip_search/spread_pf", "retest/prior_fails",
 }
 
 // wholeRun reports a run that is not what a finished plan records: its
 // measurements out of plan order, a pass without every measurement of the
-// standard plan (release_highs is only taken when the touch level latched),
+// standard plan,
 // a fail without a fail code or with measurements after its failing step,
 // a trip search half-recorded.
 func wholeRun(e *store.Entry) error {
@@ -263,7 +267,8 @@ func wholeRun(e *store.Entry) error {
 		if e.FailCode != "" {
 			return fmt.Errorf("run %d (%s): pass with fail code %q", e.ID, e.Serial, e.FailCode)
 		}
-		for _, n := range []string{"clock/clock_hz", "idle/idle_highs", "trip_search/trip_pf", "trip_search/trip_se_pf", "trip_search/spread_pf"} {
+		for _, n := range []string{"idle/clock_hz", "idle/idle_highs", "release/release_lows", "idle/idle_lows",
+			"trip_search/trip_pf", "trip_search/trip_se_pf", "trip_search/spread_pf"} {
 			if !has(n) {
 				return fmt.Errorf("run %d (%s): pass without %s: %v", e.ID, e.Serial, n, names)
 			}

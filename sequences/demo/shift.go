@@ -78,7 +78,9 @@ type Unit struct {
 	spreadPF     float64
 	trueSpreadPF float64
 	phases       map[string]time.Duration
-	bound        time.Duration // noiseless bracketing bound
+	samples      int           // the trip search's latch samples
+	floorSamples float64       // the search floor at this unit's trip point and transition
+	floorTime    time.Duration // floorSamples unit clock periods
 	finished     time.Time     // the run's finish time, as logged
 }
 
@@ -126,7 +128,7 @@ func Run(ctx context.Context, o Options) (*Result, error) {
 		return nil, err
 	}
 	if o.Compare {
-		res.Strategies = []string{"bracket", "staircase"}
+		res.Strategies = []string{"bracket", session.SearchLaplace, "staircase"}
 	}
 	if res.DBPath == "" {
 		dir, err := os.MkdirTemp("", "padline-demo-")
@@ -234,8 +236,10 @@ func shift(ctx context.Context, res *Result, hash, strategy string, serials []st
 			Driver: string(session.DriverSim),
 		},
 	}
-	settle := st.Ladder.Operate + st.Ladder.Bounce
-	bisect := math.Ceil(math.Log2(float64(len(lv))))
+	lvPF := make([]float64, len(lv))
+	for i, l := range lv {
+		lvPF[i] = l.PF
+	}
 	out := make([]Unit, 0, len(serials))
 	base := session.UnitModel(v, st.Sim)
 	for i, serial := range serials {
@@ -268,8 +272,17 @@ func shift(ctx context.Context, res *Result, hash, strategy string, serials []st
 		if tr := oc.Trial.Trip; tr != nil && tr.Found && !tr.Below {
 			du.TripPF, du.TripSEPF, du.spreadPF = ptr(tr.TripPF), ptr(tr.SEPF), tr.SpreadPF
 		}
-		if truth.ClockHz > 0 {
-			du.bound = time.Duration(bisect) * (settle + time.Duration(1e9/truth.ClockHz))
+		if tr := oc.Trial.Trip; tr != nil {
+			du.samples = tr.Samples
+		}
+		if truth.Trip == sim.TripsAt && truth.ClockHz > 0 && len(truth.Defects) == 0 {
+			// The floor in the station's basis: the level set as entered,
+			// the unit's trip and transition as the simulator knows them.
+			fl, err := sequences.TripSearchFloorAt(lvPF, truth.TripPF, truth.TransitionPF/(2*1.2815515655446004), r.PlanConfig.Search.SETargetPF)
+			if err == nil {
+				du.floorSamples = fl
+				du.floorTime = time.Duration(fl * 1e9 / truth.ClockHz)
+			}
 		}
 		out = append(out, du)
 		prog.Step()
@@ -321,7 +334,10 @@ type Stats struct {
 	RelayOpsMean      float64                   `json:"relay_ops_mean"`
 	FixtureMSMean     float64                   `json:"fixture_ms_mean"`
 	PhaseMSMean       map[string]float64        `json:"phase_ms_mean"`
-	BracketBoundMS    float64                   `json:"bracket_bound_ms_mean"`
+	SearchSamples     float64                   `json:"search_samples_mean"`
+	FloorSamples      float64                   `json:"search_floor_samples_mean"`
+	FloorMS           float64                   `json:"search_floor_ms_mean"`
+	SearchMS          float64                   `json:"search_ms_mean"`
 	CPUPerUnitMS      float64                   `json:"cpu_ms_per_unit"`
 	WallS             float64                   `json:"wall_s"`
 }
@@ -334,6 +350,7 @@ func summarise(strategy string, us []Unit, cpu, wall time.Duration) Stats {
 		DefectOutcomes: map[string]map[string]int{}, PhaseMSMean: map[string]float64{}}
 	var sq, bias float64
 	var errs, spreads, trueSpreads []float64
+	nf := 0 // good units with a floor
 	for _, u := range us {
 		switch u.Verdict {
 		case "pass":
@@ -362,9 +379,17 @@ func summarise(strategy string, us []Unit, cpu, wall time.Duration) Stats {
 		for ph, d := range u.phases {
 			s.PhaseMSMean[ph] += ms(d)
 		}
-		s.BracketBoundMS += ms(u.bound)
 		if len(u.Defects) > 0 {
 			continue
+		}
+		if u.floorSamples > 0 {
+			nf++
+			s.SearchSamples += float64(u.samples)
+			s.FloorSamples += u.floorSamples
+			s.FloorMS += ms(u.floorTime)
+			for _, ph := range []string{sequences.PhaseBracket, sequences.PhaseClimb, sequences.PhaseRefine, sequences.PhaseGuard} {
+				s.SearchMS += ms(u.phases[ph])
+			}
 		}
 		s.GoodUnits++
 		if u.Verdict != "pass" {
@@ -385,7 +410,12 @@ func summarise(strategy string, us []Unit, cpu, wall time.Duration) Stats {
 	s.ProbesMean /= n
 	s.RelayOpsMean /= n
 	s.FixtureMSMean /= n
-	s.BracketBoundMS /= n
+	if nf > 0 {
+		s.SearchSamples /= float64(nf)
+		s.FloorSamples /= float64(nf)
+		s.FloorMS /= float64(nf)
+		s.SearchMS /= float64(nf)
+	}
 	for ph := range s.PhaseMSMean {
 		s.PhaseMSMean[ph] /= n
 	}
@@ -458,7 +488,7 @@ func WriteText(w io.Writer, res *Result) {
 	fmt.Fprintf(w, "  (true %.2f pF, entered %.2f pF) plus the errors of the rungs closed there; the same for every unit,\n", res.TrueStrayPF, st.Ladder.StrayPF)
 	fmt.Fprintf(w, "  it differs from fixture to fixture (--seed) and a reference unit of known trip point shows it\n")
 	fmt.Fprintf(w, "  transition (10–90 %%) median: fitted %.2f pF, simulator's noise model %.2f pF\n", s.SpreadMedianPF, s.TrueSpreadMedian)
-	writeTiming(w, ss)
+	writeTiming(w, ss, v.Plan.Search.SETargetPF)
 	fmt.Fprintf(w, "\ncomputer time    %.3f ms CPU per unit, %.2f s wall for %d units\n", s.CPUPerUnitMS, s.WallS, s.Units)
 	if res.Kept {
 		fmt.Fprintf(w, "shift log        %s (see 'padline history --db %s --variant %s')\n", res.DBPath, res.DBPath, v.Name)
@@ -490,7 +520,8 @@ func writeOutcomes(w io.Writer, s Stats) {
 }
 
 // writeTiming prints fixture time per unit, one column per pass.
-func writeTiming(w io.Writer, ss []Stats) {
+func writeTiming(w io.Writer, ss []Stats, seTarget float64) {
+	s := ss[0]
 	fmt.Fprintf(w, "\nfixture time per unit (mean, ms)")
 	for _, x := range ss {
 		fmt.Fprintf(w, "  %12s", x.Strategy)
@@ -520,13 +551,16 @@ func writeTiming(w io.Writer, ss []Stats) {
 	row("probes per unit", func(x Stats) float64 { return x.ProbesMean })
 	row("relay operations per unit", func(x Stats) float64 { return x.RelayOpsMean })
 	row("trip RMS error, pF ×1000", func(x Stats) float64 { return 1000 * x.TripRMSErrPF })
-	fmt.Fprintf(w, "  noiseless bisection bound: %.1f ms (⌈log2 L⌉ probes × (settle + one unit period))\n", ss[0].BracketBoundMS)
-	if len(ss) == 2 {
-		b, c := ss[0], ss[1]
-		br := b.PhaseMSMean[sequences.PhaseBracket]
-		cl := c.PhaseMSMean[sequences.PhaseClimb]
-		fmt.Fprintf(w, "  bracketing is %.1f× faster than the climb; whole unit %.1f× faster (%.1f ms saved)\n",
-			cl/br, c.FixtureMSMean/b.FixtureMSMean, c.FixtureMSMean-b.FixtureMSMean)
+	row("search samples, good units", func(x Stats) float64 { return x.SearchSamples })
+	fmt.Fprintf(w, "  search floor on good units: %.1f samples = %.1f ms at each unit's clock (the bisection's probes, then\n", s.FloorSamples, s.FloorMS)
+	fmt.Fprintf(w, "  the samples at the nearest level that reach SE %.2f pF with the transition known; relays settle inside a\n", seTarget)
+	fmt.Fprintf(w, "  period here); the %s search took %.1f samples, %.1f ms (%.2f× the floor)\n", s.Strategy, s.SearchSamples, s.SearchMS, s.SearchSamples/s.FloorSamples)
+	for _, c := range ss[1:] {
+		if c.Strategy == "staircase" {
+			b := ss[0]
+			fmt.Fprintf(w, "  bracketing is %.1f× faster than the climb; whole unit %.1f× faster (%.1f ms saved)\n",
+				c.PhaseMSMean[sequences.PhaseClimb]/b.PhaseMSMean[sequences.PhaseBracket], c.FixtureMSMean/b.FixtureMSMean, c.FixtureMSMean-b.FixtureMSMean)
+		}
 	}
 }
 

@@ -17,8 +17,15 @@ func PlanConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 	if strategy == "" {
 		strategy = p.Search.Strategy
 	}
+	// "laplace" is the plan as it was before the posterior search: separate
+	// clock, idle and release steps and the Laplace refinement, kept to
+	// compare against.
+	refine, fold := sequences.Posterior, true
+	if strategy == SearchLaplace {
+		strategy, refine, fold = string(sequences.Bracket), sequences.Laplace, false
+	}
 	if strategy != string(sequences.Bracket) && strategy != string(sequences.Staircase) {
-		return sequences.PlanConfig{}, fmt.Errorf("--search %q: want bracket or staircase", strategy)
+		return sequences.PlanConfig{}, fmt.Errorf("--search %q: want bracket, staircase or %s", strategy, SearchLaplace)
 	}
 	if rep.TestLimits.Low >= rep.TestLimits.High {
 		return sequences.PlanConfig{}, fmt.Errorf("variant %s: test limits %.2f … %.2f pF leave nothing to pass: see 'padline limits --variant %s'",
@@ -34,8 +41,10 @@ func PlanConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 		// unit can have, so every wait spans at least one latch update.
 		Period:      period,
 		StepTimeout: StepBudget(settle, period, max(p.IdlePeriods, p.ReleasePeriods+2, p.ClockPeriods+4)),
+		FoldChecks:  fold,
 		Search: sequences.SearchOptions{
 			Strategy:         sequences.Strategy(strategy),
+			Refine:           refine,
 			SETargetPF:       p.Search.SETargetPF,
 			MaxRefineSamples: p.Search.MaxRefineSamples,
 		},
@@ -50,6 +59,10 @@ func PlanConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 	}
 	return cfg, nil
 }
+
+// SearchLaplace names the earlier plan for --search: separate clock, idle
+// and release steps and the Laplace refinement.
+const SearchLaplace = "laplace"
 
 // baseStepBudget is the fixed part of every step's budget: the trip
 // search's probes and the fixture's own waits (common practice, no source:

@@ -52,7 +52,7 @@ type RigOptions struct {
 	UncertaintyPF   float64
 	UncertaintyFrom string
 	// Strategy overrides plan.search.strategy when not empty ("bracket"
-	// or "staircase").
+	// or "staircase"; SearchLaplace for the earlier plan).
 	Strategy string
 	// GPIO opens real pins for driver: gpio (see GPIOOpener).
 	GPIO GPIOOpener
@@ -94,6 +94,9 @@ func NewRig(v *Variant, st *Station, o RigOptions) (*Rig, error) {
 	if r.PlanConfig, err = PlanConfig(v, rep, st.Pins.Clock != "", o.Strategy); err != nil {
 		return nil, err
 	}
+	// The search weighs a change of level by the relay time that does not
+	// hide inside a unit clock period.
+	r.PlanConfig.RelaySettle = st.Ladder.Operate + st.Ladder.Bounce
 	pins, clk, line, err := OpenPins(st, v, o.GPIO)
 	if err != nil {
 		return nil, err
