@@ -50,7 +50,10 @@ func TestSIGKILLMidBatch(t *testing.T) {
 	p := openPlant(t, url)
 	register(t, p, plant.Station{Name: "KILLED"})
 	path := tempLog(t, "killed")
-	const runs = 4000
+	// Long enough that 20 kills never drain it, even on an idle machine
+	// where a forwarder moves about 5,000 runs a second (each kill lands
+	// within about 0.1 s of the first batch): 4,000 drained after 17 kills.
+	const runs = 20000
 	log := stationLog(t, path, "KILLED", runs, time.Date(2026, 12, 1, 6, 0, 0, 0, time.UTC), 9)
 	exe, err := os.Executable()
 	if err != nil {
