@@ -146,7 +146,7 @@ func TestPanelGangedGoodUnits(t *testing.T) {
 			// The trip point found against the simulator's truth at this
 			// site (its unit's own trip point less the neighbours'
 			// coupling): within the fixture's calibration error and a few
-			// standard errors (DESIGN.md §12: rung σ 0.05 pF, stray σ 0.1 pF).
+			// standard errors (DEVELOPERS.md, "Simulator realism floor": rung σ 0.05 pF, stray σ 0.1 pF).
 			if d := tr.Trips[s].TripPF - want[s]; math.Abs(d) > 0.6 {
 				t.Errorf("panel %d site %d: trip %.3f pF, truth in panel %.3f pF", panel+1, s+1, tr.Trips[s].TripPF, want[s])
 			}
