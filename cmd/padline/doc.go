@@ -22,5 +22,6 @@
 //     A family uses its own files and floor 3, never another family;
 //  3. helpers that know no command: shiftlog.go (where the shift log is),
 //     progress.go (terminal bar), version.go, gpio.go (the GPIO opener),
+//     flags.go (flags shared by several families),
 //     testhook.go (the torture test's unit hold).
 package main

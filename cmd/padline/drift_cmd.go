@@ -23,7 +23,7 @@ of sense resistors, another pad laminate, a humid afternoon or a wearing relay
 moves them long before units start to fail.
 
 It reads the trip-point series of --variant (oldest first, narrowed by
---since/--until, --station, --fixture, --lot, --last N), estimates the centre and σ
+--since/--until, --station-id, --fixture, --lot, --last N), estimates the centre and σ
 from a baseline window (phase I: the first --baseline points, always
 printed), applies those limits to the whole series (phase II), and lists the
 alarms numbered as on the chart, with the unit index, run time and serial.
@@ -115,7 +115,7 @@ func (f *driftFlags) add(fl *pflag.FlagSet) {
 	fl.StringVar(&f.o.Variant, "variant", "", "variant whose trip points to watch, e.g. QM-205 (or a .yaml file)")
 	fl.StringVar(&f.o.Since, "since", "", "from this time on (inclusive): 8h, 2d, 2026-11-30, \"2026-11-30 14:00\"")
 	fl.StringVar(&f.o.Until, "until", "", "before this time (exclusive); same forms as --since")
-	fl.StringVar(&f.station, "station", "", "only runs of this station")
+	stationIDFlag(fl, &f.station)
 	fl.StringVar(&f.fixture, "fixture", "", "only runs on this fixture")
 	fl.StringVar(&f.lot, "lot", "", "only runs of this lot")
 	fl.BoolVar(&f.o.IncludeSimulated, "include-simulated", false, "in a log with runs of a real station, also watch simulated runs (left out by default)")
@@ -138,7 +138,7 @@ func (f *driftFlags) add(fl *pflag.FlagSet) {
 	fl.Float64Var(&f.h, "h", drift.DefaultH, "CUSUM decision interval h, in σ")
 	fl.Float64Var(&f.lambda, "lambda", drift.DefaultLambda, "EWMA weight λ")
 	fl.Float64Var(&f.width, "width", 3, fmt.Sprintf("limit half-width in σ (Shewhart; for --chart ewma its L, default %g)", float64(drift.DefaultL)))
-	fl.Float64Var(&f.o.UncertaintyPF, "uncertainty-pf", session.DefaultUncertaintyPF, "station's expanded uncertainty U (k = 2), pF: the guard band of the test limits")
+	fl.Float64Var(&f.o.UncertaintyPF, "uncertainty-pf", 0, fmt.Sprintf("station's expanded uncertainty U (k = 2), pF: the guard band of the test limits (default: --station-file's U, else the %g pF stand-in)", session.DefaultUncertaintyPF))
 	fl.Float64Var(&f.o.LSL, "lsl", 0, "lower limit for capability instead of the variant's test limit")
 	fl.Float64Var(&f.o.USL, "usl", 0, "upper limit for capability instead of the variant's test limit")
 	fl.IntVar(&f.o.Alarms, "alarms", driftreport.DefaultAlarms, "list at most this many alarms per group, the earliest (0 = all)")
@@ -147,11 +147,16 @@ func (f *driftFlags) add(fl *pflag.FlagSet) {
 // options turns the flags into the report's options, checking each value.
 func (f *driftFlags) options(cmd *cobra.Command) (driftreport.Options, error) {
 	o, fl := f.o, cmd.Flags()
-	var err error
+	err := checkStationAlias(fl, "drift", cmd.ErrOrStderr())
+	if err != nil {
+		return o, err
+	}
 	if o.DB, err = shiftLogPath(cmd, o.StationFile); err != nil {
 		return o, fmt.Errorf("drift: %w", err)
 	}
-	o.UncertaintyGiven = fl.Changed("uncertainty-pf")
+	if o.UncertaintyGiven = fl.Changed("uncertainty-pf"); !o.UncertaintyGiven {
+		o.UncertaintyPF = session.DefaultUncertaintyPF
+	}
 	if !fl.Changed("lsl") {
 		o.LSL = math.NaN()
 	}

@@ -19,7 +19,7 @@ Select runs with --serial (every run of one unit, with its measurements and
 limits), --variant (runs of one product variant) or --panel (every site of
 one panel, and its x-outs: sites marked bad and not tested); --site N keeps
 the runs tested at panel site N. Narrow them with
---since/--until, --station, --fixture, --lot and --verdict. Runs are listed
+--since/--until, --station-id, --fixture, --lot and --verdict. Runs are listed
 oldest first, by the time their verdict was given.
 
 --since and --until take a duration back from now (90m, 8h, 2d) or a date or
@@ -48,7 +48,7 @@ numbers as each station's own log (see 'padline plant --help').`
 const historyExample = `  padline history --serial QM205-001234
   padline history --variant QM-205 --since 8h
   padline history --variant QM-205 --since 2026-11-30 --until 2026-12-01 --verdict fail
-  padline history --variant QM-205 --station L2-S1 --lot LOT-17 --format csv > lot17.csv
+  padline history --variant QM-205 --station-id L2-S1 --lot LOT-17 --format csv > lot17.csv
   padline history --variant QM-205 --json | jq .trip_pf
   padline history --limits-history --variant QM-205
   padline history --db postgres://quality@plant-db/plant --serial QM205-001234
@@ -94,7 +94,7 @@ func (f *historyFlags) add(fl *pflag.FlagSet) {
 	fl.StringVar(&f.variant, "variant", "", "runs of this product variant, e.g. QM-205")
 	fl.StringVar(&f.since, "since", "", "from this time on (inclusive): 8h, 2d, 2026-11-30, \"2026-11-30 14:00\"")
 	fl.StringVar(&f.until, "until", "", "before this time (exclusive); same forms as --since")
-	fl.StringVar(&f.station, "station", "", "only runs of this station, e.g. L2-S1")
+	stationIDFlag(fl, &f.station)
 	fl.StringVar(&f.fixture, "fixture", "", "only runs on this fixture, e.g. FX-07")
 	fl.StringVar(&f.lot, "lot", "", "only runs of this lot")
 	fl.BoolVar(&f.withSim, "include-simulated", false, "in a log with runs of a real station, also show simulated runs (left out by default)")
@@ -109,6 +109,9 @@ func (f *historyFlags) add(fl *pflag.FlagSet) {
 
 // options checks the flags and turns them into the query.
 func (f *historyFlags) options(cmd *cobra.Command) (history.Options, error) {
+	if err := checkStationAlias(cmd.Flags(), "history", cmd.ErrOrStderr()); err != nil {
+		return history.Options{}, err
+	}
 	db, err := shiftLogPath(cmd, f.stationFile)
 	if err != nil {
 		return history.Options{}, fmt.Errorf("history: %w", err)

@@ -116,8 +116,8 @@ func TestHistoryTable(t *testing.T) {
 		// local midnight of 11-29 lies between the two days in every time zone
 		{"since date", []string{"--variant", "QM-205", "--since", "2026-11-29"}, "QM205-A QM205-C", nil},
 		{"until", []string{"--variant", "QM-205", "--until", "2026-11-30T12:00:00Z"}, "QM205-A QM205-B", nil},
-		{"station", []string{"--variant", "QM-212", "--station", "L2-S2", "--lot", "LOT-17", "--fixture", "FX-07"}, "QM212-A", nil},
-		{"none", []string{"--variant", "QM-205", "--station", "L9-S9"}, "", []string{"no runs match"}},
+		{"station", []string{"--variant", "QM-212", "--station-id", "L2-S2", "--lot", "LOT-17", "--fixture", "FX-07"}, "QM212-A", nil},
+		{"none", []string{"--variant", "QM-205", "--station-id", "L9-S9"}, "", []string{"no runs match"}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

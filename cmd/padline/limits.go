@@ -75,6 +75,8 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 			}
 			uFrom := "stand-in (no --station, no --uncertainty-pf)"
 			switch {
+			case !cmd.Flags().Changed("uncertainty-pf") && station == "":
+				u = session.DefaultUncertaintyPF
 			case cmd.Flags().Changed("uncertainty-pf"):
 				uFrom = "--uncertainty-pf"
 			case station != "":
@@ -106,7 +108,7 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 	f.StringVar(&variant, "variant", "", "variant: a .yaml file or a built-in name ("+strings.Join(session.BuiltinVariants(), ", ")+")")
 	f.StringVar(&station, "station", "", "station file: take U from its shift log (stored by 'padline station study'), else its uncertainty_pf, else the stand-in")
 	f.String("db", "", "shift log for --station (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
-	f.Float64Var(&u, "uncertainty-pf", session.DefaultUncertaintyPF, "station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U")
+	f.Float64Var(&u, "uncertainty-pf", 0, fmt.Sprintf("station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U (default: --station's U, else the %g pF stand-in)", session.DefaultUncertaintyPF))
 	f.IntVar(&draws, "draws", timing.DefaultDraws, "Monte Carlo draws")
 	f.Uint64Var(&seed, "seed", 1, "Monte Carlo seed (same seed, same numbers)")
 	f.BoolVar(&asJSON, "json", false, "print one JSON object instead of the report")
