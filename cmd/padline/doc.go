@@ -16,7 +16,7 @@
 //  2. command families, each a builder with its flags and help, a call into
 //     the library and the printing of its answer:
 //     limits.go; demo_cmd.go; history_cmd.go; drift_cmd.go with
-//     drift_study.go; run.go with run_screen.go; station_cmd.go (the
+//     drift_study.go and drift_baseline.go; run.go with run_screen.go; station_cmd.go (the
 //     family and the bench its check and study share) with
 //     station_study_cmd.go and station_status_cmd.go.
 //     A family uses its own files and floor 3, never another family;

@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"encoding/json"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -9,6 +10,7 @@ import (
 
 	"padline/sequences"
 	"padline/store"
+	"padline/store/driftreport"
 )
 
 // TestDriftApprovedBaseline: the issue's complaint — a selection that
@@ -43,6 +45,25 @@ func TestDriftApprovedBaseline(t *testing.T) {
 	if code, out, errOut := runCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-205", "--since", at(0), "--until", at(300),
 		"--name", "laminate A", "--approved-by", "qe"); code != 0 || !strings.Contains(out, `approved baseline "laminate A" of QM-205`) {
 		t.Fatalf("baseline set: exit %d: %s%s", code, out, errOut)
+	}
+	// --last-approved approves the window of the latest record again: the
+	// same units, so the same centre, σ and n, under the same name.
+	var last, again driftreport.BaselineJSON
+	if err := json.Unmarshal([]byte(mustCLI(t, "drift", "baseline", "show", "--db", db, "--variant", "QM-205", "--json")), &last); err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal([]byte(mustCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-205", "--last-approved", "--approved-by", "qe2", "--json")), &again); err != nil {
+		t.Fatal(err)
+	}
+	if again.Name != "laminate A" || again.N != last.N || again.Centre != last.Centre || again.Sigma != last.Sigma ||
+		!again.Since.Equal(last.Since) || !again.Until.Equal(last.Until) || again.ApprovedBy != "qe2" || !strings.Contains(again.Method, `window of approved baseline "laminate A"`) {
+		t.Errorf("--last-approved: %+v, after %+v", again, last)
+	}
+	if code, _, errOut := runCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-205", "--last-approved", "--since", at(0)); code == 0 || !strings.Contains(errOut, "not both") {
+		t.Errorf("--last-approved with --since: exit %d %s", code, errOut)
+	}
+	if code, _, errOut := runCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-206", "--last-approved"); code == 0 || !strings.Contains(errOut, "no approved baseline") {
+		t.Errorf("--last-approved without a baseline: exit %d %s", code, errOut)
 	}
 	rep := driftJSON(t, "drift", "--db", db, "--variant", "QM-205", "--since", since)
 	g := rep.Groups[0]

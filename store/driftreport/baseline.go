@@ -2,11 +2,18 @@ package driftreport
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
-	"padline/store"
+	"io/fs"
+	"os"
 	"time"
+
+	"padline/sequences"
+	"padline/sequences/session"
+	"padline/store"
+	"padline/store/drift"
 )
 
 // BaselineJSON is a stored baseline in --json output.
@@ -85,4 +92,147 @@ func baselinePrefix(kind string) string {
 func WriteBaseline(w io.Writer, b store.Baseline) {
 	fmt.Fprintf(w, "approved baseline %q of %s: centre %.3f pF, σ %.3f pF from %d passed units %s … %s (%s … %s), approved by %s at %s\n",
 		b.Name, b.Variant, b.Centre, b.Sigma, b.N, b.FirstSerial, b.LastSerial, fmtTime(b.Since), fmtTime(b.Until), dashIfEmpty(b.ApprovedBy), fmtTime(b.ApprovedAt))
+}
+
+// MinApproved is the fewest points an approved baseline may come from:
+// Montgomery (Introduction to Statistical Quality Control, 6th ed., §6.4)
+// advises at least 20–25 subgroups for phase I limits; the drift package's
+// own studies use 50.
+const MinApproved = 25
+
+// BaselineRequest is what `padline drift baseline set` asks for.
+type BaselineRequest struct {
+	DB      string // the shift log's path
+	Variant string
+	// Since and Until bound the window (as given: 8h, 2026-11-30 06:00 …).
+	Since, Until string
+	// LastApproved takes the window of the variant's most recently
+	// approved baseline record instead of Since/Until, and approves the
+	// centre and σ the log holds for it now.
+	LastApproved   bool
+	Name, Approver string
+}
+
+// SetBaseline computes the centre (mean) and σ (MR̄/d2, as the
+// individuals chart does) of the variant's passed units' trip points over
+// the requested window of the shift log and stores them as its approved
+// baseline.
+func SetBaseline(ctx context.Context, r BaselineRequest, now time.Time) (store.Baseline, error) {
+	fail := func(err error) (store.Baseline, error) {
+		return store.Baseline{}, fmt.Errorf("drift baseline set: %w", err)
+	}
+	switch {
+	case r.Variant == "":
+		return fail(errors.New("give --variant V"))
+	case r.LastApproved && (r.Since != "" || r.Until != ""):
+		return fail(errors.New("give --since/--until or --last-approved, not both"))
+	case !r.LastApproved && (r.Since == "" || r.Until == ""):
+		return fail(errors.New("give --since T --until T (the window of in-control units to approve) or --last-approved"))
+	}
+	db, err := openShiftLog(r.DB)
+	if err != nil {
+		return fail(err)
+	}
+	defer db.Close()
+	if v, _, err := session.VariantFor(ctx, db, r.Variant); err == nil {
+		r.Variant = v.Name
+	}
+	f := store.Filter{Variant: r.Variant, Verdict: sequences.Pass}
+	from := "approved baseline window"
+	if r.LastApproved {
+		prev, err := db.LastBaseline(ctx, r.Variant)
+		if errors.Is(err, store.ErrNotFound) {
+			return fail(fmt.Errorf("%s has no approved baseline in %s to take the window of (set one with --since/--until)", r.Variant, r.DB))
+		}
+		if err != nil {
+			return fail(err)
+		}
+		// The stored window holds its first and last point's finish times:
+		// Until is inclusive there, the filter's bound exclusive.
+		f.Since, f.Until = prev.Since, prev.Until.Add(1)
+		from = fmt.Sprintf("window of approved baseline %q (%s … %s)", prev.Name, fmtTime(prev.Since), fmtTime(prev.Until))
+		if r.Name == "" {
+			r.Name = prev.Name
+		}
+	} else {
+		if f.Since, err = store.ParseWhen(r.Since, now); err != nil {
+			return fail(fmt.Errorf("--since: %w", err))
+		}
+		if f.Until, err = store.ParseWhen(r.Until, now); err != nil {
+			return fail(fmt.Errorf("--until: %w", err))
+		}
+		from = fmt.Sprintf("window %s … %s", r.Since, r.Until)
+	}
+	if f.Driver, err = session.DriverFilter(ctx, db, false); err != nil {
+		return fail(err)
+	}
+	pts, err := db.TripValues(ctx, f, 0)
+	if err != nil {
+		return fail(err)
+	}
+	if len(pts) < MinApproved {
+		return fail(fmt.Errorf("%d passed units of %s with a trip point in the %s; an approved baseline needs at least %d",
+			len(pts), r.Variant, from, MinApproved))
+	}
+	x := make([]float64, len(pts))
+	for i, p := range pts {
+		x[i] = p.TripPF
+	}
+	c, err := drift.IndividualsChart(x, drift.FirstN(len(x)), drift.Options{})
+	if err != nil {
+		return fail(err)
+	}
+	first, last := pts[0], pts[len(pts)-1]
+	b := store.Baseline{Variant: r.Variant, Name: r.Name, Centre: c.Location.Target, Sigma: c.Location.Sigma, N: len(x),
+		Method: "mean, MR̄/d2 of passed units' trip points", Since: first.Finished, Until: last.Finished,
+		FirstSerial: db.RunAt(ctx, r.Variant, first.RunID, first.Finished).Serial,
+		LastSerial:  db.RunAt(ctx, r.Variant, last.RunID, last.Finished).Serial,
+		ApprovedBy:  r.Approver, ApprovedAt: now}
+	if r.LastApproved {
+		b.Method += ", over the " + from
+	}
+	if b.Name == "" {
+		b.Name = first.Finished.Local().Format("2006-01-02 15:04") + " … " + last.Finished.Local().Format("2006-01-02 15:04")
+	}
+	if b.ID, err = db.SetBaseline(ctx, b); err != nil {
+		return fail(err)
+	}
+	return b, nil
+}
+
+// ShowBaseline returns the variant's approved baseline from the shift log
+// at path.
+func ShowBaseline(ctx context.Context, path, variant string) (store.Baseline, error) {
+	if variant == "" {
+		return store.Baseline{}, errors.New("drift baseline show: give --variant V")
+	}
+	db, err := openShiftLog(path)
+	if err != nil {
+		return store.Baseline{}, fmt.Errorf("drift baseline show: %w", err)
+	}
+	defer db.Close()
+	b, err := db.LastBaseline(ctx, variant)
+	if err != nil {
+		return b, fmt.Errorf("drift baseline show: %w (set one with 'padline drift baseline set')", err)
+	}
+	return b, nil
+}
+
+// PrintBaseline prints b for people, or as JSON.
+func PrintBaseline(w io.Writer, b store.Baseline, asJSON bool) error {
+	if asJSON {
+		enc := json.NewEncoder(w)
+		enc.SetIndent("", "  ")
+		return enc.Encode(BaselineOf(b))
+	}
+	WriteBaseline(w, b)
+	return nil
+}
+
+// openShiftLog opens an existing shift log, never creating one.
+func openShiftLog(path string) (*store.DB, error) {
+	if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
+		return nil, fmt.Errorf("no shift log at %s (give --db PATH, set PADLINE_DB, or --station-file)", path)
+	}
+	return store.Open(path)
 }

@@ -1,6 +1,8 @@
 package driftreport
 
 import (
+	"bufio"
+	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -47,4 +49,24 @@ func WriteStudy(w io.Writer, rows []drift.StudyRow, runs int, seed uint64) {
 		fmt.Fprintf(w, "%-44s %5.1fσ %9.1f %7.1f %7.0f %6.0f %7.0f %10s  %s\n", r.Chart, r.Shift, r.Result.Mean, r.Result.SE,
 			r.Result.Median, r.Result.P10, r.Result.P90, pub, r.Source)
 	}
+}
+
+// PrintStudy runs the drift study (runs per cell, seed) and prints it for
+// people or as one JSON object.
+func PrintStudy(w io.Writer, runs int, seed uint64, asJSON bool) error {
+	if runs < 1 {
+		return fmt.Errorf("drift study: --runs must be ≥ 1, got %d", runs)
+	}
+	rows, err := drift.Study(runs, seed)
+	if err != nil {
+		return fmt.Errorf("drift study: %w", err)
+	}
+	if asJSON {
+		enc := json.NewEncoder(w)
+		enc.SetIndent("", "  ")
+		return enc.Encode(map[string]any{"runs": runs, "seed": seed, "rows": StudyRows(rows)})
+	}
+	bw := bufio.NewWriter(w)
+	WriteStudy(bw, rows, runs, seed)
+	return bw.Flush()
 }
