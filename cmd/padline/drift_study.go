@@ -8,11 +8,7 @@ import (
 
 // driftStudyCmd builds `padline drift study`.
 func (a *app) driftStudyCmd() *cobra.Command {
-	var (
-		runs   int
-		seed   uint64
-		asJSON bool
-	)
+	var runs, seed, asJSON = 0, uint64(0), false
 	cmd := &cobra.Command{
 		Use:   "study",
 		Short: "Simulate the average run lengths of the drift charts against reference figures",
