@@ -29,7 +29,7 @@ func (a *app) stationCmd() *cobra.Command {
           take as their guard band.
   status  the last check, the last studies, U, and relay wear per rung.`,
 	}
-	cmd.AddCommand(a.stationCheckCmd(), a.stationStudyCmd(), a.stationStatusCmd(), a.stationValidateCmd())
+	cmd.AddCommand(a.stationCheckCmd(), a.stationStudyCmd(), a.stationStatusCmd(), a.stationValidateCmd(), a.stationRegisterCmd())
 	return cmd
 }
 
