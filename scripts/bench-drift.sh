@@ -13,7 +13,11 @@
 # last-100,000 trip series (BenchmarkTripSeries, 3 calls per figure). It
 # prints min and median of each, the figures the speed targets were set
 # against, the targets, and whether both programs printed the same report
-# (--json, compared byte for byte with the log's path masked).
+# (--json: every group's point count, time span, alarm count, capability,
+# first-pass yield, run count and each chart's kind, centre line, limits,
+# sigma, alarm count and point count, compared with jq; the report has
+# gained fields since the first measurement, such as the one-line verdict and
+# the earliest-first alarm list, which the comparison leaves out).
 #
 # The machine's load average is printed before and after: on a shared
 # machine the wall times move with it. CPU seconds move much less: they are
@@ -34,6 +38,7 @@ cd "$(dirname "$0")/.."
 log=${1:-/tmp/padline-bench/scale.db}
 before=${BEFORE:-4d66d85}
 runs=${RUNS:-5}
+command -v jq >/dev/null || { echo "bench-drift.sh needs jq (apt-get install jq)"; exit 1; }
 work=$(mktemp -d /tmp/padline-bench.XXXXXX)
 trap 'rm -rf "$work"' EXIT
 mkdir -p "$(dirname "$log")"
@@ -92,7 +97,12 @@ for q in default imr xbar-r xbar-s ewma cusum station; do
 		done
 	done
 	same=no
-	cmp -s "$work/before.json" "$work/after.json" && same=yes
+	for side in before after; do
+		jq -c '[.groups[] | {points, first, last, alarm_count, capability, first_pass_yield, runs,
+			charts: [.charts[] | {kind, center, lower, upper, sigma, alarms, points}]}]' \
+			"$work/$side.json" >"$work/$side.proj"
+	done
+	cmp -s "$work/before.proj" "$work/after.proj" && same=yes
 	read -r bw bwm <<<"$(stats "$work/before.wall")"
 	read -r aw awm <<<"$(stats "$work/after.wall")"
 	read -r bc bcm <<<"$(stats "$work/before.cpu")"
