@@ -144,7 +144,7 @@ func TestDriftErrors(t *testing.T) {
 		{[]string{"drift", "--variant", "QM-205", "--baseline", "1"}, "--baseline must be at least 2"},
 		{[]string{"drift", "--variant", "QM-205", "--sigma", "-1"}, "--sigma must be a positive number"},
 		{[]string{"drift", "--variant", "QM-205", "--lambda", "1.5"}, "--lambda must be in (0, 1]"},
-		{[]string{"drift", "--variant", "QM-205", "--svg", "a.svg", "--png", "a.png"}, "--svg or --png, not both"},
+		{[]string{"drift", "--variant", "QM-205", "--x", "hour"}, "--x must be time, serial or point"},
 		{[]string{"drift", "--variant", "QM-205", "--since", "yesterday"}, "--since"},
 		{[]string{"drift", "--variant", "QM-205", "--db", filepath.Join(t.TempDir(), "none.db")}, "no shift log at"},
 		{[]string{"drift", "--csv", csvPath, "--column", "v", "--by", "lot"}, "--by works on the shift log"},
@@ -276,6 +276,21 @@ func TestDemoDrift(t *testing.T) {
 	}
 	if st, err := os.Stat(svg); err != nil || st.Size() == 0 || g.ChartFile != svg {
 		t.Errorf("chart file %q: %v", g.ChartFile, err)
+	}
+	// Beside the control charts, the fail-code Pareto and the hourly
+	// first-pass yield; each file as large as the report says.
+	kinds := map[string]bool{}
+	for _, f := range rep.ChartFiles {
+		kinds[f.Kind] = true
+		if st, err := os.Stat(f.Path); err != nil || st.Size() != f.Bytes || f.Bytes > 200<<10 {
+			t.Errorf("chart file %+v: %v", f, err)
+		}
+		if f.Kind == "control" && (f.AlarmRuns == 0 || f.AlarmRuns > f.Alarms || f.Alarms != g.AlarmCount) {
+			t.Errorf("control chart marks %d runs of %d alarms; the report has %d alarms", f.AlarmRuns, f.Alarms, g.AlarmCount)
+		}
+	}
+	if len(rep.ChartFiles) != 3 || !kinds["control"] || !kinds["pareto"] || !kinds["hourly-yield"] {
+		t.Errorf("chart files %+v", rep.ChartFiles)
 	}
 
 	// --by splits into groups, each reported; the demo ran on one fixture.

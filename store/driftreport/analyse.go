@@ -5,7 +5,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"path/filepath"
 	"slices"
 	"strings"
 	"time"
@@ -46,6 +45,7 @@ type Options struct {
 	Subgroup         int
 	Baseline         int
 	SVG, PNG         string
+	X                string // chart x axis: time, serial or point ("": time)
 	CSVFile, Column  string
 	// Keep says which row of a serial on several CSV rows counts: "first"
 	// or "last" ("": refuse such a file).
@@ -77,8 +77,8 @@ func (o *Options) Check() error {
 		return errors.New("drift: --column goes with --csv FILE")
 	case o.CSVFile != "" && o.By != "":
 		return errors.New("drift: --by works on the shift log, not on --csv")
-	case o.SVG != "" && o.PNG != "":
-		return errors.New("drift: give --svg or --png, not both")
+	case o.X != "" && o.X != "time" && o.X != "serial" && o.X != "point":
+		return fmt.Errorf("drift: --x must be time, serial or point, got %q", o.X)
 	case o.Last < 0:
 		return fmt.Errorf("drift: --last must be ≥ 0, got %d", o.Last)
 	case o.Last > 0 && o.CSVFile != "":
@@ -313,8 +313,9 @@ func Run(ctx context.Context, o Options) (Report, error) {
 			return rep, err
 		}
 	}
+	var drawn []chart.Group
 	for _, g := range groups {
-		gr, err := driftGroup(ctx, db, o, g, low, high)
+		gr, charts, err := driftGroup(ctx, db, o, g, low, high)
 		if err != nil {
 			if o.By != "" {
 				err = fmt.Errorf("%s %s: %w", o.By, g.key, err)
@@ -322,8 +323,16 @@ func Run(ctx context.Context, o Options) (Report, error) {
 			return rep, fmt.Errorf("drift: %w", err)
 		}
 		rep.Groups = append(rep.Groups, gr)
+		if charts != nil {
+			drawn = append(drawn, chartGroup(ctx, db, o, g, charts))
+		}
 	}
 	rep.Verdict = topVerdict(o.By, rep.Groups)
+	if len(drawn) > 0 {
+		if err := writeCharts(ctx, db, o, groups, drawn, &rep); err != nil {
+			return rep, fmt.Errorf("drift: %w", err)
+		}
+	}
 	return rep, nil
 }
 
@@ -554,15 +563,16 @@ func ShiftOf(t time.Time) (name string, start, end time.Time) {
 }
 
 // driftGroup analyses one group and assembles its report.
-func driftGroup(ctx context.Context, db runLog, o Options, g driftSeries, low, high float64) (GroupReport, error) {
+// With charts asked for, it returns the group's charts with every point,
+// for drawing.
+func driftGroup(ctx context.Context, db runLog, o Options, g driftSeries, low, high float64) (GroupReport, []drift.Chart, error) {
 	gr := GroupReport{Key: g.key, Points: len(g.x)}
 	if len(g.times) > 0 {
 		gr.First, gr.Last = tptr(g.times[0]), tptr(g.times[len(g.times)-1])
 	}
-	path := driftChartPath(o, g.key)
-	an, err := analyseSeries(g.x, o, low, high, path != "")
+	an, err := analyseSeries(g.x, o, low, high, o.SVG != "" || o.PNG != "")
 	if err != nil {
-		return gr, err
+		return gr, nil, err
 	}
 	w := an.window
 	if len(g.times) > 0 {
@@ -595,15 +605,9 @@ func driftGroup(ctx context.Context, db runLog, o Options, g driftSeries, low, h
 		gr.CapabilityNote = an.capErr.Error()
 	}
 	if err := groupYield(&gr, g); err != nil {
-		return gr, err
+		return gr, nil, err
 	}
-	if path != "" {
-		if err := writeChart(path, o, g.key, an.charts); err != nil {
-			return gr, err
-		}
-		gr.ChartFile = path
-	}
-	return gr, nil
+	return gr, an.charts, nil
 }
 
 // groupAlarms lists the earliest limit alarms (0 = all) with each one's
@@ -656,53 +660,6 @@ func groupYield(gr *GroupReport, g driftSeries) error {
 		gr.Yield = &Yield{Pass: y.Pass, Total: y.Total, Rate: Num(y.Rate), Low: Num(y.Low), High: Num(y.High), Confidence: y.Confidence}
 	}
 	return nil
-}
-
-// writeChart renders a group's charts to path.
-func writeChart(path string, o Options, key string, charts []drift.Chart) error {
-	title := "trip point"
-	if o.Variant != "" {
-		title = o.Variant + " trip point"
-	}
-	if key != "" {
-		title += " — " + o.By + " " + key
-	}
-	unit := "pF"
-	if o.CSVFile != "" {
-		title, unit = o.Column, ""
-	}
-	copts := chart.Options{Title: title + " (" + driftChartTitle(o.Chart) + ")", Quantity: "trip point", Unit: unit}
-	if o.CSVFile != "" {
-		copts.Quantity = o.Column
-	}
-	return chart.WriteFile(path, copts, charts...)
-}
-
-func driftChartTitle(kind string) string {
-	if kind == "watch" {
-		return "default watch"
-	}
-	return kind
-}
-
-// driftChartPath is the chart file of a group: --svg/--png as given, with
-// the group's name before the extension under --by.
-func driftChartPath(o Options, key string) string {
-	path := o.SVG
-	if path == "" {
-		path = o.PNG
-	}
-	if path == "" || key == "" {
-		return path
-	}
-	ext := filepath.Ext(path)
-	safe := strings.Map(func(r rune) rune {
-		if r == '-' || r == '_' || r == '.' || (r >= '0' && r <= '9') || (r >= 'a' && r <= 'z') || (r >= 'A' && r <= 'Z') {
-			return r
-		}
-		return '_'
-	}, key)
-	return strings.TrimSuffix(path, ext) + "-" + safe + ext
 }
 
 func tptr(ns int64) *time.Time {

@@ -43,8 +43,14 @@ On the plant store also --by line.
 header row instead (blank cells are skipped); --target, --sigma, --k, --h,
 --lambda and --width override what would be estimated.
 
---svg/--png FILE renders the charts (with --by, one file per group, the
-group's name added to FILE). --json prints one JSON object.
+--svg FILE and/or --png FILE render the charts: x in time of day with the
+shift changes dotted (--x serial or point for test order), each run of
+alarms marked once (its first alarm ringed, its span barred, numbered as
+listed), a CUSUM drawn to ±3h so its decision interval stays readable; with
+--by, the groups side by side in one picture on one time axis. From the
+shift log, FILE-pareto and FILE-yield come beside it: the fail-code Pareto
+and the first-pass yield by hour with 95 % intervals. --json prints one
+JSON object.
 
 The shift log is found as 'padline history' finds it: --db, $PADLINE_DB,
 the --station-file's shift_log, else ./padline-shift.db. --db

@@ -40,6 +40,7 @@ type Report struct {
 	LimitsFrom    string        `json:"limits_from,omitempty"`
 	UncertaintyPF Num           `json:"uncertainty_pf"`
 	Groups        []GroupReport `json:"groups"`
+	ChartFiles    []ChartFile   `json:"chart_files,omitempty"`
 }
 
 type GroupReport struct {
@@ -226,9 +227,16 @@ func WriteText(w io.Writer, r Report) {
 		} else if r.Variant != "" && !strings.HasPrefix(r.Source, "CSV") {
 			p("first-pass yield no unit verdicts in the selection")
 		}
-		if g.ChartFile != "" {
-			p("chart file       %s", g.ChartFile)
+	}
+	if len(r.ChartFiles) > 0 {
+		p("")
+	}
+	for _, f := range r.ChartFiles {
+		what := map[string]string{"control": "control charts", "pareto": "fail-code Pareto", "hourly-yield": "first-pass yield by hour"}[f.Kind]
+		if f.Kind == "control" {
+			what += fmt.Sprintf(", %d alarms marked as %d runs", f.Alarms, f.AlarmRuns)
 		}
+		p("chart file       %s (%s; %d bytes)", f.Path, what, f.Bytes)
 	}
 }
 

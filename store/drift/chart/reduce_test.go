@@ -75,7 +75,7 @@ func TestDrawnKeepsEnvelopeAndAlarms(t *testing.T) {
 	// alarms, not by the series: under 10 bytes a point, where each point
 	// drawn takes over 100 (a glyph and a line segment).
 	var buf bytes.Buffer
-	if err := Render(&buf, SVG, Options{}, w.Charts...); err != nil {
+	if _, err := Render(&buf, SVG, Options{}, Group{Charts: w.Charts}); err != nil {
 		t.Fatal(err)
 	}
 	if buf.Len() > 10*len(x) {
