@@ -118,10 +118,13 @@ func (cl *cell) addAlarms(o Options, info *PanelInfo) error {
 		}
 		todo = append(todo, pending{r, side, x0, band, text})
 	}
-	// Numbers go to the longest runs first, each where it overlaps no
+	// Numbers go to the earliest run, then the longest runs first, each where it overlaps no
 	// number already written on its side: about 4.5 pt a character at
 	// 8 pt, plus air.
-	sort.SliceStable(todo, func(i, j int) bool { return todo[i].r.Count > todo[j].r.Count })
+	// The earliest run (when it began) comes before all others.
+	if len(todo) > 1 {
+		sort.SliceStable(todo[1:], func(i, j int) bool { return todo[1+i].r.Count > todo[1+j].r.Count })
+	}
 	for _, t := range todo {
 		s := span{t.x0, t.x0 + scale*float64(vg.Points(4.5*float64(len([]rune(t.text)))+8))}
 		free := true
@@ -164,7 +167,7 @@ func (cl *cell) addAlarms(o Options, info *PanelInfo) error {
 		}
 		lb.Offset = vg.Point{X: vg.Points(1), Y: vg.Points(3)}
 		if side < 0 {
-			lb.Offset.Y = -vg.Points(11)
+			lb.Offset.Y = vg.Points(3) // above the bar too: the shift labels sit below it
 		}
 		cl.p.Add(lb)
 	}

@@ -663,14 +663,14 @@ func (cl *cell) build(o Options, multi, first bool) (PanelInfo, error) {
 }
 
 // segments cuts a time series' line where the line stood still for long
-// (a break, the night): a gap over 20 times the mean spacing of the
+// (a break, the night): a gap over 10 times the mean spacing of the
 // series' points is left open instead of drawn as a slope.
 func (cl *cell) segments(pts plotter.XYs, x XAxis) []plotter.XYs {
 	n := len(cl.c.Stat)
 	if x != XTime || n < 2 || len(pts) < 2 {
 		return []plotter.XYs{pts}
 	}
-	gap := 20 * (cl.x(unitOf(cl.c, n-1)) - cl.x(unitOf(cl.c, 0))) / float64(n-1)
+	gap := 10 * (cl.x(unitOf(cl.c, n-1)) - cl.x(unitOf(cl.c, 0))) / float64(n-1)
 	var out []plotter.XYs
 	start := 0
 	for i := 1; i < len(pts); i++ {

@@ -1,0 +1,109 @@
+package main
+
+import (
+	"fmt"
+	"path/filepath"
+	"reflect"
+	"strings"
+	"testing"
+	"time"
+
+	"padline/store/driftreport"
+)
+
+// TestDriftPlantSameVerdict: 'padline drift' on the plant database gives,
+// for the runs a station forwarded, the verdict sentence and the alarms
+// (serial, time, chart, rule, in order) its own shift log gives: with the
+// provisional baseline, under --by station, and with the shift log's
+// approved baseline given to the plant store as --target/--sigma (the
+// plant store keeps no approved baselines; DEVELOPERS.md "Import rules":
+// drift reads either through one reader interface). Skips without
+// PostgreSQL, fails then under PADLINE_REQUIRE_PARTS=1 (plantSchema).
+func TestDriftPlantSameVerdict(t *testing.T) {
+	if testing.Short() {
+		t.Skip("a 600-unit demo shift forwarded to PostgreSQL")
+	}
+	url := plantSchema(t)
+	db := filepath.Join(t.TempDir(), "shift.db")
+	s := demoJSONSummary(t, "--units", "600", "--drift-at", "300", "--drift-pf", "4", "--db", db)
+	mustCLI(t, "plant", "add-station", "L2-S1", "--line", "L2", "--db", url)
+	mustCLI(t, "plant", "forward", "--station", "demo-sim", "--db", db, "--plant-url", url)
+
+	same := func(name string, args ...string) driftreport.Report {
+		t.Helper()
+		a := driftJSON(t, append(args, "--db", db)...)
+		b := driftJSON(t, append(args, "--db", url)...)
+		if a.Verdict == "" || a.Verdict != b.Verdict {
+			t.Errorf("%s: verdict\nshift log:   %s\nplant store: %s", name, a.Verdict, b.Verdict)
+		}
+		if len(a.Groups) != len(b.Groups) {
+			t.Fatalf("%s: %d groups on the shift log, %d on the plant store", name, len(a.Groups), len(b.Groups))
+		}
+		for i := range a.Groups {
+			ga, gb := a.Groups[i], b.Groups[i]
+			if ga.AlarmCount == 0 || ga.AlarmCount != gb.AlarmCount || !reflect.DeepEqual(alarmLines(ga.Alarms), alarmLines(gb.Alarms)) {
+				t.Errorf("%s: alarms differ:\nshift log (%d):\n%s\nplant store (%d):\n%s", name, ga.AlarmCount,
+					strings.Join(alarmLines(ga.Alarms), "\n"), gb.AlarmCount, strings.Join(alarmLines(gb.Alarms), "\n"))
+			}
+			if !reflect.DeepEqual(ga.Verdict, gb.Verdict) {
+				t.Errorf("%s: group %q verdict %+v vs %+v", name, ga.Key, ga.Verdict, gb.Verdict)
+			}
+		}
+		t.Logf("%s: %s (%d alarms)", name, a.Verdict, a.Groups[0].AlarmCount)
+		// The text report's first line is the same sentence.
+		ta := strings.SplitN(mustCLI(t, append(args, "--db", db)...), "\n", 2)[0]
+		tb := strings.SplitN(mustCLI(t, append(args, "--db", url)...), "\n", 2)[0]
+		if ta != tb || ta != "verdict          "+a.Verdict {
+			t.Errorf("%s: first lines\n%s\n%s", name, ta, tb)
+		}
+		return a
+	}
+	rep := same("default watch", "drift", "--variant", "QM-205", "--alarms", "0")
+	if v := rep.Groups[0].Verdict; v == nil || !v.Drifting || v.Change == nil || v.Change.Serial != s.Drift.ChangeSerial {
+		t.Errorf("verdict %+v, the demo's change at %s", rep.Groups[0].Verdict, s.Drift.ChangeSerial)
+	}
+	same("by station", "drift", "--variant", "QM-205", "--by", "station")
+
+	// An approved baseline lives in the station's shift log; given to the
+	// plant store as target and σ, the verdict is the same.
+	pts := driftJSON(t, "drift", "--db", db, "--variant", "QM-205")
+	first := pts.Groups[0].First.Format(time.RFC3339Nano)
+	mustCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-205", "--since", first, "--until", changeTime(t, rep), "--name", "before the step")
+	appr := driftJSON(t, "drift", "--db", db, "--variant", "QM-205")
+	b := appr.Groups[0].Baseline.Approved
+	if b == nil {
+		t.Fatalf("no approved baseline used: %+v", appr.Groups[0].Baseline)
+	}
+	a := appr.Verdict
+	p := driftJSON(t, "drift", "--db", url, "--variant", "QM-205", "--target", fmt.Sprint(b.Centre), "--sigma", fmt.Sprint(b.Sigma), "--baseline", "2")
+	if a == "" || a != p.Verdict {
+		t.Errorf("approved baseline: verdict\nshift log:   %s\nplant store: %s", a, p.Verdict)
+	}
+	t.Logf("approved baseline: %s", a)
+	if !reflect.DeepEqual(alarmLines(appr.Groups[0].Alarms), alarmLines(p.Groups[0].Alarms)) {
+		t.Errorf("approved baseline: alarms differ")
+	}
+}
+
+// changeTime is the time of the verdict's change point, as --until takes it.
+func changeTime(t *testing.T, rep driftreport.Report) string {
+	t.Helper()
+	v := rep.Groups[0].Verdict
+	if v == nil || v.Change == nil || v.Change.Time == nil {
+		t.Fatalf("no change point: %+v", v)
+	}
+	return v.Change.Time.Format(time.RFC3339Nano)
+}
+
+// alarmLines are the alarms as the report lists them.
+func alarmLines(al []driftreport.Alarm) []string {
+	var out []string
+	for _, a := range al {
+		when := ""
+		if a.Time != nil {
+			when = a.Time.UTC().Format("15:04:05.000")
+		}
+		out = append(out, fmt.Sprintf("%d %s %s %s %s %s", a.Seq, a.Serial, when, a.Chart, a.Rule, a.Note))
+	}
+	return out
+}
