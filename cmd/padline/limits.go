@@ -112,6 +112,7 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 	f.IntVar(&draws, "draws", timing.DefaultDraws, "Monte Carlo draws")
 	f.Uint64Var(&seed, "seed", 1, "Monte Carlo seed (same seed, same numbers)")
 	f.BoolVar(&asJSON, "json", false, "print one JSON object instead of the report")
+	cmd.AddCommand(a.limitsVersionCmds()...)
 	return cmd
 }
 

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"time"
 
 	"padline/store"
 )
@@ -28,6 +29,12 @@ func OpenBench(ctx context.Context, variant, station, dbPath string, o RigOption
 	}
 	b := &Bench{Rig: r, DB: db}
 	if err := LoadRelayWear(ctx, db, r); err != nil {
+		return nil, errors.Join(err, b.Close(ctx))
+	}
+	// A trust command records the limits the station's files give now as a
+	// limits version (limitsver.go), so a changed variant file or U waits
+	// for approval from the first command that sees it.
+	if _, err := SyncLimits(ctx, db, r, time.Now()); err != nil {
 		return nil, errors.Join(err, b.Close(ctx))
 	}
 	return b, nil

@@ -124,6 +124,11 @@ func RegisterReference(st *Station, rep *RegisterReport) error {
 		rep.WhyNot = st.Source.Name + " is built into padline"
 		return nil
 	}
+	// A file nobody may write (mode 0444) is read-only even for root.
+	if fi, err := os.Stat(st.Source.Name); err == nil && fi.Mode().Perm()&0o222 == 0 {
+		rep.WhyNot = fmt.Sprintf("%s is read-only (mode %04o)", st.Source.Name, fi.Mode().Perm())
+		return nil
+	}
 	f, err := os.OpenFile(st.Source.Name, os.O_WRONLY, 0)
 	if errors.Is(err, fs.ErrPermission) {
 		rep.WhyNot = "no permission to write " + st.Source.Name

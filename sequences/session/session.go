@@ -104,6 +104,9 @@ type Session struct {
 	closed  bool
 	hash    string
 	dropped uint64
+	// limits is the limits version this session's rig judges against
+	// (limitsver.go); the gate refuses until it is approved.
+	limits store.LimitsVersion
 }
 
 // Open loads the variant and station, computes the limits (guard band from
@@ -156,6 +159,9 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 		return nil, errors.Join(err, s.Close())
 	}
 	if err := LoadRelayWear(setup, db, rig); err != nil {
+		return nil, errors.Join(err, s.Close())
+	}
+	if s.limits, err = SyncLimits(setup, db, rig, o.Now()); err != nil {
 		return nil, errors.Join(err, s.Close())
 	}
 	if t := rig.Limits.Trip; t.MCSD > 0 {
@@ -597,6 +603,9 @@ func (s *Session) driftWatch(run *sequences.Run) {
 // refusal.
 func (s *Session) gate(ctx context.Context) error {
 	for {
+		if err := s.limitsGate(ctx); err != nil {
+			return err
+		}
 		err := ready(ctx, s.db, s.rig.Station, s.opts.Now(), s.since.count)
 		if err == nil {
 			return nil

@@ -20,6 +20,10 @@ type Station struct {
 	// UncertaintyPF is the station's expanded measurement uncertainty U
 	// (k = 2) in pF; 0 when the file does not state it.
 	UncertaintyPF float64
+	// AutoApproveUPF is auto_approve_u_pf: a new limits version whose only
+	// change is U, by at most this many pF, is approved without a person
+	// (0: every change waits for 'padline limits approve').
+	AutoApproveUPF float64
 	// Trust is how the station proves it still measures right: its
 	// reference units and how often they must be checked.
 	Trust StationTrust
@@ -196,6 +200,7 @@ func parseStation(src Source) (*Station, error) {
 	s.Sim = readStationSim(d)
 	s.Plant = readStationPlant(d)
 	s.UncertaintyPF = d.atMost("uncertainty_pf", d.positive("uncertainty_pf", false, 0), maxUncertaintyPF)
+	s.AutoApproveUPF = d.atMost("auto_approve_u_pf", d.nonNegative("auto_approve_u_pf", false, 0), maxUncertaintyPF)
 	s.Sites = readStationSites(d, s)
 	if err := d.finish(); err != nil {
 		return nil, err

@@ -68,6 +68,9 @@ type StudyReport struct {
 	GRR         *sequences.GRRResult   `json:"grr,omitempty"`
 	StudyID     int64                  `json:"study_id"`
 	Uncertainty *UncertaintyReport     `json:"uncertainty"`
+	// Limits is the limits version the new U gives (pending when it
+	// changed the limits).
+	Limits *store.LimitsVersion `json:"limits_version,omitempty"`
 }
 
 // UncertaintyReport is the station's GUM budget and where its inputs came from.
@@ -104,7 +107,15 @@ func RunStudy(ctx context.Context, rig *Rig, db *store.DB, o StudyOptions) (Stud
 	if rep.StudyID, err = db.RecordStudy(ctx, store.Study{Kind: rep.Kind, Time: rep.Time, Station: r.Station.Name, Fixture: r.Station.Fixture, Results: results}); err != nil {
 		return rep, err
 	}
-	rep.Uncertainty, err = r.saveBudget(ctx)
+	if rep.Uncertainty, err = r.saveBudget(ctx); err != nil {
+		return rep, err
+	}
+	u, from, err := Uncertainty(ctx, db.Path(), r.Station)
+	if err != nil {
+		return rep, err
+	}
+	lv, err := SyncStudyLimits(ctx, db, rig, u, from, time.Now())
+	rep.Limits = &lv
 	return rep, err
 }
 
@@ -295,6 +306,13 @@ func WriteStudy(w io.Writer, rep StudyReport) {
 	if u := rep.Uncertainty; u != nil {
 		p("")
 		WriteBudget(w, u.Budget, u.Source)
+	}
+	if lv := rep.Limits; lv != nil {
+		p("")
+		p("limits version %d: %s, %.2f … %.2f pF (%s)", lv.ID, lv.Status, lv.LowPF, lv.HighPF, lv.Cause)
+		if lv.Status == store.LimitsPending {
+			p("  'padline run' refuses until it is approved: padline limits approve %d --by NAME --why TEXT (with this --db)", lv.ID)
+		}
 	}
 }
 

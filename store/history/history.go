@@ -140,6 +140,14 @@ func writeConfigHistory(ctx context.Context, w io.Writer, db runLog, opts Option
 	if err != nil {
 		return fmt.Errorf("history: %w", err)
 	}
+	// A station's shift log also keeps every limits version of the variant
+	// with its cause and who approved it (store migration 0008).
+	var versions []store.LimitsVersion
+	if sl, ok := db.(*store.DB); ok {
+		if versions, err = sl.LimitsVersions(ctx, opts.Filter.Station, "", opts.Filter.Variant, ""); err != nil {
+			return fmt.Errorf("history: %w", err)
+		}
+	}
 	switch opts.Format {
 	case "json":
 		enc := json.NewEncoder(w)
@@ -153,6 +161,13 @@ func writeConfigHistory(ctx context.Context, w io.Writer, db runLog, opts Option
 				return fmt.Errorf("history: %w", err)
 			}
 		}
+		for _, v := range versions {
+			if err := enc.Encode(struct {
+				V store.LimitsVersion `json:"limits_version"`
+			}{v}); err != nil {
+				return fmt.Errorf("history: %w", err)
+			}
+		}
 	case "csv":
 		fmt.Fprintln(w, "variant,config_hash,first_seen,bytes")
 		for _, c := range hist {
@@ -161,13 +176,17 @@ func writeConfigHistory(ctx context.Context, w io.Writer, db runLog, opts Option
 	default:
 		if len(hist) == 0 {
 			fmt.Fprintf(w, "no configuration of %s in %s\n", opts.Filter.Variant, opts.DB)
-			return nil
+		} else {
+			fmt.Fprintf(w, "%-19s %-64s %s\n", "FIRST SEEN", "CONFIG HASH (sha256)", "BYTES")
+			for _, c := range hist {
+				fmt.Fprintf(w, "%-19s %-64s %d\n", c.FirstSeen.Local().Format("2006-01-02 15:04:05"), c.Hash, c.Size)
+			}
+			fmt.Fprintf(w, "%s: %s\n", opts.Filter.Variant, plural(len(hist), "configuration", "configurations"))
 		}
-		fmt.Fprintf(w, "%-19s %-64s %s\n", "FIRST SEEN", "CONFIG HASH (sha256)", "BYTES")
-		for _, c := range hist {
-			fmt.Fprintf(w, "%-19s %-64s %d\n", c.FirstSeen.Local().Format("2006-01-02 15:04:05"), c.Hash, c.Size)
+		if len(versions) > 0 {
+			fmt.Fprintf(w, "\nlimits versions of %s (every change of what runs judge against, its cause and who approved it):\n", opts.Filter.Variant)
+			session.WriteLimitsVersions(w, versions)
 		}
-		fmt.Fprintf(w, "%s: %s\n", opts.Filter.Variant, plural(len(hist), "configuration", "configurations"))
 	}
 	return nil
 }
