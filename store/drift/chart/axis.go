@@ -119,19 +119,33 @@ func (u unitTicks) Ticks(lo, hi float64) []plot.Tick {
 	return out
 }
 
-// readTicks are plot.DefaultTicks with labels as a person writes them: no
-// trailing zeros ("40", "2.5", not "40.00").
+// readTicks are ticks at whole multiples of 1, 2 or 5 × 10^k, three to six
+// of them, labelled as a person writes them ("40", "2.5", never
+// "40.00"), with unlabelled minor ticks between.
 type readTicks struct{}
 
 func (readTicks) Ticks(lo, hi float64) []plot.Tick {
-	t := plot.DefaultTicks{}.Ticks(lo, hi)
-	for i := range t {
-		if t[i].Label != "" {
-			t[i].Label = strconv.FormatFloat(t[i].Value, 'f', -1, 64)
-			if f, err := strconv.ParseFloat(t[i].Label, 64); err == nil {
-				t[i].Label = strconv.FormatFloat(math.Round(f*1e6)/1e6, 'f', -1, 64)
-			}
+	if !(hi > lo) || math.IsInf(hi-lo, 0) {
+		return nil
+	}
+	// The finest step that gives at most six labelled ticks.
+	raw := (hi - lo) / 6
+	mag := math.Pow(10, math.Floor(math.Log10(raw)))
+	step, minor := 10*mag, 2*mag
+	for _, m := range []struct{ f, minor float64 }{{1, 0.2}, {2, 0.5}, {5, 1}} {
+		if m.f*mag >= raw {
+			step, minor = m.f*mag, m.minor*mag
+			break
 		}
+	}
+	var t []plot.Tick
+	for k := math.Ceil(lo / minor); k*minor <= hi; k++ {
+		v := k * minor
+		tk := plot.Tick{Value: v}
+		if r := v / step; math.Abs(r-math.Round(r)) < 1e-9 {
+			tk.Label = strconv.FormatFloat(math.Round(v/mag*1e6)/1e6*mag, 'f', -1, 64)
+		}
+		t = append(t, tk)
 	}
 	return t
 }

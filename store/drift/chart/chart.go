@@ -86,7 +86,7 @@ type PanelInfo struct {
 	Group, Kind    string
 	Title          string
 	XLabel, YLabel string
-	XTicks         []string // the labelled ticks
+	XTicks, YTicks []string // the labelled ticks
 	Points, Drawn  int      // chart points, and how many the lines pass through
 	Alarms         int      // alarms of the chart
 	Runs           int      // alarm runs marked (one ring and bar each)
@@ -535,6 +535,11 @@ func (cl *cell) build(o Options, multi, first bool) (PanelInfo, error) {
 	for _, tk := range p.X.Tick.Marker.Ticks(cl.xlo, cl.xhi) {
 		if tk.Label != "" {
 			info.XTicks = append(info.XTicks, tk.Label)
+		}
+	}
+	for _, tk := range p.Y.Tick.Marker.Ticks(cl.ylo, cl.yhi) {
+		if tk.Label != "" {
+			info.YTicks = append(info.YTicks, tk.Label)
 		}
 	}
 	num := func(v float64) string {

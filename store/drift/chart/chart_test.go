@@ -8,6 +8,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
@@ -75,7 +76,7 @@ func check(t *testing.T, name string, render func(path string) (chart.Drawn, err
 		if ext == "svg" {
 			svg = d
 			for _, p := range d.Panels {
-				for _, s := range append([]string{p.XLabel, p.YLabel}, p.XTicks...) {
+				for _, s := range append(append([]string{p.XLabel, p.YLabel}, p.XTicks...), p.YTicks...) {
 					if !bytes.Contains(b, []byte(">"+escape(s)+"<")) {
 						t.Errorf("%s: SVG lacks the text %q", name, s)
 					}
@@ -154,6 +155,15 @@ func TestControlCharts(t *testing.T) {
 			for _, tk := range p.XTicks {
 				if _, err := time.Parse("15:04", tk); err != nil {
 					t.Errorf("%s: tick %q is not a time of day", tc.name, tk)
+				}
+			}
+			// y ticks as written by hand: "40", "2.5", never "40.00".
+			if len(p.YTicks) < 3 {
+				t.Errorf("%s panel %d: y ticks %q", tc.name, i, p.YTicks)
+			}
+			for _, tk := range p.YTicks {
+				if v, err := strconv.ParseFloat(tk, 64); err != nil || strconv.FormatFloat(v, 'f', -1, 64) != tk {
+					t.Errorf("%s panel %d: y tick %q", tc.name, i, tk)
 				}
 			}
 			// One mark per run: as many as the runs of the chart's alarms
