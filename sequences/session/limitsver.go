@@ -2,10 +2,12 @@ package session
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
 	"math"
+	"strconv"
 	"strings"
 	"time"
 
@@ -252,8 +254,8 @@ type LimitsRequest struct {
 	// Variant (pending): first record the limits its file and the
 	// station's U give now.
 	Variant string
-	// IDs are the version to decide, or the two versions to diff.
-	IDs     []int64
+	// Args are the version id to decide, or the two versions to diff.
+	Args    []string
 	By, Why string
 }
 
@@ -275,10 +277,17 @@ func (r LimitsResult) Write(w io.Writer) {
 // DoLimits carries out req on its shift log (created when missing, as the
 // station's first command creates it).
 func DoLimits(ctx context.Context, req LimitsRequest, now time.Time) (LimitsResult, error) {
-	res := LimitsResult{Action: req.Action}
+	res := LimitsResult{Action: req.Action, Versions: []store.LimitsVersion{}}
 	want := map[string]int{"pending": 0, "approve": 1, "reject": 1, "diff": 2}[req.Action]
-	if len(req.IDs) != want {
-		return res, fmt.Errorf("limits %s: want %d version id(s), got %d", req.Action, want, len(req.IDs))
+	if len(req.Args) != want {
+		return res, fmt.Errorf("limits %s: want %d version id(s), got %d", req.Action, want, len(req.Args))
+	}
+	ids := make([]int64, len(req.Args))
+	for i, a := range req.Args {
+		var err error
+		if ids[i], err = strconv.ParseInt(a, 10, 64); err != nil {
+			return res, fmt.Errorf("limits %s: %q is not a limits version id (a number 'limits pending' or 'history --limits-history' lists)", req.Action, a)
+		}
 	}
 	var st *Station
 	if req.Station != "" {
@@ -309,10 +318,10 @@ func DoLimits(ctx context.Context, req LimitsRequest, now time.Time) (LimitsResu
 		res.Versions, err = db.LimitsVersions(ctx, name, fixture, "", store.LimitsPending)
 	case "approve", "reject":
 		var lv store.LimitsVersion
-		lv, err = DecideLimits(ctx, db, req.IDs[0], req.Action == "approve", req.By, req.Why, now)
+		lv, err = DecideLimits(ctx, db, ids[0], req.Action == "approve", req.By, req.Why, now)
 		res.Versions = []store.LimitsVersion{lv}
 	case "diff":
-		for _, id := range req.IDs {
+		for _, id := range ids {
 			lv, err := db.LimitsVersionByID(ctx, id)
 			if err != nil {
 				return res, err
@@ -324,3 +333,24 @@ func DoLimits(ctx context.Context, req LimitsRequest, now time.Time) (LimitsResu
 	}
 	return res, err
 }
+
+// Writer is a report that prints itself for people.
+type Writer interface{ Write(w io.Writer) }
+
+// Emit prints r as indented JSON (asJSON) or for people: what every
+// command's --json means.
+func Emit(w io.Writer, asJSON bool, r Writer) error {
+	if !asJSON {
+		r.Write(w)
+		return nil
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(r)
+}
+
+// Write prints the validation (WriteValidate).
+func (r ValidateReport) Write(w io.Writer) { WriteValidate(w, r) }
+
+// Write prints the registration (WriteRegister).
+func (r RegisterReport) Write(w io.Writer) { WriteRegister(w, r) }

@@ -60,9 +60,9 @@ func (r *ValidateReport) add(level, key, format string, args ...any) {
 // (every key, pins unique, roles complete, ladder values in range,
 // references inside the ladder's reach), then, with variantRef, the ladder
 // and the references against the variant's test limits; with host (nil:
-// not looked at) every pin name against the lines the host has. No pin is
+// not looked at; fixture/hostpins.Inventory) every pin name against the lines the host has. No pin is
 // opened. A file that does not parse is one error finding, not an error.
-func ValidateStation(stationRef, variantRef string, host func() HostGPIO) (ValidateReport, error) {
+func ValidateStation(stationRef, variantRef string, host func() (chips, lines []string, err error)) (ValidateReport, error) {
 	rep := ValidateReport{Station: stationRef, OK: true}
 	st, err := LoadStation(stationRef)
 	if err != nil {
@@ -89,7 +89,11 @@ func ValidateStation(stationRef, variantRef string, host func() HostGPIO) (Valid
 		}
 	}
 	if host != nil && st.Driver == DriverGPIO {
-		h := host()
+		chips, lines, err := host()
+		h := HostGPIO{Chips: chips, Lines: lines}
+		if err != nil {
+			h.Err = err.Error()
+		}
 		rep.Host = &h
 		validatePins(&rep, st, h)
 	}

@@ -54,9 +54,9 @@ func TestValidateStation(t *testing.T) {
 			false, []string{"pins.fail_lamp: GPIO25 is not a GPIO line of this host", "host GPIO chips: /dev/gpiochip0"}},
 	}
 	for _, c := range cases {
-		var host func() HostGPIO
+		var host func() ([]string, []string, error)
 		if c.host != nil {
-			host = func() HostGPIO { return *c.host }
+			host = func() ([]string, []string, error) { return c.host.Chips, c.host.Lines, nil }
 		}
 		rep, err := ValidateStation(writeStation(t, c.edit), "QM-205", host)
 		if err != nil {
