@@ -18,7 +18,7 @@
 //     limits.go; demo_cmd.go; history_cmd.go; drift_cmd.go with
 //     drift_study.go and drift_baseline.go; run.go with run_screen.go; station_cmd.go (the
 //     family and the bench its check and study share) with
-//     station_study_cmd.go and station_status_cmd.go.
+//     station_study_cmd.go and station_status_cmd.go; bringup_cmd.go.
 //     A family uses its own files and floor 3, never another family;
 //  3. helpers that know no command: shiftlog.go (where the shift log is),
 //     progress.go (terminal bar), version.go, gpio.go (the GPIO opener),
