@@ -56,7 +56,7 @@ func (a *app) driftBaselineCmd() *cobra.Command {
 	fl := set.Flags()
 	fl.StringVar(&r.Since, "since", "", "window start (inclusive): 8h, 2026-11-30, \"2026-11-30 06:00\"")
 	fl.StringVar(&r.Until, "until", "", "window end (exclusive); same forms")
-	fl.BoolVar(&r.LastApproved, "last-approved", false, "take the window of the variant's most recently approved baseline instead of --since/--until")
+	fl.BoolVar(&r.LastApproved, "last-approved", false, "instead of --since/--until: the units judged against the limits version approved last (no versions: the last approved baseline's window)")
 	fl.StringVar(&r.Name, "name", "", "name of the baseline (default: its window, or with --last-approved the last one's name)")
 	fl.StringVar(&r.Approver, "approved-by", os.Getenv("USER"), "who approves it")
 	cmd.AddCommand(set, show)

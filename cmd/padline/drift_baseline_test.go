@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/json"
+	"fmt"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -62,7 +63,7 @@ func TestDriftApprovedBaseline(t *testing.T) {
 	if code, _, errOut := runCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-205", "--last-approved", "--since", at(0)); code == 0 || !strings.Contains(errOut, "not both") {
 		t.Errorf("--last-approved with --since: exit %d %s", code, errOut)
 	}
-	if code, _, errOut := runCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-206", "--last-approved"); code == 0 || !strings.Contains(errOut, "no approved baseline") {
+	if code, _, errOut := runCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-206", "--last-approved"); code == 0 || !strings.Contains(errOut, "no approved limits version and no approved baseline") {
 		t.Errorf("--last-approved without a baseline: exit %d %s", code, errOut)
 	}
 	rep := driftJSON(t, "drift", "--db", db, "--variant", "QM-205", "--since", since)
@@ -83,5 +84,29 @@ func TestDriftApprovedBaseline(t *testing.T) {
 	// --baseline N chooses the provisional window again.
 	if own := driftJSON(t, "drift", "--db", db, "--variant", "QM-205", "--since", since, "--baseline", "50"); own.Groups[0].Baseline.Kind != "given" {
 		t.Errorf("--baseline 50: %+v", own.Groups[0].Baseline)
+	}
+	// With limits versions in the log, --last-approved takes the units
+	// judged against the one approved last: from its approval on, on its
+	// station and fixture.
+	s, err = store.Open(db)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	for i, at := range []int{100, 450} {
+		created := pts[at].Finished.Add(-time.Second)
+		if _, err := s.AddLimitsVersion(ctx, store.LimitsVersion{Station: "L2-S1", Fixture: "FX-07", Variant: "QM-205", Created: created,
+			Cause: fmt.Sprintf("test version %d", i+1), VariantHash: "h", UPF: 0.3, USource: "test", LowPF: 10, HighPF: 60,
+			Status: store.LimitsApproved, ApprovedBy: "qe", Decided: created}); err != nil {
+			t.Fatal(err)
+		}
+	}
+	s.Close()
+	var lv driftreport.BaselineJSON
+	if err := json.Unmarshal([]byte(mustCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-205", "--last-approved", "--json")), &lv); err != nil {
+		t.Fatal(err)
+	}
+	if lv.N != len(pts)-450 || !lv.Since.Equal(pts[450].Finished) || !strings.Contains(lv.Method, "window of limits version 2 (L2-S1 / FX-07") {
+		t.Errorf("--last-approved with limits versions: %+v; want the %d units from %s", lv, len(pts)-450, pts[450].Finished)
 	}
 }

@@ -106,9 +106,10 @@ type BaselineRequest struct {
 	Variant string
 	// Since and Until bound the window (as given: 8h, 2026-11-30 06:00 …).
 	Since, Until string
-	// LastApproved takes the window of the variant's most recently
-	// approved baseline record instead of Since/Until, and approves the
-	// centre and σ the log holds for it now.
+	// LastApproved takes, instead of Since/Until, the units judged
+	// against the variant's limits version approved last (its station and
+	// fixture, from its approval until now); in a log without limits
+	// versions, the window of the most recently approved baseline record.
 	LastApproved   bool
 	Name, Approver string
 }
@@ -140,19 +141,33 @@ func SetBaseline(ctx context.Context, r BaselineRequest, now time.Time) (store.B
 	f := store.Filter{Variant: r.Variant, Verdict: sequences.Pass}
 	from := "approved baseline window"
 	if r.LastApproved {
-		prev, err := db.LastBaseline(ctx, r.Variant)
-		if errors.Is(err, store.ErrNotFound) {
-			return fail(fmt.Errorf("%s has no approved baseline in %s to take the window of (set one with --since/--until)", r.Variant, r.DB))
-		}
+		lv, ok, err := lastApprovedLimits(ctx, db, r.Variant)
 		if err != nil {
 			return fail(err)
 		}
-		// The stored window holds its first and last point's finish times:
-		// Until is inclusive there, the filter's bound exclusive.
-		f.Since, f.Until = prev.Since, prev.Until.Add(1)
-		from = fmt.Sprintf("window of approved baseline %q (%s … %s)", prev.Name, fmtTime(prev.Since), fmtTime(prev.Until))
-		if r.Name == "" {
-			r.Name = prev.Name
+		if ok {
+			// The units judged against the limits approved last: on its
+			// station and fixture, from its approval on.
+			f.Station, f.Fixture, f.Since, f.Until = lv.Station, lv.Fixture, lv.Decided, now
+			from = fmt.Sprintf("window of limits version %d (%s / %s, approved by %s at %s, until now)",
+				lv.ID, lv.Station, lv.Fixture, dashIfEmpty(lv.ApprovedBy), fmtTime(lv.Decided))
+		} else {
+			// A log without limits versions: the window of the variant's
+			// most recently approved baseline record.
+			prev, err := db.LastBaseline(ctx, r.Variant)
+			if errors.Is(err, store.ErrNotFound) {
+				return fail(fmt.Errorf("%s has no approved limits version and no approved baseline in %s to take the window of (give --since/--until)", r.Variant, r.DB))
+			}
+			if err != nil {
+				return fail(err)
+			}
+			// The stored window holds its first and last point's finish
+			// times: Until is inclusive there, the filter's bound exclusive.
+			f.Since, f.Until = prev.Since, prev.Until.Add(1)
+			from = fmt.Sprintf("window of approved baseline %q (%s … %s)", prev.Name, fmtTime(prev.Since), fmtTime(prev.Until))
+			if r.Name == "" {
+				r.Name = prev.Name
+			}
 		}
 	} else {
 		if f.Since, err = store.ParseWhen(r.Since, now); err != nil {
@@ -227,6 +242,22 @@ func PrintBaseline(w io.Writer, b store.Baseline, asJSON bool) error {
 	}
 	WriteBaseline(w, b)
 	return nil
+}
+
+// lastApprovedLimits is the variant's limits version approved last (on
+// any station and fixture); ok is false when the log holds none.
+func lastApprovedLimits(ctx context.Context, db *store.DB, variant string) (store.LimitsVersion, bool, error) {
+	vs, err := db.LimitsVersions(ctx, "", "", variant, store.LimitsApproved)
+	if err != nil {
+		return store.LimitsVersion{}, false, err
+	}
+	var best store.LimitsVersion
+	for _, v := range vs {
+		if !v.Decided.IsZero() && (best.ID == 0 || !v.Decided.Before(best.Decided)) {
+			best = v
+		}
+	}
+	return best, best.ID != 0, nil
 }
 
 // openShiftLog opens an existing shift log, never creating one.

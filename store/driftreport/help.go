@@ -76,10 +76,11 @@ window you name and stores them, approved, in the shift log; from then on
 'padline drift --variant V' charts against them unless --baseline, --target
 or --sigma is given.
 
---last-approved takes the window of the variant's most recently approved
-baseline record instead of --since/--until, and approves what the log holds
-for that window now (its name kept unless --name is given): for example
-after runs of that window reached the log late.`
+--last-approved takes the units judged against the variant's limits version
+approved last (see 'padline limits pending'): its station and fixture, from
+its approval until now. A log without limits versions (the demo's) takes
+the window of the variant's most recently approved baseline record instead,
+approving what the log holds for it now (its name kept unless --name).`
 
 // BaselineExample is the examples of `padline drift baseline set`.
 const BaselineExample = `  padline drift baseline set --variant QM-205 --since "2026-11-30 06:00" --until "2026-11-30 14:00" --name "laminate A" --approved-by ana
