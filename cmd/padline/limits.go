@@ -73,6 +73,9 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
 			if err != nil {
 				return err
 			}
+			for _, w := range v.Warnings {
+				fmt.Fprintln(a.stderr, "warning:", w)
+			}
 			uFrom := "stand-in (no --station, no --uncertainty-pf)"
 			switch {
 			case !cmd.Flags().Changed("uncertainty-pf") && station == "":

@@ -5,6 +5,8 @@ import (
 	"context"
 	"encoding/json"
 	"math"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -162,5 +164,24 @@ func TestLimitsGatesAndSensitivity(t *testing.T) {
 	}
 	if !got.Gate.ShortRace || len(got.Sensitivity) == 0 || got.Sensitivity[0].Input != "delay_ns" || !strings.Contains(strings.Join(got.Warnings, "|"), "race lasts") {
 		t.Errorf("json gate %+v sensitivity %+v warnings %q", got.Gate, got.Sensitivity, got.Warnings)
+	}
+}
+
+// TestLimitsWarnsAllowUnusual: a value accepted by allow_unusual is said on
+// stderr, naming file and key, and the report still comes out.
+func TestLimitsWarnsAllowUnusual(t *testing.T) {
+	raw, err := os.ReadFile(repo + "/testdata/config/good/variant-every-key.yaml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	f := filepath.Join(t.TempDir(), "v.yaml")
+	body := strings.Replace(string(raw), "c_f: {nom: 100.0e-9, tol_pct: 10}", "c_f: {nom: 22.0e-6, tol_pct: 10}", 1)
+	if err := os.WriteFile(f, []byte(body), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	var out, errOut bytes.Buffer
+	code := run(context.Background(), []string{"limits", "--variant", f, "--draws", "200"}, strings.NewReader(""), &out, &errOut)
+	if code != 0 || !strings.Contains(errOut.String(), "warning: "+f+": oscillator.c_f.nom: 2.2e-5 F is outside the plausible") {
+		t.Errorf("exit %d, stderr %q", code, errOut.String())
 	}
 }

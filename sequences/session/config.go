@@ -100,6 +100,12 @@ type doc struct {
 	known map[string]bool // full dotted keys accepted, including sections
 	open  map[string]bool // sections whose content is free-form
 	err   *ConfigError
+	// kind is "variant" or "station": which half of KeyTable applies.
+	kind string
+	// allow holds the keys listed under allow_unusual; warnings collects
+	// what they let through (shared with a by_supply row's own doc).
+	allow    map[string]bool
+	warnings *[]string
 }
 
 // parseDoc parses raw as YAML through viper (no environment overrides: the
@@ -333,6 +339,9 @@ func (d *doc) num(key string, required bool, def float64) (float64, bool) {
 		d.fail(key, "want a number, got %s", describeValue(v))
 		return def, false
 	}
+	if f > 0 {
+		d.plausible(key, f)
+	}
 	return f, true
 }
 
@@ -403,7 +412,9 @@ func (d *doc) toleranced(key string, kind rangeKind) timing.Value {
 		return timing.Value{}
 	}
 	if f, isNum := asNumber(v); isNum {
-		d.checkRange(key, kind, f)
+		if d.checkRange(key, kind, f) {
+			d.plausible(key, f)
+		}
 		return timing.Fixed(f)
 	}
 	m, isMap := v.(map[string]any)
@@ -529,6 +540,9 @@ func (d *doc) numList(key string) []float64 {
 		if !ok {
 			d.fail(fmtIndex(key, i), "want a number, got %s", describeValue(v))
 			continue
+		}
+		if f > 0 {
+			d.plausible(fmtIndex(key, i), f)
 		}
 		out = append(out, f)
 	}

@@ -91,6 +91,8 @@ func readStationTrust(d *doc, lad StationLadder) StationTrust {
 				f, isNum := asNumber(x)
 				if !isNum || f <= 0 {
 					d.fail(key+"."+k, "want a number > 0, got %s", describeValue(x))
+				} else {
+					d.plausible(key+"."+k, f)
 				}
 				return f
 			}

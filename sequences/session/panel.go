@@ -155,6 +155,8 @@ func readStationSites(d *doc, st *Station) *StationSites {
 			f, isNum := asNumber(x)
 			if !isNum || !(f > 0) {
 				d.fail(fmtIndex(key+".rungs_pf", j), "must be > 0, got %s", describeValue(x))
+			} else {
+				d.plausible(fmtIndex(key+".rungs_pf", j), f)
 			}
 			site.RungsPF = append(site.RungsPF, f)
 		}
@@ -168,6 +170,8 @@ func readStationSites(d *doc, st *Station) *StationSites {
 		f, isNum := asNumber(stray)
 		if !present || !isNum || f < 0 {
 			d.fail(key+".stray_pf", "want this site's calibrated stray in pF (≥ 0), got %s", describeValue(stray))
+		} else if f > 0 {
+			d.plausible(key+".stray_pf", f)
 		}
 		site.StrayPF = f
 		ss.List = append(ss.List, site)

@@ -37,6 +37,9 @@ type Station struct {
 	Sites *StationSites
 	// Source is where the file came from, its exact bytes and their sha256.
 	Source Source
+	// Warnings are the values outside their plausible range that the file
+	// accepts with allow_unusual, one line each naming file and key.
+	Warnings []string
 }
 
 // Driver says what drives a station's pins; every run records it.
@@ -121,6 +124,8 @@ func parseStation(src Source) (*Station, error) {
 	if err != nil {
 		return nil, err
 	}
+	d.kind = "station"
+	d.readAllow()
 	s := &Station{Source: src}
 	s.Name = d.name("name")
 	s.Fixture = d.name("fixture")
@@ -205,6 +210,7 @@ func parseStation(src Source) (*Station, error) {
 	if err := d.finish(); err != nil {
 		return nil, err
 	}
+	s.Warnings = *d.warnings
 	return s, nil
 }
 

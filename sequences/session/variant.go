@@ -27,6 +27,9 @@ type Variant struct {
 	// Source is where the file came from, its exact bytes and their sha256
 	// (the config hash every run records).
 	Source Source
+	// Warnings are the values outside their plausible range that the file
+	// accepts with allow_unusual, one line each naming file and key.
+	Warnings []string
 }
 
 // PlanSection holds the optional `plan:` section of a variant file; every key has a
@@ -96,6 +99,8 @@ func parseVariant(src Source) (*Variant, error) {
 	if err != nil {
 		return nil, err
 	}
+	d.kind = "variant"
+	d.readAllow()
 	v := &Variant{Source: src}
 	v.Name = d.name("name")
 	v.Description = d.str("description", false)
@@ -125,7 +130,8 @@ func parseVariant(src Source) (*Variant, error) {
 		c.PadPF = d.toleranced("sense.pad_pf", mustBePositive)
 		c.InputPF = d.toleranced("sense.input_pf", mustBePositive)
 	}
-	if d.section("clock_path", true) {
+	// clock_path may be left out when by_supply gives both of its keys.
+	if d.section("clock_path", !tabled["delay_ns"] || !tabled["setup_ns"]) {
 		c.DelayNS = d.tolerancedUnless("clock_path.delay_ns", "delay_ns", mustBePositive, tabled)
 		c.SetupNS = d.tolerancedUnless("clock_path.setup_ns", "setup_ns", mayBeZero, tabled)
 		if d.err == nil && c.BySupply == nil && c.SetupNS.Typ >= c.DelayNS.Typ {
@@ -145,6 +151,7 @@ func parseVariant(src Source) (*Variant, error) {
 	if err := d.finish(); err != nil {
 		return nil, err
 	}
+	v.Warnings = *d.warnings
 	// Anything the key-by-key checks missed (e.g. a corner where the sample
 	// instant falls after the clock edge) is caught by the model itself.
 	if err := v.Circuit.Validate(); err != nil {

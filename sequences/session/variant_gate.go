@@ -96,7 +96,8 @@ func readBySupply(d *doc, c *timing.Circuit) map[string]bool {
 			return tabled
 		}
 		// Read the row as its own document so errors and unknown keys name it.
-		sub := &doc{file: d.file, root: map[string]any{name: row}, known: map[string]bool{name: true}, open: map[string]bool{}}
+		sub := &doc{file: d.file, root: map[string]any{name: row}, known: map[string]bool{name: true}, open: map[string]bool{},
+			kind: d.kind, allow: d.allow, warnings: d.warnings}
 		p := name + "."
 		t.SupplyV = append(t.SupplyV, sub.positive(p+"supply_v", true, 0))
 		var got []string
