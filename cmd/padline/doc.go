@@ -12,7 +12,8 @@
 // Inside the package, files depend one way, top to bottom:
 //
 //  1. the process and the command tree: main.go (signals, exit codes),
-//     root.go, commands.go (the list of command families);
+//     root.go, commands.go (the list of command families), help_topics.go
+//     (the file-format help topics);
 //  2. command families, each a builder with its flags and help, a call into
 //     the library and the printing of its answer:
 //     limits.go; demo_cmd.go; history_cmd.go; drift_cmd.go with

@@ -7,6 +7,8 @@ import (
 
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
+
+	"padline/sequences/session"
 )
 
 // TestFlagMeanings walks the whole command tree: a flag name means one thing
@@ -90,5 +92,20 @@ func TestStationIDAlias(t *testing.T) {
 		if code == 0 || !strings.Contains(errOut, "looks like a station file") || !strings.Contains(errOut, "--station-file stA.yaml") {
 			t.Errorf("%s --station stA.yaml: exit %d, stderr %q", cmd, code, errOut)
 		}
+	}
+}
+
+// TestFileHelpTopics: 'padline help variant-file|station-file' print the
+// reference rendered from the parser's key table, and the root help lists them.
+func TestFileHelpTopics(t *testing.T) {
+	for _, kind := range []string{"variant", "station"} {
+		code, out, errOut := historyCLI(t, "help", kind+"-file")
+		if code != 0 || !strings.Contains(out, strings.TrimSpace(session.FileHelp(kind))) {
+			t.Errorf("help %s-file: exit %d, stderr %q, out %.300q", kind, code, errOut, out)
+		}
+	}
+	_, out, _ := historyCLI(t, "--help")
+	if !strings.Contains(out, "variant-file") || !strings.Contains(out, "station-file") {
+		t.Errorf("root help does not list the file topics:\n%s", out)
 	}
 }

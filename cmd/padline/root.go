@@ -52,5 +52,6 @@ Start with 'padline demo' to run a simulated shift without any hardware, and
 	for _, add := range a.subcommands() {
 		root.AddCommand(add())
 	}
+	root.AddCommand(fileHelpCmds()...)
 	return root
 }

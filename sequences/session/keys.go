@@ -58,6 +58,7 @@ const (
 	srcRelayLife  = "reed relays are rated about 1e9 operations (DEVELOPERS.md \"Simulator realism floor\"), armature relays 1e5–1e7"
 	srcGUM        = "GUM (JCGM 100:2008) §4.3.7: the demo ladder's 0.5 pF step alone gives U = 0.3 pF (DEVELOPERS.md \"Physics\", Limits); a U of several pF swallows a 10…60 pF test window"
 	srcCal        = "an LCR meter reads a tens-of-pF rung to hundredths of a pF (default 0.05 pF, DEVELOPERS.md \"Simulator realism floor\"); a rung known only to ±0.5 pF is not calibrated"
+	srcDev        = "a check allows for the station's repeatability, hundredths to tenths of a pF (DEVELOPERS.md \"Simulator realism floor\"); past a touch's 100 pF (JS-001 body model) it checks nothing ('padline station validate' also holds it to the variant's window)"
 	srcSchedule   = "a check per shift (8 h) to one a week (168 h); beyond 30 days the check proves nothing about today"
 	srcSearch     = "the trip transition is 0.4–0.9 pF wide (DEVELOPERS.md \"Simulator realism floor\"): targets of thousandths to a few pF"
 	srcSim        = "the simulator's realism floor (DEVELOPERS.md \"Simulator realism floor\") times and divided by about a hundred"
@@ -152,7 +153,7 @@ func buildKeyTable() []Key {
 		s(Key{Name: "reference_units", Type: "list", Default: "none ('padline run' refuses until a check passes)", Meaning: "the kept reference units, {serial, trip_pf, allowed_dev_pf, sim_defects}"}),
 		s(Key{Name: "reference_units[].serial", Type: "text", Default: "required", Meaning: "the reference unit's serial"}),
 		s(Key{Name: "reference_units[].trip_pf", Type: "number", Unit: "pF", Default: "required", Meaning: "the trip point this station measured for it", Lo: 0.5, Hi: maxPlausiblePF, Typ: 30, Why: srcTouchPF}),
-		s(Key{Name: "reference_units[].allowed_dev_pf", Type: "number", Unit: "pF", Default: "required", Meaning: "the allowed deviation of a check's trip from trip_pf", Lo: 0.01, Hi: 10, Typ: 0.3, Why: srcGUM}),
+		s(Key{Name: "reference_units[].allowed_dev_pf", Type: "number", Unit: "pF", Default: "required", Meaning: "the allowed deviation of a check's trip from trip_pf", Lo: 0.01, Hi: 100, Typ: 0.3, Why: srcDev}),
 		s(Key{Name: "reference_units[].sim_defects", Type: "list", Default: "none", Meaning: "driver sim: the simulator defects the unit is built with, e.g. [slow_gate]"}),
 		s(Key{Name: "check_every_units", Type: "count", Default: "0 (no limit)", Meaning: "a new reference check after this many production units", Lo: 1, Hi: 1e6, Typ: 2000, Why: srcCount}),
 		s(Key{Name: "check_every_hours", Type: "number", Unit: "h", Default: "0 (no limit)", Meaning: "a new reference check after this many hours (at most 720)", Lo: 0.25, Hi: 168, Typ: 8, Why: srcSchedule}),
