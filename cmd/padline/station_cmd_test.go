@@ -429,7 +429,8 @@ func TestStationStudiesStatusAndLimits(t *testing.T) {
 		}
 	}
 	// Relay wear: the warning fraction applies to the persisted counts.
-	warn := stationVariant(t, map[string]string{"rated_operations: 1.0e9": "rated_operations: 100"}, "")
+	// (100 operations is below any real relay's rating: allow_unusual)
+	warn := stationVariant(t, map[string]string{"rated_operations: 1.0e9": "rated_operations: 100"}, "allow_unusual: [ladder.rated_operations]\n")
 	out, _, _ = runPadline(t, ctx, "", "station", "status", "--station", warn, "--db", db, "--json")
 	var st session.StatusReport
 	if err := json.Unmarshal([]byte(out), &st); err != nil {
