@@ -85,7 +85,7 @@ func (a *app) limitsVersionCmds() (out []*cobra.Command) {
 		{"pending --station FILE [--variant V]", "List limits versions awaiting approval (with --variant, record the limits its file and the station's U give now first)"},
 		{"approve ID --station FILE --by NAME --why TEXT", "Approve a pending limits version: runs judge against it from then on"},
 		{"reject ID --station FILE --by NAME --why TEXT", "Reject a pending limits version: runs stay refused until the limits change again"},
-		{"diff A B --station FILE", "Show what changed between two limits versions"},
+		{"diff A B --station FILE", "Show what changed between two limits versions, or two variants' current limits"},
 	} {
 		var req session.LimitsRequest
 		var asJSON bool

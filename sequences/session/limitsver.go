@@ -184,7 +184,11 @@ func WriteLimitsVersions(w io.Writer, vs []store.LimitsVersion) {
 // WriteLimitsDiff prints what differs between versions a and b.
 func WriteLimitsDiff(w io.Writer, a, b store.LimitsVersion) {
 	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
-	p("limits version %d → %d", a.ID, b.ID)
+	if a.ID == 0 || b.ID == 0 {
+		p("limits of %s → %s as this station would compute them now (not versions)", a.Variant, b.Variant)
+	} else {
+		p("limits version %d → %d", a.ID, b.ID)
+	}
 	diff := func(what, x, y string) {
 		mark := " "
 		if x != y {
@@ -283,9 +287,14 @@ func DoLimits(ctx context.Context, req LimitsRequest, now time.Time) (LimitsResu
 		return res, fmt.Errorf("limits %s: want %d version id(s), got %d", req.Action, want, len(req.Args))
 	}
 	ids := make([]int64, len(req.Args))
+	byVariant := false // diff of two variants' current limits
 	for i, a := range req.Args {
 		var err error
 		if ids[i], err = strconv.ParseInt(a, 10, 64); err != nil {
+			if req.Action == "diff" {
+				byVariant = true
+				continue
+			}
 			return res, fmt.Errorf("limits %s: %q is not a limits version id (a number 'limits pending' or 'history --limits-history' lists)", req.Action, a)
 		}
 	}
@@ -321,6 +330,9 @@ func DoLimits(ctx context.Context, req LimitsRequest, now time.Time) (LimitsResu
 		lv, err = DecideLimits(ctx, db, ids[0], req.Action == "approve", req.By, req.Why, now)
 		res.Versions = []store.LimitsVersion{lv}
 	case "diff":
+		if byVariant {
+			return diffVariants(ctx, db, req.Args, st, res)
+		}
 		for _, id := range ids {
 			lv, err := db.LimitsVersionByID(ctx, id)
 			if err != nil {
@@ -354,3 +366,29 @@ func (r ValidateReport) Write(w io.Writer) { WriteValidate(w, r) }
 
 // Write prints the registration (WriteRegister).
 func (r RegisterReport) Write(w io.Writer) { WriteRegister(w, r) }
+
+// diffVariants computes the limits two variant files (or built-ins) give
+// with the station's U (the stand-in without --station), recording nothing.
+func diffVariants(ctx context.Context, db *store.DB, refs []string, st *Station, res LimitsResult) (LimitsResult, error) {
+	u, from := DefaultUncertaintyPF, "stand-in (no --station)"
+	if st != nil {
+		var err error
+		if u, from, err = Uncertainty(ctx, db.Path(), st); err != nil {
+			return res, err
+		}
+	} else {
+		st = &Station{}
+	}
+	for _, ref := range refs {
+		v, err := LoadVariant(ref)
+		if err != nil {
+			return res, err
+		}
+		rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
+		if err != nil {
+			return res, err
+		}
+		res.Versions = append(res.Versions, limitsNow(v, st, u, from, rep.TestLimits))
+	}
+	return res, nil
+}

@@ -60,3 +60,34 @@ func TestSyncLimits(t *testing.T) {
 		t.Errorf("refusal of a rejected version: %v", err)
 	}
 }
+
+// The limits commands: pending records the current limits first; approve
+// needs who and why; diff compares two versions or two variants.
+func TestDoLimits(t *testing.T) {
+	ctx := context.Background()
+	path := filepath.Join(t.TempDir(), "shift.db")
+	now := time.Date(2026, 12, 2, 8, 0, 0, 0, time.UTC)
+	do := func(req LimitsRequest) (string, LimitsResult, error) {
+		req.ShiftLog, req.Station = path, "demo-sim"
+		res, err := DoLimits(ctx, req, now)
+		var b strings.Builder
+		res.Write(&b)
+		return b.String(), res, err
+	}
+	if _, res, err := do(LimitsRequest{Action: "pending", Variant: "QM-205"}); err != nil || len(res.Versions) != 0 {
+		t.Fatalf("pending on a new log (version 1 is approved on first use): %+v %v", res, err)
+	}
+	if _, _, err := do(LimitsRequest{Action: "approve", Args: []string{"1"}, By: "ana"}); err == nil || !strings.Contains(err.Error(), "--why") {
+		t.Errorf("approve without --why: %v", err)
+	}
+	if _, _, err := do(LimitsRequest{Action: "approve", Args: []string{"one"}, By: "ana", Why: "x"}); err == nil || !strings.Contains(err.Error(), `"one" is not a limits version id`) {
+		t.Errorf("approve of a word: %v", err)
+	}
+	out, res, err := do(LimitsRequest{Action: "diff", Args: []string{"QM-205", "QM-212"}})
+	if err != nil || len(res.Versions) != 2 || !strings.Contains(out, "* high limit") || !strings.Contains(out, "limits of QM-205 → QM-212") {
+		t.Errorf("diff of two variants: %v\n%s", err, out)
+	}
+	if out, _, err := do(LimitsRequest{Action: "diff", Args: []string{"1", "1"}}); err != nil || strings.Contains(out, "* ") {
+		t.Errorf("diff of a version with itself: %v\n%s", err, out)
+	}
+}
