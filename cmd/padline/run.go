@@ -20,7 +20,7 @@ type runOptions struct {
 	asJSON           bool
 	lidTimeout       time.Duration
 	screen           string // address of the station screen; "" for none
-	plantURL         string // forward to this plant store (station_plant.go)
+	plantURL         string // forward to this plant store (session.Forward)
 	xout             string // panel stations: x-out sites of the --serial panel
 	service          bool   // end of input is an error (run as a service)
 }
@@ -101,7 +101,7 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 	f.BoolVar(&o.asJSON, "json", false, "print one JSON object per tested unit instead of the verdict banner")
 	f.DurationVar(&o.lidTimeout, "lid-timeout", 0, "give up on a unit whose lid stays open this long (0: wait until stopped)")
 	addScreenFlag(f, &o.screen)
-	addPlantURLFlag(f, &o.plantURL)
+	f.StringVar(&o.plantURL, "plant-url", "", "forward every committed run to this plant store, postgres://… (default: $PADLINE_PLANT_URL, else the station file's plant.url)")
 	f.StringVar(&o.xout, "xout", "", "panel station: sites of the --serial panel marked bad (x-outs), e.g. 2,5")
 	f.BoolVar(&o.service, "service", false, "run as the station's service: the end of input (console closed, Ctrl-D) is an error, so the service manager restarts padline instead of leaving the line down")
 	_ = cmd.MarkFlagRequired("variant")
@@ -129,9 +129,9 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 			err = cerr
 		}
 	}()
-	// Plant forwarding (station_plant.go): a goroutine of its own, woken
-	// by committed verdicts; the unit loop never waits for it.
-	defer a.forwardSession(ctx, sess, o.plantURL)()
+	// Plant forwarding: a goroutine of its own, woken by committed
+	// verdicts; the unit loop never waits for it.
+	defer sess.Forward(ctx, o.plantURL, a.stderr)()
 	events, stop := sess.Subscribe(eventBuffer)
 	printed := make(chan error, 1)
 	go func() {

@@ -97,6 +97,8 @@ type Session struct {
 	// needOpen is set when a unit has been tested (or a check run) in the
 	// fixture and the lid has not been seen open since.
 	needOpen atomic.Bool
+	// fwd, when set, forwards to the plant store; every commit wakes it.
+	fwd atomic.Pointer[Forwarding]
 	// runCtx is Run's context: a held run (holdingRecorder) gives up when
 	// it ends.
 	runCtx  context.Context
@@ -276,7 +278,12 @@ func (s *Session) Close() error {
 	return errors.Join(herr, serr, cerr)
 }
 
-func (s *Session) emit(e Event) { s.hub.emit(e) }
+func (s *Session) emit(e Event) {
+	s.hub.emit(e)
+	if e.Kind == KindVerdictCommitted {
+		s.fwd.Load().Kick()
+	}
+}
 
 // started is the session_started payload.
 func (s *Session) started() *Started {

@@ -224,7 +224,7 @@ func (db *DB) AddStation(ctx context.Context, s Station) error {
 			"GRANT SELECT, INSERT, UPDATE ON logs, relay_wear TO " + r,
 			"GRANT SELECT, INSERT ON runs, measurements, station_checks, studies TO " + r,
 			"GRANT USAGE ON ALL SEQUENCES IN SCHEMA " + sc + " TO " + r,
-			"GRANT EXECUTE ON FUNCTION plant_ensure_month(bigint), plant_my_station() TO " + r,
+			"GRANT EXECUTE ON FUNCTION plant_ensure_month(bigint), plant_my_station(), " + noteFirst + " TO " + r,
 		}
 		if !exists {
 			stmts = append([]string{"CREATE ROLE " + r + " LOGIN"}, stmts...)
@@ -249,4 +249,76 @@ func (db *DB) Stations(ctx context.Context) ([]Station, error) {
 		err := r.Scan(&s.Name, &s.Line, &s.Role)
 		return s, err
 	})
+}
+
+// noteFirst is plant_note_first's signature, for GRANT.
+const noteFirst = "plant_note_first(text[], bigint[], int[], bigint[], int[], int[], int[], text[], text[], text[])"
+
+// rlsTables are the tables under row-level security (migration 0001).
+var rlsTables = []string{"logs", "runs", "measurements", "station_checks", "studies", "relay_wear"}
+
+// AddReader creates (if missing) a login role that may read every plant
+// table and write none — the line board's role — and lets it past the
+// row-level policies for reading. Run it as the schema owner. The role's
+// sessions are read-only by default as well (default_transaction_read_only).
+func (db *DB) AddReader(ctx context.Context, role string) error {
+	if role == "" {
+		return errors.New("add reader: empty role name")
+	}
+	r := pgx.Identifier{role}.Sanitize()
+	return pgx.BeginFunc(ctx, db.pool, func(tx pgx.Tx) error {
+		var exists bool
+		var schema string
+		if err := tx.QueryRow(ctx, `SELECT EXISTS (SELECT 1 FROM pg_roles WHERE rolname = $1), current_schema()`, role).Scan(&exists, &schema); err != nil {
+			return fmt.Errorf("add reader %s: %w", role, err)
+		}
+		sc := pgx.Identifier{schema}.Sanitize()
+		var stmts []string
+		if !exists {
+			stmts = append(stmts, "CREATE ROLE "+r+" LOGIN")
+		}
+		stmts = append(stmts, "ALTER ROLE "+r+" SET default_transaction_read_only = on",
+			"GRANT USAGE ON SCHEMA "+sc+" TO "+r,
+			"GRANT SELECT ON ALL TABLES IN SCHEMA "+sc+" TO "+r,
+			"GRANT EXECUTE ON FUNCTION plant_my_station() TO "+r)
+		for _, t := range rlsTables {
+			p := pgx.Identifier{"reader_" + role}.Sanitize()
+			stmts = append(stmts, "DROP POLICY IF EXISTS "+p+" ON "+t,
+				"CREATE POLICY "+p+" ON "+t+" FOR SELECT TO "+r+" USING (true)")
+		}
+		for _, q := range stmts {
+			if _, err := tx.Exec(ctx, q); err != nil {
+				return fmt.Errorf("add reader %s: %w", role, err)
+			}
+		}
+		return nil
+	})
+}
+
+// OpenReader opens the plant store at url for reading only: every
+// transaction is read-only, and the role it logs in as must be one that
+// cannot write any plant table (see AddReader), or it is refused.
+func OpenReader(ctx context.Context, url string) (*DB, error) {
+	cfg, err := pgxpool.ParseConfig(url)
+	if err != nil {
+		return nil, fmt.Errorf("open plant store: %w", err)
+	}
+	cfg.ConnConfig.RuntimeParams["default_transaction_read_only"] = "on"
+	pool, err := pgxpool.NewWithConfig(ctx, cfg)
+	if err != nil {
+		return nil, fmt.Errorf("open plant store %s: %w", Redact(url), err)
+	}
+	p := &DB{pool: pool, url: url, months: map[int64]bool{}}
+	var user string
+	var writes bool
+	err = pool.QueryRow(ctx, `SELECT current_user, EXISTS (SELECT 1 FROM pg_tables WHERE schemaname = current_schema()
+		AND has_table_privilege(format('%I.%I', schemaname, tablename), 'INSERT, UPDATE, DELETE, TRUNCATE'))`).Scan(&user, &writes)
+	if err == nil && writes {
+		err = fmt.Errorf("role %s may write the plant tables: connect as a read-only role ('padline plant add-reader ROLE')", user)
+	}
+	if err != nil {
+		pool.Close()
+		return nil, fmt.Errorf("plant store %s: %w", Redact(url), err)
+	}
+	return p, nil
 }

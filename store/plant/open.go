@@ -3,6 +3,7 @@ package plant
 import (
 	"context"
 	"fmt"
+	"os"
 	"strings"
 )
 
@@ -28,4 +29,19 @@ func OpenMigrated(ctx context.Context, url string) (*DB, error) {
 		return nil, fmt.Errorf("plant store %s has no plant schema (run 'padline plant init --db URL')", Redact(url))
 	}
 	return p, nil
+}
+
+// OpenFlag opens the plant store named by a --db flag, else by
+// $PADLINE_PLANT_URL; readOnly opens it with OpenReader.
+func OpenFlag(ctx context.Context, flag string, readOnly bool) (*DB, error) {
+	if flag == "" {
+		flag = os.Getenv("PADLINE_PLANT_URL")
+	}
+	if !IsURL(flag) {
+		return nil, fmt.Errorf("give the plant store with --db postgres://… or $PADLINE_PLANT_URL (got %q)", flag)
+	}
+	if readOnly {
+		return OpenReader(ctx, flag)
+	}
+	return Open(ctx, flag)
 }

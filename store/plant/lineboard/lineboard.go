@@ -4,11 +4,14 @@ import (
 	"context"
 	"embed"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io/fs"
+	"net"
 	"net/http"
 	"time"
 
+	"padline/store/driftreport"
 	"padline/store/plant"
 )
 
@@ -115,4 +118,27 @@ func (s *Server) serveEvents(w http.ResponseWriter, r *http.Request) {
 		case <-t.C:
 		}
 	}
+}
+
+// LocalShift is the board's default shift: the shift of drift --by shift
+// (early 06–14, late 14–22, night 22–06) in local time.
+func LocalShift(t time.Time) (string, time.Time) {
+	name, start, _ := driftreport.ShiftOf(t.Local())
+	return name, start
+}
+
+// Serve serves the board of line ("": the whole plant) from src on ln
+// until ctx ends.
+func Serve(ctx context.Context, ln net.Listener, src Source, line string) error {
+	srv := &http.Server{Handler: &Server{Src: src, Line: line, Shift: LocalShift}, ReadHeaderTimeout: 10 * time.Second}
+	go func() {
+		<-ctx.Done()
+		sctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
+		defer cancel()
+		_ = srv.Shutdown(sctx)
+	}()
+	if err := srv.Serve(ln); err != nil && !errors.Is(err, http.ErrServerClosed) {
+		return err
+	}
+	return nil
 }

@@ -32,6 +32,6 @@ SELECT r.log_id, r.local_id, r.finished, q.seq, r.station_id, q.seq + 1,
 	CASE q.seq WHEN 2 THEN 25 WHEN 0 THEN 100 ELSE NULL END,
 	CASE q.seq WHEN 2 THEN 34 WHEN 0 THEN 1000 WHEN 1 THEN 0 ELSE NULL END, 'pass'
 FROM runs r CROSS JOIN generate_series(0, 3) AS q(seq);
-INSERT INTO serial_first (serial, at, log_id, local_id)
-SELECT serial, at, log_id, local_id FROM runs WHERE verdict <> 'station-fault';
+INSERT INTO serial_first (serial, at, log_id, local_id, station_id, variant_id, fixture_id, lot, site, verdict)
+SELECT serial, at, log_id, local_id, station_id, variant_id, fixture_id, lot, site, verdict FROM runs WHERE verdict <> 'station-fault';
 ANALYZE;

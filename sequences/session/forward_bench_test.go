@@ -1,12 +1,17 @@
-package main
+package session_test
 
 import (
 	"context"
 	"fmt"
+	"math/rand/v2"
+	"os"
 	"path/filepath"
+	"strings"
 	"syscall"
 	"testing"
 	"time"
+
+	"github.com/jackc/pgx/v5"
 
 	"padline/sequences"
 	"padline/sequences/session"
@@ -18,14 +23,14 @@ import (
 // BenchmarkUnitForwarding measures the station's computer time per
 // simulated QM-205 unit with the shift log (commit with synchronous=FULL),
 // without and with a forwarder running to the plant store and kicked after
-// every commit, as 'padline run --plant-url' does. Target: forwarding adds
+// every commit (session.StartForwarding, as 'padline run --plant-url'). Target: forwarding adds
 // ≤ 1 ms per unit. ns/op is wall time with units back to back;
 // cpu-ms/unit is the whole process's CPU time (getrusage: the unit loop
 // and the forwarder's goroutine together) per unit, with a 20 ms takt so
 // each unit goes to the plant in a batch of its own, as on a line. Needs
 // the test PostgreSQL server.
 //
-//	go test ./cmd/padline -run '^$' -bench UnitForwarding -benchtime 500x -count 5
+//	go test ./sequences/session -run '^$' -bench UnitForwarding -benchtime 500x -count 5
 func BenchmarkUnitForwarding(b *testing.B) {
 	for _, fwd := range []bool{false, true} {
 		name := "log-only"
@@ -71,10 +76,9 @@ func BenchmarkUnitForwarding(b *testing.B) {
 			if err != nil {
 				b.Fatal(err)
 			}
-			var fw *forwarding
+			var fw *session.Forwarding
 			if fwd {
-				url := plantSchemaB(b)
-				a := &app{}
+				url := plantSchema(b)
 				p, err := plant.Open(ctx, url)
 				if err != nil {
 					b.Fatal(err)
@@ -83,8 +87,10 @@ func BenchmarkUnitForwarding(b *testing.B) {
 					b.Fatal(err)
 				}
 				p.Close()
-				fw = a.startForwarding(ctx, db, st, url)
-				defer fw.stop()
+				if fw, err = session.StartForwarding(ctx, db, st, url); err != nil {
+					b.Fatal(err)
+				}
+				defer fw.Stop()
 			}
 			sess := &sequences.Session{Plan: plan, Station: fx, Clock: line.Clock(), Recorder: db,
 				Template: sequences.Run{Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture}}
@@ -99,7 +105,7 @@ func BenchmarkUnitForwarding(b *testing.B) {
 				if oc == nil {
 					b.Fatal(err)
 				}
-				fw.kick()
+				fw.Kick()
 				b.StopTimer()
 				time.Sleep(benchTakt) // the operator changes the unit
 				slept += benchTakt
@@ -127,4 +133,50 @@ func cpuTime() time.Duration {
 		return 0
 	}
 	return time.Duration(ru.Utime.Nano() + ru.Stime.Nano())
+}
+
+// plantSchema makes a migrated plant schema of the benchmark's own on the
+// test PostgreSQL server (PADLINE_TEST_PG, else 127.0.0.1:5432 database
+// test) and drops it after; it skips (fails under PADLINE_REQUIRE_PARTS=1)
+// when no server answers.
+func plantSchema(t testing.TB) string {
+	t.Helper()
+	base := os.Getenv("PADLINE_TEST_PG")
+	if base == "" {
+		base = "postgres://root@127.0.0.1:5432/test?sslmode=disable"
+	}
+	ctx := context.Background()
+	conn, err := pgx.Connect(ctx, base)
+	if err != nil {
+		reason := "no PostgreSQL at " + base + ": " + err.Error()
+		if os.Getenv("PADLINE_REQUIRE_PARTS") == "1" {
+			t.Fatal(reason)
+		}
+		t.Skip(reason)
+	}
+	defer conn.Close(ctx)
+	schema := fmt.Sprintf("plant_sess%d_%d", time.Now().UnixNano()%1e9, rand.IntN(1e6))
+	if _, err := conn.Exec(ctx, "CREATE SCHEMA "+schema); err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() {
+		if c, err := pgx.Connect(context.Background(), base); err == nil {
+			c.Exec(context.Background(), "DROP SCHEMA "+schema+" CASCADE")
+			c.Close(context.Background())
+		}
+	})
+	sep := "?"
+	if strings.Contains(base, "?") {
+		sep = "&"
+	}
+	url := base + sep + "search_path=" + schema
+	p, err := plant.Open(ctx, url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Close()
+	if err := p.Migrate(ctx); err != nil {
+		t.Fatal(err)
+	}
+	return url
 }
