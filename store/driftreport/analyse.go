@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"slices"
+	"strconv"
 	"strings"
 	"time"
 
@@ -417,6 +418,10 @@ func logGroups(ctx context.Context, db runLog, o Options, variant string) ([]dri
 	if len(groups) == 0 {
 		return nil, fmt.Errorf("drift: no trip points of %s in %s%s", variant, o.DB, describeFilter(o))
 	}
+	if gc, ok := db.(groupCounter); ok && whole == nil && groupKey(store.Filter{}, o.By) != nil {
+		startCountsBy(ctx, gc, groups, o.By)
+		return groups, nil
+	}
 	for i := range groups {
 		if whole != nil {
 			groups[i].counts = whole
@@ -425,6 +430,61 @@ func logGroups(ctx context.Context, db runLog, o Options, variant string) ([]dri
 		}
 	}
 	return groups, nil
+}
+
+// groupCounter is a log that counts every group's verdicts in one query
+// (the plant store: one query per group would read the variant's runs
+// once per group).
+type groupCounter interface {
+	CountsBy(ctx context.Context, f store.Filter, by string) (map[string]store.Counts, error)
+}
+
+// groupKey is the field of a group's filter that --by set, as CountsBy
+// keys it (nil: --by has no such field).
+func groupKey(f store.Filter, by string) *string {
+	var k string
+	switch by {
+	case "station":
+		k = f.Station
+	case "fixture":
+		k = f.Fixture
+	case "lot":
+		k = f.Lot
+	case "line":
+		k = f.Line
+	case "site":
+		if f.Site > 0 {
+			k = strconv.Itoa(f.Site)
+		}
+	default:
+		return nil
+	}
+	return &k
+}
+
+// startCountsBy counts every group's verdicts in one background query and
+// hands each group its own.
+func startCountsBy(ctx context.Context, gc groupCounter, groups []driftSeries, by string) {
+	common := groups[0].filter
+	common.Station, common.Fixture, common.Lot, common.Line, common.Site = "", "", "", "", 0
+	var (
+		m    map[string]store.Counts
+		err  error
+		done = make(chan struct{})
+	)
+	go func() {
+		defer close(done)
+		m, err = gc.CountsBy(ctx, common, by)
+	}()
+	for i := range groups {
+		ch := make(chan countsResult, 1)
+		groups[i].counts = ch
+		key := *groupKey(groups[i].filter, by)
+		go func() {
+			<-done
+			ch <- countsResult{m[key], err}
+		}()
+	}
 }
 
 // describeFilter states the filters for a "nothing found" message.

@@ -104,8 +104,8 @@ func orNaN(v *float64) float64 {
 // measurements in recorded order; Entry.ID is the run's id in its
 // station's shift log.
 func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, error] {
-	if f.Serial != "" {
-		return db.serialRuns(ctx, f)
+	if f.Serial != "" || (!f.Since.IsZero() && !f.Until.IsZero() && f.Until.Sub(f.Since) <= fewRunsWindow) {
+		return db.fewRuns(ctx, f)
 	}
 	return func(yield func(*store.Entry, error) bool) {
 		cond, args := where(f)
@@ -347,15 +347,20 @@ func (db *DB) Snapshot(ctx context.Context, variant, hash string) ([]byte, error
 	return b, nil
 }
 
-// serialRuns is Runs for one serial: a handful of runs, so the plan matters
-// more than the reading. The runs are read without joins (names come from
-// the small tables) and their measurements by exact key, which prunes the
-// month partitions when the query is planned.
-func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, error] {
+// fewRunsWindow is the widest time window Runs reads as a few runs: drift
+// looks up the run behind each alarm by its time.
+const fewRunsWindow = time.Minute
+
+// fewRuns is Runs for one serial, or for a time window of a minute or less
+// (drift's lookup of the run behind an alarm): a handful of runs, so the
+// plan matters more than the reading. The runs are read without joins
+// (names come from the small tables) and their measurements by exact key,
+// which prunes the month partitions when the query is planned.
+func (db *DB) fewRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, error] {
 	return func(yield func(*store.Entry, error) bool) {
-		fail := func(err error) { yield(nil, fmt.Errorf("query plant runs of %s: %w", f.Serial, err)) }
+		fail := func(err error) { yield(nil, fmt.Errorf("query plant runs: %w", err)) }
 		cond, args := where(f)
-		rows, err := db.pool.Query(ctx, `SELECT r.log_id, r.local_id, r.variant_id, r.config_id, r.station_id, r.fixture_id,
+		rows, err := db.pool.Query(ctx, `SELECT r.log_id, r.local_id, r.serial, r.variant_id, r.config_id, r.station_id, r.fixture_id,
 			r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault
 			FROM runs r WHERE `+cond+` ORDER BY r.at, r.log_id, r.local_id`, args...)
 		if err != nil {
@@ -381,13 +386,13 @@ func (db *DB) serialRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.E
 				verdict      string
 				trip         *float64
 			)
-			if err := rows.Scan(&k.log, &k.local, &v, &c, &st, &fx, &e.Operator, &e.Lot, &e.Software, &started,
+			if err := rows.Scan(&k.log, &k.local, &e.Serial, &v, &c, &st, &fx, &e.Operator, &e.Lot, &e.Software, &started,
 				&k.finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault); err != nil {
 				rows.Close()
 				fail(err)
 				return
 			}
-			e.ID, e.Serial, e.Verdict, e.TripPF = k.local, f.Serial, sequences.Verdict(verdict), orNaN(trip)
+			e.ID, e.Verdict, e.TripPF = k.local, sequences.Verdict(verdict), orNaN(trip)
 			if started != nil {
 				e.Started = time.Unix(0, *started).UTC()
 			}
@@ -494,4 +499,60 @@ func (db *DB) Trips(ctx context.Context, f store.Filter, groups bool) iter.Seq2[
 			}
 		}
 	}
+}
+
+// CountsBy is Counts for every group of the runs matching f at once, by
+// station, fixture, lot, line or site: one grouped query instead of one
+// query per group. The key is the group's station, fixture, lot or line
+// name, or its site as text ("" for units tested alone).
+func (db *DB) CountsBy(ctx context.Context, f store.Filter, by string) (map[string]store.Counts, error) {
+	col := map[string]string{"station": "r.station_id::text", "line": "r.station_id::text", "fixture": "r.fixture_id::text",
+		"lot": "r.lot", "site": "r.site"}[by]
+	if col == "" {
+		return nil, fmt.Errorf("plant counts by %q: want station, fixture, lot, line or site", by)
+	}
+	cond, args := where(f)
+	q := `SELECT a.g, a.n, a.pass, a.fail, a.sf, coalesce(b.n, 0), coalesce(b.pass, 0) FROM
+  (SELECT ` + col + ` AS g, count(*) AS n, count(*) FILTER (WHERE r.verdict = 'pass') AS pass,
+          count(*) FILTER (WHERE r.verdict = 'fail') AS fail, count(*) FILTER (WHERE r.verdict = 'station-fault') AS sf
+   FROM runs r WHERE ` + cond + ` GROUP BY 1) a
+  LEFT JOIN (SELECT ` + col + ` AS g, count(*) AS n, count(*) FILTER (WHERE r.verdict = 'pass') AS pass
+   FROM serial_first r WHERE ` + cond + ` GROUP BY 1) b USING (g)`
+	rows, err := db.pool.Query(ctx, q, args...)
+	if err != nil {
+		return nil, fmt.Errorf("plant counts by %s: %w", by, err)
+	}
+	var names map[int32]string
+	switch by {
+	case "station":
+		names, err = db.names(ctx, "stations", "name")
+	case "line":
+		names, err = db.names(ctx, "stations", "line")
+	case "fixture":
+		names, err = db.names(ctx, "fixtures", "name")
+	}
+	if err != nil {
+		rows.Close()
+		return nil, fmt.Errorf("plant counts by %s: %w", by, err)
+	}
+	out := map[string]store.Counts{}
+	var (
+		g string
+		c store.Counts
+	)
+	_, err = pgx.ForEachRow(rows, []any{&g, &c.Runs, &c.Pass, &c.Fail, &c.StationFault, &c.FirstUnits, &c.FirstPass}, func() error {
+		if names != nil {
+			id, _ := strconv.Atoi(g)
+			g = names[int32(id)]
+		}
+		t := out[g]
+		t.Runs, t.Pass, t.Fail, t.StationFault = t.Runs+c.Runs, t.Pass+c.Pass, t.Fail+c.Fail, t.StationFault+c.StationFault
+		t.FirstUnits, t.FirstPass = t.FirstUnits+c.FirstUnits, t.FirstPass+c.FirstPass
+		out[g] = t
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("plant counts by %s: %w", by, err)
+	}
+	return out, nil
 }
