@@ -57,6 +57,7 @@ const (
 	srcRelay      = "reed relays operate in about 0.5 ms (DEVELOPERS.md \"Simulator realism floor\"), armature relays in 5–15 ms; 100 ms is no relay"
 	srcRelayLife  = "reed relays are rated about 1e9 operations (DEVELOPERS.md \"Simulator realism floor\"), armature relays 1e5–1e7"
 	srcGUM        = "GUM (JCGM 100:2008) §4.3.7: the demo ladder's 0.5 pF step alone gives U = 0.3 pF (DEVELOPERS.md \"Physics\", Limits); a U of several pF swallows a 10…60 pF test window"
+	srcAutoU      = "a study moves U by hundredths of a pF (the GUM budget's repeatability term, DEVELOPERS.md \"Simulator realism floor\"); a bound past half a pF would let a changed station pass its limits unseen"
 	srcCal        = "an LCR meter reads a tens-of-pF rung to hundredths of a pF (default 0.05 pF, DEVELOPERS.md \"Simulator realism floor\"); a rung known only to ±0.5 pF is not calibrated"
 	srcDev        = "a check allows for the station's repeatability, hundredths to tenths of a pF (DEVELOPERS.md \"Simulator realism floor\"); past a touch's 100 pF (JS-001 body model) it checks nothing ('padline station validate' also holds it to the variant's window)"
 	srcSchedule   = "a check per shift (8 h) to one a week (168 h); beyond 30 days the check proves nothing about today"
@@ -150,6 +151,7 @@ func buildKeyTable() []Key {
 		s(Key{Name: "ladder.rated_operations", Type: "number", Default: "required", Meaning: "the relays' rated life in operations ('padline station status' counts against it)", Lo: 1e3, Hi: 1e11, Typ: 1e9, Why: srcRelayLife}),
 		s(Key{Name: "ladder.cal_uncertainty_pf", Type: "number", Unit: "pF", Default: g(defaultCalUncertaintyPF), Meaning: "one rung's calibration standard uncertainty (the LCR meter's), for the GUM budget", Lo: 0.001, Hi: 0.5, Typ: 0.05, Why: srcCal}),
 		s(Key{Name: "uncertainty_pf", Type: "number", Unit: "pF", Default: fmt.Sprintf("the station's study, else the %g pF stand-in", DefaultUncertaintyPF), Meaning: "the station's expanded uncertainty U (k = 2): each test limit is pulled in by U", Lo: 0.01, Hi: 5, Typ: 0.3, Why: srcGUM}),
+		s(Key{Name: "auto_approve_u_pf", Type: "number", Unit: "pF", Default: "0 (every limits change waits for 'padline limits approve')", Meaning: "a new limits version whose only change is U, by at most this much, approves itself (README \"Approving limits\")", Lo: 0.001, Hi: 0.5, ZeroOK: true, Typ: 0.05, Why: srcAutoU}),
 		s(Key{Name: "reference_units", Type: "list", Default: "none ('padline run' refuses until a check passes)", Meaning: "the kept reference units, {serial, trip_pf, allowed_dev_pf, sim_defects}"}),
 		s(Key{Name: "reference_units[].serial", Type: "text", Default: "required", Meaning: "the reference unit's serial"}),
 		s(Key{Name: "reference_units[].trip_pf", Type: "number", Unit: "pF", Default: "required", Meaning: "the trip point this station measured for it", Lo: 0.5, Hi: maxPlausiblePF, Typ: 30, Why: srcTouchPF}),
