@@ -3,6 +3,7 @@ package session
 import (
 	"os"
 	"path/filepath"
+	"regexp"
 	"sort"
 	"strings"
 	"testing"
@@ -177,5 +178,33 @@ func TestUnitHint(t *testing.T) {
 		if got := unitHint(k, tt.x); got != tt.want {
 			t.Errorf("%s %g: hint %q, want %q", tt.key, tt.x, got, tt.want)
 		}
+	}
+}
+
+// TestEveryReadKeyIsInTheTable: every key the parser's source reads by a
+// literal name is in KeyTable, even one no testdata file uses yet.
+func TestEveryReadKeyIsInTheTable(t *testing.T) {
+	srcs, _ := filepath.Glob("*.go")
+	read := regexp.MustCompile(`d\.(?:str|num|positive|nonNegative|count|boolean|toleranced|tolerancedUnless|section|freeForm|list|strList|numList|lookup|has|name|optIndexList|atMost)\("([a-z_.]+)"`)
+	n := 0
+	for _, f := range srcs {
+		if strings.HasSuffix(f, "_test.go") {
+			continue
+		}
+		raw, err := os.ReadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, m := range read.FindAllStringSubmatch(string(raw), -1) {
+			n++
+			_, inV := keyIndex("variant", m[1])
+			_, inS := keyIndex("station", m[1])
+			if !inV && !inS {
+				t.Errorf("%s reads key %s, which KeyTable lacks", f, m[1])
+			}
+		}
+	}
+	if n < 50 {
+		t.Fatalf("found only %d keys read", n)
 	}
 }
