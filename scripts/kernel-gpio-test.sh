@@ -104,6 +104,7 @@ set -e
 t3=$(date +%s.%N)
 tr -d '\r' <"$log" | grep -E '^GPIOVM|padline|panic|Kernel' || true
 echo "kernel-gpio-test: qemu ran $(echo "$t3 - $t2" | bc) s (exit $rc)"
+[ $rc = 124 ] && echo "kernel-gpio-test: the virtual machine did not finish within ${PADLINE_VM_TIMEOUT:-1800} s (PADLINE_VM_TIMEOUT) and was stopped" >&2
 if grep -q '^GPIOVM RESULT PASS' <(tr -d '\r' <"$log"); then
 	echo "kernel-gpio-test: PASS"
 	exit 0
