@@ -34,7 +34,7 @@ if [ $install = 1 ]; then
 	done
 	if [ -n "$missing" ]; then
 		echo "kernel-gpio-test: installing$missing" >&2
-		apt-get update -qq && DEBIAN_FRONTEND=noninteractive apt-get install -y -qq $missing >/dev/null
+		apt-get -o DPkg::Lock::Timeout=600 update -qq && DEBIAN_FRONTEND=noninteractive apt-get -o DPkg::Lock::Timeout=600 install -y -qq $missing >/dev/null
 	fi
 fi
 
