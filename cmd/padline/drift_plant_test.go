@@ -2,7 +2,6 @@ package main
 
 import (
 	"fmt"
-	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
@@ -11,24 +10,18 @@ import (
 	"padline/store/driftreport"
 )
 
-// TestDriftPlantSameVerdict: 'padline drift' on the plant database gives,
+// driftPlantSameVerdict: 'padline drift' on the plant database gives,
 // for the runs a station forwarded, the verdict sentence and the alarms
 // (serial, time, chart, rule, in order) its own shift log gives: with the
 // provisional baseline, under --by station, and with the shift log's
 // approved baseline given to the plant store as --target/--sigma (the
 // plant store keeps no approved baselines; DEVELOPERS.md "Import rules":
-// drift reads either through one reader interface). Skips without
-// PostgreSQL, fails then under PADLINE_REQUIRE_PARTS=1 (plantSchema).
-func TestDriftPlantSameVerdict(t *testing.T) {
-	if testing.Short() {
-		t.Skip("a 600-unit demo shift forwarded to PostgreSQL")
-	}
-	url := plantSchema(t)
-	db := filepath.Join(t.TempDir(), "shift.db")
-	s := demoJSONSummary(t, "--units", "600", "--drift-at", "300", "--drift-pf", "4", "--db", db)
-	mustCLI(t, "plant", "add-station", "L2-S1", "--line", "L2", "--db", url)
-	mustCLI(t, "plant", "forward", "--station", "demo-sim", "--db", db, "--plant-url", url)
-
+// drift reads either through one reader interface). db is a demo shift
+// with a step whose change the demo put at changeSerial, forwarded to url
+// (TestPlantSameNumbersAsShiftLog, which skips without PostgreSQL and
+// fails then under PADLINE_REQUIRE_PARTS=1). It approves a baseline in db.
+func driftPlantSameVerdict(t *testing.T, db, url, changeSerial string) {
+	t.Helper()
 	same := func(name string, args ...string) driftreport.Report {
 		t.Helper()
 		a := driftJSON(t, append(args, "--db", db)...)
@@ -45,8 +38,8 @@ func TestDriftPlantSameVerdict(t *testing.T) {
 				t.Errorf("%s: alarms differ:\nshift log (%d):\n%s\nplant store (%d):\n%s", name, ga.AlarmCount,
 					strings.Join(alarmLines(ga.Alarms), "\n"), gb.AlarmCount, strings.Join(alarmLines(gb.Alarms), "\n"))
 			}
-			if !reflect.DeepEqual(ga.Verdict, gb.Verdict) {
-				t.Errorf("%s: group %q verdict %+v vs %+v", name, ga.Key, ga.Verdict, gb.Verdict)
+			if va, vb := verdictLine(ga.Verdict), verdictLine(gb.Verdict); va != vb {
+				t.Errorf("%s: group %q verdict\n%s\n%s", name, ga.Key, va, vb)
 			}
 		}
 		t.Logf("%s: %s (%d alarms)", name, a.Verdict, a.Groups[0].AlarmCount)
@@ -59,8 +52,8 @@ func TestDriftPlantSameVerdict(t *testing.T) {
 		return a
 	}
 	rep := same("default watch", "drift", "--variant", "QM-205", "--alarms", "0")
-	if v := rep.Groups[0].Verdict; v == nil || !v.Drifting || v.Change == nil || v.Change.Serial != s.Drift.ChangeSerial {
-		t.Errorf("verdict %+v, the demo's change at %s", rep.Groups[0].Verdict, s.Drift.ChangeSerial)
+	if v := rep.Groups[0].Verdict; v == nil || !v.Drifting || v.Change == nil || v.Change.Serial != changeSerial {
+		t.Errorf("verdict %+v, the demo's change at %s", rep.Groups[0].Verdict, changeSerial)
 	}
 	same("by station", "drift", "--variant", "QM-205", "--by", "station")
 
@@ -80,8 +73,8 @@ func TestDriftPlantSameVerdict(t *testing.T) {
 		t.Errorf("approved baseline: verdict\nshift log:   %s\nplant store: %s", a, p.Verdict)
 	}
 	t.Logf("approved baseline: %s", a)
-	if !reflect.DeepEqual(alarmLines(appr.Groups[0].Alarms), alarmLines(p.Groups[0].Alarms)) {
-		t.Errorf("approved baseline: alarms differ")
+	if la, lb := alarmLines(appr.Groups[0].Alarms), alarmLines(p.Groups[0].Alarms); !reflect.DeepEqual(la, lb) {
+		t.Errorf("approved baseline: alarms differ:\nshift log:\n%s\nplant store:\n%s", strings.Join(la, "\n"), strings.Join(lb, "\n"))
 	}
 }
 
@@ -106,4 +99,20 @@ func alarmLines(al []driftreport.Alarm) []string {
 		out = append(out, fmt.Sprintf("%d %s %s %s %s %s", a.Seq, a.Serial, when, a.Chart, a.Rule, a.Note))
 	}
 	return out
+}
+
+// verdictLine is a group's verdict with its points named by serial and
+// time (UTC), for comparing.
+func verdictLine(v *driftreport.Verdict) string {
+	if v == nil {
+		return "none"
+	}
+	pt := func(p *driftreport.Point) string {
+		if p == nil || p.Time == nil {
+			return "-"
+		}
+		return p.Serial + " " + p.Time.UTC().Format(time.RFC3339Nano)
+	}
+	return fmt.Sprintf("%s | drifting %v, %d alarms, %d earlier, shift %g pF %g σ, change %s, signal %s, %s, %s",
+		v.Text, v.Drifting, v.Alarms, v.Earlier, v.ShiftPF, v.ShiftSigma, pt(v.Change), pt(v.Signal), v.Rule, v.Where)
 }

@@ -89,7 +89,7 @@ func mustCLI(t *testing.T, args ...string) string {
 func TestPlantSameNumbersAsShiftLog(t *testing.T) {
 	url := plantSchema(t)
 	db := filepath.Join(t.TempDir(), "shift.db")
-	demoJSONSummary(t, "--units", "400", "--drift-at", "200", "--drift-pf", "4", "--db", db)
+	demo := demoJSONSummary(t, "--units", "400", "--drift-at", "200", "--drift-pf", "4", "--db", db)
 	mustCLI(t, "plant", "add-station", "L2-S1", "--line", "L2", "--db", url)
 
 	// Before forwarding, status shows the whole shift as backlog.
@@ -146,6 +146,7 @@ func TestPlantSameNumbersAsShiftLog(t *testing.T) {
 	if code, _, errOut := runCLI(t, "drift", "--variant", "QM-205", "--db", db, "--by", "line"); code == 0 || !strings.Contains(errOut, "needs the plant store") {
 		t.Fatalf("--by line on a shift log: exit %d %s", code, errOut)
 	}
+	driftPlantSameVerdict(t, db, url, demo.Drift.ChangeSerial)
 }
 
 // 'padline run --plant-url' forwards while it tests; a plant store that
