@@ -69,3 +69,25 @@ func TestRegisterReferenceBuiltin(t *testing.T) {
 		t.Errorf("trip outside the ladder: %v", err)
 	}
 }
+
+// A station file nobody may write (mode 0444, as root too) is left as it
+// is; the entry to paste is printed instead.
+func TestRegisterReferenceReadOnly(t *testing.T) {
+	p := writeStation(t, func(s string) string { return s })
+	if err := os.Chmod(p, 0o444); err != nil {
+		t.Fatal(err)
+	}
+	before, _ := os.ReadFile(p)
+	st, err := LoadStation(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rep := RegisterReport{Serial: "QM205-REF-7", TripPF: 30.25, AllowedDevPF: 0.3}
+	if err := RegisterReference(st, &rep); err != nil {
+		t.Fatal(err)
+	}
+	after, _ := os.ReadFile(p)
+	if rep.Written || !strings.Contains(rep.WhyNot, "read-only (mode 0444)") || string(before) != string(after) {
+		t.Errorf("read-only file: written %v, why not %q, changed %v", rep.Written, rep.WhyNot, string(before) != string(after))
+	}
+}
