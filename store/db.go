@@ -109,6 +109,9 @@ type DB struct {
 
 	wmu sync.Mutex // serialises this process's write transactions
 	ids idCache    // committed name → id lookups
+
+	smu   sync.Mutex
+	stmts map[string]*sql.Stmt // statements prepared once (see prepared)
 }
 
 // Open opens the shift log at path, creating it if it does not exist, and

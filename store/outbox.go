@@ -39,14 +39,18 @@ func (db *DB) OutboxState(ctx context.Context) (Outbox, error) {
 		o           Outbox
 		last, errAt sql.NullInt64
 	)
-	err := db.sql.QueryRowContext(ctx, `
+	stmt, err := db.prepared(ctx, `
 		SELECT o.log_uuid, o.run_cursor, o.check_cursor, o.study_cursor, o.forwarded,
 		       o.last_time, o.last_error, o.last_error_time,
 		       (SELECT count(*) FROM runs WHERE id > o.run_cursor),
 		       (SELECT count(*) FROM station_checks WHERE id > o.check_cursor),
 		       (SELECT count(*) FROM studies WHERE id > o.study_cursor),
 		       (SELECT count(*) FROM plant_refused)
-		FROM plant_outbox o WHERE o.id = 1`).Scan(&o.LogUUID, &o.RunCursor, &o.CheckCursor, &o.StudyCursor,
+		FROM plant_outbox o WHERE o.id = 1`)
+	if err != nil {
+		return o, fmt.Errorf("outbox state: %w", err)
+	}
+	err = stmt.QueryRowContext(ctx).Scan(&o.LogUUID, &o.RunCursor, &o.CheckCursor, &o.StudyCursor,
 		&o.Forwarded, &last, &o.LastError, &errAt, &o.BacklogRuns, &o.BacklogChecks, &o.BacklogStudies, &o.Refused)
 	if err != nil {
 		return o, fmt.Errorf("outbox state: %w", err)
@@ -63,9 +67,12 @@ func (db *DB) OutboxState(ctx context.Context) (Outbox, error) {
 // PendingRuns returns up to limit runs with an id above after, in id
 // order, each with its measurements; Entry.ID is the run's id in this log.
 func (db *DB) PendingRuns(ctx context.Context, after int64, limit int) ([]*Entry, error) {
-	q := fmt.Sprintf(runsSQL, "r.id IN (SELECT id FROM runs WHERE id > ? ORDER BY id LIMIT ?)", "r.id, m.seq")
+	stmt, err := db.prepared(ctx, fmt.Sprintf(runsSQL, "r.id IN (SELECT id FROM runs WHERE id > ? ORDER BY id LIMIT ?)", "r.id, m.seq"))
+	if err != nil {
+		return nil, fmt.Errorf("pending runs: %w", err)
+	}
 	var out []*Entry
-	for e, err := range db.runsQuery(ctx, q, after, limit) {
+	for e, err := range db.runsRows(func() (*sql.Rows, error) { return stmt.QueryContext(ctx, after, limit) }) {
 		if err != nil {
 			return nil, fmt.Errorf("pending runs: %w", err)
 		}
@@ -230,4 +237,24 @@ func (db *DB) RefusedRows(ctx context.Context, limit int) ([]Refusal, error) {
 		out = append(out, r)
 	}
 	return out, rows.Err()
+}
+
+// prepared returns q prepared once for the life of db: the forwarder runs
+// the same few statements after every unit, and preparing them each time
+// cost about as much as running them.
+func (db *DB) prepared(ctx context.Context, q string) (*sql.Stmt, error) {
+	db.smu.Lock()
+	defer db.smu.Unlock()
+	if st := db.stmts[q]; st != nil {
+		return st, nil
+	}
+	st, err := db.sql.PrepareContext(ctx, q)
+	if err != nil {
+		return nil, err
+	}
+	if db.stmts == nil {
+		db.stmts = map[string]*sql.Stmt{}
+	}
+	db.stmts[q] = st
+	return st, nil
 }

@@ -107,6 +107,19 @@ type Entry struct {
 	TripPF float64
 }
 
+// EntryOf is run as Runs reads it back once committed under id: the
+// forwarder takes a run just committed from memory instead of reading the
+// log again.
+func EntryOf(id int64, run sequences.Run) *Entry {
+	e := &Entry{ID: id, Run: run, TripPF: math.NaN()}
+	for _, m := range run.Measurements {
+		if m.Step == TripStep && m.Name == TripName && !math.IsNaN(m.Value) {
+			e.TripPF = m.Value
+		}
+	}
+	return e
+}
+
 // runsSQL streams runs with their measurements in (finished, id, seq)
 // order. CROSS JOIN keeps runs as the outer loop, so SQLite walks an index
 // in order and never sorts the whole result.
@@ -136,8 +149,13 @@ func (db *DB) Runs(ctx context.Context, f Filter) iter.Seq2[*Entry, error] {
 
 // runsQuery streams the runs of q (a runsSQL), one Entry per run.
 func (db *DB) runsQuery(ctx context.Context, q string, args ...any) iter.Seq2[*Entry, error] {
+	return db.runsRows(func() (*sql.Rows, error) { return db.sql.QueryContext(ctx, q, args...) })
+}
+
+// runsRows streams the runs of the rows query returns (a runsSQL).
+func (db *DB) runsRows(query func() (*sql.Rows, error)) iter.Seq2[*Entry, error] {
 	return func(yield func(*Entry, error) bool) {
-		rows, err := db.sql.QueryContext(ctx, q, args...)
+		rows, err := query()
 		if err != nil {
 			yield(nil, fmt.Errorf("query runs: %w", err))
 			return

@@ -9,6 +9,7 @@ import (
 	"sync"
 	"time"
 
+	"padline/sequences"
 	"padline/store"
 	"padline/store/plant"
 )
@@ -48,8 +49,9 @@ type Forwarding struct {
 }
 
 // StartForwarding starts forwarding db, station st's shift log, to the
-// plant store at url ("": nil, nil).
-func StartForwarding(ctx context.Context, db *store.DB, st *Station, url string) (*Forwarding, error) {
+// plant store at url ("": nil, nil), a batch every at most (0: 1 s;
+// negative: a batch per committed run; see plant.Forwarder.Every).
+func StartForwarding(ctx context.Context, db *store.DB, st *Station, url string, every time.Duration) (*Forwarding, error) {
 	if url == "" {
 		return nil, nil
 	}
@@ -59,7 +61,7 @@ func StartForwarding(ctx context.Context, db *store.DB, st *Station, url string)
 	}
 	fctx, cancel := context.WithCancel(context.WithoutCancel(ctx))
 	fw := &Forwarding{p: p, cancel: cancel,
-		f: &plant.Forwarder{Log: db, Plant: p, Station: st.Name, Profile: PlantProfile(st)}}
+		f: &plant.Forwarder{Log: db, Plant: p, Station: st.Name, Profile: PlantProfile(st), Every: every}}
 	fw.wg.Add(1)
 	go func() {
 		defer fw.wg.Done()
@@ -72,6 +74,14 @@ func StartForwarding(ctx context.Context, db *store.DB, st *Station, url string)
 func (fw *Forwarding) Kick() {
 	if fw != nil {
 		fw.f.Kick()
+	}
+}
+
+// Committed hands the forwarder the run just committed under id (so it
+// need not read it back from the shift log) and wakes it. It never blocks.
+func (fw *Forwarding) Committed(id int64, run sequences.Run) {
+	if fw != nil {
+		fw.f.Offer(store.EntryOf(id, run))
 	}
 }
 
@@ -97,7 +107,7 @@ func (fw *Forwarding) Stop() {
 // the function that stops it. A plant store that cannot be opened is
 // reported on warn and never stops the station. Call it before Run.
 func (s *Session) Forward(ctx context.Context, flag string, warn io.Writer) (stop func()) {
-	fw, err := StartForwarding(ctx, s.db, s.rig.Station, PlantURL(flag, s.rig.Station))
+	fw, err := StartForwarding(ctx, s.db, s.rig.Station, PlantURL(flag, s.rig.Station), 0)
 	if err != nil {
 		fmt.Fprintln(warn, err)
 	}

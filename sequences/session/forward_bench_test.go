@@ -22,21 +22,24 @@ import (
 
 // BenchmarkUnitForwarding measures the station's computer time per
 // simulated QM-205 unit with the shift log (commit with synchronous=FULL),
-// without and with a forwarder running to the plant store and kicked after
-// every commit (session.StartForwarding, as 'padline run --plant-url'). Target: forwarding adds
-// ≤ 1 ms per unit. ns/op is wall time with units back to back;
+// without and with a forwarder running to the plant store and handed every
+// committed run (session.StartForwarding, as 'padline run --plant-url').
+// Target: forwarding adds ≤ 1 ms per unit. ns/op is wall time;
 // cpu-ms/unit is the whole process's CPU time (getrusage: the unit loop
-// and the forwarder's goroutine together) per unit, with a 20 ms takt so
-// each unit goes to the plant in a batch of its own, as on a line. Needs
-// the test PostgreSQL server.
+// and the forwarder's goroutine together) per unit, with a 20 ms takt
+// between units. "log+forwarding" is padline run's forwarder (a batch a
+// second at most, so at this takt about 50 units a batch);
+// "log+forwarding-per-unit" sends a batch per unit, the cost of one batch
+// of one run. Needs the test PostgreSQL server.
 //
 //	go test ./sequences/session -run '^$' -bench UnitForwarding -benchtime 500x -count 5
 func BenchmarkUnitForwarding(b *testing.B) {
-	for _, fwd := range []bool{false, true} {
-		name := "log-only"
-		if fwd {
-			name = "log+forwarding"
-		}
+	for _, c := range []struct {
+		name  string
+		fwd   bool
+		every time.Duration
+	}{{"log-only", false, 0}, {"log+forwarding", true, 0}, {"log+forwarding-per-unit", true, -1}} {
+		name, fwd := c.name, c.fwd
 		b.Run(name, func(b *testing.B) {
 			v, err := session.LoadVariant("QM-205")
 			if err != nil {
@@ -87,7 +90,7 @@ func BenchmarkUnitForwarding(b *testing.B) {
 					b.Fatal(err)
 				}
 				p.Close()
-				if fw, err = session.StartForwarding(ctx, db, st, url); err != nil {
+				if fw, err = session.StartForwarding(ctx, db, st, url, c.every); err != nil {
 					b.Fatal(err)
 				}
 				defer fw.Stop()
@@ -105,7 +108,7 @@ func BenchmarkUnitForwarding(b *testing.B) {
 				if oc == nil {
 					b.Fatal(err)
 				}
-				fw.Kick()
+				fw.Committed(oc.ID, oc.Run)
 				b.StopTimer()
 				time.Sleep(benchTakt) // the operator changes the unit
 				slept += benchTakt

@@ -280,8 +280,8 @@ func (s *Session) Close() error {
 
 func (s *Session) emit(e Event) {
 	s.hub.emit(e)
-	if e.Kind == KindVerdictCommitted {
-		s.fwd.Load().Kick()
+	if e.Kind == KindVerdictCommitted && e.Verdict != nil {
+		s.fwd.Load().Committed(e.Verdict.ID, e.Verdict.Run)
 	}
 }
 

@@ -63,8 +63,9 @@ type DB struct {
 	url  string
 
 	mu     sync.Mutex
-	months map[int64]bool   // month partitions known to exist (by first ns)
-	known  map[string]int32 // committed ids of names, keyed by kind and name
+	months map[int64]bool      // month partitions known to exist (by first ns)
+	known  map[string]int32    // committed ids of names, keyed by kind and name
+	logs   map[string]knownLog // shift logs by uuid, as last committed
 }
 
 // cached returns the committed id of key.

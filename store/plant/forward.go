@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math/rand/v2"
 	"slices"
+	"sync"
 	"time"
 
 	"padline/store"
@@ -31,6 +32,12 @@ type Forwarder struct {
 	// Poll is how often an idle forwarder looks for new runs (default
 	// 1 s); Kick wakes it at once.
 	Poll time.Duration
+	// Every is the least time between two batches while the forwarder
+	// keeps up (default 1 s; negative: a batch per Kick): the runs a line
+	// commits meanwhile go in one batch, so forwarding costs the station
+	// one batch a second at most instead of one per unit. A backlog goes
+	// in full batches back to back.
+	Every time.Duration
 	// MinBackoff and MaxBackoff bound the wait after a failure (default
 	// 1 s and 2 min); see Backoff.
 	MinBackoff, MaxBackoff time.Duration
@@ -40,11 +47,38 @@ type Forwarder struct {
 	OnBatch func(Result)
 
 	kick    chan struct{}
+	omu     sync.Mutex
+	offered []*store.Entry     // runs just committed, handed over by Offer
 	configs map[[2]string]bool // configurations the plant store has
 	pre     *prefetch          // the next batch's runs, read while this one is sent
 	relays  []store.RelayCount // the relay counts the plant store has
 	// relaysRead is when the relay counts were last read from the log.
 	relaysRead time.Time
+	// st is the outbox as this forwarder left it after its last batch,
+	// valid (stOK) while that batch emptied the backlog; it is read from
+	// the log again every stateEvery, after a full batch or an error.
+	st     store.Outbox
+	stOK   bool
+	stRead time.Time
+}
+
+// stateEvery is how often the forwarder reads the outbox state (cursors,
+// backlog) from the log while it keeps up with the line; in between, a
+// committed run needs only the read of the runs after its cursor.
+const stateEvery = 5 * time.Second
+
+// state returns the outbox state: the one kept in memory while it is
+// valid, else the log's.
+func (f *Forwarder) state(ctx context.Context) (store.Outbox, error) {
+	if f.stOK && f.now().Sub(f.stRead) < stateEvery {
+		return f.st, nil
+	}
+	st, err := f.Log.OutboxState(ctx)
+	if err != nil {
+		return st, err
+	}
+	f.st, f.stOK, f.stRead = st, true, f.now()
+	return st, nil
 }
 
 // relayEvery is how often the forwarder reads the relay counts.
@@ -56,6 +90,44 @@ type prefetch struct {
 	runs  []*store.Entry
 	err   error
 	done  chan struct{}
+}
+
+// maxOffered bounds the runs Offer keeps; past it the forwarder reads the
+// log (a backlog it catches up in full batches anyway).
+const maxOffered = 1000
+
+// Offer hands the forwarder a run just committed to the shift log under
+// e.ID, and wakes it. When the offered runs follow the outbox cursor
+// without a gap, the forwarder sends them without reading the log again;
+// otherwise it reads the log as always. It never blocks.
+func (f *Forwarder) Offer(e *store.Entry) {
+	f.omu.Lock()
+	if len(f.offered) < maxOffered {
+		f.offered = append(f.offered, e)
+	}
+	f.omu.Unlock()
+	f.Kick()
+}
+
+// takeOffered returns the offered runs that follow cursor without a gap
+// (up to size), dropping those at or below it; nil if they do not follow.
+func (f *Forwarder) takeOffered(cursor int64, size int) []*store.Entry {
+	f.omu.Lock()
+	defer f.omu.Unlock()
+	i := 0
+	for i < len(f.offered) && f.offered[i].ID <= cursor {
+		i++
+	}
+	f.offered = f.offered[i:]
+	if len(f.offered) == 0 || f.offered[0].ID != cursor+1 {
+		f.offered = nil
+		return nil
+	}
+	n := 1
+	for n < len(f.offered) && n < size && f.offered[n].ID == f.offered[n-1].ID+1 {
+		n++
+	}
+	return slices.Clone(f.offered[:n])
 }
 
 // Kick wakes the forwarder (a run was committed). It never blocks.
@@ -119,6 +191,10 @@ func (f *Forwarder) Run(ctx context.Context) error {
 	if poll <= 0 {
 		poll = time.Second
 	}
+	every := f.Every
+	if every == 0 {
+		every = time.Second
+	}
 	fails := 0
 	for {
 		n, err := f.Step(ctx)
@@ -129,9 +205,24 @@ func (f *Forwarder) Run(ctx context.Context) error {
 		case err != nil:
 			fails++
 			wait = Backoff(fails, minB, maxB, rand.Float64())
+		case n >= f.batchSize():
+			fails = 0
+			continue // a backlog: more are waiting
 		case n > 0:
 			fails = 0
-			continue // more may be waiting
+			if every <= 0 {
+				continue
+			}
+			// Let the line commit more before the next batch; a commit
+			// meanwhile does not cut the wait short.
+			t := time.NewTimer(every)
+			select {
+			case <-ctx.Done():
+				t.Stop()
+				return ctx.Err()
+			case <-t.C:
+			}
+			continue
 		default:
 			fails = 0
 			wait = poll
@@ -158,23 +249,34 @@ func (f *Forwarder) Run(ctx context.Context) error {
 func (f *Forwarder) Step(ctx context.Context) (int, error) {
 	f.init()
 	n, err := f.step(ctx)
+	if err != nil {
+		f.stOK = false
+	}
 	if err != nil && ctx.Err() == nil {
 		_ = f.Log.NoteOutboxError(context.WithoutCancel(ctx), err.Error(), f.now())
 	}
 	return n, err
 }
 
-func (f *Forwarder) step(ctx context.Context) (int, error) {
-	size := f.BatchSize
-	if size <= 0 {
-		size = 500
+// batchSize is BatchSize or its default.
+func (f *Forwarder) batchSize() int {
+	if f.BatchSize <= 0 {
+		return 500
 	}
-	st, err := f.Log.OutboxState(ctx)
+	return f.BatchSize
+}
+
+func (f *Forwarder) step(ctx context.Context) (int, error) {
+	size := f.batchSize()
+	st, err := f.state(ctx)
 	if err != nil {
 		return 0, err
 	}
-	var runs []*store.Entry
-	if pre := f.pre; pre != nil && pre.after == st.RunCursor {
+	runs := f.takeOffered(st.RunCursor, size)
+	if runs != nil {
+		// Runs handed over as they were committed: the next ones after
+		// the cursor, so the log need not be read for them.
+	} else if pre := f.pre; pre != nil && pre.after == st.RunCursor {
 		<-pre.done
 		runs, err = pre.runs, pre.err
 	} else {
@@ -222,7 +324,7 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 		f.relaysRead = f.now()
 	}
 	b := &Batch{Log: st.LogUUID, Station: f.Station, Runs: runs, Checks: checks, Studies: studies,
-		Backlog: st.BacklogRuns - int64(len(runs)), Profile: f.Profile}
+		Backlog: max(0, st.BacklogRuns-int64(len(runs))), Profile: f.Profile}
 	if !slices.Equal(relays, f.relays) {
 		b.Relays = relays // only when they changed
 	}
@@ -280,6 +382,14 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 		return 0, fmt.Errorf("plant batch landed but the outbox cursor did not advance (it will be resent): %w", err)
 	}
 	f.relays = relays
+	// The state as the log now has it, but for runs committed meanwhile
+	// (the next read of the runs after the cursor finds them).
+	f.st.RunCursor, f.st.CheckCursor, f.st.StudyCursor = a.Runs, a.Checks, a.Studies
+	f.st.Forwarded += a.Accepted
+	f.st.LastTime, f.st.LastError = a.At, ""
+	f.st.BacklogRuns, f.st.BacklogChecks, f.st.BacklogStudies = 0, 0, 0
+	f.st.Refused += int64(len(res.Refused))
+	f.stOK = len(runs) < size && len(checks) < 100 && len(studies) < 100 && st.BacklogRuns <= int64(len(runs))
 	if f.OnBatch != nil {
 		f.OnBatch(res)
 	}

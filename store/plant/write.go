@@ -130,6 +130,7 @@ func (db *DB) Put(ctx context.Context, b *Batch) (Result, error) {
 			return Result{}, fmt.Errorf("put batch of %s: %w", b.Station, err)
 		}
 		db.remember(x.resolved)
+		db.rememberLog(b, x)
 		return res, nil
 	}
 	err = pgx.BeginFunc(ctx, db.pool, func(tx pgx.Tx) error {
@@ -141,7 +142,26 @@ func (db *DB) Put(ctx context.Context, b *Batch) (Result, error) {
 		return Result{}, fmt.Errorf("put batch of %s: %w", b.Station, err)
 	}
 	db.remember(x.resolved)
+	db.rememberLog(b, x)
 	return res, nil
+}
+
+// knownLog is a shift log whose ids and clock offset a committed batch
+// has stored.
+type knownLog struct {
+	station       string
+	stationID, id int32
+	offset        int64
+}
+
+// rememberLog keeps the ids and offset a committed batch of b stored.
+func (db *DB) rememberLog(b *Batch, x *ids) {
+	db.mu.Lock()
+	defer db.mu.Unlock()
+	if db.logs == nil {
+		db.logs = map[string]knownLog{}
+	}
+	db.logs[b.Log] = knownLog{station: b.Station, stationID: x.station, id: x.log, offset: x.offset}
 }
 
 // ids maps names to ids for one batch.
@@ -251,23 +271,32 @@ func (db *DB) putIn(ctx context.Context, tx pgx.Tx, b *Batch, oneByOne bool, x *
 // (measuring the clock offset), variants, fixtures, configurations and
 // quantities.
 func (db *DB) resolve(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
-	err := tx.QueryRow(ctx, `SELECT id FROM stations WHERE name = $1`, b.Station).Scan(&x.station)
-	if errors.Is(err, pgx.ErrNoRows) {
-		return fmt.Errorf("%w: %s (register it with 'padline plant add-station')", ErrUnknownStation, b.Station)
-	}
-	if err != nil {
-		return err
-	}
-	var logStation int32
 	var offset int64
-	err = tx.QueryRow(ctx, `INSERT INTO logs (uuid, station_id) VALUES ($1, $2)
-		ON CONFLICT (uuid) DO UPDATE SET uuid = EXCLUDED.uuid RETURNING id, station_id, clock_offset_ns`,
-		b.Log, x.station).Scan(&x.log, &logStation, &offset)
-	if err != nil {
-		return fmt.Errorf("shift log %s: %w", b.Log, err)
-	}
-	if logStation != x.station {
-		return fmt.Errorf("shift log %s belongs to another station than %s", b.Log, b.Station)
+	db.mu.Lock()
+	l, ok := db.logs[b.Log]
+	db.mu.Unlock()
+	if ok && l.station == b.Station {
+		// A log this handle has sent a batch of: its ids and offset are
+		// known, so the batch needs no lookups before its rows.
+		x.station, x.log, offset = l.stationID, l.id, l.offset
+	} else {
+		err := tx.QueryRow(ctx, `SELECT id FROM stations WHERE name = $1`, b.Station).Scan(&x.station)
+		if errors.Is(err, pgx.ErrNoRows) {
+			return fmt.Errorf("%w: %s (register it with 'padline plant add-station')", ErrUnknownStation, b.Station)
+		}
+		if err != nil {
+			return err
+		}
+		var logStation int32
+		err = tx.QueryRow(ctx, `INSERT INTO logs (uuid, station_id) VALUES ($1, $2)
+			ON CONFLICT (uuid) DO UPDATE SET uuid = EXCLUDED.uuid RETURNING id, station_id, clock_offset_ns`,
+			b.Log, x.station).Scan(&x.log, &logStation, &offset)
+		if err != nil {
+			return fmt.Errorf("shift log %s: %w", b.Log, err)
+		}
+		if logStation != x.station {
+			return fmt.Errorf("shift log %s belongs to another station than %s", b.Log, b.Station)
+		}
 	}
 	x.offset = offset
 	if measured := x.now - b.Sent.UnixNano(); time.Duration(abs(measured-offset)) > offsetHysteresis {
