@@ -35,7 +35,7 @@ func BenchmarkCatchUp(b *testing.B) {
 		if err != nil {
 			b.Fatal(err)
 		}
-		f := &plant.Forwarder{Log: db, Plant: p, Station: "S1", BatchSize: 1000}
+		f := &plant.Forwarder{Log: db, Plant: p, Station: "S1"} // default batches
 		b.StartTimer()
 		start := time.Now()
 		if err := f.Drain(ctx); err != nil {

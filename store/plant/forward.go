@@ -27,7 +27,10 @@ type Forwarder struct {
 	// Profile is the station facts the line board shows (JSON object):
 	// check intervals and relay ratings from the station file.
 	Profile json.RawMessage
-	// BatchSize is the most runs per batch (default 500).
+	// BatchSize is the most runs per batch (default 5,000: a catch-up
+	// after an outage moved 2,328 runs/s in batches of 5,000 against 1,674
+	// in batches of 1,000, BenchmarkCatchUp; a batch of 5,000 runs with 4
+	// measurements each holds a few MB, twice with the next one read ahead).
 	BatchSize int
 	// Poll is how often an idle forwarder looks for new runs (default
 	// 1 s); Kick wakes it at once.
@@ -261,7 +264,7 @@ func (f *Forwarder) Step(ctx context.Context) (int, error) {
 // batchSize is BatchSize or its default.
 func (f *Forwarder) batchSize() int {
 	if f.BatchSize <= 0 {
-		return 500
+		return 5000
 	}
 	return f.BatchSize
 }
