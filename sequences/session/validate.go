@@ -74,6 +74,9 @@ func ValidateStation(stationRef, variantRef string, host func() (chips, lines []
 	}
 	rep.Station, rep.Name, rep.Fixture, rep.Driver = st.Source.Name, st.Name, st.Fixture, string(st.Driver)
 	rep.add(LevelOK, "", "parses: every key known, pins unique, every role has a pin, ladder and references in range")
+	for _, w := range st.Warnings {
+		rep.add(LevelWarning, "allow_unusual", "%s", w)
+	}
 	validateLadder(&rep, st)
 	if len(st.Trust.References) == 0 {
 		rep.add(LevelWarning, "reference_units", "none registered: 'padline run' refuses until a reference check passes, and the check needs at least one (register a kept good unit with 'padline station register-ref')")
@@ -84,6 +87,9 @@ func ValidateStation(stationRef, variantRef string, host func() (chips, lines []
 			return rep, err
 		}
 		rep.Variant = v.Name
+		for _, w := range v.Warnings {
+			rep.add(LevelWarning, "allow_unusual", "%s", w)
+		}
 		if err := validateAgainst(&rep, st, v); err != nil {
 			return rep, err
 		}

@@ -44,6 +44,9 @@ func TestValidateStation(t *testing.T) {
 		{"allowance wider than the window", func(s string) string {
 			return strings.Replace(s, "trip_pf: 31.779, allowed_dev_pf: 0.3", "trip_pf: 31.779, allowed_dev_pf: 30", 1)
 		}, nil, false, []string{"reference_units[0].allowed_dev_pf", "half QM-205's test window"}},
+		{"unusual value accepted", func(s string) string {
+			return strings.Replace(s, "rated_operations: 1.0e9", "rated_operations: 100", 1) + "allow_unusual: [ladder.rated_operations]\n"
+		}, nil, true, []string{"ladder.rated_operations: 100 is outside the plausible 1000…1e11; accepted by allow_unusual"}},
 		{"good reference outside the limits", func(s string) string {
 			return strings.Replace(s, "trip_pf: 31.779", "trip_pf: 65.1", 1)
 		}, nil, true, []string{"reference_units[0].trip_pf", "outside QM-205's test limits"}},
