@@ -107,6 +107,9 @@ type DB struct {
 	// writes without them.
 	runColumns bool
 
+	// readOnly is true for a log opened by OpenReadOnly.
+	readOnly bool
+
 	wmu sync.Mutex // serialises this process's write transactions
 	ids idCache    // committed name → id lookups
 
@@ -139,6 +142,9 @@ const runColumnsVersion = 4
 // open opens path and migrates it to version target (-1: all migrations).
 func open(path string, target int) (*DB, error) {
 	if err := checkHeader(path); err != nil {
+		return nil, fmt.Errorf("open shift log %s: %w", path, err)
+	}
+	if err := checkFolder(path); err != nil {
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)
 	}
 	// Per-connection settings go in the DSN so every pooled connection gets
@@ -253,30 +259,9 @@ func (db *DB) prepare(ctx context.Context, target int) error {
 	if target < 0 || target > len(all) {
 		target = len(all)
 	}
-	var appID, version, objects int64
-	if err := db.sql.QueryRowContext(ctx, "PRAGMA application_id").Scan(&appID); err != nil {
-		return classifyOpen(err)
-	}
-	if err := db.sql.QueryRowContext(ctx, "PRAGMA user_version").Scan(&version); err != nil {
-		return classifyOpen(err)
-	}
-	if err := db.sql.QueryRowContext(ctx, "SELECT count(*) FROM sqlite_schema").Scan(&objects); err != nil {
-		return classifyOpen(err)
-	}
-	switch {
-	case appID == ApplicationID:
-	case appID == 0 && version == 0 && objects == 0:
-		// a new, empty database: ours to initialise
-	default:
-		return fmt.Errorf("%w: application_id %#x (want %#x), user_version %d, %d schema objects",
-			ErrNotShiftLog, appID, ApplicationID, version, objects)
-	}
-	if version < 0 {
-		return fmt.Errorf("%w: schema version %d is negative; padline never writes that", ErrNotShiftLog, version)
-	}
-	if version > int64(len(all)) {
-		return fmt.Errorf("%w: file has schema version %d, this padline knows versions up to %d",
-			ErrSchemaTooNew, version, len(all))
+	version, _, err := db.identify(ctx, len(all))
+	if err != nil {
+		return err
 	}
 	var mode string
 	if err := db.sql.QueryRowContext(ctx, "PRAGMA journal_mode=WAL").Scan(&mode); err != nil {
@@ -291,6 +276,39 @@ func (db *DB) prepare(ctx context.Context, target int) error {
 		}
 	}
 	return nil
+}
+
+// identify reads the file's application_id, schema version and number of
+// schema objects, and refuses a file padline did not create
+// (ErrNotShiftLog) or one written by a newer padline (ErrSchemaTooNew).
+// fresh is true for a new, empty database.
+func (db *DB) identify(ctx context.Context, known int) (version int64, fresh bool, err error) {
+	var appID, objects int64
+	if err := db.sql.QueryRowContext(ctx, "PRAGMA application_id").Scan(&appID); err != nil {
+		return 0, false, classifyOpen(err)
+	}
+	if err := db.sql.QueryRowContext(ctx, "PRAGMA user_version").Scan(&version); err != nil {
+		return 0, false, classifyOpen(err)
+	}
+	if err := db.sql.QueryRowContext(ctx, "SELECT count(*) FROM sqlite_schema").Scan(&objects); err != nil {
+		return 0, false, classifyOpen(err)
+	}
+	switch {
+	case appID == ApplicationID:
+	case appID == 0 && version == 0 && objects == 0:
+		fresh = true // a new, empty database: ours to initialise
+	default:
+		return 0, false, fmt.Errorf("%w: application_id %#x (want %#x), user_version %d, %d schema objects",
+			ErrNotShiftLog, appID, ApplicationID, version, objects)
+	}
+	if version < 0 {
+		return 0, false, fmt.Errorf("%w: schema version %d is negative; padline never writes that", ErrNotShiftLog, version)
+	}
+	if version > int64(known) {
+		return 0, false, fmt.Errorf("%w: file has schema version %d, this padline knows versions up to %d",
+			ErrSchemaTooNew, version, known)
+	}
+	return version, fresh, nil
 }
 
 // migrate applies migration m as schema version v in one transaction. It

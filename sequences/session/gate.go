@@ -253,7 +253,7 @@ func Uncertainty(ctx context.Context, dbPath string, st *Station) (float64, stri
 		u, from := StatedUncertainty(st)
 		return u, from, nil
 	}
-	db, err := store.Open(dbPath)
+	db, err := store.OpenReadOnly(dbPath)
 	if err != nil {
 		return 0, "", fmt.Errorf("uncertainty of station %s: %w", st.Name, err)
 	}

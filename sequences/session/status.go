@@ -71,7 +71,7 @@ func Status(ctx context.Context, st *Station, dbPath string) (StatusReport, erro
 		}
 		return rep, nil
 	}
-	db, err := store.Open(dbPath)
+	db, err := store.OpenReadOnly(dbPath)
 	if err != nil {
 		return rep, err
 	}

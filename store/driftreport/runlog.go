@@ -55,7 +55,7 @@ func openLog(ctx context.Context, o *Options) (db runLog, close func(), err erro
 		if _, err := os.Stat(o.DB); errors.Is(err, fs.ErrNotExist) {
 			return nil, nil, fmt.Errorf("drift: no shift log at %s (give --db PATH or postgres://…, set PADLINE_DB, or --station-file)", o.DB)
 		}
-		s, err := store.Open(o.DB)
+		s, err := store.OpenReadOnly(o.DB)
 		if err != nil {
 			return nil, nil, fmt.Errorf("drift: %w", err)
 		}

@@ -39,7 +39,7 @@ func openLog(ctx context.Context, path string) (runLog, func(), error) {
 	if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
 		return nil, nil, fmt.Errorf("no shift log at %s (give --db PATH or postgres://…, set PADLINE_DB, or --station-file)", path)
 	}
-	db, err := store.Open(path)
+	db, err := store.OpenReadOnly(path)
 	if err != nil {
 		return nil, nil, err
 	}
