@@ -185,6 +185,12 @@ func analyseSeries(x []float64, o Options, low, high float64, draw bool) (driftA
 	if len(x) < 2 {
 		return an, fmt.Errorf("%d points: too few to chart (need at least 2)", len(x))
 	}
+	for i, v := range x {
+		if !Chartable(v) {
+			return an, fmt.Errorf("point %d is %g, outside what the charts can compute with (0, or a magnitude from %g to %g)",
+				i+1, v, MinMagnitude, MaxMagnitude)
+		}
+	}
 	an.window = drift.FirstN(min(o.Baseline, len(x)))
 	if o.approved != nil {
 		// Target and σ come from the approved baseline, outside the series:

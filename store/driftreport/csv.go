@@ -104,6 +104,10 @@ func ParseSeriesCSVKeep(r io.Reader, column, keep string) ([]float64, error) {
 		if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
 			return nil, fmt.Errorf("line %d, column %q: %s is not a finite number", line, column, quoteCell(cell))
 		}
+		if !Chartable(v) {
+			return nil, fmt.Errorf("line %d, column %q: %s is outside what the charts can compute with (0, or a magnitude from %g to %g): scale the column to another unit",
+				line, column, quoteCell(cell), MinMagnitude, MaxMagnitude)
+		}
 		if scol >= 0 && scol < len(rec) {
 			serial := strings.TrimSpace(rec[scol])
 			if i, ok := seen[serial]; ok && serial != "" {
@@ -141,4 +145,24 @@ func quoteCell(s string) string {
 		s = string([]rune(s)[:max]) + "…"
 	}
 	return strconv.Quote(s)
+}
+
+// The magnitudes a series value may have. The charts sum squared
+// deviations in float64 (IEEE 754 binary64: largest finite value about
+// 1.8e308, smallest normal about 2.2e-308): with |x| ≤ 1e150 a deviation
+// is at most 2e150, its square 4e300, and a sum of 4e7 of them stays
+// finite. The lower bound mirrors it: deviations below about 1.5e-154
+// square below the smallest normal, so σ would lose its digits or come
+// out 0. A value of 1e308 made the centre print as "-" with exit 0, and
+// then --svg fail on an infinite point.
+const (
+	MaxMagnitude = 1e150
+	MinMagnitude = 1e-150
+)
+
+// Chartable reports whether v is finite and 0 or of a magnitude the
+// charts compute with, free of overflow and underflow (see MaxMagnitude).
+func Chartable(v float64) bool {
+	a := math.Abs(v)
+	return a == 0 || (a >= MinMagnitude && a <= MaxMagnitude)
 }
