@@ -89,6 +89,10 @@ func (a *app) demo(ctx context.Context, o demo.Options, asJSON bool) error {
 	if o.Panel > 0 {
 		return a.demoPanel(ctx, o, asJSON)
 	}
+	enc := json.NewEncoder(a.stdout)
+	if asJSON {
+		o.EachUnit = func(u demo.Unit) error { return enc.Encode(u) } // streamed: the demo keeps no unit
+	}
 	res, err := demo.Run(ctx, o)
 	if err != nil {
 		return err
@@ -96,12 +100,6 @@ func (a *app) demo(ctx context.Context, o demo.Options, asJSON bool) error {
 	if !asJSON {
 		demo.WriteText(a.stdout, res)
 		return nil
-	}
-	enc := json.NewEncoder(a.stdout)
-	for _, u := range res.Passes[0] {
-		if err := enc.Encode(u); err != nil {
-			return err
-		}
 	}
 	return enc.Encode(res.Summary())
 }

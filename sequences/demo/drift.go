@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"strings"
+	"time"
 
 	"padline/fixture/sim"
 	"padline/sequences"
@@ -124,29 +125,46 @@ type Alarm struct {
 	Note         string `json:"note,omitempty"`
 }
 
+// watchSeries is what the drift watch needs of the first pass: each
+// passed unit's trip point, unit number (1-based; its serial is
+// session.DemoSerial's) and finish time, 20 bytes a passed unit.
+type watchSeries struct {
+	x        []float64
+	unit     []int32
+	finished []int64 // Unix nanoseconds
+}
+
+// add keeps unit n when it passed with a trip point; a nil series keeps
+// nothing (no drift asked for).
+func (w *watchSeries) add(n int, u Unit) {
+	if w == nil || u.Verdict != string(sequences.Pass) || u.TripPF == nil {
+		return
+	}
+	w.x = append(w.x, *u.TripPF)
+	w.unit = append(w.unit, int32(n))
+	w.finished = append(w.finished, u.finished.UnixNano())
+}
+
 // watch runs the default drift watch over the passed units' trip points
 // in test order — the series 'padline drift' reads from the shift log —
 // with limits from the first min(50, passed units before the step)
 // points, as 'padline drift' takes its first 50; nil when the demo has no
 // drift.
-func (d Drift) watch(us []Unit, v *session.Variant, st *session.Station) (*DriftWatch, error) {
-	if !d.active() {
+func (d Drift) watch(ser *watchSeries, v *session.Variant, st *session.Station) (*DriftWatch, error) {
+	if !d.active() || ser == nil {
 		return nil, nil
 	}
 	from := max(d.At, 1)
-	var x []float64
-	var idx []int // index into us of each point
+	x := ser.x
 	before := 0
-	for i, u := range us {
-		if u.Verdict != string(sequences.Pass) || u.TripPF == nil {
-			continue
-		}
-		x = append(x, *u.TripPF)
-		idx = append(idx, i)
-		if i+1 < from {
+	for _, n := range ser.unit {
+		if int(n) < from {
 			before++
 		}
 	}
+	unit := func(i int) int { return int(ser.unit[i]) }
+	serial := func(i int) string { return session.DemoSerial(v, unit(i)) }
+	finished := func(i int) time.Time { return time.Unix(0, ser.finished[i]) }
 	basePts := min(driftreport.DefaultBaseline, len(x))
 	if d.At > 0 {
 		basePts = min(basePts, before)
@@ -159,7 +177,7 @@ func (d Drift) watch(us []Unit, v *session.Variant, st *session.Station) (*Drift
 	if err != nil {
 		return nil, fmt.Errorf("demo: drift watch over %d passed units, baseline the first %d: %w", len(x), basePts, err)
 	}
-	lastBase := idx[basePts-1] + 1
+	lastBase := unit(basePts - 1)
 	out := &DriftWatch{StepAtUnit: d.At, StepPF: d.StepPF, RampPFPer1000: d.RampPF,
 		Charts:    fmt.Sprintf("individuals (3σ limit) + tabular CUSUM (k %gσ, h %gσ)", float64(drift.DefaultK), float64(drift.DefaultH)),
 		GoodUnits: len(x), Baseline: fmt.Sprintf("units 1–%d (the first %d passed units)", lastBase, basePts),
@@ -167,8 +185,8 @@ func (d Drift) watch(us []Unit, v *session.Variant, st *session.Station) (*Drift
 	c := w.Charts[0]
 	out.TargetPF, out.SigmaPF = c.Target, c.Sigma
 	first := len(x)
-	for i, n := range idx {
-		if n+1 >= from {
+	for i := range x {
+		if unit(i) >= from {
 			first = i
 			break
 		}
@@ -179,20 +197,20 @@ func (d Drift) watch(us []Unit, v *session.Variant, st *session.Station) (*Drift
 		}
 	}
 	if al, ok := w.First(first); ok {
-		u := idx[al.Unit] + 1
+		u := unit(al.Unit)
 		out.First = &Alarm{Seq: al.Seq, Chart: string(al.Chart), Rule: string(al.Rule), Description: al.Description(),
-			Unit: u, Serial: us[idx[al.Unit]].Serial, LagUnits: u - from + 1,
+			Unit: u, Serial: serial(al.Unit), LagUnits: u - from + 1,
 			LagGoodUnits: al.Unit - first + 1, Note: al.Note}
 		if al.Onset >= 0 && al.Chart == drift.CUSUM {
-			out.First.Note = driftreport.OnsetNote(al, us[idx[al.Onset]].Serial)
+			out.First.Note = driftreport.OnsetNote(al, serial(al.Onset))
 		}
 	}
 	f := drift.Assess(x, w.Alarms, c.Target, c.Sigma, win)
-	multiDay := driftreport.SpansDays(us[idx[0]].finished, us[idx[len(idx)-1]].finished)
-	name := func(i int) string { u := us[idx[i]]; return driftreport.PointName(u.Serial, u.finished, multiDay) }
+	multiDay := driftreport.SpansDays(finished(0), finished(len(x)-1))
+	name := func(i int) string { return driftreport.PointName(serial(i), finished(i), multiDay) }
 	out.Verdict = f.Sentence("trip point of "+v.Name, "pF", st.Name+" / "+st.Fixture, name)
 	if f.Change >= 0 {
-		out.ChangeAtUnit, out.ChangeSerial = idx[f.Change]+1, us[idx[f.Change]].Serial
+		out.ChangeAtUnit, out.ChangeSerial = unit(f.Change), serial(f.Change)
 	}
 	return out, nil
 }

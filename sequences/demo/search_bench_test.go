@@ -47,10 +47,6 @@ func writeStationTargets(t testing.TB, w io.Writer, perFixture int) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	serials, err := serials(v, perFixture)
-	if err != nil {
-		t.Fatal(err)
-	}
 	const fixtures = 10
 	strategies := []string{"bracket", session.SearchLaplace}
 	figs := make([]stationFigures, len(strategies))
@@ -70,7 +66,11 @@ func writeStationTargets(t testing.TB, w io.Writer, perFixture int) {
 		}
 		res := &Result{Variant: v, Station: st, Limits: rep}
 		for i, strategy := range strategies {
-			us, err := shift(ctx, res, "bench", strategy, serials, discard{}, noProgress{}, Options{})
+			var us []Unit
+			err := shift(ctx, res, "bench", strategy, discard{}, noProgress{}, Options{Units: perFixture}, func(_ int, u Unit) error {
+				us = append(us, u)
+				return nil
+			})
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -10,7 +10,6 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
-	"sort"
 	"strings"
 	"syscall"
 	"time"
@@ -49,6 +48,10 @@ type Options struct {
 	Software string
 	// Progress, when not nil, is asked for a bar per pass.
 	Progress func(label string, units int) Progress
+	// EachUnit, when not nil, is given every unit of the first pass as it
+	// is tested (the demo keeps no unit after its statistics have it); an
+	// error stops the shift.
+	EachUnit func(Unit) error
 }
 
 // Progress is told about each tested unit of a pass, then that it is done.
@@ -94,15 +97,18 @@ type Result struct {
 	// (removed by now).
 	DBPath string
 	Kept   bool
-	// Strategies names each pass; Passes holds its units in test order,
-	// CPU and Wall its computer time.
+	// Strategies names each pass, Stats its statistics (units are not
+	// kept: a shift of any length runs in the same memory; Options.EachUnit
+	// sees each one), CPU and Wall its computer time.
 	Strategies []string
-	Passes     [][]Unit
+	Stats      []Stats
 	CPU, Wall  []time.Duration
 	// TrueStrayPF is the simulated fixture's true stray capacitance.
 	TrueStrayPF float64
 	// Drift is the drift watch over the first pass; nil without drift.
 	Drift *DriftWatch
+
+	series *watchSeries // the first pass's passed units, with drift only
 }
 
 // Run simulates the shift: every serial through the real plan, search and
@@ -141,7 +147,7 @@ func Run(ctx context.Context, o Options) (*Result, error) {
 	if err := res.passes(ctx, o); err != nil {
 		return nil, err
 	}
-	if res.Drift, err = o.Drift.watch(res.Passes[0], v, st); err != nil {
+	if res.Drift, err = o.Drift.watch(res.series, v, st); err != nil {
 		return nil, err
 	}
 	line, err := session.NewSimLine(st, v)
@@ -166,27 +172,40 @@ func (res *Result) passes(ctx context.Context, o Options) error {
 	if err != nil {
 		return err
 	}
-	serials, err := serials(res.Variant, o.Units)
-	if err != nil {
+	if err := checkSerials(res.Variant, o.Units); err != nil {
 		return err
+	}
+	if o.Drift.active() {
+		res.series = &watchSeries{}
 	}
 	for i, strategy := range res.Strategies {
 		var rec sequences.Recorder = db
+		each, series := o.EachUnit, res.series
 		if i > 0 {
 			rec = discard{} // the comparison pass re-tests the same serials; log the shift once
+			each, series = nil, nil
 		}
 		var prog Progress = noProgress{}
 		if o.Progress != nil {
-			prog = o.Progress("testing ("+strategy+")", len(serials))
+			prog = o.Progress("testing ("+strategy+")", o.Units)
 		}
+		var acc passStats
 		t0, c0 := time.Now(), cpuTime()
-		us, err := shift(ctx, res, hash, strategy, serials, rec, prog, o)
+		err := shift(ctx, res, hash, strategy, rec, prog, o, func(n int, u Unit) error {
+			acc.add(u)
+			series.add(n, u)
+			if each != nil {
+				return each(u)
+			}
+			return nil
+		})
 		if err != nil {
 			return err
 		}
-		res.CPU = append(res.CPU, cpuTime()-c0)
-		res.Wall = append(res.Wall, time.Since(t0))
-		res.Passes = append(res.Passes, us)
+		cpu, wall := cpuTime()-c0, time.Since(t0)
+		res.CPU = append(res.CPU, cpu)
+		res.Wall = append(res.Wall, wall)
+		res.Stats = append(res.Stats, acc.stats(strategy, cpu, wall))
 	}
 	return nil
 }
@@ -198,27 +217,26 @@ var _ sequences.Recorder = discard{}
 
 func (discard) Record(context.Context, *sequences.Run) (int64, error) { return 0, nil }
 
-// serials makes the shift's serials (see session.DemoSerial) and checks them
-// against the variant's own pattern.
-func serials(v *session.Variant, n int) ([]string, error) {
-	out := make([]string, n)
-	for i := range out {
-		out[i] = session.DemoSerial(v, i+1)
-		if !v.Serial.MatchString(out[i]) {
-			return nil, fmt.Errorf("demo: serial %s does not match variant %s's serial_pattern %q; the demo numbers serials NAME-000001",
-				out[i], v.Name, v.SerialPattern)
+// checkSerials checks the shift's serials (see session.DemoSerial, which
+// makes them again as they are tested) against the variant's own pattern.
+func checkSerials(v *session.Variant, n int) error {
+	for i := 1; i <= n; i++ {
+		if s := session.DemoSerial(v, i); !v.Serial.MatchString(s) {
+			return fmt.Errorf("demo: serial %s does not match variant %s's serial_pattern %q; the demo numbers serials NAME-000001",
+				s, v.Name, v.SerialPattern)
 		}
 	}
-	return out, nil
+	return nil
 }
 
-// shift tests every serial on a fresh simulated line.
-func shift(ctx context.Context, res *Result, hash, strategy string, serials []string, rec sequences.Recorder, prog Progress, o Options) ([]Unit, error) {
+// shift tests o.Units serials on a fresh simulated line and gives each
+// unit, numbered from 1, to each as it is tested.
+func shift(ctx context.Context, res *Result, hash, strategy string, rec sequences.Recorder, prog Progress, o Options, each func(n int, u Unit) error) error {
 	v, st, dr := res.Variant, res.Station, o.Drift
 	u, uFrom := session.StatedUncertainty(st)
 	r, err := session.NewRig(v, st, session.RigOptions{UncertaintyPF: u, UncertaintyFrom: uFrom, Strategy: strategy})
 	if err != nil {
-		return nil, err
+		return err
 	}
 	defer r.Halt()
 	line, fx, lv := r.Line, r.Fixture, r.Plan.Levels()
@@ -226,7 +244,7 @@ func shift(ctx context.Context, res *Result, hash, strategy string, serials []st
 	// the simulator runs: a takt of 5–7 s with breaks, starting 12:30 so a
 	// long run crosses from the early into the late shift, on days that
 	// end before today.
-	shift := sim.NewShiftClock(demoShiftStart(time.Now(), len(serials)), demoTakt, demoJitter, sim.DemoPauses, 1)
+	shift := sim.NewShiftClock(demoShiftStart(time.Now(), o.Units), demoTakt, demoJitter, sim.DemoPauses, 1)
 	var stamp time.Time
 	sess := &sequences.Session{
 		Plan: r.Plan, Station: fx, Clock: r.Clock, Recorder: rec, WallClock: func() time.Time { return stamp },
@@ -240,12 +258,12 @@ func shift(ctx context.Context, res *Result, hash, strategy string, serials []st
 	for i, l := range lv {
 		lvPF[i] = l.PF
 	}
-	out := make([]Unit, 0, len(serials))
 	base := session.UnitModel(v, st.Sim)
-	for i, serial := range serials {
+	for i := range o.Units {
+		serial := session.DemoSerial(v, i+1)
 		if err := dr.apply(line, base, i+1); err != nil {
 			prog.Done()
-			return nil, err
+			return err
 		}
 		stamp = shift.Next()
 		unit := line.Load(serial)
@@ -254,7 +272,7 @@ func shift(ctx context.Context, res *Result, hash, strategy string, serials []st
 		line.Unload()
 		if oc == nil {
 			prog.Done()
-			return nil, err
+			return err
 		}
 		truth := unit.Truth()
 		du := Unit{
@@ -284,11 +302,14 @@ func shift(ctx context.Context, res *Result, hash, strategy string, serials []st
 				du.floorTime = time.Duration(fl * 1e9 / truth.ClockHz)
 			}
 		}
-		out = append(out, du)
+		if err := each(i+1, du); err != nil {
+			prog.Done()
+			return err
+		}
 		prog.Step()
 	}
 	prog.Done()
-	return out, nil
+	return nil
 }
 
 func ptr(f float64) *float64 { return &f }
@@ -345,102 +366,153 @@ type Stats struct {
 // fixedPhases are the plan's steps outside the trip search.
 var fixedPhases = []string{string(sequences.StepPowerUp), string(sequences.StepClock), string(sequences.StepIdle), string(sequences.StepRelease), string(sequences.StepPowerDown)}
 
-func summarise(strategy string, us []Unit, cpu, wall time.Duration) Stats {
-	s := Stats{Strategy: strategy, Units: len(us), FailCodes: map[string]int{},
-		DefectOutcomes: map[string]map[string]int{}, PhaseMSMean: map[string]float64{}}
-	var sq, bias float64
-	var errs, spreads, trueSpreads []float64
-	nf := 0 // good units with a floor
-	for _, u := range us {
-		switch u.Verdict {
-		case "pass":
-			s.Pass++
-		case "fail":
-			s.Fail++
-		default:
-			s.StationFault++
+// passStats accumulates one pass's statistics unit by unit, so a shift of
+// any length keeps no per-unit record: counts and sums, and the medians on
+// a 0.001 pF grid (see medianGrid).
+type passStats struct {
+	s             Stats
+	n, nf, ne     int     // units, good units with a floor, good units with a trip error
+	sq, bias      float64 // sums of the trip errors' squares and of the errors
+	spread, truth medianGrid
+}
+
+func (p *passStats) add(u Unit) {
+	s := &p.s
+	if s.FailCodes == nil {
+		s.FailCodes, s.DefectOutcomes, s.PhaseMSMean = map[string]int{}, map[string]map[string]int{}, map[string]float64{}
+	}
+	p.n++
+	switch u.Verdict {
+	case "pass":
+		s.Pass++
+	case "fail":
+		s.Fail++
+	default:
+		s.StationFault++
+	}
+	if u.FailCode != "" {
+		s.FailCodes[u.FailCode]++
+	}
+	outcome := u.FailCode
+	if outcome == "" {
+		outcome = "pass"
+	}
+	for _, d := range u.Defects {
+		if s.DefectOutcomes[d] == nil {
+			s.DefectOutcomes[d] = map[string]int{}
 		}
-		if u.FailCode != "" {
-			s.FailCodes[u.FailCode]++
-		}
-		outcome := u.FailCode
-		if outcome == "" {
-			outcome = "pass"
-		}
-		for _, d := range u.Defects {
-			if s.DefectOutcomes[d] == nil {
-				s.DefectOutcomes[d] = map[string]int{}
-			}
-			s.DefectOutcomes[d][outcome]++
-		}
-		s.ProbesMean += float64(u.Probes)
-		s.RelayOpsMean += float64(u.RelayOps)
-		s.FixtureMSMean += u.FixtureMS
-		for ph, d := range u.phases {
-			s.PhaseMSMean[ph] += ms(d)
-		}
-		if len(u.Defects) > 0 {
-			continue
-		}
-		if u.floorSamples > 0 {
-			nf++
-			s.SearchSamples += float64(u.samples)
-			s.FloorSamples += u.floorSamples
-			s.FloorMS += ms(u.floorTime)
-			for _, ph := range []string{sequences.PhaseBracket, sequences.PhaseClimb, sequences.PhaseRefine, sequences.PhaseGuard} {
-				s.SearchMS += ms(u.phases[ph])
-			}
-		}
-		s.GoodUnits++
-		if u.Verdict != "pass" {
-			s.GoodFalseFails++
-		}
-		if u.TripPF != nil && u.TrueTripPF != nil {
-			e := *u.TripPF - *u.TrueTripPF
-			errs = append(errs, e)
-			sq += e * e
-			bias += e
-			s.TripMaxErrPF = math.Max(s.TripMaxErrPF, math.Abs(e))
-			spreads = append(spreads, u.spreadPF)
-			trueSpreads = append(trueSpreads, u.trueSpreadPF)
+		s.DefectOutcomes[d][outcome]++
+	}
+	s.ProbesMean += float64(u.Probes)
+	s.RelayOpsMean += float64(u.RelayOps)
+	s.FixtureMSMean += u.FixtureMS
+	for ph, d := range u.phases {
+		s.PhaseMSMean[ph] += ms(d)
+	}
+	if len(u.Defects) > 0 {
+		return
+	}
+	if u.floorSamples > 0 {
+		p.nf++
+		s.SearchSamples += float64(u.samples)
+		s.FloorSamples += u.floorSamples
+		s.FloorMS += ms(u.floorTime)
+		for _, ph := range []string{sequences.PhaseBracket, sequences.PhaseClimb, sequences.PhaseRefine, sequences.PhaseGuard} {
+			s.SearchMS += ms(u.phases[ph])
 		}
 	}
-	n := float64(len(us))
+	s.GoodUnits++
+	if u.Verdict != "pass" {
+		s.GoodFalseFails++
+	}
+	if u.TripPF != nil && u.TrueTripPF != nil {
+		e := *u.TripPF - *u.TrueTripPF
+		p.ne++
+		p.sq += e * e
+		p.bias += e
+		s.TripMaxErrPF = math.Max(s.TripMaxErrPF, math.Abs(e))
+		p.spread.add(u.spreadPF)
+		p.truth.add(u.trueSpreadPF)
+	}
+}
+
+// stats finishes the pass's statistics.
+func (p *passStats) stats(strategy string, cpu, wall time.Duration) Stats {
+	s := p.s
+	s.Strategy, s.Units = strategy, p.n
+	if s.FailCodes == nil {
+		s.FailCodes, s.DefectOutcomes, s.PhaseMSMean = map[string]int{}, map[string]map[string]int{}, map[string]float64{}
+	}
+	n := float64(p.n)
 	s.YieldPct = 100 * float64(s.Pass) / n
 	s.ProbesMean /= n
 	s.RelayOpsMean /= n
 	s.FixtureMSMean /= n
-	if nf > 0 {
-		s.SearchSamples /= float64(nf)
-		s.FloorSamples /= float64(nf)
-		s.FloorMS /= float64(nf)
-		s.SearchMS /= float64(nf)
+	if nf := float64(p.nf); nf > 0 {
+		s.SearchSamples /= nf
+		s.FloorSamples /= nf
+		s.FloorMS /= nf
+		s.SearchMS /= nf
 	}
 	for ph := range s.PhaseMSMean {
 		s.PhaseMSMean[ph] /= n
 	}
-	if len(errs) > 0 {
-		s.TripRMSErrPF = math.Sqrt(sq / float64(len(errs)))
-		s.TripBiasPF = bias / float64(len(errs))
-		s.TripRMSLessBiasPF = math.Sqrt(math.Max(0, sq/float64(len(errs))-s.TripBiasPF*s.TripBiasPF))
-		s.SpreadMedianPF = median(spreads)
-		s.TrueSpreadMedian = median(trueSpreads)
+	if p.ne > 0 {
+		ne := float64(p.ne)
+		s.TripRMSErrPF = math.Sqrt(p.sq / ne)
+		s.TripBiasPF = p.bias / ne
+		s.TripRMSLessBiasPF = math.Sqrt(math.Max(0, p.sq/ne-s.TripBiasPF*s.TripBiasPF))
+		s.SpreadMedianPF = p.spread.median()
+		s.TrueSpreadMedian = p.truth.median()
 	}
 	s.CPUPerUnitMS = ms(cpu) / n
 	s.WallS = wall.Seconds()
 	return s
 }
 
-func median(xs []float64) float64 {
-	ys := slices.Clone(xs)
-	sort.Float64s(ys)
-	if len(ys) == 0 {
+// medianGrid finds the median of values rounded to a 0.001 pF grid: a
+// count per grid point, so its memory grows with the values' range, not
+// with their number. The median is within 0.0005 pF of the exact one; the
+// summary prints it to 0.01 pF.
+type medianGrid struct {
+	n      int
+	counts map[int64]int
+}
+
+const medianStepPF = 0.001
+
+func (g *medianGrid) add(x float64) {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return
+	}
+	if g.counts == nil {
+		g.counts = map[int64]int{}
+	}
+	g.counts[int64(math.Round(x/medianStepPF))]++
+	g.n++
+}
+
+// median is the middle value (the mean of the two middle values for an
+// even count); NaN without values.
+func (g *medianGrid) median() float64 {
+	if g.n == 0 {
 		return math.NaN()
 	}
-	if len(ys)%2 == 1 {
-		return ys[len(ys)/2]
+	keys := slices.Sorted(maps.Keys(g.counts))
+	// kth returns the k-th smallest value, 0-based.
+	kth := func(k int) float64 {
+		for _, key := range keys {
+			if k < g.counts[key] {
+				return float64(key) * medianStepPF
+			}
+			k -= g.counts[key]
+		}
+		return math.NaN()
 	}
-	return (ys[len(ys)/2-1] + ys[len(ys)/2]) / 2
+	if g.n%2 == 1 {
+		return kth(g.n / 2)
+	}
+	return (kth(g.n/2-1) + kth(g.n/2)) / 2
 }
 
 type Summary struct {
@@ -462,9 +534,7 @@ func (res *Result) Summary() Summary {
 	s := Summary{Summary: true, Variant: v.Name, Station: st.Name,
 		TestLimitsPF: [2]float64{rep.TestLimits.Low, rep.TestLimits.High},
 		NoiseMVAt5V:  st.Sim.NoiseMVAt5V, JitterNs: st.Sim.JitterNs, RungErrSDPF: st.Sim.RungErrSDPF, Drift: res.Drift}
-	for i, us := range res.Passes {
-		s.Passes = append(s.Passes, summarise(res.Strategies[i], us, res.CPU[i], res.Wall[i]))
-	}
+	s.Passes = res.Stats
 	return s
 }
 
