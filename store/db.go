@@ -109,6 +109,8 @@ type DB struct {
 
 	// readOnly is true for a log opened by OpenReadOnly.
 	readOnly bool
+	// check is this DB's part in the chain of quick_checks (checked.go).
+	check checkState
 
 	wmu sync.Mutex // serialises this process's write transactions
 	ids idCache    // committed name → id lookups
@@ -151,11 +153,13 @@ func open(path string, target int) (*DB, error) {
 	// them; WAL is persistent in the file and is set once below, after the
 	// file is known to be ours.
 	dsn := fileURI(path) + "?_foreign_keys=1&_synchronous=FULL&_busy_timeout=10000&_txlock=immediate"
+	db := &DB{path: path, now: time.Now, runColumns: target < 0 || target >= runColumnsVersion}
+	db.check.noteOpen(path) // before SQLite touches the file
 	sdb, err := sql.Open("sqlite3", dsn)
 	if err != nil {
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)
 	}
-	db := &DB{sql: sdb, path: path, now: time.Now, runColumns: target < 0 || target >= runColumnsVersion}
+	db.sql = sdb
 	if err := db.prepare(context.Background(), target); err != nil {
 		sdb.Close()
 		return nil, fmt.Errorf("open shift log %s: %w", path, err)
@@ -191,14 +195,24 @@ func (db *DB) CheckPath() error {
 // returns ErrCorrupt with SQLite's findings when it reports anything but
 // "ok".
 func (db *DB) QuickCheck(ctx context.Context) error {
-	msgs, err := db.pragmaList(ctx, "PRAGMA quick_check")
+	err := quickCheck(ctx, db.sql, db.path)
+	db.check.noteCheck(time.Now(), err)
+	return err
+}
+
+// quickCheck runs PRAGMA quick_check on conn, the log at path.
+func quickCheck(ctx context.Context, conn *sql.DB, path string) error {
+	msgs, err := pragmaList(ctx, conn, "PRAGMA quick_check")
 	if err != nil {
-		return fmt.Errorf("quick check %s: %w", db.path, classifyOpen(err))
+		if se := (sqlite3.Error{}); errors.As(err, &se) && se.Code == sqlite3.ErrCorrupt {
+			return fmt.Errorf("%w: %s: %w", ErrCorrupt, path, err)
+		}
+		return fmt.Errorf("quick check %s: %w", path, classifyOpen(err))
 	}
 	if len(msgs) == 1 && msgs[0] == "ok" {
 		return nil
 	}
-	return fmt.Errorf("%w: %s: %v", ErrCorrupt, db.path, msgs)
+	return fmt.Errorf("%w: %s: %v", ErrCorrupt, path, msgs)
 }
 
 // checkHeader refuses anything at path that is not a regular file (a FIFO
@@ -371,9 +385,17 @@ func markFull(err error) error {
 	return err
 }
 
-// Close closes the shift log. Runs already recorded stay committed.
+// Close closes the shift log. Runs already recorded stay committed. It
+// stops a background check, and after the close of a log known sound it
+// writes the check record that lets the next start skip quick_check
+// (checked.go).
 func (db *DB) Close() error {
-	return db.sql.Close()
+	db.check.stopCheck()
+	err := db.sql.Close()
+	if err == nil && !db.readOnly {
+		db.check.writeRecord(db.path)
+	}
+	return err
 }
 
 // Path returns the file the log was opened from.
@@ -389,7 +411,7 @@ func (db *DB) Version(ctx context.Context) (int, error) {
 // IntegrityCheck runs PRAGMA integrity_check and returns nil when SQLite
 // reports "ok".
 func (db *DB) IntegrityCheck(ctx context.Context) error {
-	msgs, err := db.pragmaList(ctx, "PRAGMA integrity_check")
+	msgs, err := pragmaList(ctx, db.sql, "PRAGMA integrity_check")
 	if err != nil {
 		return fmt.Errorf("integrity check: %w", err)
 	}
@@ -400,8 +422,8 @@ func (db *DB) IntegrityCheck(ctx context.Context) error {
 }
 
 // pragmaList runs a PRAGMA that returns one text column and collects it.
-func (db *DB) pragmaList(ctx context.Context, q string) ([]string, error) {
-	rows, err := db.sql.QueryContext(ctx, q)
+func pragmaList(ctx context.Context, conn *sql.DB, q string) ([]string, error) {
+	rows, err := conn.QueryContext(ctx, q)
 	if err != nil {
 		return nil, err
 	}

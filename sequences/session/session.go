@@ -150,8 +150,13 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 		return nil, errors.Join(err, rig.Halt())
 	}
 	// Damaged pages are found before the first unit, not as "malformed"
-	// half-way through a shift.
-	if err := db.QuickCheck(context.WithoutCancel(ctx)); err != nil {
+	// half-way through a shift. A log exactly as the last clean close of
+	// a checked log left it is checked in the background instead (a whole
+	// read of a large log takes half a minute); damage found then halts
+	// the station before its next unit (store.CheckRecordSuffix).
+	if ok, _ := db.Pristine(); ok {
+		db.CheckInBackground()
+	} else if err := db.QuickCheck(context.WithoutCancel(ctx)); err != nil {
 		return nil, errors.Join(fmt.Errorf("%w; station not started: restore the shift log from a copy or start a new one with --db", err), db.Close(), rig.Halt())
 	}
 	s := &Session{rig: rig, db: db, opts: o, hub: newHub(o.Now), checkReq: make(chan struct{}, 1), warned: map[int]bool{}}
@@ -284,6 +289,11 @@ func (s *Session) emit(e Event) {
 		s.fwd.Load().Committed(e.Verdict.ID, e.Verdict.Run)
 	}
 }
+
+// LogCheck waits for the background check of the shift log that a start
+// on a pristine log runs (at once when none runs) and returns the damage
+// it found, nil when none.
+func (s *Session) LogCheck(ctx context.Context) error { return s.db.WaitCheck(ctx) }
 
 // started is the session_started payload.
 func (s *Session) started() *Started {
@@ -435,6 +445,11 @@ func (s *Session) unit(ctx context.Context, raw string) (unitResult, error) {
 	if perr := s.db.CheckPath(); perr != nil {
 		unload()
 		return unitRefused, s.moved("", perr)
+	}
+	if derr := s.db.Damage(); derr != nil {
+		unload()
+		return unitRefused, fmt.Errorf("%w: the background check of the shift log found damage: %w; restore the shift log from a copy or start the station with a new --db",
+			ErrHalted, derr)
 	}
 	s.seq.OnStep = func(d sequences.StepDone) {
 		e := &StepDone{Serial: serial, Step: d.Step, Measurements: d.Measurements, FixtureMS: float64(d.FixtureTime) / float64(time.Millisecond)}
