@@ -91,6 +91,15 @@ func (c *checkState) noteOpen(path string) {
 	}
 }
 
+// Pristine reports, without opening the log, whether the file at path is
+// exactly what the last clean close of a checked log left, and when that
+// log was last found sound.
+func Pristine(path string) (bool, time.Time) {
+	var c checkState
+	c.noteOpen(path)
+	return c.pristine, c.checked
+}
+
 // Pristine reports whether the file, when opened, was exactly what the
 // last clean close of a checked log left (see CheckRecordSuffix), and
 // when that log was last found sound. A start that sees it may run

@@ -254,3 +254,27 @@ func vouchFor(t *testing.T, path string) {
 		t.Fatal(err)
 	}
 }
+
+// The on-demand check ('padline station status --check-log') reads the
+// whole file and reports damage a start on a pristine log would leave to
+// the background.
+func TestCheckLogOnDemand(t *testing.T) {
+	path := pristineCopy(t, baseLog(t, 300))
+	c, err := session.CheckLog(context.Background(), path)
+	if err != nil || !c.OK || !c.Pristine || c.Sound.IsZero() || c.Err() != nil {
+		t.Fatalf("sound log: %+v, %v", c, err)
+	}
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	fill(b, btreePage(b, len(b)/2)+8, page-8, 0xA5)
+	writeInPlace(t, path, b)
+	c, err = session.CheckLog(context.Background(), path)
+	if err != nil || c.OK || c.Pristine || !errors.Is(c.Err(), store.ErrCorrupt) {
+		t.Fatalf("damaged log: %+v, %v", c, err)
+	}
+	if c, err := session.CheckLog(context.Background(), path+".none"); c != nil || err != nil {
+		t.Errorf("no log: %+v, %v", c, err)
+	}
+}

@@ -39,6 +39,56 @@ type StatusReport struct {
 	RatedOps     float64                `json:"rated_operations"`
 	WarnFraction float64                `json:"relay_warn_fraction"`
 	Relays       []RelayWearStatus      `json:"relays"`
+	// LogCheck is the whole-file check asked for with --check-log.
+	LogCheck *LogCheck `json:"log_check,omitempty"`
+}
+
+// LogCheck is SQLite's quick_check over the whole shift log, on demand. A
+// station start runs it only when the log is not exactly what the last
+// clean close of a checked log left; otherwise it runs in the background
+// (store.CheckRecordSuffix).
+type LogCheck struct {
+	OK       bool    `json:"ok"`
+	Findings string  `json:"findings,omitempty"`
+	Seconds  float64 `json:"seconds"`
+	// Pristine: the file is what the last clean close of a checked log
+	// left; Sound is when a check last found that log sound (zero: never).
+	Pristine bool      `json:"pristine"`
+	Sound    time.Time `json:"last_found_sound,omitzero"`
+}
+
+// Err is the damage the check found, as an error; nil when it found none
+// or did not run.
+func (c *LogCheck) Err() error {
+	if c == nil || c.OK {
+		return nil
+	}
+	return fmt.Errorf("%w: %s", store.ErrCorrupt, c.Findings)
+}
+
+// CheckLog runs quick_check over the whole shift log at dbPath, reading
+// it only (a station may be running on it); nil when there is no log yet.
+func CheckLog(ctx context.Context, dbPath string) (*LogCheck, error) {
+	if _, err := os.Stat(dbPath); errors.Is(err, fs.ErrNotExist) {
+		return nil, nil
+	}
+	pristine, sound := store.Pristine(dbPath)
+	db, err := store.OpenReadOnly(dbPath)
+	if err != nil {
+		return nil, err
+	}
+	defer db.Close()
+	t0 := time.Now()
+	err = db.QuickCheck(ctx)
+	c := &LogCheck{OK: err == nil, Seconds: time.Since(t0).Seconds(), Pristine: pristine, Sound: sound}
+	switch {
+	case err == nil:
+	case errors.Is(err, store.ErrCorrupt):
+		c.Findings = err.Error()
+	default:
+		return nil, err
+	}
+	return c, nil
 }
 
 // StatusCheck is the last reference check and the units tested since.
@@ -190,6 +240,17 @@ func WriteStatus(w io.Writer, rep StatusReport, st *Station) {
 	p("uncertainty  U = %.3f pF (k = 2) from %s", rep.UPF, rep.USource)
 	for _, c := range rep.UComponents {
 		p("             %-18s u = %.4f pF   %s", c.Name, c.U, c.Source)
+	}
+	if c := rep.LogCheck; c != nil {
+		state := "changed since the last clean close of a checked log: a station start checks it before the first unit"
+		if c.Pristine {
+			state = fmt.Sprintf("as the last clean close left it (last found sound %s): a station start checks it in the background", c.Sound.Local().Format("2006-01-02 15:04"))
+		}
+		if c.OK {
+			p("log check    quick_check: no damage in the whole file (%.1f s); %s", c.Seconds, state)
+		} else {
+			p("log check    DAMAGED: %s; restore the shift log from a copy or start the station with a new --db", c.Findings)
+		}
 	}
 	p("relays       rated %.3g operations; warning at %.0f %% of rated life", rep.RatedOps, 100*rep.WarnFraction)
 	for _, r := range rep.Relays {
