@@ -12,6 +12,7 @@ import (
 	"strings"
 	"syscall"
 	"testing"
+	"time"
 
 	"padline/sequences/session"
 	"padline/store"
@@ -229,8 +230,28 @@ func TestBackgroundDamageHaltsStation(t *testing.T) {
 	}
 }
 
-// vouchFor rewrites path's check record for the file as it is now.
-func vouchFor(t *testing.T, path string) {
+// A pristine log that no check has found sound for longer than
+// LogCheckMaxAge is checked in the foreground again.
+func TestStaleCheckRecordChecksAtStart(t *testing.T) {
+	path := pristineCopy(t, baseLog(t, 300))
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	fill(b, btreePage(b, len(b)/2)+8, page-8, 0xA5)
+	writeInPlace(t, path, b)
+	vouchFor(t, path, time.Now().Add(-session.LogCheckMaxAge-time.Hour))
+	if s, err := session.Open(context.Background(), session.Options{Variant: "QM-205", Station: "demo-sim", ShiftLog: path}); err == nil {
+		s.Close()
+		t.Fatal("a log last found sound more than LogCheckMaxAge ago started without a check")
+	} else if !errors.Is(err, store.ErrCorrupt) {
+		t.Fatalf("refused, but not as damage: %v", err)
+	}
+}
+
+// vouchFor rewrites path's check record for the file as it is now (and,
+// when given, the time a check last found it sound).
+func vouchFor(t *testing.T, path string, sound ...time.Time) {
 	t.Helper()
 	rec := path + store.CheckRecordSuffix
 	b, err := os.ReadFile(rec)
@@ -247,6 +268,9 @@ func vouchFor(t *testing.T, path string) {
 	}
 	r["file"] = map[string]any{"dev": st.Dev, "ino": st.Ino, "size": st.Size,
 		"mtime_ns": st.Mtim.Nano(), "ctime_ns": st.Ctim.Nano()}
+	if len(sound) > 0 {
+		r["checked"] = sound[0].UTC()
+	}
 	if b, err = json.Marshal(r); err != nil {
 		t.Fatal(err)
 	}

@@ -135,6 +135,12 @@ func OpenOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 	return openOn(ctx, rig, o)
 }
 
+// LogCheckMaxAge bounds how long a start may trust a pristine log without
+// a check of its own: when no check has found the log sound for this long
+// (every start stopped before its background check ended), the start
+// checks in the foreground again.
+const LogCheckMaxAge = 7 * 24 * time.Hour
+
 func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 	// Operator and lot reach the terminal, the history table and CSV:
 	// cleaned like serials, refused when they hold control characters.
@@ -154,7 +160,7 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 	// a checked log left it is checked in the background instead (a whole
 	// read of a large log takes half a minute); damage found then halts
 	// the station before its next unit (store.CheckRecordSuffix).
-	if ok, _ := db.Pristine(); ok {
+	if ok, sound := db.Pristine(); ok && o.Now().Sub(sound) < LogCheckMaxAge {
 		db.CheckInBackground()
 	} else if err := db.QuickCheck(context.WithoutCancel(ctx)); err != nil {
 		return nil, errors.Join(fmt.Errorf("%w; station not started: restore the shift log from a copy or start a new one with --db", err), db.Close(), rig.Halt())
