@@ -71,9 +71,17 @@ var corruptions = []struct {
 		return b
 	}},
 	{"16 KB zeroed mid-file", func(b []byte) []byte { fill(b, (len(b)/2/page)*page, 4*page, 0); return b }},
-	{"page body from another page", func(b []byte) []byte {
-		p, q := btreePage(b, len(b)/3), btreePage(b, 2*len(b)/3)
-		copy(b[p+100:p+page], b[q+100:q+page])
+	{"cell pointers of a page random", func(b []byte) []byte {
+		for p := btreePage(b, len(b)/3); p >= 0; p = btreePage(b, p+page) {
+			hdr := 8 // leaf page header; interior pages have 12 bytes
+			if k := b[p]; k == 0x02 || k == 0x05 {
+				hdr = 12
+			}
+			if n := int(b[p+3])<<8 | int(b[p+4]); n > 0 {
+				randomize(b, p+hdr, 2*n, 3)
+				break
+			}
+		}
 		return b
 	}},
 }
