@@ -58,15 +58,27 @@ type StationBudgetInput struct {
 	// from the latest study, and RepeatSource names it; 0 = no study yet.
 	RepeatPF     float64
 	RepeatSource string
+	// OffsetUPF is the standard uncertainty of the fixture offset the
+	// station corrects trip points by (FixtureOffset.At at the working
+	// point; 0: no offset), OffsetSource the check it came from. The
+	// corrected trip carries the offset's uncertainty in place of the
+	// rungs' calibration: the offset holds the stray's and the rungs'
+	// errors as the reference units measured them.
+	OffsetUPF    float64
+	OffsetSource string
 }
 
 // StationBudget builds the station's budget: ladder resolution δ/√12, rung
-// calibration, repeatability from the latest study; k = 2.
+// calibration (or, when the station corrects by a fixture offset, the
+// offset's uncertainty), repeatability from the latest study; k = 2.
 func StationBudget(in StationBudgetInput) Budget {
 	n := max(in.ClosedRungs, 1)
 	comps := []UComponent{
 		{Name: "ladder resolution", Source: fmt.Sprintf("δ/√12, δ = %.3g pF", in.StepPF), U: ResolutionU(in.StepPF)},
 		{Name: "rung calibration", Source: fmt.Sprintf("%.3g pF per rung × √%d rungs closed", in.CalPF, n), U: in.CalPF * math.Sqrt(float64(n))},
+	}
+	if in.OffsetUPF > 0 {
+		comps[1] = UComponent{Name: "fixture offset", Source: in.OffsetSource, U: in.OffsetUPF}
 	}
 	if in.RepeatPF > 0 {
 		comps = append(comps, UComponent{Name: "repeatability", Source: in.RepeatSource, U: in.RepeatPF})

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/bits"
 	"sync"
 	"time"
 
@@ -126,11 +127,19 @@ const (
 	MeasSpreadPF     Quantity = "spread_pf"     // 10–90 % transition width, pF
 	MeasPriorFails   Quantity = "prior_fails"   // fails before a pass (retest flag)
 	// The folded checks (PlanConfig.FoldChecks) and the search's prior.
-	MeasIdleLows        Quantity = "idle_lows"          // latch lows at or above the bottom level, idle check
-	MeasReleaseLows     Quantity = "release_lows"       // latch lows after the first high reading
-	MeasPriorSigmaPF    Quantity = "prior_sigma_pf"     // centre of the search's prior on σ, pF
-	MeasPriorSigmaLogSD Quantity = "prior_sigma_log_sd" // its SD of ln σ
-	MeasPriorSigmaUnits Quantity = "prior_sigma_units"  // recent passing units it rests on (0: the variant's)
+	MeasIdleLows           Quantity = "idle_lows"             // latch lows at or above the bottom level, idle check
+	MeasReleaseLows        Quantity = "release_lows"          // latch lows after the first high reading
+	MeasPriorSigmaPF       Quantity = "prior_sigma_pf"        // centre of the search's prior on σ, pF
+	MeasPriorSigmaLogSD    Quantity = "prior_sigma_log_sd"    // its SD of ln σ
+	MeasPriorSigmaUnits    Quantity = "prior_sigma_units"     // recent passing units it rests on (0: the variant's)
+	MeasPriorSigmaLogUnits Quantity = "prior_sigma_log_units" // of those, units read from the shift log at start
+	MeasSigmaRefPF         Quantity = "sigma_ref_pf"          // the unit's σ under the variant's own prior (what the window notes)
+	// The fixture offset (Plan.SetOffset): the trip as found on the
+	// ladder's entered values, the offset added to it and its standard
+	// uncertainty.
+	MeasTripLadderPF  Quantity = "trip_ladder_pf"
+	MeasFixtureOffPF  Quantity = "fixture_offset_pf"
+	MeasFixtureOffUPF Quantity = "fixture_offset_u_pf"
 )
 
 // Plan is the ordered steps run on every unit of a variant.
@@ -141,17 +150,38 @@ type Plan struct {
 	names     []StepName
 	powerDown Step
 
-	mu     sync.Mutex
-	recent []float64 // ln σ of the last SigmaWindow passing units
+	mu       sync.Mutex
+	recent   []float64 // ln σ of the last SigmaWindow passing units
+	logUnits int       // of recent, how many came from RecentSigmaPF
+	offset   *FixtureOffset
+	rungs    int // the ladder's rung count (highest pattern bit + 1)
+}
+
+// SetOffset makes every later unit's trip point the trip found on the
+// ladder's entered values plus the fixture offset o at that trip (nil: no
+// correction). Each run records the trip as found (trip_ladder_pf), the
+// offset and its standard uncertainty (fixture_offset_pf,
+// fixture_offset_u_pf).
+func (p *Plan) SetOffset(o *FixtureOffset) {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.offset = o
+}
+
+// Offset returns the fixture offset in force (nil: none).
+func (p *Plan) Offset() *FixtureOffset {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return p.offset
 }
 
 // sigmaPrior is the prior on σ for the next unit and how many recent units
 // it rests on (0: the search options' own).
-func (p *Plan) sigmaPrior() (sigmaPF, logSD float64, units int) {
+func (p *Plan) sigmaPrior() (sigmaPF, logSD float64, units, logUnits int) {
 	p.mu.Lock()
 	defer p.mu.Unlock()
 	if p.cfg.SigmaWindow < 0 || len(p.recent) < p.cfg.SigmaMinUnits {
-		return 0, 0, 0
+		return 0, 0, 0, 0
 	}
 	var m, m2 float64
 	for _, l := range p.recent {
@@ -162,7 +192,24 @@ func (p *Plan) sigmaPrior() (sigmaPF, logSD float64, units int) {
 		m2 += (l - m) * (l - m)
 	}
 	sd := math.Sqrt(m2 / float64(len(p.recent)-1))
-	return math.Exp(m), math.Max(sd, 0.15), len(p.recent)
+	return math.Exp(m), math.Max(sd, 0.15), len(p.recent), p.logUnits
+}
+
+// SigmaWindow is how many recent units' σ set the search's prior (0 when
+// the plan keeps its search options' prior).
+func (p *Plan) SigmaWindow() int { return max(p.cfg.SigmaWindow, 0) }
+
+// SeedSigma puts σ values from before this plan (the shift log's last
+// passing units of the variant, oldest first: their sigma_ref_pf) into the
+// window ahead of the units the plan tests; each run records how many of
+// its prior's units came so (prior_sigma_log_units).
+func (p *Plan) SeedSigma(sigmaPF []float64) {
+	for _, sg := range sigmaPF {
+		p.noteSigma(sg)
+	}
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.logUnits = len(p.recent)
 }
 
 // noteSigma adds a passing unit's fitted σ to the window.
@@ -175,6 +222,7 @@ func (p *Plan) noteSigma(sigmaPF float64) {
 	p.recent = append(p.recent, math.Log(sigmaPF))
 	if n := len(p.recent); n > p.cfg.SigmaWindow {
 		p.recent = append(p.recent[:0], p.recent[n-p.cfg.SigmaWindow:]...)
+		p.logUnits = max(0, p.logUnits-(n-p.cfg.SigmaWindow))
 	}
 }
 
@@ -227,6 +275,12 @@ func NewPlan(cfg PlanConfig, levels []Level) (*Plan, error) {
 	for _, sg := range cfg.RecentSigmaPF {
 		p.noteSigma(sg)
 	}
+	p.logUnits = len(p.recent)
+	var all uint16
+	for _, l := range levels {
+		all |= l.Pattern
+	}
+	p.rungs = bits.Len16(all)
 	add := func(name StepName, s Step) {
 		p.steps = append(p.steps, Wrap(s, Named(name), Timeout(cfg.StepTimeout)))
 		p.names = append(p.names, name)
@@ -591,7 +645,7 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		if own, err := opt.withDefaults(); err == nil {
 			opt.SigmaRefPrior = ProbitPrior{SigmaPF: own.SpreadPriorPF / spreadPerSigma, LogSD: own.SpreadPriorLogSD}
 		}
-		sg, lsd, units := p.sigmaPrior()
+		sg, lsd, units, logUnits := p.sigmaPrior()
 		if units > 0 {
 			opt.SpreadPriorPF, opt.SpreadPriorLogSD = sg*spreadPerSigma, lsd
 		}
@@ -602,6 +656,7 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		t.Measure(MeasPriorSigmaPF, o.SpreadPriorPF/spreadPerSigma, "pF", NoLimit, NoLimit)
 		t.Measure(MeasPriorSigmaLogSD, o.SpreadPriorLogSD, "", NoLimit, NoLimit)
 		t.Measure(MeasPriorSigmaUnits, float64(units), "count", NoLimit, NoLimit)
+		t.Measure(MeasPriorSigmaLogUnits, float64(logUnits), "count", NoLimit, NoLimit)
 	}
 	res, err := FindTrip(pr, pf, opt)
 	for i, d := range pr.elapsed {
@@ -612,6 +667,20 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 	t.Probes = len(pr.elapsed)
 	if err != nil {
 		return err
+	}
+	if res.Found && !res.Below && res.SigmaRefPF > 0 {
+		t.Measure(MeasSigmaRefPF, res.SigmaRefPF, "pF", NoLimit, NoLimit)
+	}
+	if o := p.Offset(); o != nil && res.Found && !res.Below && !math.IsNaN(res.TripPF) {
+		off, u, err := o.At(TripRungWeights(p.levels, p.rungs, res.TripPF, res.SigmaPF))
+		if err != nil {
+			return fmt.Errorf("fixture offset: %w", err)
+		}
+		t.Measure(MeasTripLadderPF, res.TripPF, "pF", NoLimit, NoLimit)
+		t.Measure(MeasFixtureOffPF, off, "pF", NoLimit, NoLimit)
+		t.Measure(MeasFixtureOffUPF, u, "pF", NoLimit, NoLimit)
+		res.TripPF += off
+		res.OffsetPF = off
 	}
 	t.Trip = &res
 	if p.cfg.FoldChecks {

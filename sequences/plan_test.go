@@ -118,6 +118,10 @@ func TestPlanGoodUnitPasses(t *testing.T) {
 			}},
 			{"prior_sigma_log_sd", "trip_search", "", sequences.NoLimit, sequences.NoLimit, func(v float64) bool { return v == 0.7 }},
 			{"prior_sigma_units", "trip_search", "count", sequences.NoLimit, sequences.NoLimit, func(v float64) bool { return v == 0 }},
+			{"prior_sigma_log_units", "trip_search", "count", sequences.NoLimit, sequences.NoLimit, func(v float64) bool { return v == 0 }},
+			// The fake's σ is 0.25 pF; the window notes it under the
+			// variant's prior.
+			{"sigma_ref_pf", "trip_search", "pF", sequences.NoLimit, sequences.NoLimit, func(v float64) bool { return v > 0.1 && v < 0.5 }},
 		}
 		if len(run.Measurements) != len(want) {
 			t.Errorf("seed %d: %d measurements, want %d: %+v", seed, len(run.Measurements), len(want), run.Measurements)

@@ -21,6 +21,12 @@ type Reference struct {
 	Serial       string  `json:"serial"`
 	TripPF       float64 `json:"trip_pf"`
 	AllowedDevPF float64 `json:"allowed_dev_pf"`
+	// LabTripPF is the unit's trip point as external capacitance at the
+	// pad, measured against a calibrated capacitance standard (0: not
+	// known), and LabUPF its standard uncertainty. With them the check's
+	// trip says how far this fixture's ladder is off (OffsetFromChecks).
+	LabTripPF float64 `json:"lab_trip_pf,omitempty"`
+	LabUPF    float64 `json:"lab_u_pf,omitempty"`
 }
 
 // CheckConfig configures CheckReference.

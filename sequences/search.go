@@ -234,6 +234,9 @@ type TripResult struct {
 	Consistent bool
 	// GuardMisread is true when a guard level read on the wrong side.
 	GuardMisread bool
+	// OffsetPF is the fixture offset the plan added to TripPF (0: none;
+	// Plan.SetOffset): TripPF − OffsetPF is the trip in the levels' basis.
+	OffsetPF float64
 	// SigmaRefPF is the posterior geometric mean of σ under
 	// SearchOptions.SigmaRefPrior (0 when not asked or not Posterior).
 	SigmaRefPF float64

@@ -635,3 +635,40 @@ SELECT driver FROM d WHERE driver IS NOT NULL`)
 	}
 	return out, nil
 }
+
+// RecentValues returns the values (newest first, at most n) of the
+// measurement step/name on the passing runs of variant at station, looking
+// at no more than the 4·n runs of the variant at the station logged last:
+// a prior for the next unit from the units just before it (the trip
+// search's σ), cheap on a log of any length.
+func (db *DB) RecentValues(ctx context.Context, variant, station, step, name string, n int) ([]float64, error) {
+	if n <= 0 {
+		return nil, nil
+	}
+	rows, err := db.sql.QueryContext(ctx, `
+		SELECT m.value FROM (
+		  SELECT r.id, r.finished, r.verdict FROM runs r
+		  WHERE r.variant_id = (SELECT id FROM variants WHERE name = ?)
+		    AND r.station_id = (SELECT id FROM stations WHERE name = ?)
+		  ORDER BY r.finished DESC LIMIT ?) r
+		JOIN measurements m ON m.run_id = r.id
+		JOIN quantities q ON q.id = m.quantity_id
+		WHERE r.verdict = 'pass' AND q.step = ? AND q.name = ? AND m.value IS NOT NULL
+		ORDER BY r.finished DESC LIMIT ?`, variant, station, 4*n, step, name, n)
+	if err != nil {
+		return nil, fmt.Errorf("recent %s/%s of %s at %s: %w", step, name, variant, station, err)
+	}
+	defer rows.Close()
+	var out []float64
+	for rows.Next() {
+		var v float64
+		if err := rows.Scan(&v); err != nil {
+			return nil, fmt.Errorf("recent %s/%s of %s at %s: %w", step, name, variant, station, err)
+		}
+		out = append(out, v)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("recent %s/%s of %s at %s: %w", step, name, variant, station, err)
+	}
+	return out, nil
+}

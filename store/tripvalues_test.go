@@ -42,3 +42,38 @@ func TestTripValuesMatchTripSeries(t *testing.T) {
 		}
 	}
 }
+
+// TestRecentValues: the newest passing runs' values of one measurement,
+// newest first, at most n, from the variant at the station only.
+func TestRecentValues(t *testing.T) {
+	db, _ := openTemp(t)
+	hash := putDemo(t, db)
+	ctx := context.Background()
+	for i := range 60 {
+		if _, err := db.Record(ctx, demoRun(i, hash)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	got, err := db.RecentValues(ctx, "QM-205", "L2-S1", "trip_search", "trip_pf", 5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Runs 59 down: 56 (i%17 == 5) failed, so 59, 58, 57, 55, 54.
+	var want []float64
+	for _, i := range []int{59, 58, 57, 55, 54} {
+		want = append(want, 16.7+0.01*float64(i%50))
+	}
+	if len(got) != len(want) {
+		t.Fatalf("got %v, want %v", got, want)
+	}
+	for i := range want {
+		if got[i] != want[i] {
+			t.Fatalf("got %v, want %v", got, want)
+		}
+	}
+	for _, c := range [][2]string{{"QM-212", "L2-S1"}, {"QM-205", "L9-S9"}} {
+		if got, err := db.RecentValues(ctx, c[0], c[1], "trip_search", "trip_pf", 5); err != nil || len(got) != 0 {
+			t.Errorf("%v: %v %v, want none", c, got, err)
+		}
+	}
+}

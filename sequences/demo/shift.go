@@ -7,6 +7,7 @@ import (
 	"io"
 	"maps"
 	"math"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"slices"
@@ -44,6 +45,9 @@ type Options struct {
 	// OwnLadders gives every site its own ladder instead of a ganged one.
 	Panel      int
 	OwnLadders bool
+	// NoOffset skips the shift-start reference check, so trip points are
+	// not corrected by the fixture offset (the earlier plan's way).
+	NoOffset bool
 	// Software is the version string every run records.
 	Software string
 	// Progress, when not nil, is asked for a bar per pass.
@@ -105,6 +109,9 @@ type Result struct {
 	CPU, Wall  []time.Duration
 	// TrueStrayPF is the simulated fixture's true stray capacitance.
 	TrueStrayPF float64
+	// Check is the first pass's shift-start reference check, whose offset
+	// corrected every trip point (nil with NoOffset or no reference units).
+	Check *session.CheckReport
 	// Drift is the drift watch over the first pass; nil without drift.
 	Drift *DriftWatch
 
@@ -239,6 +246,18 @@ func shift(ctx context.Context, res *Result, hash, strategy string, rec sequence
 		return err
 	}
 	defer r.Halt()
+	if !o.NoOffset && len(st.Trust.References) > 0 {
+		chk, err := shiftStartCheck(ctx, r, o.Seed)
+		if err != nil {
+			return err
+		}
+		if chk.OK {
+			r.Plan.SetOffset(chk.Offset)
+		}
+		if res.Check == nil {
+			res.Check = &chk
+		}
+	}
 	line, fx, lv := r.Line, r.Fixture, r.Plan.Levels()
 	// The shift's units are stamped on a plant timetable, not at the speed
 	// the simulator runs: a takt of 5–7 s with breaks, starting 12:30 so a
@@ -310,6 +329,56 @@ func shift(ctx context.Context, res *Result, hash, strategy string, rec sequence
 	}
 	prog.Done()
 	return nil
+}
+
+// DemoLabUPF is the standard uncertainty of a simulated reference unit's
+// lab trip point when the station file states none (demo data).
+const DemoLabUPF = 0.02
+
+// shiftStartCheck runs the reference check on the simulated line, as a
+// shift starts, with each reference unit's lab trip point what a lab
+// would measure on this line's unit: the simulator's true trip plus a lab
+// error of σ lab_u_pf (DemoLabUPF when the file states none). Each seed
+// draws its own reference units, so the station file's values belong to
+// seed 1 only: every line registers its reference units as its own fixture
+// finds them (what the mean of many checks tends to: the true trip less
+// the fixture's true offset at the nearest level).
+func shiftStartCheck(ctx context.Context, r *session.Rig, seed uint64) (session.CheckReport, error) {
+	rng := rand.New(rand.NewPCG(seed, 0x1ab))
+	refs := slices.Clone(r.Station.Trust.References)
+	for i := range refs {
+		ref := &refs[i]
+		// A line keeps only a reference unit that is good apart from what
+		// it was built with: the simulator draws every serial with the
+		// line's defect rates, so a drawn unit with another defect is
+		// passed over for the next serial.
+		base := ref.Serial
+		var tr sim.Truth
+		for n := 2; ; n++ {
+			if err := r.Line.ForceDefects(ref.Serial, ref.SimDefects...); err != nil {
+				return session.CheckReport{}, err
+			}
+			if tr = r.Line.Draw(ref.Serial).Truth(); slices.Equal(tr.Defects, ref.SimDefects) || n > 100 {
+				break
+			}
+			ref.Serial = fmt.Sprintf("%s-%d", base, n)
+		}
+		if tr.Trip != sim.TripsAt {
+			continue
+		}
+		if ref.LabUPF == 0 {
+			ref.LabUPF = DemoLabUPF
+		}
+		ref.LabTripPF = tr.TripPF + ref.LabUPF*rng.NormFloat64()
+		best := math.Inf(1)
+		for _, l := range r.Plan.Levels() {
+			truePF := r.Line.TrueExternalPF(l.Pattern)
+			if d := math.Abs(truePF - tr.TripPF); d < best {
+				best, ref.TripPF = d, tr.TripPF-(truePF-l.PF)
+			}
+		}
+	}
+	return session.MeasureReferences(ctx, r, refs, nil)
 }
 
 func ptr(f float64) *float64 { return &f }
@@ -524,6 +593,11 @@ type Summary struct {
 	JitterNs     float64    `json:"jitter_ns"`
 	RungErrSDPF  float64    `json:"rung_err_sd_pf"`
 	Passes       []Stats    `json:"passes"`
+	// FixtureOffsetPF is the shift-start check's fixture offset at the
+	// nominal trip and FixtureOffsetUPF its standard uncertainty (absent:
+	// no offset corrected the trip points).
+	FixtureOffsetPF  *float64 `json:"fixture_offset_pf,omitempty"`
+	FixtureOffsetUPF *float64 `json:"fixture_offset_u_pf,omitempty"`
 	// Drift is the drift watch over the shift; nil without drift flags.
 	Drift *DriftWatch `json:"drift,omitempty"`
 }
@@ -534,6 +608,9 @@ func (res *Result) Summary() Summary {
 	s := Summary{Summary: true, Variant: v.Name, Station: st.Name,
 		TestLimitsPF: [2]float64{rep.TestLimits.Low, rep.TestLimits.High},
 		NoiseMVAt5V:  st.Sim.NoiseMVAt5V, JitterNs: st.Sim.JitterNs, RungErrSDPF: st.Sim.RungErrSDPF, Drift: res.Drift}
+	if c := res.Check; c != nil && c.OK {
+		s.FixtureOffsetPF, s.FixtureOffsetUPF = c.OffsetPF, c.OffsetU
+	}
 	s.Passes = res.Stats
 	return s
 }
@@ -554,9 +631,15 @@ func WriteText(w io.Writer, res *Result) {
 	writeOutcomes(w, s)
 	fmt.Fprintf(w, "\ntrip accuracy on good units against the simulator's ground truth\n")
 	fmt.Fprintf(w, "  RMS error %.3f pF   max %.3f pF   bias %+.3f pF\n", s.TripRMSErrPF, s.TripMaxErrPF, s.TripBiasPF)
-	fmt.Fprintf(w, "  RMS about the bias %.3f pF; the bias is this fixture's calibration error where units trip: its stray\n", s.TripRMSLessBiasPF)
-	fmt.Fprintf(w, "  (true %.2f pF, entered %.2f pF) plus the errors of the rungs closed there; the same for every unit,\n", res.TrueStrayPF, st.Ladder.StrayPF)
-	fmt.Fprintf(w, "  it differs from fixture to fixture (--seed) and a reference unit of known trip point shows it\n")
+	fmt.Fprintf(w, "  RMS about the bias %.3f pF; the bias is what remains of this fixture's calibration error where units\n", s.TripRMSLessBiasPF)
+	fmt.Fprintf(w, "  trip: its stray (true %.2f pF, entered %.2f pF) plus the errors of the rungs closed there\n", res.TrueStrayPF, st.Ladder.StrayPF)
+	if c := res.Check; c != nil && c.OK && c.OffsetPF != nil {
+		fmt.Fprintf(w, "  corrected by the fixture offset of the shift-start reference check: %+.3f ± %.3f pF at the nominal trip,\n", *c.OffsetPF, *c.OffsetU)
+		fmt.Fprintf(w, "  from %d reference units with lab trip points (over 10 simulated fixtures the pooled trip RMS error is\n", len(c.Offset.Refs))
+		fmt.Fprintf(w, "  printed by: go test -run '^$' -bench SearchTargets -benchtime 1x ./sequences/demo)\n")
+	} else {
+		fmt.Fprintf(w, "  not corrected: no passing reference check with lab trip points measured the fixture offset\n")
+	}
 	fmt.Fprintf(w, "  transition (10–90 %%) median: fitted %.2f pF, simulator's noise model %.2f pF\n", s.SpreadMedianPF, s.TrueSpreadMedian)
 	writeTiming(w, ss, v.Plan.Search.SETargetPF)
 	fmt.Fprintf(w, "\ncomputer time    %.3f ms CPU per unit, %.2f s wall for %d units\n", s.CPUPerUnitMS, s.WallS, s.Units)

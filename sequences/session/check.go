@@ -3,7 +3,9 @@ package session
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
+	"slices"
 	"time"
 
 	"padline/sequences"
@@ -24,7 +26,13 @@ type CheckReport struct {
 	FixtureS    float64                 `json:"fixture_time_s"`
 	References  []sequences.RefCheck    `json:"references"`
 	Ladder      []sequences.RungFinding `json:"ladder"`
-	CheckID     int64                   `json:"check_id"`
+	// Offset is the fixture's offset from the reference units with a lab
+	// trip point (nil when none has one, or the check did not pass): the
+	// session adds it to every trip point until the next check.
+	Offset   *sequences.FixtureOffset `json:"offset,omitempty"`
+	OffsetPF *float64                 `json:"offset_pf,omitempty"`   // at the variant's nominal trip
+	OffsetU  *float64                 `json:"offset_u_pf,omitempty"` // its standard uncertainty
+	CheckID  int64                    `json:"check_id"`
 }
 
 // Loader puts a unit into the fixture for a station command: the simulated
@@ -99,11 +107,6 @@ func (r *Rig) CheckConfig() sequences.CheckConfig {
 // error; an error means no check was recorded.
 func RunCheck(ctx context.Context, r *Rig, db *store.DB, progress func(CheckInfo)) (CheckReport, error) {
 	st := r.Station
-	say := func(ci CheckInfo) {
-		if progress != nil {
-			progress(ci)
-		}
-	}
 	if len(st.Trust.References) == 0 {
 		return CheckReport{}, fmt.Errorf("station file %s registers no reference_units: measure a kept good unit on this station and add {serial, trip_pf, allowed_dev_pf} under reference_units", st.Source.Name)
 	}
@@ -111,12 +114,43 @@ func RunCheck(ctx context.Context, r *Rig, db *store.DB, progress func(CheckInfo
 	if err != nil {
 		return CheckReport{}, err
 	}
+	rep, err := MeasureReferences(ctx, r, st.Trust.References, progress)
+	if err != nil {
+		return rep, err
+	}
+	details, err := json.Marshal(rep)
+	if err != nil {
+		return rep, err
+	}
+	rep.CheckID, err = db.RecordCheck(ctx, store.StationCheck{
+		Time: rep.Time, Station: st.Name, Fixture: st.Fixture, StationHash: st.Source.Hash,
+		OK: rep.OK, LastRunID: lastRun, Details: details,
+	})
+	if err != nil {
+		return rep, fmt.Errorf("station check not recorded: %w", err)
+	}
+	if rep.OK {
+		r.Plan.SetOffset(rep.Offset)
+	}
+	return rep, nil
+}
+
+// MeasureReferences runs the reference check on refs without recording
+// it: each unit's trip and the ladder self-test, and, when the check
+// passes, the fixture offset from the units with a lab trip point.
+func MeasureReferences(ctx context.Context, r *Rig, refs []StationRef, progress func(CheckInfo)) (CheckReport, error) {
+	st := r.Station
+	say := func(ci CheckInfo) {
+		if progress != nil {
+			progress(ci)
+		}
+	}
 	rep := CheckReport{Station: st.Name, Fixture: st.Fixture, StationFile: st.Source.Name, StationHash: st.Source.Hash,
 		Variant: r.Variant.Name, Time: time.Now().UTC()}
 	ld := &Loader{Rig: r, Prompt: func(msg string) { say(CheckInfo{Message: msg}) }}
 	cfg := r.CheckConfig()
 	var total time.Duration
-	for _, ref := range st.Trust.References {
+	for _, ref := range refs {
 		if err := ld.Load(ctx, ref.Serial, ref.SimDefects, "reference unit "+ref.Serial); err != nil {
 			return rep, fmt.Errorf("station check: %w", err)
 		}
@@ -132,16 +166,69 @@ func RunCheck(ctx context.Context, r *Rig, db *store.DB, progress func(CheckInfo
 	rep.Ladder, rep.Faults = sequences.CombineChecks(rep.References)
 	rep.OK = len(rep.Faults) == 0
 	rep.FixtureS = total.Seconds()
-	details, err := json.Marshal(rep)
-	if err != nil {
-		return rep, err
-	}
-	rep.CheckID, err = db.RecordCheck(ctx, store.StationCheck{
-		Time: rep.Time, Station: st.Name, Fixture: st.Fixture, StationHash: st.Source.Hash,
-		OK: rep.OK, LastRunID: lastRun, Details: details,
-	})
-	if err != nil {
-		return rep, fmt.Errorf("station check not recorded: %w", err)
+	if rep.OK {
+		if off, err := sequences.OffsetFromChecks(rep.References, 0, cfg.CalPF); err == nil {
+			rep.Offset = off
+			if pf, u, err := off.At(r.NominalWeights()); err == nil {
+				rep.OffsetPF, rep.OffsetU = &pf, &u
+			}
+		}
 	}
 	return rep, nil
+}
+
+// NominalWeights are the rung weights of a trip at the variant's nominal
+// trip point on this rig's ladder (sequences.TripRungWeights, σ from the
+// variant's expected spread).
+func (r *Rig) NominalWeights() []float64 {
+	spread := r.PlanConfig.Search.SpreadPriorPF
+	if spread == 0 {
+		spread = 0.6 // sequences.SearchOptions' default
+	}
+	return sequences.TripRungWeights(r.Plan.Levels(), len(r.Station.Ladder.RungsPF), r.Limits.Trip.Nominal, spread/(2*1.2815515655446004))
+}
+
+// OffsetFromLog puts the fixture offset of the station's last check in
+// db on the rig's plan, when that check passed under this station file
+// and carries one; it returns the offset (nil: none).
+func OffsetFromLog(ctx context.Context, db *store.DB, r *Rig) (*sequences.FixtureOffset, error) {
+	st := r.Station
+	c, err := db.LastCheck(ctx, st.Name, st.Fixture)
+	if errors.Is(err, store.ErrNotFound) {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	if !c.OK || c.StationHash != st.Source.Hash {
+		return nil, nil
+	}
+	var rep CheckReport
+	if err := json.Unmarshal(c.Details, &rep); err != nil {
+		return nil, fmt.Errorf("station check %d in the shift log: %w", c.ID, err)
+	}
+	r.Plan.SetOffset(rep.Offset)
+	return rep.Offset, nil
+}
+
+// SeedFromLog prepares the rig's plan from the shift log: the fixture
+// offset of the station's last passing check (OffsetFromLog), and the
+// trip search's prior on σ from the variant's last passing units on this
+// station (their sigma_ref_pf; each run records how many,
+// prior_sigma_log_units).
+func SeedFromLog(ctx context.Context, db *store.DB, r *Rig) error {
+	if _, err := OffsetFromLog(ctx, db, r); err != nil {
+		return err
+	}
+	n := r.Plan.SigmaWindow()
+	if n == 0 {
+		return nil
+	}
+	vals, err := db.RecentValues(ctx, r.Variant.Name, r.Station.Name, string(sequences.StepTripSearch), string(sequences.MeasSigmaRefPF), n)
+	if err != nil {
+		return err
+	}
+	slices.Reverse(vals)
+	r.Plan.SeedSigma(vals)
+	return nil
 }

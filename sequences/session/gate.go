@@ -66,8 +66,8 @@ func readStationTrust(d *doc, lad StationLadder) StationTrust {
 			}
 			sort.Strings(keys)
 			for _, k := range keys {
-				if !slices.Contains([]string{"serial", "trip_pf", "allowed_dev_pf", "sim_defects"}, k) {
-					d.fail(key, "unknown key %s (want serial, trip_pf, allowed_dev_pf, sim_defects)", k)
+				if !slices.Contains([]string{"serial", "trip_pf", "allowed_dev_pf", "lab_trip_pf", "lab_u_pf", "sim_defects"}, k) {
+					d.fail(key, "unknown key %s (want serial, trip_pf, allowed_dev_pf, lab_trip_pf, lab_u_pf, sim_defects)", k)
 				}
 			}
 			var r StationRef
@@ -98,6 +98,20 @@ func readStationTrust(d *doc, lad StationLadder) StationTrust {
 			}
 			r.TripPF = num("trip_pf")
 			r.AllowedDevPF = num("allowed_dev_pf")
+			// lab_trip_pf and lab_u_pf come together: the trip point as
+			// capacitance at the pad against a calibrated standard, and its
+			// standard uncertainty; the check then measures the fixture's
+			// offset from it.
+			_, hasLab := m["lab_trip_pf"]
+			_, hasLabU := m["lab_u_pf"]
+			switch {
+			case hasLab && hasLabU:
+				r.LabTripPF, r.LabUPF = num("lab_trip_pf"), num("lab_u_pf")
+			case hasLab:
+				d.fail(key, "lab_trip_pf without lab_u_pf (the lab value's standard uncertainty, pF)")
+			case hasLabU:
+				d.fail(key, "lab_u_pf without lab_trip_pf")
+			}
 			if lo, hi := lad.StrayPF+sequences.CheckWindowPF, lad.StrayPF+sumPF(lad.RungsPF)-sequences.CheckWindowPF; len(lad.RungsPF) > 0 && r.TripPF > 0 && (r.TripPF < lo || r.TripPF > hi) {
 				d.fail(key+".trip_pf", "%g pF is outside the ladder's reach for a check (%.2f to %.2f pF: %g pF inside stray and full ladder)", r.TripPF, lo, hi, sequences.CheckWindowPF)
 			}

@@ -177,6 +177,9 @@ func openOn(ctx context.Context, rig *Rig, o Options) (*Session, error) {
 	if s.limits, err = SyncLimits(setup, db, rig, o.Now()); err != nil {
 		return nil, errors.Join(err, s.Close())
 	}
+	if err := SeedFromLog(setup, db, rig); err != nil {
+		return nil, errors.Join(err, s.Close())
+	}
 	if t := rig.Limits.Trip; t.MCSD > 0 {
 		if s.watch, err = drift.NewMonitor(t.MCMean, t.MCSD, drift.Options{}, drift.DefaultSet); err != nil {
 			return nil, errors.Join(err, s.Close())

@@ -252,6 +252,18 @@ func (r *studyBench) budgetInput(ctx context.Context) (sequences.StationBudgetIn
 			return in, "", err
 		}
 	}
+	if c, err := r.db.LastCheck(ctx, r.Station.Name, r.Station.Fixture); err == nil && c.OK && c.StationHash == r.Station.Source.Hash {
+		var rep CheckReport
+		if err := json.Unmarshal(c.Details, &rep); err == nil && rep.Offset != nil {
+			if _, u, err := rep.Offset.At(r.NominalWeights()); err == nil && u > 0 {
+				in.OffsetUPF = u
+				in.OffsetSource = fmt.Sprintf("reference check %d (%s): %d reference units with lab trip points", c.ID, c.Time.Local().Format("2006-01-02 15:04"), len(rep.Offset.Refs))
+				source += "; fixture offset from " + in.OffsetSource
+			}
+		}
+	} else if err != nil && !errors.Is(err, store.ErrNotFound) {
+		return in, "", err
+	}
 	if in.RepeatPF > 0 {
 		source += "; repeatability from " + in.RepeatSource
 	} else {
