@@ -40,6 +40,15 @@ func TestProbitWeight(t *testing.T) {
 	if got := sequences.ProbitWeight(0); math.Abs(got-2/math.Pi) > 1e-15 {
 		t.Errorf("w(0) = %.17g, want 2/π = %.17g", got, 2/math.Pi)
 	}
+	// Finney's table of probit weighting coefficients (Probit Analysis,
+	// 3rd ed., 1971; from memory, to the 3 figures quoted here): 0.637 at
+	// probit 5 (z = 0), 0.439 at probits 4 and 6 (z = ∓1), 0.131 at
+	// probits 3 and 7 (z = ∓2).
+	for _, c := range []struct{ z, w float64 }{{0, 0.637}, {1, 0.439}, {-1, 0.439}, {2, 0.131}, {-2, 0.131}} {
+		if got := sequences.ProbitWeight(c.z); math.Abs(got-c.w) > 0.0005 {
+			t.Errorf("w(%g) = %.4f, Finney's table %.3f", c.z, got, c.w)
+		}
+	}
 	for _, z := range []float64{-4, -2.5, -1, -0.3, 0.1, 0.7, 1.5, 3, 5} {
 		got, want := sequences.ProbitWeight(z), numericWeight(z)
 		if !(math.Abs(got-want) <= 1e-6*math.Max(want, 1e-3)) {
