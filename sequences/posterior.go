@@ -140,7 +140,9 @@ type gridMoments struct {
 func (g *tripGrid) moments() gridMoments {
 	top := math.Inf(-1)
 	for _, v := range g.logp {
-		top = math.Max(top, v)
+		if v > top {
+			top = v
+		}
 	}
 	nMu := len(g.mu)
 	var w, sm, sm2, ss, ss2, sms, edge, sedge float64
@@ -351,7 +353,9 @@ func logPhiPair(z float64) (float64, float64) {
 func (g *tripGrid) sigmaUnder(prior, ref ProbitPrior) float64 {
 	top := math.Inf(-1)
 	for _, v := range g.logp {
-		top = math.Max(top, v)
+		if v > top {
+			top = v
+		}
 	}
 	lp := func(p ProbitPrior, ls float64) float64 {
 		if !(p.LogSD > 0) {

@@ -233,11 +233,10 @@ func TestDemoAccuracyAgainstGroundTruth(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if want := st.Ladder.StrayPF - line.TrueStrayPF(); math.Abs(bias-want) > 0.15 {
-		t.Errorf("bias %+.3f pF, want the stray's calibration error %+.3f pF ± 0.15", bias, want)
-	}
 	var sum2 struct {
-		Passes []struct {
+		OffsetPF  *float64 `json:"fixture_offset_pf"`
+		OffsetUPF *float64 `json:"fixture_offset_u_pf"`
+		Passes    []struct {
 			RMS    float64 `json:"trip_rms_error_pf"`
 			Bias   float64 `json:"trip_bias_pf"`
 			Spread float64 `json:"trip_rms_error_less_bias_pf"`
@@ -245,6 +244,18 @@ func TestDemoAccuracyAgainstGroundTruth(t *testing.T) {
 	}
 	if err := json.Unmarshal([]byte(lines[len(lines)-1]), &sum2); err != nil || len(sum2.Passes) != 1 {
 		t.Fatalf("summary: %v", err)
+	}
+	// The shift-start check's fixture offset corrected every trip point:
+	// without it the bias is the stray's calibration error (within the
+	// rungs' errors), with it what the offset's uncertainty leaves.
+	if sum2.OffsetPF == nil || sum2.OffsetUPF == nil {
+		t.Fatal("summary without the fixture offset (demo-sim registers lab trip points)")
+	}
+	if want := st.Ladder.StrayPF - line.TrueStrayPF(); math.Abs(bias-*sum2.OffsetPF-want) > 0.15 {
+		t.Errorf("bias before the offset %+.3f pF, want the stray's calibration error %+.3f pF ± 0.15", bias-*sum2.OffsetPF, want)
+	}
+	if math.Abs(bias) > 3**sum2.OffsetUPF {
+		t.Errorf("bias %+.3f pF after the fixture offset, beyond 3 u = %.3f pF", bias, 3**sum2.OffsetUPF)
 	}
 	p := sum2.Passes[0]
 	t.Logf("%d units: rms %.3f bias %+.3f spread %.3f (summary %.3f %+.3f %.3f)", len(e), rms, bias, spread, p.RMS, p.Bias, p.Spread)
