@@ -42,6 +42,10 @@ func WriteCheck(w io.Writer, rep CheckReport, st *Station) {
 	}
 	p("")
 	p("fixture time %.2f s for %d reference unit(s) (target < 30 s)", rep.FixtureS, len(rep.References))
+	if rep.OK && rep.OffsetPF != nil && rep.OffsetU != nil {
+		p("fixture offset %+.3f ± %.3f pF at %s's nominal trip, from %d reference unit(s) with lab trip points: added to every trip point until the next check",
+			*rep.OffsetPF, *rep.OffsetU, rep.Variant, len(rep.Offset.Refs))
+	}
 	if rep.OK {
 		var due []string
 		if n := st.Trust.CheckEveryUnits; n > 0 {
