@@ -231,12 +231,15 @@ func sameAsLogged(u unitLine, e *store.Entry) error {
 // planOrder is the order in which the standard plan, with its checks folded
 // into the search, records measurements: the idle step's clock and idle
 // readings, then the trip search's prior, release and the rest of the idle
-// check, and its trip point (sequences/plan.go NewPlan and its step
+// check, and its trip point (with the fixture offset, when a check with lab
+// trip points set one, before it) (sequences/plan.go NewPlan and its step
 // functions), then the retest flag Session.Test appends to a pass after
 // fails (sequences/session.go).
 var planOrder = []string{
 	"idle/clock_hz", "idle/idle_highs",
 	"trip_search/prior_sigma_pf", "trip_search/prior_sigma_log_sd", "trip_search/prior_sigma_units",
+	"trip_search/prior_sigma_log_units", "trip_search/sigma_ref_pf",
+	"trip_search/trip_ladder_pf", "trip_search/fixture_offset_pf", "trip_search/fixture_offset_u_pf",
 	"release/release_lows", "idle/idle_lows",
 	"trip_search/trip_pf", "trip_search/trip_se_pf", "trip_search/spread_pf", "retest/prior_fails",
 }
