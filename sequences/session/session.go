@@ -633,6 +633,12 @@ func (s *Session) driftWatch(run *sequences.Run) {
 // check here, until a check passes or ctx ends; without it return the
 // refusal.
 func (s *Session) gate(ctx context.Context) error {
+	// Damage the background check found halts the station before the
+	// gate reads the log (its reads may land on the damaged pages).
+	if derr := s.db.Damage(); derr != nil {
+		return fmt.Errorf("%w: the background check of the shift log found damage: %w; restore the shift log from a copy or start the station with a new --db",
+			ErrHalted, derr)
+	}
 	for {
 		if err := s.limitsGate(ctx); err != nil {
 			return err
