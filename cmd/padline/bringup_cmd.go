@@ -52,12 +52,12 @@ may not write the file. A reference check is then due.`,
 			if err != nil {
 				return err
 			}
-			r, prompts, err := a.openRig(cmd.Context(), variant, station, dbPath, asJSON)
+			r, err := session.OpenBench(cmd.Context(), variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
 			if err != nil {
 				return err
 			}
 			defer func() { err = errors.Join(err, r.Close(cmd.Context())) }()
-			o.Prompt = func(msg string) { fmt.Fprintln(prompts, msg) }
+			o.Prompt = func(msg string) { fmt.Fprintln(a.prompts(asJSON), msg) }
 			rep, err := session.MeasureReference(cmd.Context(), r.Rig, o)
 			if err == nil {
 				err = session.RegisterReference(r.Station, &rep)

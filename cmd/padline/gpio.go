@@ -14,3 +14,19 @@ func openGPIO(p session.StationPins) (fixture.Pins, error) {
 		PassLamp: p.PassLamp, FailLamp: p.FailLamp, Ladder: p.Ladder,
 	})
 }
+
+// openPanelGPIO opens a gpio panel station's lines through
+// fixture/hostpins.
+func openPanelGPIO(st *session.Station) (fixture.PanelPins, error) {
+	roles := hostpins.PanelRoleMap{Lid: st.Pins.Lid, PassLamp: st.Pins.PassLamp, FailLamp: st.Pins.FailLamp}
+	if st.Sites.SharedPower {
+		roles.Power = st.Pins.Power
+	}
+	if st.Sites.Ganged {
+		roles.Ladder = st.Pins.Ladder
+	}
+	for _, s := range st.Sites.List {
+		roles.Sites = append(roles.Sites, hostpins.SiteRoles{Latch: s.Latch, Clock: s.Clock, Power: s.Power, Ladder: s.Ladder})
+	}
+	return hostpins.OpenPanel(roles)
+}

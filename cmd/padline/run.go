@@ -81,12 +81,6 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 			if err != nil {
 				return err
 			}
-			if _, panel := panelStation(o.station); panel {
-				if o.screen != "" {
-					return fmt.Errorf("run: station %s is a panel station; --screen does not serve panels yet (the terminal shows the panel map)", o.station)
-				}
-				return a.runPanel(cmd.Context(), o, db)
-			}
 			return a.run(cmd.Context(), o, db)
 		},
 	}
@@ -110,55 +104,62 @@ your safety engineer. Keep hands clear of the fixture clamp.`,
 }
 
 func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) {
-	sess, err := session.Open(ctx, session.Options{
+	opts := session.Options{
 		Variant: o.variant, Station: o.station, ShiftLog: dbPath,
 		Operator: o.operator, Lot: o.lot, Strategy: o.search,
-		Software: softwareVersion(), GPIO: openGPIO, LidTimeout: o.lidTimeout,
+		Software: softwareVersion(), GPIO: openGPIO, PanelGPIO: openPanelGPIO, LidTimeout: o.lidTimeout,
 		// With a screen the technician runs a due check from the page.
 		WaitForCheck:    o.screen != "",
 		InputEndIsError: o.service,
 		AfterStep:       holdHook(), // nil unless the torture test asks (testhook.go)
-	})
+	}
+	var sc session.Scanner
+	if o.serial != "" {
+		line := o.serial
+		if o.xout != "" {
+			line += " x:" + o.xout // a panel's x-outs
+		}
+		sc = session.OneSerial(line)
+	} else {
+		sc = a.promptingScanner(session.LineScanner(a.stdin), o)
+	}
+	show := console.Options{Stdout: a.stdout, Stderr: a.stderr, JSON: o.asJSON, Colour: isTerminal(a.stdout)}
+	if session.IsPanelStation(o.station) {
+		if o.screen != "" {
+			return fmt.Errorf("run: station %s is a panel station; --screen does not serve panels yet (the terminal shows the panel map)", o.station)
+		}
+		return refused(session.RunPanel(ctx, opts, sc, console.Panel(show)))
+	}
+	sess, err := session.Open(ctx, opts)
 	if err != nil {
 		return err
 	}
 	// Every exit path leaves every rung open and unit power off, and the
 	// relay counts saved.
-	defer func() {
-		if cerr := sess.Close(); cerr != nil && err == nil {
-			err = cerr
-		}
-	}()
+	defer func() { err = errors.Join(err, sess.Close()) }()
 	// Plant forwarding: a goroutine of its own, woken by committed
 	// verdicts; the unit loop never waits for it.
 	defer sess.Forward(ctx, o.plantURL, a.stderr)()
 	events, stop := sess.Subscribe(eventBuffer)
 	printed := make(chan error, 1)
-	go func() {
-		printed <- console.Print(events, console.Options{Stdout: a.stdout, Stderr: a.stderr, JSON: o.asJSON, Colour: isTerminal(a.stdout)})
-	}()
-	var sc session.Scanner
-	if o.serial != "" {
-		sc = session.OneSerial(o.serial)
-	} else {
-		sc = a.promptingScanner(session.LineScanner(a.stdin), o)
-	}
+	go func() { printed <- console.Print(events, show) }()
 	if o.screen != "" {
 		// The screen adds the page's scans to stdin's (or to --serial's
 		// one); the run then goes on until it is stopped.
 		var stopScreen func()
 		if sc, stopScreen, err = a.startScreen(ctx, sess, sc, o.screen); err != nil {
 			stop()
-			<-printed
-			return err
+			return errors.Join(err, <-printed)
 		}
 		defer stopScreen()
 	}
 	err = sess.Run(ctx, sc)
 	stop()
-	if perr := <-printed; perr != nil && err == nil {
-		err = perr
-	}
+	return refused(errors.Join(err, <-printed))
+}
+
+// refused gives a run the gate refused exit status 3.
+func refused(err error) error {
 	if errors.Is(err, session.ErrNotReady) {
 		return &exitError{code: exitStationRefused, err: err}
 	}

@@ -3,9 +3,9 @@ package main
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
-	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -33,14 +33,13 @@ func (a *app) stationCmd() *cobra.Command {
 	return cmd
 }
 
-// openRig opens the station for a trust command (check, study) and says
-// where its operator prompts go: stdout, or stderr under --json.
-func (a *app) openRig(ctx context.Context, variant, station, dbPath string, asJSON bool) (*session.Bench, io.Writer, error) {
-	b, err := session.OpenBench(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
+// prompts is where a station command's operator prompts go: stdout, or
+// stderr under --json.
+func (a *app) prompts(asJSON bool) io.Writer {
 	if asJSON {
-		return b, a.stderr, err
+		return a.stderr
 	}
-	return b, a.stdout, err
+	return a.stdout
 }
 
 func (a *app) stationCheckCmd() *cobra.Command {
@@ -90,38 +89,30 @@ driver: gpio the operator is asked to load each one and close the lid.`,
 	return cmd
 }
 
-func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string, asJSON bool) (err error) {
-	if _, panel := panelStation(station); panel {
-		return a.stationCheckPanel(ctx, variant, station, dbPath, asJSON)
-	}
-	r, prompts, err := a.openRig(ctx, variant, station, dbPath, asJSON)
-	if err != nil {
-		return err
-	}
-	defer func() {
-		if cerr := r.Close(ctx); cerr != nil && err == nil {
-			err = cerr
-		}
-	}()
-	rep, err := session.RunCheck(ctx, r.Rig, r.DB, func(ci session.CheckInfo) {
-		if ci.Serial == "" && ci.Message != "" {
-			fmt.Fprintln(prompts, ci.Message)
-		}
-	})
-	if err != nil {
+func (a *app) stationCheck(ctx context.Context, variant, station, dbPath string, asJSON bool) error {
+	prompts := a.prompts(asJSON)
+	rep, st, err := session.StationCheck(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO, PanelGPIO: openPanelGPIO},
+		func(ci session.CheckInfo) {
+			if ci.Serial == "" && ci.Message != "" {
+				fmt.Fprintln(prompts, ci.Message)
+			}
+		})
+	if err != nil && !errors.Is(err, session.ErrNotReady) {
 		return err
 	}
 	if asJSON {
-		enc := json.NewEncoder(a.stdout)
-		enc.SetIndent("", "  ")
-		if err := enc.Encode(rep); err != nil {
-			return err
+		if jerr := writeJSON(a.stdout, rep); jerr != nil {
+			return jerr
 		}
 	} else {
-		session.WriteCheck(a.stdout, rep, r.Station)
+		session.WriteCheck(a.stdout, rep, st)
 	}
-	if !rep.OK {
-		return &exitError{code: exitStationRefused, err: fmt.Errorf("station %s fixture %s refused: %s", r.Station.Name, r.Station.Fixture, strings.Join(rep.Faults, "; "))}
-	}
-	return nil
+	return refused(err)
+}
+
+// writeJSON prints v as one indented JSON object.
+func writeJSON(w io.Writer, v any) error {
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(v)
 }

@@ -229,7 +229,7 @@ const driftPF = 0.5
 // enters that rung driftPF below its true value.
 func simCheck(t testing.TB, ctx context.Context, station string, drift int) session.CheckReport {
 	t.Helper()
-	r, _, err := (&app{}).openRig(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), true)
+	r, err := session.OpenBench(ctx, "QM-205", station, filepath.Join(t.TempDir(), "x.db"), session.RigOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -289,7 +289,7 @@ func TestStationCheckHealthy1000(t *testing.T) {
 	maxLLR, maxDev := math.Inf(-1), 0.0
 	for seed := 1; seed <= seeds; seed++ {
 		path := stationVariant(t, nil, fmt.Sprintf("sim:\n  seed: %d\n", seed))
-		r, _, err := (&app{}).openRig(ctx, "QM-205", path, filepath.Join(t.TempDir(), "x.db"), true)
+		r, err := session.OpenBench(ctx, "QM-205", path, filepath.Join(t.TempDir(), "x.db"), session.RigOptions{})
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"padline/sequences/session"
 
@@ -54,9 +53,7 @@ func (a *app) stationStatus(ctx context.Context, station, dbPath string, asJSON,
 		return err
 	}
 	if asJSON {
-		enc := json.NewEncoder(a.stdout)
-		enc.SetIndent("", "  ")
-		return errors.Join(enc.Encode(rep), rep.LogCheck.Err())
+		return errors.Join(writeJSON(a.stdout, rep), rep.LogCheck.Err())
 	}
 	session.WriteStatus(a.stdout, rep, st)
 	return rep.LogCheck.Err()

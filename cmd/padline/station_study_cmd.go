@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"padline/sequences/session"
@@ -76,29 +75,21 @@ band from then on.`,
 	return cmd
 }
 
-// measure runs the variant's production plan on the unit in the fixture and
-// returns its trip point; nothing is recorded as a run.
-
 // stationStudy opens the station, makes the study and prints it.
 func (a *app) stationStudy(ctx context.Context, variant, station, dbPath string, o session.StudyOptions, asJSON bool) (err error) {
-	r, prompts, err := a.openRig(ctx, variant, station, dbPath, asJSON)
+	b, err := session.OpenBench(ctx, variant, station, dbPath, session.RigOptions{GPIO: openGPIO})
 	if err != nil {
 		return err
 	}
-	defer func() {
-		if cerr := r.Close(ctx); cerr != nil && err == nil {
-			err = cerr
-		}
-	}()
+	defer func() { err = errors.Join(err, b.Close(ctx)) }()
+	prompts := a.prompts(asJSON)
 	o.Prompt = func(msg string) { fmt.Fprintln(prompts, msg) }
-	rep, err := session.RunStudy(ctx, r.Rig, r.DB, o)
+	rep, err := session.RunStudy(ctx, b.Rig, b.DB, o)
 	if err != nil {
 		return err
 	}
 	if asJSON {
-		enc := json.NewEncoder(a.stdout)
-		enc.SetIndent("", "  ")
-		return enc.Encode(rep)
+		return writeJSON(a.stdout, rep)
 	}
 	session.WriteStudy(a.stdout, rep)
 	return nil

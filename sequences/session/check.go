@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"slices"
+	"strings"
 	"time"
 
 	"padline/sequences"
@@ -231,4 +232,35 @@ func SeedFromLog(ctx context.Context, db *store.DB, r *Rig) error {
 	slices.Reverse(vals)
 	r.Plan.SeedSigma(vals)
 	return nil
+}
+
+// StationCheck opens the station (a single-unit or a panel station) with
+// its shift log at dbPath, runs the reference check, records it and closes
+// the station again. A refused station is a report with OK false; the
+// error then names the faults and wraps ErrNotReady.
+func StationCheck(ctx context.Context, variant, station, dbPath string, o RigOptions, progress func(CheckInfo)) (rep CheckReport, st *Station, err error) {
+	if IsPanelStation(station) {
+		b, err := OpenPanelBench(ctx, variant, station, dbPath, o)
+		if err != nil {
+			return rep, nil, err
+		}
+		defer func() { err = errors.Join(err, b.Close(ctx)) }()
+		rep, err = RunPanelCheck(ctx, b.PanelRig, b.DB, progress)
+		return rep, b.Station, refusedBy(rep, err)
+	}
+	b, err := OpenBench(ctx, variant, station, dbPath, o)
+	if err != nil {
+		return rep, nil, err
+	}
+	defer func() { err = errors.Join(err, b.Close(ctx)) }()
+	rep, err = RunCheck(ctx, b.Rig, b.DB, progress)
+	return rep, b.Station, refusedBy(rep, err)
+}
+
+// refusedBy is err, or for a check that found faults the refusal.
+func refusedBy(rep CheckReport, err error) error {
+	if err != nil || rep.OK {
+		return err
+	}
+	return fmt.Errorf("%w: the reference check refused station %s fixture %s: %s", ErrNotReady, rep.Station, rep.Fixture, strings.Join(rep.Faults, "; "))
 }

@@ -30,6 +30,8 @@ type Options struct {
 	Software string
 	// GPIO opens the pins of a driver: gpio station (see GPIOOpener).
 	GPIO GPIOOpener
+	// PanelGPIO opens a panel station's real lines (RunPanel).
+	PanelGPIO PanelGPIOOpener
 	// LidTimeout gives up on a unit whose lid stays open this long (the
 	// scan is refused); 0 waits until the session is stopped.
 	LidTimeout time.Duration
