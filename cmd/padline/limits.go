@@ -1,9 +1,7 @@
 package main
 
 import (
-	"encoding/json"
 	"fmt"
-	"io"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -15,12 +13,8 @@ import (
 // limitsCmd builds `padline limits`.
 func (a *app) limitsCmd() *cobra.Command {
 	var (
-		variant string
-		station string
-		u       float64
-		draws   int
-		seed    uint64
-		asJSON  bool
+		q      session.LimitsQuery
+		asJSON bool
 	)
 	cmd := &cobra.Command{
 		Use:   "limits --variant NAME|FILE",
@@ -62,121 +56,36 @@ file's uncertainty_pf; else a 0.3 pF stand-in. The report says which.`,
   padline limits --variant QM-205 --draws 100000 --seed 7 --json
   padline limits --variant QM-205 --station demo-sim --db shift.db`,
 		Args: cobra.NoArgs,
-		RunE: func(cmd *cobra.Command, _ []string) error {
-			if variant == "" {
+		RunE: func(cmd *cobra.Command, _ []string) (err error) {
+			if q.Variant == "" {
 				return fmt.Errorf("limits: --variant is required (a .yaml file or one of: %s)", strings.Join(session.BuiltinVariants(), ", "))
 			}
-			if draws < 1 {
-				return fmt.Errorf("limits: --draws must be ≥ 1, got %d", draws)
-			}
-			v, err := session.LoadVariant(variant)
-			if err != nil {
-				return err
-			}
-			for _, w := range v.Warnings {
-				fmt.Fprintln(a.stderr, "warning:", w)
-			}
-			uFrom := "stand-in (no --station, no --uncertainty-pf)"
-			switch {
-			case !cmd.Flags().Changed("uncertainty-pf") && station == "":
-				u = session.DefaultUncertaintyPF
-			case cmd.Flags().Changed("uncertainty-pf"):
-				uFrom = "--uncertainty-pf"
-			case station != "":
-				st, err := session.LoadStation(station)
-				if err != nil {
-					return err
-				}
-				dbPath, err := shiftLogPath(cmd, station)
-				if err != nil {
-					return err
-				}
-				if u, uFrom, err = session.Uncertainty(cmd.Context(), dbPath, st); err != nil {
+			q.UncertaintyGiven = cmd.Flags().Changed("uncertainty-pf")
+			if q.Station != "" && !q.UncertaintyGiven {
+				if q.ShiftLog, err = shiftLogPath(cmd, q.Station); err != nil {
 					return err
 				}
 			}
-			rep, err := v.Limits(timing.Options{Draws: draws, Seed: seed, UncertaintyPF: u})
+			rep, err := session.VariantLimits(cmd.Context(), q)
+			rep.WriteWarnings(a.stderr) // the variant file's unusual values
 			if err != nil {
 				return err
 			}
 			if asJSON {
-				return writeLimitsJSON(a.stdout, v, rep, uFrom)
+				return rep.WriteJSON(a.stdout)
 			}
-			writeLimits(a.stdout, v, rep)
-			fmt.Fprintf(a.stdout, "U from      %s\n", uFrom)
+			rep.WriteText(a.stdout)
 			return nil
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&variant, "variant", "", "variant: a .yaml file or a built-in name ("+strings.Join(session.BuiltinVariants(), ", ")+")")
-	f.StringVar(&station, "station", "", "station file: take U from its shift log (stored by 'padline station study'), else its uncertainty_pf, else the stand-in")
+	f.StringVar(&q.Variant, "variant", "", "variant: a .yaml file or a built-in name ("+strings.Join(session.BuiltinVariants(), ", ")+")")
+	f.StringVar(&q.Station, "station", "", "station file: take U from its shift log (stored by 'padline station study'), else its uncertainty_pf, else the stand-in")
 	f.String("db", "", "shift log for --station (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
-	f.Float64Var(&u, "uncertainty-pf", 0, fmt.Sprintf("station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U (default: --station's U, else the %g pF stand-in)", session.DefaultUncertaintyPF))
-	f.IntVar(&draws, "draws", timing.DefaultDraws, "Monte Carlo draws")
-	f.Uint64Var(&seed, "seed", 1, "Monte Carlo seed (same seed, same numbers)")
+	f.Float64Var(&q.UncertaintyPF, "uncertainty-pf", 0, fmt.Sprintf("station's expanded measurement uncertainty U (k = 2) in pF; each limit is pulled in by U (default: --station's U, else the %g pF stand-in)", session.DefaultUncertaintyPF))
+	f.IntVar(&q.Draws, "draws", timing.DefaultDraws, "Monte Carlo draws")
+	f.Uint64Var(&q.Seed, "seed", 1, "Monte Carlo seed (same seed, same numbers)")
 	f.BoolVar(&asJSON, "json", false, "print one JSON object instead of the report")
 	cmd.AddCommand(a.limitsVersionCmds()...)
 	return cmd
-}
-
-// limitsJSON is what `limits --json` prints: the variant's identity and the
-// timing report.
-type limitsJSON struct {
-	Variant    string `json:"variant"`
-	Source     string `json:"source"`
-	ConfigHash string `json:"config_hash"`
-	// USource says where the guard band U came from.
-	USource string `json:"uncertainty_source"`
-	timing.Report
-}
-
-func writeLimitsJSON(w io.Writer, v *session.Variant, rep timing.Report, uFrom string) error {
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	if err := enc.Encode(limitsJSON{Variant: v.Name, Source: v.Source.Name, ConfigHash: v.Source.Hash, USource: uFrom, Report: rep}); err != nil {
-		return fmt.Errorf("limits: write json: %w", err)
-	}
-	return nil
-}
-
-// cornerPF prints a corner trip point; a negative one is not a capacitance
-// but a unit that trips with nothing at the pad, and is said so.
-func cornerPF(pf float64) string {
-	if pf < 0 {
-		return "below 0 pF (such a unit trips with nothing at the pad)"
-	}
-	return fmt.Sprintf("%.2f", pf)
-}
-
-func writeLimits(w io.Writer, v *session.Variant, r timing.Report) {
-	p := func(format string, args ...any) { fmt.Fprintf(w, format+"\n", args...) }
-	p("variant     %s — %s", v.Name, v.Description)
-	p("file        %s (sha256 %.12s)", v.Source.Name, v.Source.Hash)
-	p("")
-	p("clock       nominal %.1f Hz   corners %.1f … %.1f Hz   (half periods %.3f / %.3f ms)",
-		r.Clock.Nominal, r.Clock.CornerLow, r.Clock.CornerHigh, 1e3*r.Clock.HighS, 1e3*r.Clock.LowS)
-	p("trip point  nominal %.2f pF   corners %s … %.2f pF", r.Trip.Nominal, cornerPF(r.Trip.CornerLow), r.Trip.CornerHigh)
-	if n := r.Trip.NoTripCorners; n > 0 {
-		p("            at %d of %d corners the unit cannot trip (the flip-flop samples before the sense node can fall)", n, r.Trip.Corners)
-	}
-	p("            Monte Carlo (%d draws, seed %d): mean %.2f pF, sd %.2f pF", r.Draws, r.Seed, r.Trip.MCMean, r.Trip.MCSD)
-	p("            percentiles 0.135 %% %.2f   50 %% %.2f   99.865 %% %.2f pF", r.Trip.MCP00135, r.Trip.MCP50, r.Trip.MCP99865)
-	writeGate(w, r)
-	p("")
-	writeSensitivity(w, r)
-	p("")
-	p("spec window no trip at ≤ %.2f pF, trip by %.2f pF", r.Spec.NoTripAtPF, r.Spec.TripByPF)
-	p("model       %.2f … %.2f pF (worst-case corners)", r.ModelLimits.Low, r.ModelLimits.High)
-	p("guard band  %.2f pF each side (U, k = 2; ISO 14253-1 acceptance zone)", r.GuardBandPF)
-	p("test limits %.2f … %.2f pF", r.TestLimits.Low, r.TestLimits.High)
-	p("")
-	p("predicted   Cpk %.2f   yield %.4f %% (Monte Carlo)   %.4f %% (normal model)",
-		r.Predicted.Cpk, 100*r.Predicted.Yield, 100*r.Predicted.YieldNormal)
-	if len(r.Warnings) == 0 {
-		p("warnings    none")
-		return
-	}
-	for _, msg := range r.Warnings {
-		p("WARNING     %s", msg)
-	}
 }
