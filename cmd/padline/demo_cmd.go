@@ -1,11 +1,9 @@
 package main
 
 import (
-	"context"
-	"encoding/json"
-	"padline/sequences/demo"
-
 	"github.com/spf13/cobra"
+
+	"padline/sequences/demo"
 )
 
 // demoCmd builds `padline demo`.
@@ -60,7 +58,9 @@ own ladder instead: the sites then search concurrently.`,
   padline demo --panel 8 --units 800`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
-			return a.demo(cmd.Context(), o, asJSON)
+			o.Software = softwareVersion()
+			o.Progress = demo.Bar(a.stderr, asJSON || !isTerminal(a.stderr))
+			return demo.Shift(cmd.Context(), a.stdout, o, asJSON)
 		},
 	}
 	f := cmd.Flags()
@@ -79,46 +79,4 @@ own ladder instead: the sites then search concurrently.`,
 	f.BoolVar(&o.OwnLadders, "own-ladders", false, "with --panel: every site has its own ladder (default: one ganged ladder)")
 	f.Float64Var(&o.Drift.RampPF, "ramp-pf-per-1000", 0, "slow ramp of the trip point, pF per 1000 units, from --drift-at (or unit 1)")
 	return cmd
-}
-
-// demo runs the simulated shift and prints its units and summary.
-func (a *app) demo(ctx context.Context, o demo.Options, asJSON bool) error {
-	o.Software = softwareVersion()
-	quiet := asJSON || !isTerminal(a.stderr)
-	o.Progress = func(label string, n int) demo.Progress { return newProgress(a.stderr, n, label, quiet) }
-	if o.Panel > 0 {
-		return a.demoPanel(ctx, o, asJSON)
-	}
-	enc := json.NewEncoder(a.stdout)
-	if asJSON {
-		o.EachUnit = func(u demo.Unit) error { return enc.Encode(u) } // streamed: the demo keeps no unit
-	}
-	res, err := demo.Run(ctx, o)
-	if err != nil {
-		return err
-	}
-	if !asJSON {
-		demo.WriteText(a.stdout, res)
-		return nil
-	}
-	return enc.Encode(res.Summary())
-}
-
-// demoPanel runs 'padline demo --panel N' and prints its sites and summary.
-func (a *app) demoPanel(ctx context.Context, o demo.Options, asJSON bool) error {
-	res, err := demo.RunPanel(ctx, o)
-	if err != nil {
-		return err
-	}
-	if !asJSON {
-		demo.WritePanelText(a.stdout, res)
-		return nil
-	}
-	enc := json.NewEncoder(a.stdout)
-	for _, s := range res.Sites {
-		if err := enc.Encode(s); err != nil {
-			return err
-		}
-	}
-	return enc.Encode(res.Summary)
 }
