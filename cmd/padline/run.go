@@ -121,7 +121,7 @@ func (a *app) run(ctx context.Context, o runOptions, dbPath string) (err error) 
 		}
 		sc = session.OneSerial(line)
 	} else {
-		sc = a.promptingScanner(session.LineScanner(a.stdin), o)
+		sc = scanHook(a.promptingScanner(session.LineScanner(a.stdin), o))
 	}
 	show := console.Options{Stdout: a.stdout, Stderr: a.stderr, JSON: o.asJSON, Colour: isTerminal(a.stdout)}
 	if session.IsPanelStation(o.station) {

@@ -452,7 +452,30 @@ func TestSIGTERMWhileWaitingForScan(t *testing.T) {
 	bin := padlineBinary(t)
 	db := filepath.Join(t.TempDir(), "shift.db")
 	checkStation(t, db)
-	p := startPadline(t, bin, nil, "run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--json")
+	// The binary writes "scan N" to the FIFO as its Nth wait for a serial
+	// begins (testhook.go): "scan 2" is the wait after the first unit,
+	// past the stop check at the top of the loop, so the signal lands in
+	// the read itself, whatever the machine's load.
+	fifo := filepath.Join(t.TempDir(), "scan")
+	if err := syscall.Mkfifo(fifo, 0o600); err != nil {
+		t.Fatal(err)
+	}
+	marks := make(chan string, 4)
+	go func() {
+		for {
+			f, err := os.Open(fifo) // blocks until the binary opens it to write
+			if err != nil {
+				return
+			}
+			line, _ := bufio.NewReader(f).ReadString('\n')
+			f.Close()
+			if marks <- strings.TrimSpace(line); strings.TrimSpace(line) == "scan 2" {
+				return
+			}
+		}
+	}()
+	p := startPadlineEnv(t, bin, nil, []string{"PADLINE_TEST_SCAN_MARK=" + fifo},
+		"run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--json")
 	defer p.stdin.Close()
 	if _, err := io.WriteString(p.stdin, "QM205-000001\n"); err != nil {
 		t.Fatal(err)
@@ -461,10 +484,14 @@ func TestSIGTERMWhileWaitingForScan(t *testing.T) {
 		p.wait(time.Minute)
 		t.Fatalf("no verdict line: %s", p.stderr.String())
 	}
-	// Give it time to get back to reading stdin: a signal that arrives
-	// before it checks for a stop request at the top of its loop is seen
-	// there, and would not test the read.
-	time.Sleep(300 * time.Millisecond)
+	for m := ""; m != "scan 2"; {
+		select {
+		case m = <-marks:
+		case <-p.eof:
+			p.wait(time.Minute)
+			t.Fatalf("padline ended before waiting for a second serial: %s", p.stderr.String())
+		}
+	}
 	if err := p.cmd.Process.Signal(syscall.SIGTERM); err != nil {
 		t.Fatal(err)
 	}
