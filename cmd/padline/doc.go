@@ -11,18 +11,19 @@
 //
 // Inside the package, files depend one way, top to bottom:
 //
-//  1. the process and the command tree: main.go (signals, exit codes),
-//     root.go, commands.go (the list of command families), help_topics.go
-//     (the file-format help topics);
+//  1. the process and the command tree: main.go and signals.go (signals,
+//     exit codes), root.go, commands.go (the list of command families),
+//     help.go (the long help, prose in help/*.txt), help_topics.go (the
+//     file-format help topics);
 //  2. command families, each a builder with its flags and help, a call into
 //     the library and the printing of its answer:
 //     limits.go; demo_cmd.go; history_cmd.go; drift_cmd.go with
-//     drift_study.go and drift_baseline.go; run.go with run_screen.go; station_cmd.go (the
-//     family and the bench its check and study share) with
-//     station_study_cmd.go and station_status_cmd.go; bringup_cmd.go.
+//     drift_baseline.go and drift_study.go; run.go with run_screen.go and
+//     station_plant.go; station_cmd.go (check, study, status) with
+//     station_study_cmd.go; bringup_cmd.go (station validate and
+//     register-ref, limits versions); plant_cmd.go; line.go.
 //     A family uses its own files and floor 3, never another family;
 //  3. helpers that know no command: shiftlog.go (where the shift log is),
-//     progress.go (terminal bar), version.go, gpio.go (the GPIO opener),
-//     flags.go (flags shared by several families),
-//     testhook.go (the torture test's unit hold).
+//     terminal.go, version.go, gpio.go (the GPIO openers), runlog.go,
+//     flags.go (flags shared by several families), testhook.go (the torture tests' unit hold and scan marks).
 package main

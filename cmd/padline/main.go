@@ -6,14 +6,15 @@ import (
 	"fmt"
 	"io"
 	"os"
+
+	"padline/sequences/session"
 )
 
 func main() {
-	ctx, which, stop := signalContext(context.Background())
+	ctx, stop := signalContext(context.Background())
 	code := run(ctx, os.Args[1:], os.Stdin, os.Stdout, os.Stderr)
-	sig := which()
 	stop()
-	os.Exit(signalExit(sig, code, os.Stderr))
+	os.Exit(signalExit(ctx, code, os.Stderr))
 }
 
 // exitStationRefused is the exit status of a refused check and of a run
@@ -45,4 +46,12 @@ func exitCode(err error) int {
 // reportError prints err as one line on w, prefixed with the program name.
 func reportError(w io.Writer, err error) {
 	fmt.Fprintf(w, "padline: %v\n", err)
+}
+
+// refused gives a station the gate or its check refused exit status 3.
+func refused(err error) error {
+	if errors.Is(err, session.ErrNotReady) {
+		return &exitError{code: exitStationRefused, err: err}
+	}
+	return err
 }

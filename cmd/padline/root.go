@@ -31,23 +31,13 @@ func run(ctx context.Context, args []string, stdin io.Reader, stdout, stderr io.
 }
 
 func (a *app) rootCmd() *cobra.Command {
-	root := &cobra.Command{
-		Use:   "padline",
-		Short: "End-of-line tester for firmware-free capacitive touch switches",
-		Long: `padline tests capacitive touch switches built from plain CMOS logic.
-
-It puts known capacitances on each unit's sense pad through a relay-switched
-ladder of reference capacitors, watches the unit's latch output, finds the
-trip capacitance (the 50 % point) with a fast search, judges it against limits
-computed from the circuit's timing model, and records every serial's result
-in a SQLite shift log.
-
-Start with 'padline demo' to run a simulated shift without any hardware, and
-'padline limits --variant QM-205' to see where a good unit's trip point falls.`,
+	root := withHelp("padline", &cobra.Command{
+		Use:           "padline",
+		Short:         "End-of-line tester for firmware-free capacitive touch switches",
 		Version:       softwareVersion(),
 		SilenceUsage:  true,
 		SilenceErrors: true,
-	}
+	})
 	root.SetVersionTemplate("{{.Version}}\n")
 	for _, add := range a.subcommands() {
 		root.AddCommand(add())

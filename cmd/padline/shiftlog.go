@@ -1,9 +1,10 @@
 package main
 
 import (
+	"os"
+
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
-	"github.com/spf13/viper"
 
 	"padline/sequences/session"
 )
@@ -15,15 +16,10 @@ const defaultShiftLog = "padline-shift.db"
 // shiftLogPath resolves the shift log: --db, then $PADLINE_DB, then the
 // station file's shift_log, then the default in the working directory.
 func shiftLogPath(cmd *cobra.Command, stationRef string) (string, error) {
-	v := viper.New()
-	v.SetEnvPrefix("PADLINE")
-	if err := v.BindEnv("db"); err != nil {
-		return "", err
+	if f := cmd.Flags().Lookup("db"); f != nil && f.Value.String() != "" {
+		return f.Value.String(), nil
 	}
-	if err := v.BindPFlag("db", cmd.Flags().Lookup("db")); err != nil {
-		return "", err
-	}
-	if p := v.GetString("db"); p != "" {
+	if p := os.Getenv("PADLINE_DB"); p != "" {
 		return p, nil
 	}
 	if stationRef != "" {

@@ -2,11 +2,11 @@ package main
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"io"
 	"os"
 	"os/signal"
-	"sync"
 	"syscall"
 )
 
@@ -18,43 +18,36 @@ import (
 // again (systemd's Restart=on-failure counts a clean exit as a stop).
 var stopSignals = []os.Signal{os.Interrupt, syscall.SIGTERM, syscall.SIGHUP, syscall.SIGQUIT}
 
-// signalContext is a context ended by the first of stopSignals, and a
-// function that reports which signal ended it (nil: none).
-func signalContext(parent context.Context) (context.Context, func() os.Signal, func()) {
-	ctx, cancel := context.WithCancel(parent)
+// signalContext is a context ended by the first of stopSignals (its
+// cause is a stopSignal naming it), and a function that stops listening.
+func signalContext(parent context.Context) (context.Context, func()) {
+	ctx, cancel := context.WithCancelCause(parent)
 	ch := make(chan os.Signal, 1)
 	signal.Notify(ch, stopSignals...)
-	var mu sync.Mutex
-	var got os.Signal
-	done := make(chan struct{})
 	go func() {
 		select {
 		case s := <-ch:
-			mu.Lock()
-			got = s
-			mu.Unlock()
-			cancel()
-		case <-done:
+			cancel(stopSignal{s})
+		case <-ctx.Done():
 		}
 	}()
-	which := func() os.Signal {
-		mu.Lock()
-		defer mu.Unlock()
-		return got
-	}
-	stop := func() {
-		signal.Stop(ch)
-		close(done)
-		cancel()
-	}
-	return ctx, which, stop
+	return ctx, func() { signal.Stop(ch); cancel(nil) }
 }
 
-// signalExit is the exit status after sig stopped the program: code as it
-// was for an ordered stop, 128 + the signal's number for SIGHUP and
-// SIGQUIT, said on stderr.
-func signalExit(sig os.Signal, code int, stderr io.Writer) int {
-	s, ok := sig.(syscall.Signal)
+// stopSignal is the cause of a context a signal ended.
+type stopSignal struct{ os.Signal }
+
+func (s stopSignal) Error() string { return "stopped by " + s.Signal.String() }
+
+// signalExit is the exit status after ctx ended: code as it was for an
+// ordered stop, 128 + the signal's number for SIGHUP and SIGQUIT, said on
+// stderr.
+func signalExit(ctx context.Context, code int, stderr io.Writer) int {
+	var stop stopSignal
+	if !errors.As(context.Cause(ctx), &stop) {
+		return code
+	}
+	s, ok := stop.Signal.(syscall.Signal)
 	if !ok || (s != syscall.SIGHUP && s != syscall.SIGQUIT) {
 		return code
 	}

@@ -16,33 +16,10 @@ func (a *app) stationStudyCmd() *cobra.Command {
 		asJSON           bool
 		variant, station string
 	)
-	cmd := &cobra.Command{
+	cmd := withHelp("station-study", &cobra.Command{
 		Use:   "study --variant V --station FILE (--type1 [--n 25] | --grr [--parts 10 --trials 3 --appraisers 3])",
 		Short: "Type-1 or gauge R&R study of the station; stores it and the station's uncertainty U",
-		Long: `study measures the station as a measurement system, with the variant's own
-production plan (the same trip search every unit gets).
-
---type1  one reference unit (the first in the station file, or --ref) measured
-         n times (n ≥ 25): bias against its registered trip, repeatability sd,
-         Cg = 0.2·T/(6·s) and Cgk = (0.1·T − |bias|)/(3·s), T = the width of the
-         variant's test limits (both ≥ 1.33 wanted).
---grr    gauge R&R by the AIAG average-and-range method (MSA 4th ed.): parts ×
-         appraisers × trials; EV, AV, GRR, PV, TV, %GRR, ndc and the verdict
-         (< 10 % acceptable, 10–30 % conditional, > 30 % not). Parts are
-         different good units (--serials, or on the simulated line the first
-         good serials of the variant). On the simulated line an appraiser is a
-         separate round of loads: the sim has no operators, so AV measures
-         load-to-load reproducibility only.
-
-After either study the station's GUM budget is recomputed and stored: ladder
-resolution δ/√12 (δ = the smallest rung), rung calibration
-(cal_uncertainty_pf × √(rungs closed at the variant's nominal trip)), and
-repeatability from the latest type-1 study (else the latest GRR);
-U = 2·u_c. 'padline limits --station' and 'padline run' use U as the guard
-band from then on.`,
-		Example: `  padline station study --variant QM-205 --station demo-sim --db shift.db --type1
-  padline station study --variant QM-205 --station demo-sim --db shift.db --grr --json`,
-		Args: cobra.NoArgs,
+		Args:  cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if o.Type1 == grr {
 				return errors.New("station study: give exactly one of --type1 or --grr")
@@ -56,7 +33,7 @@ band from then on.`,
 			}
 			return a.stationStudy(cmd.Context(), variant, station, dbPath, o, asJSON)
 		},
-	}
+	})
 	f := cmd.Flags()
 	f.StringVar(&variant, "variant", "", "variant whose plan and test limits the study uses (required)")
 	f.StringVar(&station, "station", "", "station file: a .yaml file or a built-in name (required)")
