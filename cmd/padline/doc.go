@@ -24,6 +24,6 @@
 //     register-ref, limits versions); plant_cmd.go; line.go.
 //     A family uses its own files and floor 3, never another family;
 //  3. helpers that know no command: shiftlog.go (where the shift log is),
-//     terminal.go, version.go, gpio.go (the GPIO openers), runlog.go,
+//     terminal.go, version.go, gpio.go (the GPIO openers),
 //     flags.go (flags shared by several families), testhook.go (the torture tests' unit hold and scan marks).
 package main
