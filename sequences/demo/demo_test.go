@@ -15,26 +15,28 @@ import (
 	"padline/store"
 )
 
-// shiftOf runs a demo shift of QM-205 on the built-in simulated station.
-func shiftOf(t *testing.T, o Options) *Result {
+// shiftOf runs a demo shift of QM-205 on the built-in simulated station
+// and returns it with the first pass's units as they streamed.
+func shiftOf(t *testing.T, o Options) (*Result, []Unit) {
 	t.Helper()
 	o.Variant, o.Station = "QM-205", "demo-sim"
 	if o.Search == "" {
 		o.Search = "bracket"
 	}
+	var us []Unit
+	o.EachUnit = func(u Unit) error { us = append(us, u); return nil }
 	res, err := Run(context.Background(), o)
 	if err != nil {
 		t.Fatal(err)
 	}
-	return res
+	return res, us
 }
 
 // The shift's statistics are recomputed here from the units beside the
 // simulator's ground truth (fixture/sim's own physics, which never calls the
 // timing model): counts, defect outcomes, and the trip error of good units.
 func TestShiftAgainstGroundTruth(t *testing.T) {
-	res := shiftOf(t, Options{Units: 200, Seed: 11})
-	us := res.Passes[0]
+	res, us := shiftOf(t, Options{Units: 200, Seed: 11})
 	s := res.Summary().Passes[0]
 	if len(us) != 200 || s.Units != 200 {
 		t.Fatalf("%d units, summary %d", len(us), s.Units)
@@ -112,25 +114,26 @@ func TestShiftAgainstGroundTruth(t *testing.T) {
 
 // The same seed gives the same shift, unit by unit; another seed another.
 func TestShiftSameSeedSameShift(t *testing.T) {
-	enc := func(res *Result) string {
-		b, err := json.Marshal(res.Passes[0])
+	enc := func(_ *Result, us []Unit) string {
+		b, err := json.Marshal(us)
 		if err != nil {
 			t.Fatal(err)
 		}
 		return string(b)
 	}
-	a, b := shiftOf(t, Options{Units: 40, Seed: 5}), shiftOf(t, Options{Units: 40, Seed: 5})
-	if enc(a) != enc(b) {
+	_, a := shiftOf(t, Options{Units: 40, Seed: 5})
+	_, b := shiftOf(t, Options{Units: 40, Seed: 5})
+	if enc(nil, a) != enc(nil, b) {
 		t.Errorf("seed 5 twice gave two shifts")
 	}
-	c := shiftOf(t, Options{Units: 40, Seed: 6})
-	if enc(a) == enc(c) {
+	_, c := shiftOf(t, Options{Units: 40, Seed: 6})
+	if enc(nil, a) == enc(nil, c) {
 		t.Errorf("seeds 5 and 6 gave the same shift")
 	}
 	// Serials in test order, the same for every seed.
-	for i := range a.Passes[0] {
-		if a.Passes[0][i].Serial != c.Passes[0][i].Serial || (i > 0 && a.Passes[0][i].Serial <= a.Passes[0][i-1].Serial) {
-			t.Fatalf("serial %d: %s / %s", i, a.Passes[0][i].Serial, c.Passes[0][i].Serial)
+	for i := range a {
+		if a[i].Serial != c[i].Serial || (i > 0 && a[i].Serial <= a[i-1].Serial) {
+			t.Fatalf("serial %d: %s / %s", i, a[i].Serial, c[i].Serial)
 		}
 	}
 }
@@ -196,7 +199,7 @@ func TestShiftJSONLinesAndPasses(t *testing.T) {
 // summary names the shift.
 func TestShiftTextAndTemporaryLog(t *testing.T) {
 	var out bytes.Buffer
-	res := shiftOf(t, Options{Units: 5, Seed: 1})
+	res, _ := shiftOf(t, Options{Units: 5, Seed: 1})
 	if res.Kept {
 		t.Fatalf("a temporary log kept")
 	}
