@@ -11,17 +11,10 @@ import (
 func (a *app) stationStatusCmd() *cobra.Command {
 	var station string
 	var asJSON, checkLog bool
-	cmd := &cobra.Command{
+	cmd := withHelp("station-status", &cobra.Command{
 		Use:   "status --station FILE",
 		Short: "Last check, last studies, the station's uncertainty U and relay wear",
-		Long: `status shows, from the shift log, whether 'padline run' would test production
-units now (and why not), the last reference check, the last type-1 and gauge
-R&R studies, the station's uncertainty U with its components and where they
-came from, and each rung's relay operations against ladder.rated_operations,
-with a WARNING from relay_warn_fraction (default 0.8) of rated life.`,
-		Example: `  padline station status --station demo-sim --db shift.db
-  padline station status --station /etc/padline/station.yaml --json`,
-		Args: cobra.NoArgs,
+		Args:  cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			dbPath, err := shiftLogPath(cmd, station)
 			if err != nil {
@@ -29,7 +22,7 @@ with a WARNING from relay_warn_fraction (default 0.8) of rated life.`,
 			}
 			return a.stationStatus(cmd.Context(), station, dbPath, asJSON, checkLog)
 		},
-	}
+	})
 	f := cmd.Flags()
 	f.StringVar(&station, "station", "", "station file: a .yaml file or a built-in name (required)")
 	addShiftLogFlag(f)
