@@ -3,6 +3,7 @@ package session
 import (
 	"context"
 	"fmt"
+	"time"
 
 	"padline/fixture"
 	"padline/fixture/sim"
@@ -129,10 +130,23 @@ func OpenRig(ctx context.Context, variantRef, stationRef, shiftLog string, o Rig
 	return NewRig(v, st, o)
 }
 
-// Halt opens every rung and removes unit power.
+// SafeHold is how long a GPIO rig keeps driving its safe state after Halt
+// before it returns, so that the lines are held Low (unit power off, every
+// rung open) for longer than any relay takes to open and than a watchdog or
+// test reading the lines needs to see it, before an exit releases them to
+// their pulls. Common practice, no source: a few relay release times and
+// several line-poll periods; it costs nothing a technician notices.
+const SafeHold = 20 * time.Millisecond
+
+// Halt opens every rung and removes unit power. On GPIO it then holds that
+// state for SafeHold (or the relay settling time, if longer) before it
+// returns, since a process that exits next releases its lines.
 func (r *Rig) Halt() error {
 	if err := r.Fixture.Halt(); err != nil {
 		return fmt.Errorf("halt fixture: %w", err)
+	}
+	if !r.Simulated() {
+		time.Sleep(max(SafeHold, r.PlanConfig.RelaySettle))
 	}
 	return nil
 }
