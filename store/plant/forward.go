@@ -271,6 +271,7 @@ func (f *Forwarder) batchSize() int {
 
 func (f *Forwarder) step(ctx context.Context) (int, error) {
 	size := f.batchSize()
+	cached := f.stOK && f.now().Sub(f.stRead) < stateEvery
 	st, err := f.state(ctx)
 	if err != nil {
 		return 0, err
@@ -288,6 +289,14 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 	f.pre = nil
 	if err != nil {
 		return 0, err
+	}
+	if len(runs) == size && cached {
+		// A full batch from the kept state, which knew of no backlog: runs
+		// were committed without being offered. Read the true backlog.
+		if st, err = f.Log.OutboxState(ctx); err != nil {
+			return 0, err
+		}
+		f.st, f.stRead = st, f.now()
 	}
 	if len(runs) == size {
 		// A full batch: more are waiting (a catch-up). Read the next batch
