@@ -15,3 +15,21 @@ func (db *DB) QueryRowForTest(ctx context.Context, q string, destAndArgs ...any)
 	}
 	return db.pool.QueryRow(ctx, q, args...).Scan(dest...)
 }
+
+// BackendPIDsForTest returns the process ids of the server backends whose
+// application_name is app (the benchmark's CPU accounting).
+func (db *DB) BackendPIDsForTest(ctx context.Context, app string) ([]int64, error) {
+	rows, err := db.pool.Query(ctx, `SELECT pid::bigint FROM pg_stat_activity WHERE application_name = $1`, app)
+	if err != nil {
+		return nil, err
+	}
+	var out []int64
+	for rows.Next() {
+		var pid int64
+		if err := rows.Scan(&pid); err != nil {
+			return nil, err
+		}
+		out = append(out, pid)
+	}
+	return out, rows.Err()
+}
