@@ -58,6 +58,7 @@ func (a *app) run(ctx context.Context, o runOptions) (err error) {
 	opts.Software, opts.GPIO, opts.PanelGPIO = softwareVersion(), openGPIO, openPanelGPIO
 	opts.WaitForCheck = o.screen != "" // the technician runs a due check from the page
 	opts.AfterStep = holdHook()        // nil unless the torture test asks (testhook.go)
+	opts.PlantURL, opts.Warn = o.plantURL, a.stderr
 	var sc session.Scanner
 	if o.serial != "" {
 		line := o.serial

@@ -48,10 +48,20 @@ type Forwarding struct {
 	wg     sync.WaitGroup
 }
 
+// ForwardOptions tune StartForwarding.
+type ForwardOptions struct {
+	// Every is the least time between two batches while the forwarder
+	// keeps up (0: 1 s; negative: a batch per committed run; see
+	// plant.Forwarder.Every).
+	Every time.Duration
+	// OnBatch, when set, is called on the forwarder's goroutine after each
+	// batch lands (benchmarks wait on it).
+	OnBatch func(plant.Result)
+}
+
 // StartForwarding starts forwarding db, station st's shift log, to the
-// plant store at url ("": nil, nil), a batch every at most (0: 1 s;
-// negative: a batch per committed run; see plant.Forwarder.Every).
-func StartForwarding(ctx context.Context, db *store.DB, st *Station, url string, every time.Duration) (*Forwarding, error) {
+// plant store at url ("": nil, nil).
+func StartForwarding(ctx context.Context, db *store.DB, st *Station, url string, o ForwardOptions) (*Forwarding, error) {
 	if url == "" {
 		return nil, nil
 	}
@@ -61,13 +71,24 @@ func StartForwarding(ctx context.Context, db *store.DB, st *Station, url string,
 	}
 	fctx, cancel := context.WithCancel(context.WithoutCancel(ctx))
 	fw := &Forwarding{p: p, cancel: cancel,
-		f: &plant.Forwarder{Log: db, Plant: p, Station: st.Name, Profile: PlantProfile(st), Every: every}}
+		f: &plant.Forwarder{Log: db, Plant: p, Station: st.Name, Profile: PlantProfile(st), Every: o.Every, OnBatch: o.OnBatch}}
 	fw.wg.Add(1)
 	go func() {
 		defer fw.wg.Done()
 		_ = fw.f.Run(fctx)
 	}()
 	return fw, nil
+}
+
+// forwardLog starts forwarding station st's shift log db to
+// PlantURL(flag, st); a plant store that cannot be opened is reported on
+// warn (nil: not at all) and never stops the station. nil: no forwarding.
+func forwardLog(ctx context.Context, db *store.DB, st *Station, flag string, warn io.Writer) *Forwarding {
+	fw, err := StartForwarding(ctx, db, st, PlantURL(flag, st), ForwardOptions{})
+	if err != nil && warn != nil {
+		fmt.Fprintln(warn, err)
+	}
+	return fw
 }
 
 // Kick wakes the forwarder: a run was committed. It never blocks.
@@ -107,10 +128,7 @@ func (fw *Forwarding) Stop() {
 // the function that stops it. A plant store that cannot be opened is
 // reported on warn and never stops the station. Call it before Run.
 func (s *Session) Forward(ctx context.Context, flag string, warn io.Writer) (stop func()) {
-	fw, err := StartForwarding(ctx, s.db, s.rig.Station, PlantURL(flag, s.rig.Station), 0)
-	if err != nil {
-		fmt.Fprintln(warn, err)
-	}
+	fw := forwardLog(ctx, s.db, s.rig.Station, flag, warn)
 	if fw == nil {
 		return func() {}
 	}

@@ -90,7 +90,7 @@ func BenchmarkUnitForwarding(b *testing.B) {
 					b.Fatal(err)
 				}
 				p.Close()
-				if fw, err = session.StartForwarding(ctx, db, st, url, c.every); err != nil {
+				if fw, err = session.StartForwarding(ctx, db, st, url, session.ForwardOptions{Every: c.every}); err != nil {
 					b.Fatal(err)
 				}
 				defer fw.Stop()

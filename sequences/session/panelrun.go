@@ -86,15 +86,20 @@ type PanelView interface {
 // RunPanel is the production loop of a panel station: each scanned line
 // is one panel ("LABEL [x:SITES]", or with sites.serials: scan every
 // site's label), tested in one closure with one run per site committed to
-// the shift log. The gate refuses as for one unit (an error wrapping
+// the shift log and forwarded to the plant store (Options.PlantURL) as a
+// single unit's are. The gate refuses as for one unit (an error wrapping
 // ErrNotReady). Options' Variant, Station, ShiftLog, Operator, Lot,
-// Strategy, Software, PanelGPIO and LidTimeout are used.
+// Strategy, Software, PanelGPIO, LidTimeout, PlantURL and Warn are used.
 func RunPanel(ctx context.Context, o Options, sc Scanner, view PanelView) (err error) {
 	b, err := OpenPanelBench(ctx, o.Variant, o.Station, o.ShiftLog, RigOptions{Strategy: o.Strategy, PanelGPIO: o.PanelGPIO})
 	if err != nil {
 		return err
 	}
 	defer func() { err = errors.Join(err, b.Close(ctx)) }()
+	// Plant forwarding: a goroutine of its own, handed every site's
+	// committed run; stopped (its last batch sent) before the log closes.
+	fw := forwardLog(ctx, b.DB, b.Station, o.PlantURL, o.Warn)
+	defer fw.Stop()
 	now := o.Now
 	if now == nil {
 		now = time.Now
@@ -140,6 +145,13 @@ func RunPanel(ctx context.Context, o Options, sc Scanner, view PanelView) (err e
 			return err
 		}
 		oc, terr := b.TestPanel(ctx, b.DB, tmpl, label, serials, xout, now)
+		if oc != nil {
+			for i, id := range oc.IDs {
+				if id != 0 {
+					fw.Committed(id, *oc.Runs[i])
+				}
+			}
+		}
 		if b.Sim != nil {
 			b.Sim.Unload()
 		}

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"strings"
 	"sync"
@@ -47,6 +48,13 @@ type Options struct {
 	InputEndIsError bool
 	// Now is the wall clock (default time.Now); tests inject one.
 	Now func() time.Time
+	// PlantURL is --plant-url: RunPanel forwards every committed run to
+	// the plant store PlantURL(PlantURL, station) ("" everywhere: not at
+	// all); a single-unit Session forwards through Forward instead.
+	PlantURL string
+	// Warn receives what RunPanel reports without stopping (a plant store
+	// that cannot be opened); nil discards it.
+	Warn io.Writer
 	// AfterStep, when not nil, runs on the unit's goroutine after each
 	// plan step's KindStepFinished, before the next step: the unit waits
 	// while it runs. ctx is the unit's (it ends when the session is
