@@ -6,7 +6,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"slices"
 	"strconv"
 	"time"
 
@@ -107,11 +106,14 @@ func (db *DB) ensureMonths(ctx context.Context, runs []*store.Entry) error {
 	return nil
 }
 
-// Put stores a batch in one transaction. Rows already stored are skipped
-// (a replayed batch changes nothing). When the database refuses a row, the
-// batch is stored again row by row, each under a savepoint: the refused
-// rows are reported in Result.Refused and the rest lands. Any other error
-// (the server unreachable, an unregistered station) stores nothing.
+// Put stores a batch in one transaction: its runs and measurements go to
+// staging tables by COPY and move on in one statement (see moveSQL). Rows
+// already stored are skipped (a replayed batch changes nothing). When the
+// database refuses a row, the batch is stored again with each part under a
+// savepoint, the runs halved until each refused run stands alone: the
+// refused rows are reported in Result.Refused and the rest lands. Any
+// other error (the server unreachable, an unregistered station) stores
+// nothing.
 func (db *DB) Put(ctx context.Context, b *Batch) (Result, error) {
 	if err := db.ensureMonths(ctx, b.Runs); err != nil {
 		return Result{}, fmt.Errorf("put batch of %s: %w", b.Station, err)
@@ -194,61 +196,90 @@ func (db *DB) putIn(ctx context.Context, tx pgx.Tx, b *Batch, oneByOne bool, x *
 		return res, err
 	}
 	res.Offset = time.Duration(x.offset)
-	if !oneByOne {
-		n, dup, err := db.putRuns(ctx, tx, b.Runs, x)
-		if err != nil {
-			return res, err
+	if err := stageRuns(ctx, tx, b.Runs, x); err != nil {
+		return res, err
+	}
+	// try runs f under a savepoint (one-by-one mode only): a row error
+	// rolls back to it and is returned, anything else fails the batch.
+	try := func(f func() error) error {
+		if !oneByOne {
+			return f()
 		}
-		res.Landed, res.Duplicates, res.RunsLanded = n, dup, n
-		n, dup, err = db.putTrust(ctx, tx, b, b.Checks, b.Studies, x)
-		if err != nil {
-			return res, err
+		if _, err := tx.Exec(ctx, "SAVEPOINT row"); err != nil {
+			return err
 		}
-		res.Landed, res.Duplicates = res.Landed+n, res.Duplicates+dup
-	} else {
-		try := func(kind string, id int64, f func() (int, int, error)) error {
-			if _, err := tx.Exec(ctx, "SAVEPOINT row"); err != nil {
-				return err
-			}
-			n, dup, err := f()
-			if err != nil {
-				if !rowError(err) {
-					return err
-				}
+		if err := f(); err != nil {
+			if rowError(err) {
 				if _, err2 := tx.Exec(ctx, "ROLLBACK TO SAVEPOINT row"); err2 != nil {
 					return err2
 				}
-				res.Refused = append(res.Refused, store.Refusal{Kind: kind, LocalID: id, Reason: err.Error()})
-				return nil
 			}
-			res.Landed, res.Duplicates = res.Landed+n, res.Duplicates+dup
-			_, err = tx.Exec(ctx, "RELEASE SAVEPOINT row")
 			return err
 		}
-		for _, r := range b.Runs {
-			if err := try("run", r.ID, func() (int, int, error) {
-				n, dup, err := db.putRuns(ctx, tx, []*store.Entry{r}, x)
-				if err == nil {
-					res.RunsLanded += n
-				}
-				return n, dup, err
-			}); err != nil {
-				return res, err
-			}
+		_, err := tx.Exec(ctx, "RELEASE SAVEPOINT row")
+		return err
+	}
+	// Move the staged runs [lo, hi): all at once; in one-by-one mode a
+	// range the database refuses is halved until the refused runs stand
+	// alone, so k bad runs in n cost about 2·k·log2(n) statements.
+	var move func(lo, hi int) error
+	move = func(lo, hi int) error {
+		var landed int
+		err := try(func() error {
+			var err error
+			landed, err = moveRuns(ctx, tx, lo, hi, x)
+			return err
+		})
+		switch {
+		case err == nil:
+			res.Landed, res.Duplicates, res.RunsLanded = res.Landed+landed, res.Duplicates+hi-lo-landed, res.RunsLanded+landed
+			return nil
+		case !oneByOne || !rowError(err):
+			return err
+		case hi-lo == 1:
+			res.Refused = append(res.Refused, store.Refusal{Kind: "run", LocalID: b.Runs[lo].ID, Reason: err.Error()})
+			return nil
 		}
-		for _, c := range b.Checks {
-			if err := try("check", c.ID, func() (int, int, error) {
-				return db.putTrust(ctx, tx, b, []store.StationCheck{c}, nil, x)
-			}); err != nil {
-				return res, err
-			}
+		mid := lo + (hi-lo)/2
+		if err := move(lo, mid); err != nil {
+			return err
 		}
-		for _, s := range b.Studies {
-			if err := try("study", s.ID, func() (int, int, error) {
-				return db.putTrust(ctx, tx, b, nil, []store.Study{s}, x)
-			}); err != nil {
-				return res, err
+		return move(mid, hi)
+	}
+	if len(b.Runs) > 0 {
+		if err := move(0, len(b.Runs)); err != nil {
+			return res, err
+		}
+	}
+	trust := func(kind string, id int64, f func() (int, int, error)) error {
+		var n, dup int
+		err := try(func() error {
+			var err error
+			n, dup, err = f()
+			return err
+		})
+		if err != nil {
+			if !oneByOne || !rowError(err) {
+				return err
 			}
+			res.Refused = append(res.Refused, store.Refusal{Kind: kind, LocalID: id, Reason: err.Error()})
+			return nil
+		}
+		res.Landed, res.Duplicates = res.Landed+n, res.Duplicates+dup
+		return nil
+	}
+	for _, c := range b.Checks {
+		if err := trust("check", c.ID, func() (int, int, error) {
+			return db.putTrust(ctx, tx, b, []store.StationCheck{c}, nil, x)
+		}); err != nil {
+			return res, err
+		}
+	}
+	for _, s := range b.Studies {
+		if err := trust("study", s.ID, func() (int, int, error) {
+			return db.putTrust(ctx, tx, b, nil, []store.Study{s}, x)
+		}); err != nil {
+			return res, err
 		}
 	}
 	if err := db.putRelays(ctx, tx, b, x); err != nil {
@@ -488,146 +519,122 @@ func nullT(t time.Time) *int64 {
 	return &ns
 }
 
-// putRuns inserts runs and, for those newly stored, their measurements.
-func (db *DB) putRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *ids) (landed, dup int, err error) {
-	if len(runs) == 0 {
-		return 0, 0, nil
-	}
-	n := len(runs)
-	var (
-		local                      = make([]int64, n)
-		station, variant, cfg, fix = make([]*int32, n), make([]*int32, n), make([]*int32, n), make([]*int32, n)
-		serial, op, lot, sw        = make([]string, n), make([]string, n), make([]string, n), make([]string, n)
-		verdict, code              = make([]string, n), make([]string, n)
-		driver, fault, site        = make([]string, n), make([]string, n), make([]string, n)
-		started                    = make([]*int64, n)
-		finished, at               = make([]int64, n), make([]int64, n)
-		trip                       = make([]*float64, n)
-	)
-	byID := make(map[int64]*store.Entry, n)
-	for i, r := range runs {
-		byID[r.ID] = r
-		local[i] = r.ID
-		station[i] = idOrNil(x.stations, r.Station)
-		variant[i] = idOrNil(x.variants, r.Variant)
-		cfg[i] = idOrNil(x.configs, [2]string{r.Variant, r.ConfigHash})
-		fix[i] = idOrNil(x.fixtures, r.Fixture)
-		serial[i], op[i], lot[i], sw[i] = r.Serial, r.Operator, r.Lot, r.Software
-		verdict[i], code[i] = string(r.Verdict), string(r.FailCode)
-		driver[i], fault[i] = r.Driver, r.Fault
-		if r.Site > 0 {
-			site[i] = strconv.Itoa(r.Site)
-		}
-		started[i] = nullT(r.Started)
-		finished[i] = r.Finished.UnixNano()
-		at[i] = finished[i] + x.offset
-		trip[i] = nullF(r.TripPF)
-	}
-	var rows pgx.Rows
+// The staging tables: a batch's runs and measurements go in by COPY (the
+// fast way in: PostgreSQL manual, "Populating a Database", 14.4.2), then
+// move to runs and measurements with INSERT … SELECT, which applies the
+// row-level policies (COPY into a table with row-level security is refused
+// for a role they bind) and skips runs the plant already has (ON CONFLICT
+// DO NOTHING on the run's key). They are the session's own and lose their
+// rows when the batch's transaction ends, committed or not.
+const stagingSQL = `CREATE TEMP TABLE IF NOT EXISTS plant_runs_in (
+	i int, local_id bigint, station_id int, serial text, variant_id int, config_id int, fixture_id int,
+	operator text, lot text, software text, started bigint, finished bigint, at bigint,
+	verdict text, fail_code text, trip_pf float8, driver text, fault text, site text) ON COMMIT DELETE ROWS;
+CREATE TEMP TABLE IF NOT EXISTS plant_measurements_in (
+	local_id bigint, seq int, quantity_id int, value float8, low float8, high float8, verdict text) ON COMMIT DELETE ROWS`
 
-	if n <= smallBatch {
-		rows, err = tx.Query(ctx, `INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-			operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
-			SELECT $1, u.local, u.station, u.serial, u.variant, u.cfg, u.fix, u.op, u.lot, u.sw, u.started, u.finished, u.at,
-				$2, u.verdict, u.code, u.trip, u.driver, u.fault, u.site
-			FROM unnest($3::bigint[], $4::int[], $5::text[], $6::int[], $7::int[], $8::int[], $9::text[], $10::text[],
-				$11::text[], $12::bigint[], $13::bigint[], $14::bigint[], $15::text[], $16::text[], $17::float8[], $18::text[], $19::text[], $20::text[])
-				AS u(local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault, site)
-			ON CONFLICT DO NOTHING RETURNING local_id`,
-			x.log, x.now, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault, site)
-	} else {
-		rows, err = db.copyRuns(ctx, tx, x, local, station, serial, variant, cfg, fix, op, lot, sw, started, finished, at, verdict, code, trip, driver, fault, site)
+var (
+	runsInCols = []string{"i", "local_id", "station_id", "serial", "variant_id", "config_id", "fixture_id",
+		"operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf", "driver", "fault", "site"}
+	measInCols = []string{"local_id", "seq", "quantity_id", "value", "low", "high", "verdict"}
+)
+
+// stageRuns copies runs, in batch order (column i), and their measurements
+// into the staging tables.
+func stageRuns(ctx context.Context, tx pgx.Tx, runs []*store.Entry, x *ids) error {
+	if len(runs) == 0 {
+		return nil
 	}
-	if err != nil {
-		return 0, 0, err
+	if _, err := tx.Exec(ctx, stagingSQL); err != nil {
+		return fmt.Errorf("staging tables: %w", err)
 	}
-	var fresh []int64
-	var id int64
-	if _, err := pgx.ForEachRow(rows, []any{&id}, func() error { fresh = append(fresh, id); return nil }); err != nil {
-		return 0, 0, err
+	if _, err := tx.CopyFrom(ctx, pgx.Identifier{"plant_runs_in"}, runsInCols, &runSource{runs: runs, x: x, i: -1}); err != nil {
+		return fmt.Errorf("copy runs: %w", err)
 	}
-	if n > smallBatch {
-		if _, err := tx.Exec(ctx, `TRUNCATE runs_in`); err != nil {
-			return 0, 0, err
-		}
+	if _, err := tx.CopyFrom(ctx, pgx.Identifier{"plant_measurements_in"}, measInCols, &measSource{runs: runs, x: x, i: -1}); err != nil {
+		return fmt.Errorf("copy measurements: %w", err)
 	}
-	var (
-		fSerial, fLot, fSite, fVerdict []string
-		fAt, fLocal                    []int64
-		fLog, fSt, fVa, fFx            []int32
-	)
-	deref := func(p *int32) int32 {
-		if p == nil {
-			return 0
-		}
-		return *p
+	return nil
+}
+
+// runSource feeds runs to COPY, one row each.
+type runSource struct {
+	runs []*store.Entry
+	x    *ids
+	i    int
+	row  [19]any
+}
+
+func (s *runSource) Next() bool { s.i++; return s.i < len(s.runs) }
+func (s *runSource) Err() error { return nil }
+func (s *runSource) Values() ([]any, error) {
+	r, x := s.runs[s.i], s.x
+	site := ""
+	if r.Site > 0 {
+		site = strconv.Itoa(r.Site)
 	}
-	for i, r := range runs {
-		if !slices.Contains(fresh, r.ID) || r.Verdict == sequences.StationFault {
-			continue
-		}
-		fSerial, fAt, fLog, fLocal = append(fSerial, r.Serial), append(fAt, at[i]), append(fLog, x.log), append(fLocal, r.ID)
-		fSt, fVa, fFx = append(fSt, deref(station[i])), append(fVa, deref(variant[i])), append(fFx, deref(fix[i]))
-		fLot, fSite, fVerdict = append(fLot, r.Lot), append(fSite, site[i]), append(fVerdict, string(r.Verdict))
+	fin := r.Finished.UnixNano()
+	s.row = [19]any{int32(s.i), r.ID, idOrNil(x.stations, r.Station), r.Serial, idOrNil(x.variants, r.Variant),
+		idOrNil(x.configs, [2]string{r.Variant, r.ConfigHash}), idOrNil(x.fixtures, r.Fixture),
+		r.Operator, r.Lot, r.Software, nullT(r.Started), fin, fin + x.offset,
+		string(r.Verdict), string(r.FailCode), nullF(r.TripPF), r.Driver, r.Fault, site}
+	return s.row[:], nil
+}
+
+// measSource feeds the runs' measurements to COPY, one row each.
+type measSource struct {
+	runs []*store.Entry
+	x    *ids
+	i, j int // run, measurement
+	row  [7]any
+}
+
+func (s *measSource) Next() bool {
+	s.j++
+	for s.i < 0 || s.i < len(s.runs) && s.j >= len(s.runs[s.i].Measurements) {
+		s.i, s.j = s.i+1, 0
 	}
-	if len(fSerial) > 0 {
-		if _, err := tx.Exec(ctx, `SELECT plant_note_first($1, $2, $3, $4, $5, $6, $7, $8, $9, $10)`,
-			fSerial, fAt, fLog, fLocal, fSt, fVa, fFx, fLot, fSite, fVerdict); err != nil {
-			return 0, 0, err
-		}
+	return s.i < len(s.runs)
+}
+func (s *measSource) Err() error { return nil }
+func (s *measSource) Values() ([]any, error) {
+	r := s.runs[s.i]
+	m := r.Measurements[s.j]
+	s.row = [7]any{r.ID, int32(s.j), idOrNil(s.x.quantities, [3]string{string(m.Step), string(m.Name), m.Unit}),
+		nullF(m.Value), nullF(m.Low), nullF(m.High), string(m.Verdict)}
+	return s.row[:], nil
+}
+
+// moveSQL moves the staged runs with i in [$3, $4) in one statement: the
+// runs the plant does not have yet (ON CONFLICT DO NOTHING: a replayed run
+// is skipped), the measurements of exactly those runs, and those runs
+// (station faults aside) offered to plant_note_first as their serials'
+// first verdicts. It returns how many runs it stored.
+const moveSQL = `WITH ins AS (
+	INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
+		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
+	SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
+		started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault, site
+	FROM plant_runs_in WHERE i >= $3 AND i < $4 ORDER BY i
+	ON CONFLICT DO NOTHING
+	RETURNING local_id, station_id, serial, variant_id, fixture_id, lot, site, finished, at, verdict),
+meas AS (
+	INSERT INTO measurements (log_id, local_id, finished, seq, station_id, quantity_id, value, low, high, verdict)
+	SELECT $1, m.local_id, ins.finished, m.seq, ins.station_id, m.quantity_id, m.value, m.low, m.high, m.verdict
+	FROM plant_measurements_in m JOIN ins ON ins.local_id = m.local_id),
+first AS (
+	SELECT plant_note_first(array_agg(serial), array_agg(at), array_agg($1::int), array_agg(local_id),
+		array_agg(station_id), array_agg(variant_id), array_agg(fixture_id), array_agg(lot), array_agg(site), array_agg(verdict))
+	FROM ins WHERE verdict <> $5)
+SELECT (SELECT count(*) FROM ins), (SELECT count(*) FROM first)`
+
+// moveRuns moves the staged runs [lo, hi) and returns how many were new.
+func moveRuns(ctx context.Context, tx pgx.Tx, lo, hi int, x *ids) (int, error) {
+	var landed, noted int64
+	if err := tx.QueryRow(ctx, moveSQL, x.log, x.now, lo, hi, string(sequences.StationFault)).Scan(&landed, &noted); err != nil {
+		return 0, err
 	}
-	var (
-		mLocal, mFin         []int64
-		mSeq, mStation, mQty []int32
-		mVal, mLow, mHigh    []*float64
-		mVerdict             []string
-	)
-	for _, id := range fresh {
-		r := byID[id]
-		for i, m := range r.Measurements {
-			mLocal = append(mLocal, id)
-			mFin = append(mFin, r.Finished.UnixNano())
-			mSeq = append(mSeq, int32(i))
-			s := idOrNil(x.stations, r.Station)
-			var sv int32
-			if s != nil {
-				sv = *s
-			}
-			mStation = append(mStation, sv)
-			mQty = append(mQty, x.quantities[[3]string{string(m.Step), string(m.Name), m.Unit}])
-			mVal, mLow, mHigh = append(mVal, nullF(m.Value)), append(mLow, nullF(m.Low)), append(mHigh, nullF(m.High))
-			mVerdict = append(mVerdict, string(m.Verdict))
-		}
-	}
-	if len(mLocal) > 0 && len(mLocal) <= 4*smallBatch {
-		if _, err := tx.Exec(ctx, `INSERT INTO measurements (log_id, local_id, finished, seq, station_id, quantity_id, value, low, high, verdict)
-			SELECT $1, * FROM unnest($2::bigint[], $3::bigint[], $4::int[], $5::int[], $6::int[], $7::float8[], $8::float8[], $9::float8[], $10::text[])`,
-			x.log, mLocal, mFin, mSeq, mStation, mQty, mVal, mLow, mHigh, mVerdict); err != nil {
-			return 0, 0, err
-		}
-	} else if len(mLocal) > 0 {
-		// COPY into a temporary table, then one INSERT: COPY is the fast
-		// way in, and the INSERT applies the row-level policies, which
-		// COPY into the table itself does not support. The runs are new in
-		// this transaction, so none of their measurements is stored yet.
-		if _, err := tx.Exec(ctx, `CREATE TEMP TABLE IF NOT EXISTS measurements_in (
-			log_id int, local_id bigint, finished bigint, seq int, station_id int, quantity_id int,
-			value float8, low float8, high float8, verdict text) ON COMMIT DELETE ROWS`); err != nil {
-			return 0, 0, err
-		}
-		rows := make([][]any, len(mLocal))
-		for i := range mLocal {
-			rows[i] = []any{x.log, mLocal[i], mFin[i], mSeq[i], mStation[i], mQty[i], mVal[i], mLow[i], mHigh[i], mVerdict[i]}
-		}
-		cols := []string{"log_id", "local_id", "finished", "seq", "station_id", "quantity_id", "value", "low", "high", "verdict"}
-		if _, err := tx.CopyFrom(ctx, pgx.Identifier{"measurements_in"}, cols, pgx.CopyFromRows(rows)); err != nil {
-			return 0, 0, err
-		}
-		if _, err := tx.Exec(ctx, `INSERT INTO measurements SELECT * FROM measurements_in; TRUNCATE measurements_in`); err != nil {
-			return 0, 0, err
-		}
-	}
-	return len(fresh), n - len(fresh), nil
+	return int(landed), nil
 }
 
 // putTrust inserts station checks and studies.
@@ -681,41 +688,4 @@ func (db *DB) putRelays(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error 
 		return fmt.Errorf("relay wear: %w", err)
 	}
 	return nil
-}
-
-// smallBatch is the most rows written with one INSERT from arrays; larger
-// batches go through COPY into a temporary table, which is faster per row
-// but costs more round trips.
-const smallBatch = 64
-
-// copyRuns inserts many runs through COPY into a temporary table and one
-// INSERT … ON CONFLICT DO NOTHING (which applies the row-level policies and
-// skips runs the plant already has); it returns the new runs' local ids.
-func (db *DB) copyRuns(ctx context.Context, tx pgx.Tx, x *ids, local []int64, station []*int32, serial []string,
-	variant, cfg, fix []*int32, op, lot, sw []string, started []*int64, finished, at []int64,
-	verdict, code []string, trip []*float64, driver, fault, site []string) (pgx.Rows, error) {
-	n := len(local)
-	if _, err := tx.Exec(ctx, `CREATE TEMP TABLE IF NOT EXISTS runs_in (
-		local_id bigint, station_id int, serial text, variant_id int, config_id int, fixture_id int,
-		operator text, lot text, software text, started bigint, finished bigint, at bigint,
-		verdict text, fail_code text, trip_pf float8, driver text, fault text, site text) ON COMMIT DELETE ROWS`); err != nil {
-		return nil, err
-	}
-	in := make([][]any, n)
-	for i := range n {
-		in[i] = []any{local[i], station[i], serial[i], variant[i], cfg[i], fix[i], op[i], lot[i], sw[i],
-			started[i], finished[i], at[i], verdict[i], code[i], trip[i], driver[i], fault[i], site[i]}
-	}
-	if _, err := tx.CopyFrom(ctx, pgx.Identifier{"runs_in"}, []string{"local_id", "station_id", "serial", "variant_id",
-		"config_id", "fixture_id", "operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf",
-		"driver", "fault", "site"},
-		pgx.CopyFromRows(in)); err != nil {
-		return nil, err
-	}
-	return tx.Query(ctx, `WITH ins AS (INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
-		SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-			started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault, site FROM runs_in
-		ON CONFLICT DO NOTHING RETURNING local_id)
-		SELECT local_id FROM ins`, x.log, x.now)
 }
