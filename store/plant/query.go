@@ -2,6 +2,7 @@ package plant
 
 import (
 	"context"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"iter"
@@ -198,80 +199,141 @@ func (db *DB) TripValues(ctx context.Context, f store.Filter, last int) ([]store
 }
 
 func (db *DB) tripSeries(ctx context.Context, f store.Filter, last int, full bool) ([]store.TripPoint, error) {
+	var out []store.TripPoint
+	if last > 0 {
+		out = make([]store.TripPoint, 0, min(last, 1<<20))
+	}
+	err := db.scanTrips(ctx, f, last, full, func(p store.TripPoint) bool {
+		out = append(out, p)
+		return true
+	})
+	if err != nil {
+		return nil, err
+	}
+	if last == 0 {
+		return out, nil
+	}
+	// With last, the points were read newest first: put them in time order.
+	for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
+		out[i], out[j] = out[j], out[i]
+	}
+	return out, nil
+}
+
+// scanTrips calls fn with each trip point matching f, oldest first, or
+// with the last points newest first when last > 0, until fn returns false.
+// A long series streams: nothing is kept per point, the strings of a point
+// are shared with the points before it where they are equal, and the
+// numbers are decoded from PostgreSQL's binary format as they arrive
+// (rows.Scan costs several times more per value; it stays the way when
+// the connection asks for text results, e.g. the simple protocol).
+func (db *DB) scanTrips(ctx context.Context, f store.Filter, last int, groups bool, fn func(store.TripPoint) bool) error {
 	cond, args := where(f)
-	names := map[string]map[int32]string{}
-	if full {
-		for _, t := range []string{"stations", "fixtures"} {
-			m, err := db.names(ctx, t, "name")
-			if err != nil {
-				return nil, fmt.Errorf("plant trip series: %w", err)
-			}
-			names[t] = m
+	var stations, fixtures, lines map[int32]string
+	if groups {
+		var err error
+		if stations, err = db.names(ctx, "stations", "name"); err != nil {
+			return fmt.Errorf("plant trip series: %w", err)
 		}
-		m, err := db.names(ctx, "stations", "line")
-		if err != nil {
-			return nil, fmt.Errorf("plant trip series: %w", err)
+		if fixtures, err = db.names(ctx, "fixtures", "name"); err != nil {
+			return fmt.Errorf("plant trip series: %w", err)
 		}
-		names["lines"] = m
+		if lines, err = db.names(ctx, "stations", "line"); err != nil {
+			return fmt.Errorf("plant trip series: %w", err)
+		}
 	}
 	cols := "r.local_id, r.at, r.trip_pf"
-	if full {
+	if groups {
 		cols += ", r.station_id, r.fixture_id, r.lot, r.verdict, r.site"
 	}
-	q := `SELECT ` + cols + ` FROM runs r WHERE ` + cond + ` AND r.trip_pf IS NOT NULL
-ORDER BY r.at DESC, r.log_id DESC, r.local_id DESC`
+	order := "r.at, r.log_id, r.local_id"
+	if last > 0 {
+		order = "r.at DESC, r.log_id DESC, r.local_id DESC"
+	}
+	q := `SELECT ` + cols + ` FROM runs r WHERE ` + cond + ` AND r.trip_pf IS NOT NULL ORDER BY ` + order
 	if last > 0 {
 		args = append(args, last)
 		q += " LIMIT $" + strconv.Itoa(len(args))
 	}
 	rows, err := db.pool.Query(ctx, q, args...)
 	if err != nil {
-		return nil, fmt.Errorf("plant trip series: %w", err)
+		return fmt.Errorf("plant trip series: %w", err)
 	}
 	defer rows.Close()
-	var out []store.TripPoint
-	if last > 0 {
-		out = make([]store.TripPoint, 0, min(last, 1<<20))
+	fast := true
+	for i, fd := range rows.FieldDescriptions() {
+		// The numbers must come in binary (pgx asks for it on a prepared
+		// statement); the text columns read the same in either format.
+		if i < 5 && fd.Format != pgx.BinaryFormatCode {
+			fast = false
+		}
 	}
 	var (
-		id, at                  int64
-		trip                    float64
-		sid, fid                int32
-		lot, verdict, site      string
-		lastLot, lastV, lastSit string
+		p                store.TripPoint
+		sid, fid         int32 = -1, -1
+		lot, verdict, st string
+		id, at           int64
+		trip             float64
+		sidN, fidN       int32
+		lb, vb, sb       []byte
+		sl, sv, ss       string
+		slow             []any
 	)
-	dst := []any{&id, &at, &trip}
-	if full {
-		dst = append(dst, &sid, &fid, &lot, &verdict, &site)
+	if !fast {
+		slow = []any{&id, &at, &trip}
+		if groups {
+			slow = append(slow, &sidN, &fidN, &sl, &sv, &ss)
+		}
 	}
 	for rows.Next() {
-		if err := rows.Scan(dst...); err != nil {
-			return nil, fmt.Errorf("plant trip series: %w", err)
+		if fast {
+			v := rows.RawValues()
+			ok := len(v[0]) == 8 && len(v[1]) == 8 && len(v[2]) == 8 && (!groups || len(v[3]) == 4 && len(v[4]) == 4)
+			if !ok {
+				return fmt.Errorf("plant trip series: a row of %d columns that is not (bigint, bigint, float8[, int, int, text…])", len(v))
+			}
+			id, at = int64(binary.BigEndian.Uint64(v[0])), int64(binary.BigEndian.Uint64(v[1]))
+			trip = math.Float64frombits(binary.BigEndian.Uint64(v[2]))
+			if groups {
+				sidN, fidN = int32(binary.BigEndian.Uint32(v[3])), int32(binary.BigEndian.Uint32(v[4]))
+				lb, vb, sb = v[5], v[6], v[7]
+			}
+		} else {
+			if err := rows.Scan(slow...); err != nil {
+				return fmt.Errorf("plant trip series: %w", err)
+			}
+			lb, vb, sb = []byte(sl), []byte(sv), []byte(ss)
 		}
-		p := store.TripPoint{RunID: id, Finished: time.Unix(0, at).UTC(), TripPF: trip}
-		if full {
-			if lot != lastLot {
-				lastLot = lot
+		p.RunID, p.Finished, p.TripPF = id, time.Unix(0, at).UTC(), trip
+		if groups {
+			if sidN != sid {
+				sid, p.Station, p.Line = sidN, stations[sidN], lines[sidN]
 			}
-			if verdict != lastV {
-				lastV = verdict
+			if fidN != fid {
+				fid, p.Fixture = fidN, fixtures[fidN]
 			}
-			if site != lastSit {
-				lastSit = site
+			// string(b) in a comparison does not allocate.
+			if string(lb) != lot {
+				lot = string(lb)
+				p.Lot = lot
 			}
-			p.Station, p.Fixture, p.Line = names["stations"][sid], names["fixtures"][fid], names["lines"][sid]
-			p.Lot, p.Verdict = lastLot, sequences.Verdict(lastV)
-			p.Site, _ = strconv.Atoi(lastSit)
+			if string(vb) != verdict {
+				verdict = string(vb)
+				p.Verdict = sequences.Verdict(verdict)
+			}
+			if string(sb) != st {
+				st = string(sb)
+				p.Site, _ = strconv.Atoi(st)
+			}
 		}
-		out = append(out, p)
+		if !fn(p) {
+			return nil
+		}
 	}
 	if err := rows.Err(); err != nil {
-		return nil, fmt.Errorf("plant trip series: %w", err)
+		return fmt.Errorf("plant trip series: %w", err)
 	}
-	for i, j := 0, len(out)-1; i < j; i, j = i+1, j-1 {
-		out[i], out[j] = out[j], out[i]
-	}
-	return out, nil
+	return nil
 }
 
 // names reads one column of a small (id, …) table whole.
@@ -488,15 +550,8 @@ func (db *DB) Drivers(ctx context.Context) ([]string, error) {
 // store.DB.Trips does; groups asks for station, fixture, lot, line and site.
 func (db *DB) Trips(ctx context.Context, f store.Filter, groups bool) iter.Seq2[store.TripPoint, error] {
 	return func(yield func(store.TripPoint, error) bool) {
-		pts, err := db.tripSeries(ctx, f, 0, groups)
-		if err != nil {
+		if err := db.scanTrips(ctx, f, 0, groups, func(p store.TripPoint) bool { return yield(p, nil) }); err != nil {
 			yield(store.TripPoint{}, err)
-			return
-		}
-		for _, p := range pts {
-			if !yield(p, nil) {
-				return
-			}
 		}
 	}
 }
@@ -553,6 +608,66 @@ func (db *DB) CountsBy(ctx context.Context, f store.Filter, by string) (map[stri
 	})
 	if err != nil {
 		return nil, fmt.Errorf("plant counts by %s: %w", by, err)
+	}
+	return out, nil
+}
+
+// RunsAt finds, for each pair of ids[i] (a run's id in its station's shift
+// log) and ats[i] (its plant time), the run of variant with that id at
+// exactly that time: the one Runs lists first over that nanosecond, as
+// store.DB.RunAt finds it, without its measurements; the zero Entry where
+// there is none. It is one query for every pair: drift names the runs
+// behind its alarms this way, not with one Runs per alarm.
+func (db *DB) RunsAt(ctx context.Context, variant string, ids []int64, ats []time.Time) ([]store.Entry, error) {
+	if len(ids) != len(ats) {
+		return nil, fmt.Errorf("plant runs at: %d ids for %d times", len(ids), len(ats))
+	}
+	out := make([]store.Entry, len(ids))
+	if len(ids) == 0 {
+		return out, nil
+	}
+	ns := make([]int64, len(ats))
+	for i, t := range ats {
+		ns[i] = t.UnixNano()
+	}
+	// Each pair is one probe of the (variant_id, at, log_id, local_id)
+	// index per month partition; the lowest log_id is the first in plant
+	// order (at, log_id, local_id) among runs sharing id and time.
+	rows, err := db.pool.Query(ctx, `SELECT k.i, r.local_id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot,
+		r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault
+		FROM unnest($1::bigint[], $2::bigint[]) WITH ORDINALITY AS k(id, at, i)
+		CROSS JOIN LATERAL (SELECT * FROM runs r WHERE r.variant_id = (SELECT id FROM variants WHERE name = $3)
+			AND r.at = k.at AND r.local_id = k.id ORDER BY r.log_id LIMIT 1) r
+		JOIN variants v ON v.id = r.variant_id
+		JOIN configs c ON c.id = r.config_id
+		JOIN stations s ON s.id = r.station_id
+		JOIN fixtures fx ON fx.id = r.fixture_id`, ids, ns, variant)
+	if err != nil {
+		return nil, fmt.Errorf("plant runs of %s by id and time: %w", variant, err)
+	}
+	var (
+		i       int64
+		e       store.Entry
+		started *int64
+		fin     int64
+		verdict string
+		trip    *float64
+	)
+	_, err = pgx.ForEachRow(rows, []any{&i, &e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture, &e.Operator,
+		&e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault}, func() error {
+		if i < 1 || i > int64(len(out)) {
+			return fmt.Errorf("row for pair %d of %d", i, len(out))
+		}
+		x := e
+		if started != nil {
+			x.Started = time.Unix(0, *started).UTC()
+		}
+		x.Finished, x.Verdict, x.TripPF = time.Unix(0, fin).UTC(), sequences.Verdict(verdict), orNaN(trip)
+		out[i-1] = x
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("plant runs of %s by id and time: %w", variant, err)
 	}
 	return out, nil
 }
