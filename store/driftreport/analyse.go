@@ -5,9 +5,11 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"runtime"
 	"slices"
 	"strconv"
 	"strings"
+	"sync"
 	"time"
 
 	"padline/sequences"
@@ -140,6 +142,7 @@ type driftSeries struct {
 	times  []int64 // Unix ns
 	filter store.Filter
 	counts <-chan countsResult // the group's verdict totals, computed alongside
+	runs   *pointRuns          // the runs behind the points the report names, when looked up at once
 }
 
 // countsResult is one Counts answer.
@@ -320,9 +323,14 @@ func Run(ctx context.Context, o Options) (Report, error) {
 			return rep, err
 		}
 	}
+	ans, err := analyseGroups(groups, o, low, high)
+	if err != nil {
+		return rep, fmt.Errorf("drift: %w", err)
+	}
+	findRuns(ctx, db, o, groups, ans)
 	var drawn []chart.Group
-	for _, g := range groups {
-		gr, charts, err := driftGroup(ctx, db, o, g, low, high)
+	for i, g := range groups {
+		gr, charts, err := driftGroup(ctx, db, o, g, ans[i])
 		if err != nil {
 			if o.By != "" {
 				err = fmt.Errorf("%s %s: %w", o.By, g.key, err)
@@ -628,40 +636,119 @@ func ShiftOf(t time.Time) (name string, start, end time.Time) {
 	return day.Format("2006-01-02") + " " + which, start, start.Add(8 * time.Hour)
 }
 
-// driftGroup analyses one group and assembles its report.
-// With charts asked for, it returns the group's charts with every point,
-// for drawing.
-func driftGroup(ctx context.Context, db runLog, o Options, g driftSeries, low, high float64) (GroupReport, []drift.Chart, error) {
-	gr := GroupReport{Key: g.key, Points: len(g.x)}
-	if len(g.times) > 0 {
-		gr.First, gr.Last = tptr(g.times[0]), tptr(g.times[len(g.times)-1])
-	}
-	an, err := analyseSeries(g.x, o, low, high, o.SVG != "" || o.PNG != "")
-	if err != nil {
-		return gr, nil, err
-	}
-	w := an.window
-	if len(g.times) > 0 {
-		w.From, w.To = time.Unix(0, g.times[w.Start]), time.Unix(0, g.times[w.End-1])
-	}
-	gr.Baseline = Window{FirstUnit: w.Start + 1, LastUnit: w.End, Points: w.Len(), Text: w.String()}
-	if len(g.times) > 0 {
-		gr.Baseline.From, gr.Baseline.To = &w.From, &w.To
-	}
-	describeBaseline(ctx, db, o, g, &gr.Baseline)
-	defer func() {
-		if o.approved != nil {
-			for i := range gr.Charts {
-				gr.Charts[i].Method = fmt.Sprintf("approved baseline %q", o.approved.Name)
+// analyseGroups analyses every group's series, several at once (each
+// group's analysis is its own; the report keeps the groups' order). The
+// error is the first group's in that order, named by its key under --by.
+func analyseGroups(groups []driftSeries, o Options, low, high float64) ([]driftAnalysis, error) {
+	ans := make([]driftAnalysis, len(groups))
+	errs := make([]error, len(groups))
+	next := make(chan int)
+	var wg sync.WaitGroup
+	for range min(runtime.GOMAXPROCS(0), len(groups)) {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			for i := range next {
+				ans[i], errs[i] = analyseSeries(groups[i].x, o, low, high, o.SVG != "" || o.PNG != "")
 			}
-		}
-	}()
-	for _, c := range an.sum.Charts {
-		gr.Charts = append(gr.Charts, chartSummary(c))
+		}()
 	}
-	gr.AlarmCount = an.sum.Alarms
-	gr.Verdict = driftVerdict(ctx, db, o, g, an)
-	gr.Alarms = groupAlarms(ctx, db, g, an.sum.First, o.Alarms)
+	for i := range groups {
+		next <- i
+	}
+	close(next)
+	wg.Wait()
+	for i, err := range errs {
+		if err != nil {
+			if o.By != "" {
+				err = fmt.Errorf("%s %s: %w", o.By, groups[i].key, err)
+			}
+			return nil, err
+		}
+	}
+	return ans, nil
+}
+
+// runFinder finds many runs by id and time in one query (the plant store,
+// where one query per run costs a round trip and a plan over every month
+// partition).
+type runFinder interface {
+	RunsAt(ctx context.Context, variant string, ids []int64, ats []time.Time) ([]store.Entry, error)
+}
+
+// pointRuns are the runs behind the points a group's report names (its
+// baseline's ends, the change and the signal, the alarms listed), found
+// for every group at once by findRuns.
+type pointRuns struct {
+	known  map[int]store.Entry // by the point's index in the series
+	record bool                // note the points asked for instead of looking them up
+	asked  []int
+}
+
+// runOf is the run behind point i of g: found beforehand (findRuns), else
+// looked up by its id and time; the zero Entry when it cannot be found.
+func (g driftSeries) runOf(ctx context.Context, db runLog, i int) store.Entry {
+	if r := g.runs; r != nil {
+		if e, ok := r.known[i]; ok {
+			return e
+		}
+		if r.record {
+			r.asked = append(r.asked, i)
+			return store.Entry{}
+		}
+	}
+	return runAt(ctx, db, g.filter.Variant, g.runIDs[i], time.Unix(0, g.times[i]))
+}
+
+// findRuns finds, in one query, the runs every group's report will name:
+// it assembles each report once noting the points asked for (nameRuns,
+// the same code that names them afterwards), then looks them all up. On
+// an error each point is looked up on its own later, as without findRuns.
+func findRuns(ctx context.Context, db runLog, o Options, groups []driftSeries, ans []driftAnalysis) {
+	rf, ok := db.(runFinder)
+	if !ok {
+		return
+	}
+	var (
+		ids   []int64
+		ats   []time.Time
+		owner [][2]int // group, point
+	)
+	for gi := range groups {
+		g := &groups[gi]
+		if len(g.runIDs) == 0 {
+			continue
+		}
+		g.runs = &pointRuns{known: map[int]store.Entry{}, record: true}
+		var scratch GroupReport
+		nameRuns(ctx, db, o, *g, ans[gi], &scratch)
+		g.runs.record = false
+		for _, i := range g.runs.asked {
+			if _, dup := g.runs.known[i]; dup {
+				continue
+			}
+			g.runs.known[i] = store.Entry{}
+			ids, ats, owner = append(ids, g.runIDs[i]), append(ats, time.Unix(0, g.times[i])), append(owner, [2]int{gi, i})
+		}
+		clear(g.runs.known)
+	}
+	if len(ids) == 0 {
+		return
+	}
+	es, err := rf.RunsAt(ctx, groups[0].filter.Variant, ids, ats)
+	if err != nil {
+		return
+	}
+	for k, e := range es {
+		groups[owner[k][0]].runs.known[owner[k][1]] = e
+	}
+}
+
+// driftGroup assembles one group's report from its analysis. With charts
+// asked for, it returns the group's charts with every point, for drawing.
+func driftGroup(ctx context.Context, db runLog, o Options, g driftSeries, an driftAnalysis) (GroupReport, []drift.Chart, error) {
+	gr := GroupReport{Key: g.key, Points: len(g.x)}
+	nameRuns(ctx, db, o, g, an, &gr)
 	if an.cap != nil {
 		c := an.cap
 		gr.Capability = &Capability{N: c.N, Low: Num(c.Low), High: Num(c.High), Mean: Num(c.Mean),
@@ -674,6 +761,33 @@ func driftGroup(ctx context.Context, db runLog, o Options, g driftSeries, low, h
 		return gr, nil, err
 	}
 	return gr, an.charts, nil
+}
+
+// nameRuns fills the parts of a group's report that name runs: the
+// baseline, the charts' summaries, the verdict and the alarms listed.
+func nameRuns(ctx context.Context, db runLog, o Options, g driftSeries, an driftAnalysis, gr *GroupReport) {
+	if len(g.times) > 0 {
+		gr.First, gr.Last = tptr(g.times[0]), tptr(g.times[len(g.times)-1])
+	}
+	w := an.window
+	if len(g.times) > 0 {
+		w.From, w.To = time.Unix(0, g.times[w.Start]), time.Unix(0, g.times[w.End-1])
+	}
+	gr.Baseline = Window{FirstUnit: w.Start + 1, LastUnit: w.End, Points: w.Len(), Text: w.String()}
+	if len(g.times) > 0 {
+		gr.Baseline.From, gr.Baseline.To = &w.From, &w.To
+	}
+	describeBaseline(ctx, db, o, g, &gr.Baseline)
+	for _, c := range an.sum.Charts {
+		cs := chartSummary(c)
+		if o.approved != nil {
+			cs.Method = fmt.Sprintf("approved baseline %q", o.approved.Name)
+		}
+		gr.Charts = append(gr.Charts, cs)
+	}
+	gr.AlarmCount = an.sum.Alarms
+	gr.Verdict = driftVerdict(ctx, db, o, g, an)
+	gr.Alarms = groupAlarms(ctx, db, g, an.sum.First, o.Alarms)
 }
 
 // groupAlarms lists the earliest limit alarms (0 = all) with each one's
@@ -691,14 +805,14 @@ func groupAlarms(ctx context.Context, db runLog, g driftSeries, alarms []drift.A
 			aj.OnsetUnit = al.Onset + 1
 			if al.Onset < len(g.runIDs) && db != nil {
 				at := time.Unix(0, g.times[al.Onset])
-				aj.Note = OnsetNote(al, PointName(runAt(ctx, db, g.filter.Variant, g.runIDs[al.Onset], at).Serial, at, false))
+				aj.Note = OnsetNote(al, PointName(g.runOf(ctx, db, al.Onset).Serial, at, false))
 			}
 		}
 		if al.Unit < len(g.runIDs) {
 			aj.RunID = g.runIDs[al.Unit]
 			aj.Time = tptr(g.times[al.Unit])
 			if db != nil {
-				aj.Serial = runAt(ctx, db, g.filter.Variant, aj.RunID, *aj.Time).Serial
+				aj.Serial = g.runOf(ctx, db, al.Unit).Serial
 			}
 		}
 		out = append(out, aj)

@@ -74,8 +74,8 @@ func describeBaseline(ctx context.Context, db runLog, o Options, g driftSeries, 
 		w.Kind = "provisional"
 		if db != nil && w.LastUnit > 0 && w.LastUnit <= len(g.runIDs) {
 			a, b := w.FirstUnit-1, w.LastUnit-1
-			sa := runAt(ctx, db, g.filter.Variant, g.runIDs[a], time.Unix(0, g.times[a])).Serial
-			sb := runAt(ctx, db, g.filter.Variant, g.runIDs[b], time.Unix(0, g.times[b])).Serial
+			sa := g.runOf(ctx, db, a).Serial
+			sb := g.runOf(ctx, db, b).Serial
 			w.Text = fmt.Sprintf("the first %d points, %s … %s", w.Points, dashIfEmpty(sa), dashIfEmpty(sb))
 		}
 	}

@@ -29,7 +29,7 @@ func chartGroup(ctx context.Context, db runLog, o Options, g driftSeries, charts
 	cg := chart.Group{Name: g.key, Charts: charts, Times: g.times}
 	if db != nil && len(g.runIDs) > 0 {
 		cg.Serial = func(i int) string {
-			return runAt(ctx, db, g.filter.Variant, g.runIDs[i], time.Unix(0, g.times[i])).Serial
+			return g.runOf(ctx, db, i).Serial
 		}
 	}
 	if o.approved != nil {

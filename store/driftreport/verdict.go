@@ -47,7 +47,7 @@ func driftVerdict(ctx context.Context, db runLog, o Options, g driftSeries, an d
 		if i >= 0 && i < len(g.times) {
 			p.Time = tptr(g.times[i])
 			if db != nil {
-				e = runAt(ctx, db, g.filter.Variant, g.runIDs[i], *p.Time)
+				e = g.runOf(ctx, db, i)
 				p.Serial = e.Serial
 			}
 		}
