@@ -6,6 +6,8 @@ import (
 	"encoding/json"
 	"fmt"
 	"time"
+
+	"padline/sequences"
 )
 
 // This file is the plant outbox (migration 0005): what the forwarder reads
@@ -66,20 +68,104 @@ func (db *DB) OutboxState(ctx context.Context) (Outbox, error) {
 
 // PendingRuns returns up to limit runs with an id above after, in id
 // order, each with its measurements; Entry.ID is the run's id in this log.
+// It reads the runs with one query and their measurements with another,
+// rather than one joined row per measurement that repeats the run's
+// columns: a catch-up reads thousands of runs a second. The two need no
+// common snapshot: a run and its measurements are committed together
+// (Writer.Record) and never changed after.
 func (db *DB) PendingRuns(ctx context.Context, after int64, limit int) ([]*Entry, error) {
-	stmt, err := db.prepared(ctx, fmt.Sprintf(runsSQL, "r.id IN (SELECT id FROM runs WHERE id > ? ORDER BY id LIMIT ?)", "r.id, m.seq"))
+	rs, err := db.prepared(ctx, pendingRunsSQL)
 	if err != nil {
 		return nil, fmt.Errorf("pending runs: %w", err)
 	}
+	ms, err := db.prepared(ctx, pendingMeasurementsSQL)
+	if err != nil {
+		return nil, fmt.Errorf("pending runs: %w", err)
+	}
+	rows, err := rs.QueryContext(ctx, after, limit)
+	if err != nil {
+		return nil, fmt.Errorf("pending runs: %w", err)
+	}
+	defer rows.Close()
 	var out []*Entry
-	for e, err := range db.runsRows(func() (*sql.Rows, error) { return stmt.QueryContext(ctx, after, limit) }) {
-		if err != nil {
+	for rows.Next() {
+		var (
+			e        Entry
+			started  sql.NullInt64
+			finished int64
+			verdict  string
+			trip     sql.NullFloat64
+			site     sql.NullInt64
+			panel    sql.NullString
+		)
+		if err := rows.Scan(&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
+			&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
+			&panel, &site); err != nil {
 			return nil, fmt.Errorf("pending runs: %w", err)
 		}
-		out = append(out, e)
+		if started.Valid {
+			e.Started = time.Unix(0, started.Int64).UTC()
+		}
+		e.Finished = time.Unix(0, finished).UTC()
+		e.Verdict = sequences.Verdict(verdict)
+		e.TripPF = orNaN(trip)
+		e.Panel, e.Site = panel.String, int(site.Int64)
+		out = append(out, &e)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("pending runs: %w", err)
+	}
+	if len(out) == 0 {
+		return nil, nil
+	}
+	mrows, err := ms.QueryContext(ctx, after, out[len(out)-1].ID)
+	if err != nil {
+		return nil, fmt.Errorf("pending runs: measurements: %w", err)
+	}
+	defer mrows.Close()
+	i := 0
+	for mrows.Next() {
+		var (
+			id                        int64
+			step, name, unit, verdict string
+			value, low, high          sql.NullFloat64
+		)
+		if err := mrows.Scan(&id, &step, &name, &unit, &value, &low, &high, &verdict); err != nil {
+			return nil, fmt.Errorf("pending runs: measurements: %w", err)
+		}
+		for i < len(out) && out[i].ID < id {
+			i++
+		}
+		if i == len(out) || out[i].ID != id {
+			return nil, fmt.Errorf("pending runs: measurement of run %d, which is not in the log", id)
+		}
+		out[i].Measurements = append(out[i].Measurements, sequences.Measurement{
+			Step: sequences.StepName(step), Name: sequences.Quantity(name), Unit: unit,
+			Value: orNaN(value), Low: orNaN(low), High: orNaN(high), Verdict: sequences.Verdict(verdict),
+		})
+	}
+	if err := mrows.Err(); err != nil {
+		return nil, fmt.Errorf("pending runs: measurements: %w", err)
 	}
 	return out, nil
 }
+
+const pendingRunsSQL = `
+SELECT r.id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault, r.panel, r.site
+FROM runs r
+CROSS JOIN variants v ON v.id = r.variant_id
+CROSS JOIN configs c ON c.id = r.config_id
+CROSS JOIN stations s ON s.id = r.station_id
+CROSS JOIN fixtures fx ON fx.id = r.fixture_id
+WHERE r.id > ? ORDER BY r.id LIMIT ?`
+
+// pendingMeasurementsSQL reads the measurements of the runs with ids in
+// (after, last], in run and recorded order.
+const pendingMeasurementsSQL = `
+SELECT m.run_id, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
+FROM measurements m CROSS JOIN quantities q ON q.id = m.quantity_id
+WHERE m.run_id > ? AND m.run_id <= ? ORDER BY m.run_id, m.seq`
 
 // PendingChecks returns up to limit station checks with an id above after.
 func (db *DB) PendingChecks(ctx context.Context, after int64, limit int) ([]StationCheck, error) {
