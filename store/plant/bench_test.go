@@ -2,6 +2,7 @@ package plant_test
 
 import (
 	"context"
+	"flag"
 	"fmt"
 	"io"
 	"os"
@@ -41,6 +42,10 @@ func BenchmarkCatchUp(b *testing.B) {
 
 const catchUpBacklog = 20_000
 
+// catchUpBatch sets the forwarder's batch size (0: its default), to
+// compare batch sizes: -catchup.batch 2000.
+var catchUpBatch = flag.Int("catchup.batch", 0, "BenchmarkCatchUp: runs per batch (0: the forwarder's default)")
+
 func benchCatchUp(b *testing.B, src string, asStation bool) {
 	const backlog = catchUpBacklog
 	ctx := context.Background()
@@ -64,7 +69,7 @@ func benchCatchUp(b *testing.B, src string, asStation bool) {
 		if err != nil {
 			b.Fatal(err)
 		}
-		f := &plant.Forwarder{Log: db, Plant: p, Station: "S1"} // default batches
+		f := &plant.Forwarder{Log: db, Plant: p, Station: "S1", BatchSize: *catchUpBatch}
 		srv0, ok0 := backendCPU(b, admin, app)
 		cli0 := selfCPU(b)
 		b.StartTimer()

@@ -27,10 +27,13 @@ type Forwarder struct {
 	// Profile is the station facts the line board shows (JSON object):
 	// check intervals and relay ratings from the station file.
 	Profile json.RawMessage
-	// BatchSize is the most runs per batch (default 5,000: a catch-up
-	// after an outage moved 2,328 runs/s in batches of 5,000 against 1,674
-	// in batches of 1,000, BenchmarkCatchUp; a batch of 5,000 runs with 4
-	// measurements each holds a few MB, twice with the next one read ahead).
+	// BatchSize is the most runs per batch (default 5,000). With batches
+	// staged by COPY, a catch-up costs about the same CPU per run in
+	// batches of 2,000 to 20,000 (BenchmarkCatchUp -catchup.batch N, as the
+	// station's role at load 13-16: 9,700-10,400 runs per CPU second of
+	// station and server together); 5,000 keeps a batch to a few MB (twice,
+	// with the next one read ahead) and bounds what a crash mid-batch
+	// sends again.
 	BatchSize int
 	// Poll is how often an idle forwarder looks for new runs (default
 	// 1 s); Kick wakes it at once.
