@@ -269,6 +269,14 @@ type Advance struct {
 // AdvanceOutbox commits a. A crash before it commits makes the forwarder
 // send the batch again; the plant store drops what it already has.
 func (db *DB) AdvanceOutbox(ctx context.Context, a Advance) error {
+	// Prepared once: preparing it with every batch was a fifth of the
+	// cursor's CPU time (BenchmarkUnitForwarding/every-unit, pprof).
+	up, err := db.prepared(ctx, `UPDATE plant_outbox SET
+		run_cursor = max(run_cursor, ?), check_cursor = max(check_cursor, ?), study_cursor = max(study_cursor, ?),
+		forwarded = forwarded + ?, last_time = ?, last_error = '' WHERE id = 1`)
+	if err != nil {
+		return fmt.Errorf("advance outbox: %w", err)
+	}
 	db.wmu.Lock()
 	defer db.wmu.Unlock()
 	tx, err := db.sql.BeginTx(ctx, nil)
@@ -276,10 +284,7 @@ func (db *DB) AdvanceOutbox(ctx context.Context, a Advance) error {
 		return fmt.Errorf("advance outbox: %w", err)
 	}
 	defer tx.Rollback()
-	if _, err := tx.ExecContext(ctx, `UPDATE plant_outbox SET
-		run_cursor = max(run_cursor, ?), check_cursor = max(check_cursor, ?), study_cursor = max(study_cursor, ?),
-		forwarded = forwarded + ?, last_time = ?, last_error = '' WHERE id = 1`,
-		a.Runs, a.Checks, a.Studies, a.Accepted, a.At.UnixNano()); err != nil {
+	if _, err := tx.StmtContext(ctx, up).ExecContext(ctx, a.Runs, a.Checks, a.Studies, a.Accepted, a.At.UnixNano()); err != nil {
 		return fmt.Errorf("advance outbox: %w", err)
 	}
 	for _, r := range a.Refused {
