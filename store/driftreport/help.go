@@ -56,7 +56,8 @@ The shift log is found as 'padline history' finds it: --db, $PADLINE_DB,
 the --station-file's shift_log, else ./padline-shift.db. --db
 postgres://… reads the plant store: every station's forwarded runs, ordered
 by the plant's clock; for one station's runs the numbers are that station's
-own log's.`
+own log's. There a serial's first unit verdict is its first on the station
+with --station-id or --by station, else its first in the plant.`
 
 // Example is the examples of `padline drift`.
 const Example = `  padline drift --variant QM-205

@@ -35,11 +35,18 @@ type BoardStation struct {
 	// LastUnit is the station's latest run (nil: none yet).
 	LastUnit *BoardUnit `json:"last_unit"`
 	// ShiftRuns and ShiftPass count unit verdicts (pass and fail) since
-	// the shift began; Yield is ShiftPass/ShiftRuns (NaN-free: 0 runs give
-	// a nil Yield).
-	ShiftRuns int64    `json:"shift_units"`
-	ShiftPass int64    `json:"shift_pass"`
-	Yield     *float64 `json:"shift_yield"`
+	// the shift began. ShiftFirst counts the serials whose first unit
+	// verdict on this station fell in the shift and ShiftFirstPass those
+	// of them that passed it, as the station's own screen counts its
+	// first-pass yield (a unit retested here after a fail elsewhere is a
+	// first test here: DEVELOPERS.md "Plant-wide first-pass yield"). Yield
+	// is the first-pass yield ShiftFirstPass/ShiftFirst (nil with no first
+	// test).
+	ShiftRuns      int64    `json:"shift_units"`
+	ShiftPass      int64    `json:"shift_pass"`
+	ShiftFirst     int64    `json:"shift_first_tests"`
+	ShiftFirstPass int64    `json:"shift_first_pass"`
+	Yield          *float64 `json:"shift_yield"`
 	// LastCheck is the latest shift-start check; CheckDue says why a new
 	// one is needed ("" when none is).
 	LastCheck *BoardCheck `json:"last_check"`
@@ -163,8 +170,13 @@ func (db *DB) boardStation(ctx context.Context, id int32, b *BoardStation, p Pro
 		FROM runs WHERE station_id = $1 AND at >= $2 AND at < $3`, id, shiftStart.UnixNano(), now.UnixNano()).Scan(&b.ShiftRuns, &b.ShiftPass); err != nil {
 		return err
 	}
-	if b.ShiftRuns > 0 {
-		y := float64(b.ShiftPass) / float64(b.ShiftRuns)
+	if err := db.pool.QueryRow(ctx, `SELECT count(*), count(*) FILTER (WHERE verdict = 'pass')
+		FROM serial_station_first WHERE station_id = $1 AND at >= $2 AND at < $3`, id, shiftStart.UnixNano(), now.UnixNano()).
+		Scan(&b.ShiftFirst, &b.ShiftFirstPass); err != nil {
+		return err
+	}
+	if b.ShiftFirst > 0 {
+		y := float64(b.ShiftFirstPass) / float64(b.ShiftFirst)
 		b.Yield = &y
 	}
 	var (

@@ -16,9 +16,11 @@
 // transaction each, under an advisory lock, with the version in the table
 // plant_schema. Runs and measurements are partitioned by calendar month
 // (UTC) of the station's finish time; partitions are created on demand by
-// plant_ensure_month. Each serial's first unit verdict is kept as runs
-// arrive (serial_first), for first-pass yield. A run is identified across the plant by its shift
-// log's uuid and its id in that log, so a replayed batch never duplicates.
+// plant_ensure_month. Each serial's first unit verdict in the plant
+// (serial_first) and on each station (serial_station_first) is kept as runs
+// arrive, for first-pass yield (DEVELOPERS.md "Plant-wide first-pass
+// yield"). A run is identified across the plant by its shift log's uuid
+// and its id in that log, so a replayed batch never duplicates.
 //
 // # Who may write what
 //

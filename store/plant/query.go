@@ -349,21 +349,47 @@ func (db *DB) names(ctx context.Context, table, col string) (map[int32]string, e
 	return m, err
 }
 
-// Counts returns the verdict totals of the runs matching f; first-pass
-// counts look at each serial's first unit verdict anywhere in the plant.
+// Counts returns the verdict totals of the runs matching f, and the
+// first-pass counts by the plant's first-verdict rule (firstTable).
 func (db *DB) Counts(ctx context.Context, f store.Filter) (store.Counts, error) {
 	cond, args := where(f)
-	// First-pass counts come from serial_first, which holds each serial's
-	// first run with the columns the filter reads (the same names as runs).
 	q := `SELECT a.*, b.* FROM
   (SELECT count(*), count(*) FILTER (WHERE r.verdict = 'pass'), count(*) FILTER (WHERE r.verdict = 'fail'),
           count(*) FILTER (WHERE r.verdict = 'station-fault') FROM runs r WHERE ` + cond + `) a,
-  (SELECT count(*), count(*) FILTER (WHERE r.verdict = 'pass') FROM serial_first r WHERE ` + cond + `) b`
+  (SELECT count(*), count(*) FILTER (WHERE r.verdict = 'pass') FROM ` + firstFrom(firstTable(f, "")) + ` WHERE ` + cond + `) b`
 	var c store.Counts
 	if err := db.pool.QueryRow(ctx, q, args...).Scan(&c.Runs, &c.Pass, &c.Fail, &c.StationFault, &c.FirstUnits, &c.FirstPass); err != nil {
 		return store.Counts{}, fmt.Errorf("plant counts: %w", err)
 	}
 	return c, nil
+}
+
+// firstTable is the table of first unit verdicts that first-pass yield is
+// counted from (DEVELOPERS.md "Plant-wide first-pass yield"). A station's
+// shift log counts a serial's first verdict in that log; on the plant a
+// serial may have been tested on several stations. When the filter names
+// a station or the groups are stations (drift --station-id or --by
+// station, the line board), the plant takes the serial's first verdict on
+// that station, serial_station_first, so each station's numbers are its
+// log's. Otherwise it takes the serial's first verdict anywhere in the
+// plant, serial_first: a unit failed on one station and retested on
+// another is one unit, counted once, by its first verdict, in the group
+// (fixture, lot, site, line) of its first test.
+func firstTable(f store.Filter, by string) string {
+	if f.Station != "" || by == "station" {
+		return "serial_station_first"
+	}
+	return "serial_first"
+}
+
+// firstFrom reads a table of first unit verdicts as runs r, so the runs'
+// filter applies to it. The table keeps no driver: a driver filter reads
+// the run's own (one probe of runs_serial per first verdict, made only when
+// the filter names a driver, as PostgreSQL evaluates the subquery only
+// where r.driver is used).
+func firstFrom(table string) string {
+	return `(SELECT t.*, (SELECT x.driver FROM runs x WHERE x.serial = t.serial AND x.at = t.at
+    AND x.log_id = t.log_id AND x.local_id = t.local_id LIMIT 1) AS driver FROM ` + table + ` t) r`
 }
 
 // ConfigHistory returns the configurations variant has had, in the order
@@ -559,7 +585,9 @@ func (db *DB) Trips(ctx context.Context, f store.Filter, groups bool) iter.Seq2[
 // CountsBy is Counts for every group of the runs matching f at once, by
 // station, fixture, lot, line or site: one grouped query instead of one
 // query per group. The key is the group's station, fixture, lot or line
-// name, or its site as text ("" for units tested alone).
+// name, or its site as text ("" for units tested alone). Each group's
+// first-pass counts follow Counts' rule for the group's filter
+// (firstTable).
 func (db *DB) CountsBy(ctx context.Context, f store.Filter, by string) (map[string]store.Counts, error) {
 	col := map[string]string{"station": "r.station_id::text", "line": "r.station_id::text", "fixture": "r.fixture_id::text",
 		"lot": "r.lot", "site": "r.site"}[by]
@@ -572,7 +600,7 @@ func (db *DB) CountsBy(ctx context.Context, f store.Filter, by string) (map[stri
           count(*) FILTER (WHERE r.verdict = 'fail') AS fail, count(*) FILTER (WHERE r.verdict = 'station-fault') AS sf
    FROM runs r WHERE ` + cond + ` GROUP BY 1) a
   LEFT JOIN (SELECT ` + col + ` AS g, count(*) AS n, count(*) FILTER (WHERE r.verdict = 'pass') AS pass
-   FROM serial_first r WHERE ` + cond + ` GROUP BY 1) b USING (g)`
+   FROM ` + firstFrom(firstTable(f, by)) + ` WHERE ` + cond + ` GROUP BY 1) b USING (g)`
 	rows, err := db.pool.Query(ctx, q, args...)
 	if err != nil {
 		return nil, fmt.Errorf("plant counts by %s: %w", by, err)

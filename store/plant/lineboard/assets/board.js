@@ -33,7 +33,7 @@ function render(b) {
     cell(tr, u ? u.verdict + (u.fail_code ? " " + u.fail_code : "") : "–", u && u.verdict !== "pass" ? "attn" : "ok");
     cell(tr, u && u.trip_pf != null ? u.trip_pf.toFixed(2) : "–");
     cell(tr, s.shift_yield == null ? "no units" :
-      (100 * s.shift_yield).toFixed(1) + " % of " + s.shift_units, s.shift_yield != null && s.shift_yield < 0.95 ? "attn" : "");
+      (100 * s.shift_yield).toFixed(1) + " % of " + s.shift_first_tests, s.shift_yield != null && s.shift_yield < 0.95 ? "attn" : "");
     cell(tr, s.check_due ? "DUE: " + s.check_due : "current", s.check_due ? "bad" : "ok");
     cell(tr, s.relays && s.relays.length ? (100 * s.max_wear_fraction).toFixed(1) + " % max" +
       (s.worn_rungs ? ", " + s.worn_rungs + " rung(s) worn" : "") : "–", s.worn_rungs ? "attn" : "");
