@@ -13,10 +13,9 @@ import (
 // driftPlantSameVerdict: 'padline drift' on the plant database gives,
 // for the runs a station forwarded, the verdict sentence and the alarms
 // (serial, time, chart, rule, in order) its own shift log gives: with the
-// provisional baseline, under --by station, and with the shift log's
-// approved baseline given to the plant store as --target/--sigma (the
-// plant store keeps no approved baselines; DEVELOPERS.md "Import rules":
-// drift reads either through one reader interface). db is a demo shift
+// provisional baseline, under --by station, and with a baseline approved
+// over the same window on each ('drift baseline set --db postgres://…';
+// DEVELOPERS.md "Approved baselines on the plant"). db is a demo shift
 // with a step whose change the demo put at changeSerial, forwarded to url
 // (TestPlantSameNumbersAsShiftLog, which skips without PostgreSQL and
 // fails then under PADLINE_REQUIRE_PARTS=1). It approves a baseline in db.
@@ -57,18 +56,24 @@ func driftPlantSameVerdict(t *testing.T, db, url, changeSerial string) {
 	}
 	same("by station", "drift", "--variant", "QM-205", "--by", "station")
 
-	// An approved baseline lives in the station's shift log; given to the
-	// plant store as target and σ, the verdict is the same.
+	// Each database keeps the baselines approved on it: approved over the
+	// same window on the shift log and on the plant store, the centre, σ
+	// and verdict are the same.
 	pts := driftJSON(t, "drift", "--db", db, "--variant", "QM-205")
 	first := pts.Groups[0].First.Format(time.RFC3339Nano)
-	mustCLI(t, "drift", "baseline", "set", "--db", db, "--variant", "QM-205", "--since", first, "--until", changeTime(t, rep), "--name", "before the step")
+	for _, on := range []string{db, url} {
+		mustCLI(t, "drift", "baseline", "set", "--db", on, "--variant", "QM-205", "--since", first, "--until", changeTime(t, rep), "--name", "before the step")
+	}
 	appr := driftJSON(t, "drift", "--db", db, "--variant", "QM-205")
 	b := appr.Groups[0].Baseline.Approved
 	if b == nil {
 		t.Fatalf("no approved baseline used: %+v", appr.Groups[0].Baseline)
 	}
 	a := appr.Verdict
-	p := driftJSON(t, "drift", "--db", url, "--variant", "QM-205", "--target", fmt.Sprint(b.Centre), "--sigma", fmt.Sprint(b.Sigma), "--baseline", "2")
+	p := driftJSON(t, "drift", "--db", url, "--variant", "QM-205")
+	if pb := p.Groups[0].Baseline.Approved; pb == nil || pb.Centre != b.Centre || pb.Sigma != b.Sigma || pb.N != b.N || pb.FirstSerial != b.FirstSerial || pb.LastSerial != b.LastSerial {
+		t.Errorf("approved baselines differ:\nshift log:   %+v\nplant store: %+v", b, pb)
+	}
 	if a == "" || a != p.Verdict {
 		t.Errorf("approved baseline: verdict\nshift log:   %s\nplant store: %s", a, p.Verdict)
 	}

@@ -313,7 +313,7 @@ func Run(ctx context.Context, o Options) (Report, error) {
 		return rep, err
 	}
 	rep.Limits = [2]Num{Num(low), Num(high)}
-	if err := useApprovedBaseline(ctx, shiftLogOf(db), &o, &rep); err != nil {
+	if err := useApprovedBaseline(ctx, db, &o, &rep); err != nil {
 		return rep, fmt.Errorf("drift: %w", err)
 	}
 	if db != nil {

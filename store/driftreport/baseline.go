@@ -14,6 +14,7 @@ import (
 	"padline/sequences/session"
 	"padline/store"
 	"padline/store/drift"
+	"padline/store/plant"
 )
 
 // BaselineJSON is a stored baseline in --json output.
@@ -43,14 +44,16 @@ func baselineText(b store.Baseline) string {
 		b.Name, b.Centre, b.Sigma, b.N, b.FirstSerial, b.LastSerial, fmtTime(b.Since), fmtTime(b.Until))
 }
 
-// useApprovedBaseline makes the variant's approved baseline the charts'
-// target and σ, unless --baseline, --target or --sigma was given or the
-// series is a CSV file.
-func useApprovedBaseline(ctx context.Context, db *store.DB, o *Options, rep *Report) error {
-	if db == nil || o.OwnBaseline || rep.Variant == "" {
+// useApprovedBaseline makes the variant's approved baseline in the log
+// read (the shift log's, or the plant store's) the charts' target and σ,
+// unless --baseline, --target or --sigma was given or the series is a CSV
+// file.
+func useApprovedBaseline(ctx context.Context, db runLog, o *Options, rep *Report) error {
+	bl, ok := db.(baselineLog)
+	if !ok || o.OwnBaseline || rep.Variant == "" {
 		return nil
 	}
-	b, err := db.LastBaseline(ctx, rep.Variant)
+	b, err := bl.LastBaseline(ctx, rep.Variant)
 	if errors.Is(err, store.ErrNotFound) {
 		return nil
 	}
@@ -130,11 +133,11 @@ func SetBaseline(ctx context.Context, r BaselineRequest, now time.Time) (store.B
 	case !r.LastApproved && (r.Since == "" || r.Until == ""):
 		return fail(errors.New("give --since T --until T (the window of in-control units to approve) or --last-approved"))
 	}
-	db, err := openShiftLog(r.DB)
+	db, closeLog, err := openBaselineLog(ctx, r.DB)
 	if err != nil {
 		return fail(err)
 	}
-	defer db.Close()
+	defer closeLog()
 	if v, _, err := session.VariantFor(ctx, db, r.Variant); err == nil {
 		r.Variant = v.Name
 	}
@@ -200,8 +203,8 @@ func SetBaseline(ctx context.Context, r BaselineRequest, now time.Time) (store.B
 	first, last := pts[0], pts[len(pts)-1]
 	b := store.Baseline{Variant: r.Variant, Name: r.Name, Centre: c.Location.Target, Sigma: c.Location.Sigma, N: len(x),
 		Method: "mean, MR̄/d2 of passed units' trip points", Since: first.Finished, Until: last.Finished,
-		FirstSerial: db.RunAt(ctx, r.Variant, first.RunID, first.Finished).Serial,
-		LastSerial:  db.RunAt(ctx, r.Variant, last.RunID, last.Finished).Serial,
+		FirstSerial: runAt(ctx, db, r.Variant, first.RunID, first.Finished).Serial,
+		LastSerial:  runAt(ctx, db, r.Variant, last.RunID, last.Finished).Serial,
 		ApprovedBy:  r.Approver, ApprovedAt: now}
 	if r.LastApproved {
 		b.Method += ", over the " + from
@@ -221,11 +224,11 @@ func ShowBaseline(ctx context.Context, path, variant string) (store.Baseline, er
 	if variant == "" {
 		return store.Baseline{}, errors.New("drift baseline show: give --variant V")
 	}
-	db, err := openShiftLog(path)
+	db, closeLog, err := openBaselineLog(ctx, path)
 	if err != nil {
 		return store.Baseline{}, fmt.Errorf("drift baseline show: %w", err)
 	}
-	defer db.Close()
+	defer closeLog()
 	b, err := db.LastBaseline(ctx, variant)
 	if err != nil {
 		return b, fmt.Errorf("drift baseline show: %w (set one with 'padline drift baseline set')", err)
@@ -246,8 +249,12 @@ func PrintBaseline(w io.Writer, b store.Baseline, asJSON bool) error {
 
 // lastApprovedLimits is the variant's limits version approved last (on
 // any station and fixture); ok is false when the log holds none.
-func lastApprovedLimits(ctx context.Context, db *store.DB, variant string) (store.LimitsVersion, bool, error) {
-	vs, err := db.LimitsVersions(ctx, "", "", variant, store.LimitsApproved)
+func lastApprovedLimits(ctx context.Context, db baselineLog, variant string) (store.LimitsVersion, bool, error) {
+	s, ok := db.(*store.DB)
+	if !ok {
+		return store.LimitsVersion{}, false, nil // the plant store keeps no limits versions
+	}
+	vs, err := s.LimitsVersions(ctx, "", "", variant, store.LimitsApproved)
 	if err != nil {
 		return store.LimitsVersion{}, false, err
 	}
@@ -260,10 +267,22 @@ func lastApprovedLimits(ctx context.Context, db *store.DB, variant string) (stor
 	return best, best.ID != 0, nil
 }
 
-// openShiftLog opens an existing shift log, never creating one.
-func openShiftLog(path string) (*store.DB, error) {
-	if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
-		return nil, fmt.Errorf("no shift log at %s (give --db PATH, set PADLINE_DB, or --station-file)", path)
+// openBaselineLog opens an existing shift log, never creating one, or the
+// plant store when path is a postgres:// URL.
+func openBaselineLog(ctx context.Context, path string) (baselineLog, func(), error) {
+	if plant.IsURL(path) {
+		p, err := plant.OpenMigrated(ctx, path)
+		if err != nil {
+			return nil, nil, err
+		}
+		return p, p.Close, nil
 	}
-	return store.Open(path)
+	if _, err := os.Stat(path); errors.Is(err, fs.ErrNotExist) {
+		return nil, nil, fmt.Errorf("no shift log at %s (give --db PATH or postgres://…, set PADLINE_DB, or --station-file)", path)
+	}
+	s, err := store.Open(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	return s, func() { s.Close() }, nil
 }

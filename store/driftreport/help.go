@@ -81,7 +81,14 @@ or --sigma is given.
 approved last (see 'padline limits pending'): its station and fixture, from
 its approval until now. A log without limits versions (the demo's) takes
 the window of the variant's most recently approved baseline record instead,
-approving what the log holds for it now (its name kept unless --name).`
+approving what the log holds for it now (its name kept unless --name).
+
+With --db postgres://… the baseline is computed over the plant's runs and
+stored in the plant store, where 'padline drift --db postgres://…' uses it
+(as the schema owner: station and reader roles may only read baselines).
+Baselines are not forwarded from stations; each database keeps the ones
+approved on it, and on the plant --last-approved takes the last approved
+baseline's window.`
 
 // BaselineExample is the examples of `padline drift baseline set`.
 const BaselineExample = `  padline drift baseline set --variant QM-205 --since "2026-11-30 06:00" --until "2026-11-30 14:00" --name "laminate A" --approved-by ana

@@ -68,14 +68,19 @@ func openLog(ctx context.Context, o *Options) (db runLog, close func(), err erro
 	return db, close, nil
 }
 
-// shiftLogOf is the station shift log behind db, nil for the plant store
-// (approved baselines live in the shift log only).
-func shiftLogOf(db runLog) *store.DB {
-	if s, ok := db.(*store.DB); ok {
-		return s
-	}
-	return nil
+// baselineLog is a log that keeps approved baselines: a station's shift
+// log or the plant store, each holding the baselines approved on it
+// (DEVELOPERS.md "Approved baselines on the plant").
+type baselineLog interface {
+	runLog
+	LastBaseline(ctx context.Context, variant string) (store.Baseline, error)
+	SetBaseline(ctx context.Context, b store.Baseline) (int64, error)
 }
+
+var (
+	_ baselineLog = (*store.DB)(nil)
+	_ baselineLog = (*plant.DB)(nil)
+)
 
 // runAt looks up one run (found by its finish time, an indexed range of
 // one nanosecond); the zero Entry when it cannot be found.
