@@ -3,6 +3,7 @@ package plant
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"math/rand/v2"
 	"slices"
@@ -397,7 +398,7 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 		b.Configs = append(b.Configs, c)
 	}
 	b.Sent = f.now()
-	res, err := f.Plant.Put(ctx, b)
+	res, err := f.put(ctx, b)
 	if err != nil {
 		for _, k := range cfgKeys {
 			delete(f.configs, k)
@@ -439,6 +440,55 @@ func (f *Forwarder) step(ctx context.Context) (int, error) {
 		f.OnBatch(res)
 	}
 	return len(runs) + len(checks) + len(studies), nil
+}
+
+// splitAt is the fewest runs a batch needs to be sent in two halves.
+const splitAt = 2000
+
+// put sends b. A catch-up batch (splitAt runs or more) goes as two halves,
+// each in a transaction of its own, at once on two connections: the plant
+// server moves both on two cores, and the station encodes one while the
+// server moves the other. The cursor advances only when both have landed:
+// a half that landed without the other is sent again with it and skipped
+// as stored (the run key), so every run still arrives exactly once.
+func (f *Forwarder) put(ctx context.Context, b *Batch) (Result, error) {
+	if len(b.Runs) < splitAt {
+		return f.Plant.Put(ctx, b)
+	}
+	h := len(b.Runs) / 2
+	first, second := *b, *b
+	first.Runs, second.Runs = b.Runs[:h], b.Runs[h:]
+	second.Checks, second.Studies, second.Relays = nil, nil, nil
+	var (
+		r2   Result
+		err2 error
+		done = make(chan struct{})
+	)
+	go func() {
+		defer close(done)
+		r2, err2 = f.Plant.Put(ctx, &second)
+	}()
+	r1, err1 := f.Plant.Put(ctx, &first)
+	<-done
+	if err := errors.Join(err1, err2); err != nil {
+		return Result{}, err
+	}
+	res := Result{Landed: r1.Landed + r2.Landed, Duplicates: r1.Duplicates + r2.Duplicates,
+		RunsLanded: r1.RunsLanded + r2.RunsLanded, Offset: r1.Offset}
+	// Refused runs in run order, then the first half's checks and studies.
+	for _, r := range [][]store.Refusal{r1.Refused, r2.Refused} {
+		for _, x := range r {
+			if x.Kind == "run" {
+				res.Refused = append(res.Refused, x)
+			}
+		}
+	}
+	for _, x := range r1.Refused {
+		if x.Kind != "run" {
+			res.Refused = append(res.Refused, x)
+		}
+	}
+	return res, nil
 }
 
 // Drain forwards until the outbox is empty or an error occurs.

@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"math"
+	"path/filepath"
 	"reflect"
 	"strings"
 	"sync"
@@ -402,4 +403,139 @@ func TestBackoff(t *testing.T) {
 		}
 	}
 	_ = math.Inf
+}
+
+// A catch-up batch goes as two halves in two transactions at once; as the
+// station's role, a forged run in the first half and a run with inverted
+// limits in the second are refused and reported in order, the rest lands
+// once with its measurements and first verdicts, whether a half landed
+// before (a half that committed without the other) or the whole batch is
+// sent again.
+func TestCatchUpHalvesExactlyOnce(t *testing.T) {
+	url, schema := newSchema(t, baseURL())
+	ctx := context.Background()
+	admin := openPlant(t, url)
+	role := schema + "_h"
+	register(t, admin, plant.Station{Name: "H1", Role: role}, plant.Station{Name: "H2"})
+	const n = 4200 // one default batch, sent as two halves of 2,100
+	path := tempLog(t, "halves")
+	start := time.Date(2026, 12, 1, 6, 0, 0, 0, time.UTC)
+	log := stationLog(t, path, "H1", 1000, start, 11)
+	hash := store.HashConfig([]byte("name: QM-205\n# demo variant of the tests\n"))
+	// Run 1,001 (first half) is forged under H2, run 4,200 (second half)
+	// has inverted limits.
+	forged := simRun("H2", "QM205-FORGED-H", hash, start.Add(time.Hour), 30, false, false)
+	bad := simRun("H1", "QM205-BADLIM-H", hash, start.Add(5*time.Hour), 30, false, false)
+	bad.Measurements[2].Low, bad.Measurements[2].High = 34, 25
+	forgedID, err := log.Record(ctx, forged)
+	if err != nil {
+		t.Fatal(err)
+	}
+	more := func(yield func(*sequences.Run) bool) {
+		for i := range n - 1002 {
+			fin := start.Add(time.Hour + time.Duration(i+1)*4*time.Second)
+			if !yield(simRun("H1", fmt.Sprintf("QM205-H1B-%06d", i), hash, fin, 29.5, i%37 == 5, i%101 == 7)) {
+				return
+			}
+		}
+	}
+	if _, err := log.Import(ctx, more, 500); err != nil {
+		t.Fatal(err)
+	}
+	badID, err := log.Record(ctx, bad)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if forgedID != 1001 || badID != n {
+		t.Fatalf("forged run %d, bad run %d: want 1001 and %d", forgedID, badID, n)
+	}
+	// A copy of the log as it is now, before anything is sent, to send it
+	// all again afterwards (a crash before the cursor moved).
+	log.Close()
+	replay := filepath.Join(t.TempDir(), "replay.db")
+	copyFile(t, path, replay)
+	if log, err = store.Open(path); err != nil {
+		t.Fatal(err)
+	}
+	defer log.Close()
+	p := openPlant(t, asRole(url, role))
+	// The second half of the log's runs lands on its own first, as when
+	// the other half's transaction failed.
+	o, _ := log.OutboxState(ctx)
+	all, err := log.PendingRuns(ctx, 0, n)
+	if err != nil || len(all) != n {
+		t.Fatalf("%d runs read: %v", len(all), err)
+	}
+	snap, _ := log.Snapshot(ctx, "QM-205", hash)
+	half := &plant.Batch{Log: o.LogUUID, Station: "H1", Sent: time.Now(), Runs: all[n/2:],
+		Configs: []plant.Config{{Variant: "QM-205", Hash: hash, Snapshot: snap}}}
+	if res, err := p.Put(ctx, half); err != nil || res.RunsLanded != n/2-1 || len(res.Refused) != 1 {
+		t.Fatalf("second half alone: %+v, %v", res, err)
+	}
+	var refused []store.Refusal
+	var landed, dups int
+	f := &plant.Forwarder{Log: log, Plant: p, Station: "H1"}
+	f.OnBatch = func(r plant.Result) {
+		refused = append(refused, r.Refused...)
+		landed, dups = landed+r.RunsLanded, dups+r.Duplicates
+	}
+	if err := f.Drain(ctx); err != nil {
+		t.Fatal(err)
+	}
+	if landed != n/2-1 || dups != n/2-1 {
+		t.Fatalf("catch-up landed %d runs with %d already stored, want %d and %d", landed, dups, n/2-1, n/2-1)
+	}
+	if len(refused) != 2 || refused[0].LocalID != forgedID || refused[1].LocalID != badID ||
+		!strings.Contains(refused[0].Reason, "row-level security") || !strings.Contains(refused[1].Reason, "check constraint") {
+		t.Fatalf("refused %+v, want runs %d (forged) and %d (limits)", refused, forgedID, badID)
+	}
+	check := func(when string) {
+		t.Helper()
+		var runs, serials, meas, firsts, wantMeas int64
+		if err := admin.QueryRowForTest(ctx, `SELECT count(*), count(DISTINCT serial) FROM runs`, &runs, &serials); err != nil {
+			t.Fatal(err)
+		}
+		if err := admin.QueryRowForTest(ctx, `SELECT count(*) FROM measurements`, &meas); err != nil {
+			t.Fatal(err)
+		}
+		if err := admin.QueryRowForTest(ctx, `SELECT count(*) FROM serial_first`, &firsts); err != nil {
+			t.Fatal(err)
+		}
+		var faults int64
+		for _, e := range all {
+			if e.ID == forgedID || e.ID == badID {
+				continue
+			}
+			wantMeas += int64(len(e.Measurements))
+			if e.Verdict == sequences.StationFault {
+				faults++
+			}
+		}
+		if runs != n-2 || serials != n-2 || meas != wantMeas || firsts != n-2-faults {
+			t.Fatalf("%s: %d runs (%d serials), %d measurements, %d first verdicts; want %d, %d, %d",
+				when, runs, serials, meas, firsts, n-2, wantMeas, n-2-faults)
+		}
+	}
+	check("after the catch-up")
+	good := store.Filter{Station: "H1", Until: start.Add(5*time.Hour - time.Minute)} // all but the refused run
+	ca, _ := log.Counts(ctx, good)
+	cb, _ := admin.Counts(ctx, good)
+	if ca != cb {
+		t.Fatalf("counts: log %+v plant %+v", ca, cb)
+	}
+	// The whole backlog sent again.
+	again, err := store.Open(replay)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer again.Close()
+	landed, dups, refused = 0, 0, nil
+	f = &plant.Forwarder{Log: again, Plant: p, Station: "H1", OnBatch: f.OnBatch}
+	if err := f.Drain(ctx); err != nil {
+		t.Fatal(err)
+	}
+	if landed != 0 || dups != n-2 || len(refused) != 2 {
+		t.Fatalf("replay landed %d, %d already stored, %d refused; want 0, %d, 2", landed, dups, len(refused), n-2)
+	}
+	check("after the replay")
 }

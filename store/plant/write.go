@@ -5,7 +5,9 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"maps"
 	"math"
+	"slices"
 	"strconv"
 	"time"
 
@@ -393,12 +395,11 @@ func (db *DB) resolve(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
 	for _, c := range b.Configs {
 		set(va, c.Variant)
 	}
+	// Names are inserted in sorted order: two batches adding the same new
+	// names at once (two stations, or a catch-up's two halves) then wait
+	// for each other instead of deadlocking.
 	keys := func(m map[string]bool) []string {
-		out := make([]string, 0, len(m))
-		for k := range m {
-			out = append(out, k)
-		}
-		return out
+		return slices.Sorted(maps.Keys(m))
 	}
 	if err := names("stations", x.stations, keys(st)); err != nil {
 		return err
@@ -467,7 +468,7 @@ func (db *DB) resolve(ctx context.Context, tx pgx.Tx, b *Batch, x *ids) error {
 			}
 		}()
 		var a, bb, c []string
-		for k := range qs {
+		for _, k := range slices.SortedFunc(maps.Keys(qs), func(p, q [3]string) int { return slices.Compare(p[:], q[:]) }) {
 			a, bb, c = append(a, k[0]), append(bb, k[1]), append(c, k[2])
 		}
 		if _, err := tx.Exec(ctx, `INSERT INTO quantities (step, name, unit) SELECT * FROM unnest($1::text[], $2::text[], $3::text[])
