@@ -13,9 +13,10 @@ func IsURL(s string) bool {
 }
 
 // OpenMigrated opens the plant store at url and checks that it answers and
-// carries the plant schema (readers never create one).
+// carries the plant schema (readers never create one), for reading
+// (readParams).
 func OpenMigrated(ctx context.Context, url string) (*DB, error) {
-	p, err := Open(ctx, url)
+	p, err := open(ctx, url, true)
 	if err != nil {
 		return nil, err
 	}
