@@ -414,36 +414,69 @@ func (o *Options) limits(ctx context.Context, db runLog, rep *Report) (low, high
 }
 
 // logGroups reads the variant's trip series from the log, split by --by,
-// each group with its verdict counts computing in the background.
+// each group with its verdict counts computing in the background. The
+// counts start before the series is read when their filter is known then
+// (without --last), so the two run side by side.
 func logGroups(ctx context.Context, db runLog, o Options, variant string) ([]driftSeries, error) {
 	o.Filter.Variant = variant
 	sem := make(chan struct{}, driftCountWorkers)
-	var whole <-chan countsResult
-	if o.By == "" && o.Last == 0 {
+	gc, _ := db.(groupCounter)
+	byGroups := gc != nil && groupKey(store.Filter{}, o.By) != nil
+	var (
+		whole <-chan countsResult
+		by    *countsBy
+	)
+	if o.Last == 0 && o.By == "" {
 		whole = startCounts(ctx, db, o.Filter, sem)
+	}
+	if o.Last == 0 && byGroups {
+		f := o.Filter
+		f.FirstInGroup = true // as driftKey sets it for every group CountsBy counts
+		by = startCountsBy(ctx, gc, byCommon(f, o.By), o.By)
 	}
 	groups, err := driftGroups(ctx, db, o.Filter, o.By, o.AllVerdicts, o.Last)
 	if err != nil {
 		return nil, fmt.Errorf("drift: %w", err)
 	}
-	if o.By == "" && o.Last > 0 && len(groups) == 1 {
-		whole = startCounts(ctx, db, groups[0].filter, sem)
-	}
 	if len(groups) == 0 {
 		return nil, fmt.Errorf("drift: no trip points of %s in %s%s", variant, o.DB, describeFilter(o))
 	}
-	if gc, ok := db.(groupCounter); ok && whole == nil && groupKey(store.Filter{}, o.By) != nil {
-		startCountsBy(ctx, gc, groups, o.By)
+	if o.By == "" { // one group
+		if whole == nil {
+			whole = startCounts(ctx, db, groups[0].filter, sem)
+		}
+		groups[0].counts = whole
+		return groups, nil
+	}
+	if byGroups {
+		if common := byCommon(groups[0].filter, o.By); by == nil || by.f != common {
+			by = startCountsBy(ctx, gc, common, o.By)
+		}
+		by.hand(groups, o.By)
 		return groups, nil
 	}
 	for i := range groups {
-		if whole != nil {
-			groups[i].counts = whole
-		} else {
-			groups[i].counts = startCounts(ctx, db, groups[i].filter, sem)
-		}
+		groups[i].counts = startCounts(ctx, db, groups[i].filter, sem)
 	}
 	return groups, nil
+}
+
+// byCommon is a group's filter without the field --by set: what CountsBy
+// counts every group under at once.
+func byCommon(f store.Filter, by string) store.Filter {
+	switch by {
+	case "station":
+		f.Station = ""
+	case "fixture":
+		f.Fixture = ""
+	case "lot":
+		f.Lot = ""
+	case "line":
+		f.Line = ""
+	case "site":
+		f.Site = 0
+	}
+	return f
 }
 
 // groupCounter is a log that counts every group's verdicts in one query
@@ -476,27 +509,34 @@ func groupKey(f store.Filter, by string) *string {
 	return &k
 }
 
-// startCountsBy counts every group's verdicts in one background query and
-// hands each group its own.
-func startCountsBy(ctx context.Context, gc groupCounter, groups []driftSeries, by string) {
-	common := groups[0].filter
-	common.Station, common.Fixture, common.Lot, common.Line, common.Site = "", "", "", "", 0
-	var (
-		m    map[string]store.Counts
-		err  error
-		done = make(chan struct{})
-	)
+// countsBy is one CountsBy query running in the background.
+type countsBy struct {
+	f    store.Filter
+	m    map[string]store.Counts
+	err  error
+	done chan struct{}
+}
+
+// startCountsBy counts the verdicts of every group under f in one
+// background query.
+func startCountsBy(ctx context.Context, gc groupCounter, f store.Filter, by string) *countsBy {
+	c := &countsBy{f: f, done: make(chan struct{})}
 	go func() {
-		defer close(done)
-		m, err = gc.CountsBy(ctx, common, by)
+		defer close(c.done)
+		c.m, c.err = gc.CountsBy(ctx, f, by)
 	}()
+	return c
+}
+
+// hand gives each group its own counts once the query is done.
+func (c *countsBy) hand(groups []driftSeries, by string) {
 	for i := range groups {
 		ch := make(chan countsResult, 1)
 		groups[i].counts = ch
 		key := *groupKey(groups[i].filter, by)
 		go func() {
-			<-done
-			ch <- countsResult{m[key], err}
+			<-c.done
+			ch <- countsResult{c.m[key], c.err}
 		}()
 	}
 }
