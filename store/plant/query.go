@@ -495,20 +495,43 @@ func (db *DB) fewRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entr
 		if len(out) == 0 {
 			return
 		}
-		names := map[string]map[int32]string{}
-		for _, t := range []string{"variants", "stations", "fixtures"} {
-			if names[t], err = db.names(ctx, t, "name"); err != nil {
-				fail(err)
-				return
+		// The names of the runs' variants, configurations, stations and
+		// fixtures, in one round trip.
+		var want [4][]int32
+		for _, id := range ids {
+			for k := range want {
+				want[k] = append(want[k], id[k])
 			}
 		}
-		if names["configs"], err = db.names(ctx, "configs", "hash"); err != nil {
+		nrows, err := db.pool.Query(ctx, `SELECT 0, id, name FROM variants WHERE id = ANY($1)
+			UNION ALL SELECT 1, id, hash FROM configs WHERE id = ANY($2)
+			UNION ALL SELECT 2, id, name FROM stations WHERE id = ANY($3)
+			UNION ALL SELECT 3, id, name FROM fixtures WHERE id = ANY($4)`, want[0], want[1], want[2], want[3])
+		if err != nil {
+			fail(err)
+			return
+		}
+		var (
+			names [4]map[int32]string
+			kind  int32
+			id    int32
+			label string
+		)
+		for k := range names {
+			names[k] = map[int32]string{}
+		}
+		if _, err := pgx.ForEachRow(nrows, []any{&kind, &id, &label}, func() error {
+			if kind >= 0 && int(kind) < len(names) {
+				names[kind][id] = label
+			}
+			return nil
+		}); err != nil {
 			fail(err)
 			return
 		}
 		for i, e := range out {
-			e.Variant, e.ConfigHash = names["variants"][ids[i][0]], names["configs"][ids[i][1]]
-			e.Station, e.Fixture = names["stations"][ids[i][2]], names["fixtures"][ids[i][3]]
+			e.Variant, e.ConfigHash = names[0][ids[i][0]], names[1][ids[i][1]]
+			e.Station, e.Fixture = names[2][ids[i][2]], names[3][ids[i][3]]
 		}
 		logs, locals, fins := make([]int32, len(keys)), make([]int64, len(keys)), make([]int64, len(keys))
 		for i, k := range keys {
