@@ -4,7 +4,6 @@ import (
 	"context"
 	"encoding/json"
 	"fmt"
-	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -14,6 +13,7 @@ import (
 	"github.com/jackc/pgx/v5"
 
 	"padline/store/plant"
+	"padline/store/plant/planttest"
 )
 
 // plantSchema makes a schema of the test's own on the test PostgreSQL
@@ -22,54 +22,9 @@ import (
 // PADLINE_REQUIRE_PARTS=1) when no server answers.
 func plantSchema(t *testing.T) string {
 	t.Helper()
-	url := plantSchemaB(t)
+	url := planttest.URL(t, "plant_cmd")
 	if code, out, errOut := runCLI(t, "plant", "init", "--db", url); code != 0 || !strings.Contains(out, "schema version") {
 		t.Fatalf("plant init: exit %d: %s%s", code, out, errOut)
-	}
-	return url
-}
-
-// plantSchemaB is plantSchema for tests and benchmarks, migrated through
-// the library.
-func plantSchemaB(t testing.TB) string {
-	t.Helper()
-	base := os.Getenv("PADLINE_TEST_PG")
-	if base == "" {
-		base = "postgres://root@127.0.0.1:5432/test?sslmode=disable"
-	}
-	ctx := context.Background()
-	conn, err := pgx.Connect(ctx, base)
-	if err != nil {
-		reason := "no PostgreSQL at " + base + ": " + err.Error()
-		if os.Getenv("PADLINE_REQUIRE_PARTS") == "1" {
-			t.Fatal(reason)
-		}
-		t.Skip(reason)
-	}
-	defer conn.Close(ctx)
-	schema := fmt.Sprintf("plant_cmd%d_%d", time.Now().UnixNano()%1e9, rand.IntN(1e6))
-	if _, err := conn.Exec(ctx, "CREATE SCHEMA "+schema); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		c, err := pgx.Connect(context.Background(), base)
-		if err == nil {
-			c.Exec(context.Background(), "DROP SCHEMA "+schema+" CASCADE")
-			c.Close(context.Background())
-		}
-	})
-	sep := "?"
-	if strings.Contains(base, "?") {
-		sep = "&"
-	}
-	url := base + sep + "search_path=" + schema
-	p, err := plant.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer p.Close()
-	if err := p.Migrate(ctx); err != nil {
-		t.Fatal(err)
 	}
 	return url
 }

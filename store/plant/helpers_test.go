@@ -5,86 +5,29 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"os"
 	"path/filepath"
 	"strings"
 	"testing"
 	"time"
 
-	"github.com/jackc/pgx/v5"
-
 	"padline/sequences"
 	"padline/store"
 	"padline/store/plant"
+	"padline/store/plant/planttest"
 )
 
-// need skips (or, under PADLINE_REQUIRE_PARTS=1, fails) a test whose
-// outside part is missing.
-func need(t testing.TB, reason string) {
-	t.Helper()
-	if os.Getenv("PADLINE_REQUIRE_PARTS") == "1" {
-		t.Fatalf("%s", reason)
-	}
-	t.Skip(reason)
-}
+// The test server, a schema of the test's own and the skip-or-fail rule
+// are planttest's, shared with the other packages' plant tests.
+var (
+	need      = planttest.Need
+	baseURL   = planttest.BaseURL
+	withParam = planttest.WithParam
+)
 
-// baseURL is the test PostgreSQL server (PADLINE_TEST_PG, else the
-// project machines' server at 127.0.0.1:5432, database test).
-func baseURL() string {
-	if u := os.Getenv("PADLINE_TEST_PG"); u != "" {
-		return u
-	}
-	return "postgres://root@127.0.0.1:5432/test?sslmode=disable"
-}
-
-func withParam(url, kv string) string {
-	if strings.Contains(url, "?") {
-		return url + "&" + kv
-	}
-	return url + "?" + kv
-}
-
-// newSchema creates a schema of its own for the test on the server at
-// base, migrates it, and drops it (and the roles the test made) after.
+// newSchema is a migrated schema of the test's own on base (planttest.Schema).
 func newSchema(t testing.TB, base string) (url, schema string) {
 	t.Helper()
-	ctx := context.Background()
-	conn, err := pgx.Connect(ctx, base)
-	if err != nil {
-		need(t, "no PostgreSQL at "+base+": "+err.Error())
-	}
-	defer conn.Close(ctx)
-	schema = fmt.Sprintf("plant_t%d_%d", time.Now().UnixNano()%1e9, rand.IntN(1e6))
-	if _, err := conn.Exec(ctx, "CREATE SCHEMA "+schema); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		c, err := pgx.Connect(context.Background(), base)
-		if err != nil {
-			t.Logf("drop schema %s: %v", schema, err)
-			return
-		}
-		defer c.Close(context.Background())
-		if _, err := c.Exec(context.Background(), "DROP SCHEMA "+schema+" CASCADE"); err != nil {
-			t.Logf("drop schema %s: %v", schema, err)
-		}
-		rows, _ := c.Query(context.Background(), "SELECT rolname FROM pg_roles WHERE rolname LIKE $1", schema+"_%")
-		roles, _ := pgx.CollectRows(rows, pgx.RowTo[string])
-		for _, r := range roles {
-			c.Exec(context.Background(), "DROP OWNED BY "+r)
-			c.Exec(context.Background(), "DROP ROLE "+r)
-		}
-	})
-	url = withParam(base, "search_path="+schema)
-	db, err := plant.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer db.Close()
-	if err := db.Migrate(ctx); err != nil {
-		t.Fatal(err)
-	}
-	return url, schema
+	return planttest.Schema(t, base, "plant_t")
 }
 
 // openPlant opens url and closes it after the test.

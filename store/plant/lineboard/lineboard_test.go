@@ -7,7 +7,6 @@ import (
 	"math/rand/v2"
 	"net"
 	"net/http"
-	"os"
 	"os/exec"
 	"path/filepath"
 	"strings"
@@ -15,56 +14,13 @@ import (
 	"time"
 
 	"github.com/chromedp/chromedp"
-	"github.com/jackc/pgx/v5"
 
 	"padline/sequences"
 	"padline/store"
 	"padline/store/plant"
 	"padline/store/plant/lineboard"
+	"padline/store/plant/planttest"
 )
-
-func need(t *testing.T, reason string) {
-	t.Helper()
-	if os.Getenv("PADLINE_REQUIRE_PARTS") == "1" {
-		t.Fatalf("%s", reason)
-	}
-	t.Skip(reason)
-}
-
-// plantURL makes a migrated schema of the test's own and drops it after.
-func plantURL(t *testing.T) string {
-	t.Helper()
-	base := os.Getenv("PADLINE_TEST_PG")
-	if base == "" {
-		base = "postgres://root@127.0.0.1:5432/test?sslmode=disable"
-	}
-	ctx := context.Background()
-	conn, err := pgx.Connect(ctx, base)
-	if err != nil {
-		need(t, "no PostgreSQL at "+base+": "+err.Error())
-	}
-	defer conn.Close(ctx)
-	schema := fmt.Sprintf("plant_board%d_%d", time.Now().UnixNano()%1e9, rand.IntN(1e6))
-	if _, err := conn.Exec(ctx, "CREATE SCHEMA "+schema); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		if c, err := pgx.Connect(context.Background(), base); err == nil {
-			c.Exec(context.Background(), "DROP SCHEMA "+schema+" CASCADE")
-			c.Close(context.Background())
-		}
-	})
-	url := base + "&search_path=" + schema
-	p, err := plant.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer p.Close()
-	if err := p.Migrate(ctx); err != nil {
-		t.Fatal(err)
-	}
-	return url
-}
 
 // station is a simulated station: its shift log and forwarder.
 type station struct {
@@ -118,10 +74,10 @@ func (s *station) forward(t *testing.T) {
 // The line board in headless Chromium: every station's row, the values it
 // must show, and a new unit appearing without a reload within 5 s.
 func TestLineBoardInChromium(t *testing.T) {
-	url := plantURL(t)
+	url := planttest.URL(t, "plant_board")
 	chrome, err := exec.LookPath("chromium")
 	if err != nil {
-		need(t, "no chromium on PATH (apt-get install chromium)")
+		planttest.Need(t, "no chromium on PATH (apt-get install chromium)")
 	}
 	ctx := context.Background()
 	p, err := plant.Open(ctx, url)
