@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"math"
 	"math/bits"
+	"slices"
+	"sync"
 	"time"
 
 	"padline/fixture"
@@ -35,6 +37,32 @@ type PanelPlan struct {
 	cfg    PlanConfig
 	levels [][]Level // levels[s][j]: site s's level j
 	ganged bool
+	rungs  int // the ladder's rung count (highest pattern bit + 1)
+
+	mu      sync.Mutex
+	offsets []*FixtureOffset // each site's (nil: none); SetOffsets
+}
+
+// SetOffsets makes every later panel's trip point on site s the trip found
+// on that site's entered ladder values plus offs[s] at that trip, as
+// Plan.SetOffset does for one unit: each site has its own stray and its
+// own capacitors, so each has its own offset (DEVELOPERS.md "Panels").
+// A nil offs, or a nil entry, corrects nothing there.
+func (p *PanelPlan) SetOffsets(offs []*FixtureOffset) error {
+	if offs != nil && len(offs) != len(p.levels) {
+		return fmt.Errorf("panel plan: %d fixture offsets for %d sites", len(offs), len(p.levels))
+	}
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	p.offsets = slices.Clone(offs)
+	return nil
+}
+
+// Offsets returns each site's fixture offset in force (nil: none).
+func (p *PanelPlan) Offsets() []*FixtureOffset {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	return slices.Clone(p.offsets)
 }
 
 // NewPanelPlan builds the plan for a panel whose sites have the given level
@@ -65,7 +93,13 @@ func NewPanelPlan(cfg PlanConfig, levels [][]Level, ganged bool) (*PanelPlan, er
 	if cfg.StepTimeout <= 0 {
 		cfg.StepTimeout = 5 * time.Second
 	}
-	return &PanelPlan{cfg: cfg, levels: levels, ganged: ganged}, nil
+	var all uint16
+	for _, lv := range levels {
+		for _, l := range lv {
+			all |= l.Pattern
+		}
+	}
+	return &PanelPlan{cfg: cfg, levels: levels, ganged: ganged, rungs: bits.Len16(all)}, nil
 }
 
 // Sites returns the number of sites the plan was built for.
@@ -475,12 +509,19 @@ func (p *PanelPlan) tripSearch(t *PanelTrial) func() error {
 		if err != nil {
 			return err
 		}
+		offsets := p.Offsets()
 		for s := range res.Sites {
 			if t.active&(1<<s) == 0 {
 				continue
 			}
 			r := res.Sites[s]
 			t.Trips[s] = &r
+			if offsets != nil {
+				if e := addOffset(siteRec{t, s}, offsets[s], p.levels[s], p.rungs, &r); e != nil {
+					t.failSite(s, e)
+					continue
+				}
+			}
 			if e := judgeTrip(siteRec{t, s}, r, p.cfg.Limits, p.levels[s][len(p.levels[s])-1].PF); e != nil {
 				t.failSite(s, e)
 			}

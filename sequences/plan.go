@@ -671,16 +671,8 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 	if res.Found && !res.Below && res.SigmaRefPF > 0 {
 		t.Measure(MeasSigmaRefPF, res.SigmaRefPF, "pF", NoLimit, NoLimit)
 	}
-	if o := p.Offset(); o != nil && res.Found && !res.Below && !math.IsNaN(res.TripPF) {
-		off, u, err := o.At(TripRungWeights(p.levels, p.rungs, res.TripPF, res.SigmaPF))
-		if err != nil {
-			return fmt.Errorf("fixture offset: %w", err)
-		}
-		t.Measure(MeasTripLadderPF, res.TripPF, "pF", NoLimit, NoLimit)
-		t.Measure(MeasFixtureOffPF, off, "pF", NoLimit, NoLimit)
-		t.Measure(MeasFixtureOffUPF, u, "pF", NoLimit, NoLimit)
-		res.TripPF += off
-		res.OffsetPF = off
+	if err := addOffset(t, p.Offset(), p.levels, p.rungs, &res); err != nil {
+		return err
 	}
 	t.Trip = &res
 	if p.cfg.FoldChecks {
@@ -705,6 +697,26 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 // verdict; *Trial and a panel site's record satisfy it.
 type measurer interface {
 	Measure(name Quantity, value float64, unit string, low, high float64) Verdict
+}
+
+// addOffset adds the fixture offset o (nil: none) at a found trip to res,
+// for a trip searched on levels of a ladder of rungs rungs, and records the
+// trip as found, the offset and its standard uncertainty (Plan.SetOffset).
+// The single-unit plan and each site of a panel plan use it.
+func addOffset(t measurer, o *FixtureOffset, levels []Level, rungs int, res *TripResult) error {
+	if o == nil || !res.Found || res.Below || math.IsNaN(res.TripPF) {
+		return nil
+	}
+	off, u, err := o.At(TripRungWeights(levels, rungs, res.TripPF, res.SigmaPF))
+	if err != nil {
+		return fmt.Errorf("fixture offset: %w", err)
+	}
+	t.Measure(MeasTripLadderPF, res.TripPF, "pF", NoLimit, NoLimit)
+	t.Measure(MeasFixtureOffPF, off, "pF", NoLimit, NoLimit)
+	t.Measure(MeasFixtureOffUPF, u, "pF", NoLimit, NoLimit)
+	res.TripPF += off
+	res.OffsetPF = off
+	return nil
 }
 
 // judgeTrip records a trip search's result against the limits and returns

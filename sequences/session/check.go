@@ -33,7 +33,23 @@ type CheckReport struct {
 	Offset   *sequences.FixtureOffset `json:"offset,omitempty"`
 	OffsetPF *float64                 `json:"offset_pf,omitempty"`   // at the variant's nominal trip
 	OffsetU  *float64                 `json:"offset_u_pf,omitempty"` // its standard uncertainty
-	CheckID  int64                    `json:"check_id"`
+	// Sites holds a panel station's check site by site, site 1 first (nil
+	// for a single-unit station): each site's offset is its own, and
+	// Offset above stays nil. References and Faults above hold every
+	// site's; Ladder is site 1's.
+	Sites   []SiteCheck `json:"sites,omitempty"`
+	CheckID int64       `json:"check_id"`
+}
+
+// SiteCheck is one site's part of a panel station's reference check.
+type SiteCheck struct {
+	Site       int                      `json:"site"` // 1-based
+	References []sequences.RefCheck     `json:"references"`
+	Ladder     []sequences.RungFinding  `json:"ladder"`
+	Faults     []string                 `json:"faults"`
+	Offset     *sequences.FixtureOffset `json:"offset,omitempty"`
+	OffsetPF   *float64                 `json:"offset_pf,omitempty"`
+	OffsetU    *float64                 `json:"offset_u_pf,omitempty"`
 }
 
 // Loader puts a unit into the fixture for a station command: the simulated
@@ -105,9 +121,41 @@ func (r *Rig) CheckConfig() sequences.CheckConfig {
 // RunCheck tests every reference unit of the station file, self-tests the
 // ladder on them and records the check in db. progress (nil: none) hears
 // each step. A check that finds a fault is returned with OK false and no
-// error; an error means no check was recorded.
+// error; an error means no check was recorded. A passing check puts its
+// fixture offset on the rig's plan.
 func RunCheck(ctx context.Context, r *Rig, db *store.DB, progress func(CheckInfo)) (CheckReport, error) {
-	st := r.Station
+	rep, err := recordCheck(ctx, db, []*Rig{r}, false, progress)
+	if err == nil && rep.OK {
+		r.Plan.SetOffset(rep.Offset)
+	}
+	return rep, err
+}
+
+// RunPanelCheck is the shift-start check of a panel station: every
+// reference unit on every site (each site alone in the fixture, with its
+// own calibrated ladder: PanelRig.SiteRig), the ladder self-test on each,
+// one check recorded for the station. A fault found on a site is named
+// with the site; a ganged rung fault shows on every site. A passing check
+// puts each site's own fixture offset on the panel plan.
+func RunPanelCheck(ctx context.Context, r *PanelRig, db *store.DB, progress func(CheckInfo)) (CheckReport, error) {
+	sites := make([]*Rig, r.Sites())
+	for i := range sites {
+		var err error
+		if sites[i], err = r.SiteRig(i); err != nil {
+			return CheckReport{}, err
+		}
+	}
+	rep, err := recordCheck(ctx, db, sites, true, progress)
+	if err == nil && rep.OK {
+		err = r.Plan.SetOffsets(rep.SiteOffsets())
+	}
+	return rep, err
+}
+
+// recordCheck is RunCheck's and RunPanelCheck's common part: the check on
+// each of sites (measureSites) recorded in db with the last run before it.
+func recordCheck(ctx context.Context, db *store.DB, sites []*Rig, panel bool, progress func(CheckInfo)) (CheckReport, error) {
+	st := sites[0].Station
 	if len(st.Trust.References) == 0 {
 		return CheckReport{}, fmt.Errorf("station file %s registers no reference_units: measure a kept good unit on this station and add {serial, trip_pf, allowed_dev_pf} under reference_units", st.Source.Name)
 	}
@@ -115,7 +163,7 @@ func RunCheck(ctx context.Context, r *Rig, db *store.DB, progress func(CheckInfo
 	if err != nil {
 		return CheckReport{}, err
 	}
-	rep, err := MeasureReferences(ctx, r, st.Trust.References, progress)
+	rep, err := measureSites(ctx, sites, panel, st.Trust.References, progress)
 	if err != nil {
 		return rep, err
 	}
@@ -130,9 +178,6 @@ func RunCheck(ctx context.Context, r *Rig, db *store.DB, progress func(CheckInfo
 	if err != nil {
 		return rep, fmt.Errorf("station check not recorded: %w", err)
 	}
-	if rep.OK {
-		r.Plan.SetOffset(rep.Offset)
-	}
 	return rep, nil
 }
 
@@ -140,42 +185,104 @@ func RunCheck(ctx context.Context, r *Rig, db *store.DB, progress func(CheckInfo
 // it: each unit's trip and the ladder self-test, and, when the check
 // passes, the fixture offset from the units with a lab trip point.
 func MeasureReferences(ctx context.Context, r *Rig, refs []StationRef, progress func(CheckInfo)) (CheckReport, error) {
-	st := r.Station
+	return measureSites(ctx, []*Rig{r}, false, refs, progress)
+}
+
+// measureSites runs the reference check on refs at each site in turn
+// (a single-unit station is a panel of one site): each unit alone in the
+// fixture, measured on the site's own calibrated ladder, the ladder
+// self-test from the site's units, and, when the whole check passes, each
+// site's fixture offset from its own units with a lab trip point (its own
+// stray and capacitors: DEVELOPERS.md "Panels"). With panel, faults,
+// errors and progress name the site, and the report lists the sites
+// (CheckReport.Sites); otherwise the one site's findings are the report's.
+func measureSites(ctx context.Context, sites []*Rig, panel bool, refs []StationRef, progress func(CheckInfo)) (CheckReport, error) {
+	st := sites[0].Station
 	say := func(ci CheckInfo) {
 		if progress != nil {
 			progress(ci)
 		}
 	}
 	rep := CheckReport{Station: st.Name, Fixture: st.Fixture, StationFile: st.Source.Name, StationHash: st.Source.Hash,
-		Variant: r.Variant.Name, Time: time.Now().UTC()}
-	ld := &Loader{Rig: r, Prompt: func(msg string) { say(CheckInfo{Message: msg}) }}
-	cfg := r.CheckConfig()
+		Variant: sites[0].Variant.Name, Time: time.Now().UTC()}
+	// One loader for every site: the lid opens between every two units.
+	ld := &Loader{Prompt: func(msg string) { say(CheckInfo{Message: msg}) }}
 	var total time.Duration
-	for _, ref := range refs {
-		if err := ld.Load(ctx, ref.Serial, ref.SimDefects, "reference unit "+ref.Serial); err != nil {
-			return rep, fmt.Errorf("station check: %w", err)
+	for i, sr := range sites {
+		ld.Rig = sr
+		cfg := sr.CheckConfig()
+		sc := SiteCheck{Site: i + 1}
+		where := ""
+		if panel {
+			where = fmt.Sprintf("site %d: ", i+1)
 		}
-		res, err := sequences.CheckReference(ctx, r.Fixture, r.Clock, ref.Reference, cfg)
-		ld.Unload()
-		if err != nil {
-			return rep, fmt.Errorf("station check: reference unit %s: %w", ref.Serial, err)
+		for _, ref := range refs {
+			what := "reference unit " + ref.Serial
+			if panel {
+				what += fmt.Sprintf(" at site %d alone", i+1)
+			}
+			if err := ld.Load(ctx, ref.Serial, ref.SimDefects, what); err != nil {
+				return rep, fmt.Errorf("station check: %w", err)
+			}
+			res, err := sequences.CheckReference(ctx, sr.Fixture, sr.Clock, ref.Reference, cfg)
+			ld.Unload()
+			if err != nil {
+				return rep, fmt.Errorf("station check: %sreference unit %s: %w", where, ref.Serial, err)
+			}
+			total += res.FixtureTime
+			sc.References = append(sc.References, res)
+			say(CheckInfo{Serial: ref.Serial, Message: fmt.Sprintf("%sreference unit %s measured", where, ref.Serial)})
 		}
-		total += res.FixtureTime
-		rep.References = append(rep.References, res)
-		say(CheckInfo{Serial: ref.Serial, Message: fmt.Sprintf("reference unit %s measured", ref.Serial)})
+		var faults []string
+		sc.Ladder, faults = sequences.CombineChecks(sc.References)
+		for _, f := range faults {
+			sc.Faults = append(sc.Faults, where+f)
+		}
+		rep.References = append(rep.References, sc.References...)
+		rep.Faults = append(rep.Faults, sc.Faults...)
+		rep.Sites = append(rep.Sites, sc)
 	}
-	rep.Ladder, rep.Faults = sequences.CombineChecks(rep.References)
+	rep.Ladder = rep.Sites[0].Ladder
 	rep.OK = len(rep.Faults) == 0
 	rep.FixtureS = total.Seconds()
 	if rep.OK {
-		if off, err := sequences.OffsetFromChecks(rep.References, 0, cfg.CalPF); err == nil {
-			rep.Offset = off
-			if pf, u, err := off.At(r.NominalWeights()); err == nil {
-				rep.OffsetPF, rep.OffsetU = &pf, &u
-			}
+		for i, sr := range sites {
+			rep.Sites[i].measureOffset(sr)
 		}
 	}
+	if !panel {
+		one := rep.Sites[0]
+		rep.Offset, rep.OffsetPF, rep.OffsetU = one.Offset, one.OffsetPF, one.OffsetU
+		rep.Sites = nil
+	}
 	return rep, nil
+}
+
+// measureOffset sets the site's fixture offset from its reference units
+// with a lab trip point, and its value at the variant's nominal trip on
+// the site's ladder; none when no unit has one.
+func (sc *SiteCheck) measureOffset(sr *Rig) {
+	off, err := sequences.OffsetFromChecks(sc.References, 0, sr.CheckConfig().CalPF)
+	if err != nil {
+		return
+	}
+	sc.Offset = off
+	if pf, u, err := off.At(sr.NominalWeights()); err == nil {
+		sc.OffsetPF, sc.OffsetU = &pf, &u
+	}
+}
+
+// SiteOffsets are a panel check's fixture offsets, site 1 first (nil
+// entries where a site has none; nil for a single-unit check).
+func (rep CheckReport) SiteOffsets() []*sequences.FixtureOffset {
+	if rep.Sites == nil {
+		return nil
+	}
+	out := make([]*sequences.FixtureOffset, len(rep.Sites))
+	for i, sc := range rep.Sites {
+		out[i] = sc.Offset
+	}
+	return out
 }
 
 // NominalWeights are the rung weights of a trip at the variant's nominal
@@ -193,7 +300,32 @@ func (r *Rig) NominalWeights() []float64 {
 // db on the rig's plan, when that check passed under this station file
 // and carries one; it returns the offset (nil: none).
 func OffsetFromLog(ctx context.Context, db *store.DB, r *Rig) (*sequences.FixtureOffset, error) {
-	st := r.Station
+	rep, err := lastPassedCheck(ctx, db, r.Station)
+	if rep == nil || err != nil {
+		return nil, err
+	}
+	r.Plan.SetOffset(rep.Offset)
+	return rep.Offset, nil
+}
+
+// PanelOffsetsFromLog puts each site's fixture offset of the panel
+// station's last check in db on the panel plan, when that check passed
+// under this station file; it returns them (nil: none).
+func PanelOffsetsFromLog(ctx context.Context, db *store.DB, r *PanelRig) ([]*sequences.FixtureOffset, error) {
+	rep, err := lastPassedCheck(ctx, db, r.Station)
+	if rep == nil || err != nil {
+		return nil, err
+	}
+	offs := rep.SiteOffsets()
+	if offs != nil && len(offs) != r.Sites() {
+		return nil, fmt.Errorf("station check %d in the shift log has %d sites, station file %s %d", rep.CheckID, len(offs), r.Station.Source.Name, r.Sites())
+	}
+	return offs, r.Plan.SetOffsets(offs)
+}
+
+// lastPassedCheck is the station's last check in db when it passed under
+// this station file (nil: none such).
+func lastPassedCheck(ctx context.Context, db *store.DB, st *Station) (*CheckReport, error) {
 	c, err := db.LastCheck(ctx, st.Name, st.Fixture)
 	if errors.Is(err, store.ErrNotFound) {
 		return nil, nil
@@ -208,8 +340,8 @@ func OffsetFromLog(ctx context.Context, db *store.DB, r *Rig) (*sequences.Fixtur
 	if err := json.Unmarshal(c.Details, &rep); err != nil {
 		return nil, fmt.Errorf("station check %d in the shift log: %w", c.ID, err)
 	}
-	r.Plan.SetOffset(rep.Offset)
-	return rep.Offset, nil
+	rep.CheckID = c.ID
+	return &rep, nil
 }
 
 // SeedFromLog prepares the rig's plan from the shift log: the fixture

@@ -46,6 +46,12 @@ func WriteCheck(w io.Writer, rep CheckReport, st *Station) {
 		p("fixture offset %+.3f ± %.3f pF at %s's nominal trip, from %d reference unit(s) with lab trip points: added to every trip point until the next check",
 			*rep.OffsetPF, *rep.OffsetU, rep.Variant, len(rep.Offset.Refs))
 	}
+	for _, sc := range rep.Sites {
+		if rep.OK && sc.OffsetPF != nil && sc.OffsetU != nil {
+			p("site %d: fixture offset %+.3f ± %.3f pF at %s's nominal trip, from %d reference unit(s) with lab trip points: added to the site's trip points until the next check",
+				sc.Site, *sc.OffsetPF, *sc.OffsetU, rep.Variant, len(sc.Offset.Refs))
+		}
+	}
 	if rep.OK {
 		var due []string
 		if n := st.Trust.CheckEveryUnits; n > 0 {

@@ -2,7 +2,6 @@ package session
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"regexp"
@@ -367,77 +366,6 @@ func (r *PanelRig) SiteRig(i int) (*Rig, error) {
 		sr.Line = r.Sim.Site(i)
 	}
 	return sr, nil
-}
-
-// RunPanelCheck is the shift-start check of a panel station: every
-// reference unit on every site (each site alone in the fixture, with its
-// own calibrated ladder), the ladder self-test on each, one check recorded
-// for the station. A fault found on a site is named with the site; a
-// ganged rung fault shows on every site.
-func RunPanelCheck(ctx context.Context, r *PanelRig, db *store.DB, progress func(CheckInfo)) (CheckReport, error) {
-	st := r.Station
-	if len(st.Trust.References) == 0 {
-		return CheckReport{}, fmt.Errorf("station file %s registers no reference_units: measure a kept good unit on this station and add {serial, trip_pf, allowed_dev_pf} under reference_units", st.Source.Name)
-	}
-	lastRun, err := db.LastRunID(ctx)
-	if err != nil {
-		return CheckReport{}, err
-	}
-	rep := CheckReport{Station: st.Name, Fixture: st.Fixture, StationFile: st.Source.Name, StationHash: st.Source.Hash,
-		Variant: r.Variant.Name, Time: time.Now().UTC()}
-	var total time.Duration
-	ld := &Loader{Prompt: func(msg string) {
-		if progress != nil {
-			progress(CheckInfo{Message: msg})
-		}
-	}}
-	for i := range r.Sites() {
-		sr, err := r.SiteRig(i)
-		if err != nil {
-			return rep, err
-		}
-		ld.Rig = sr // one loader: the lid opens between every two units
-		cfg := sr.CheckConfig()
-		var refs []sequences.RefCheck
-		for _, ref := range st.Trust.References {
-			what := fmt.Sprintf("reference unit %s at site %d alone", ref.Serial, i+1)
-			if err := ld.Load(ctx, ref.Serial, ref.SimDefects, what); err != nil {
-				return rep, fmt.Errorf("station check: %w", err)
-			}
-			res, err := sequences.CheckReference(ctx, sr.Fixture, r.Clock, ref.Reference, cfg)
-			ld.Unload()
-			if err != nil {
-				return rep, fmt.Errorf("station check: site %d: reference unit %s: %w", i+1, ref.Serial, err)
-			}
-			total += res.FixtureTime
-			refs = append(refs, res)
-			if progress != nil {
-				progress(CheckInfo{Serial: ref.Serial, Message: fmt.Sprintf("site %d: reference unit %s measured", i+1, ref.Serial)})
-			}
-		}
-		ladder, faults := sequences.CombineChecks(refs)
-		for _, f := range faults {
-			rep.Faults = append(rep.Faults, fmt.Sprintf("site %d: %s", i+1, f))
-		}
-		rep.References = append(rep.References, refs...)
-		if i == 0 {
-			rep.Ladder = ladder
-		}
-	}
-	rep.OK = len(rep.Faults) == 0
-	rep.FixtureS = total.Seconds()
-	details, err := json.Marshal(rep)
-	if err != nil {
-		return rep, err
-	}
-	rep.CheckID, err = db.RecordCheck(ctx, store.StationCheck{
-		Time: rep.Time, Station: st.Name, Fixture: st.Fixture, StationHash: st.Source.Hash,
-		OK: rep.OK, LastRunID: lastRun, Details: details,
-	})
-	if err != nil {
-		return rep, fmt.Errorf("station check not recorded: %w", err)
-	}
-	return rep, nil
 }
 
 // PanelRecorder commits a panel's runs and x-outs; *store.DB satisfies it.

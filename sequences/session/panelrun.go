@@ -108,6 +108,10 @@ func RunPanel(ctx context.Context, o Options, sc Scanner, view PanelView) (err e
 		view.Locked(err, CheckHint(b.Variant.Name, b.Station, o.ShiftLog))
 		return err
 	}
+	// Each site's fixture offset from the check that let the station test.
+	if _, err := PanelOffsetsFromLog(ctx, b.DB, b.PanelRig); err != nil {
+		return err
+	}
 	view.Started(b.PanelRig, o.ShiftLog)
 	st := b.Station
 	tmpl := sequences.Run{Variant: b.Variant.Name, ConfigHash: b.Hash, Station: st.Name, Fixture: st.Fixture,
