@@ -6,65 +6,21 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"os"
 	"path/filepath"
 	"reflect"
-	"strings"
 	"testing"
 	"time"
-
-	"github.com/jackc/pgx/v5"
 
 	"padline/sequences"
 	"padline/store"
 	"padline/store/plant"
+	"padline/store/plant/planttest"
 )
 
-// plantSchema makes a migrated plant schema of the test's own on the test
-// PostgreSQL server (PADLINE_TEST_PG, else 127.0.0.1:5432 database test)
-// and drops it after; it skips without a server, or fails then under
-// PADLINE_REQUIRE_PARTS=1.
-func plantSchema(t *testing.T) string {
-	t.Helper()
-	base := os.Getenv("PADLINE_TEST_PG")
-	if base == "" {
-		base = "postgres://root@127.0.0.1:5432/test?sslmode=disable"
-	}
-	ctx := context.Background()
-	conn, err := pgx.Connect(ctx, base)
-	if err != nil {
-		reason := "no PostgreSQL at " + base + ": " + err.Error()
-		if os.Getenv("PADLINE_REQUIRE_PARTS") == "1" {
-			t.Fatal(reason)
-		}
-		t.Skip(reason)
-	}
-	defer conn.Close(ctx)
-	schema := fmt.Sprintf("plant_drb%d_%d", time.Now().UnixNano()%1e9, rand.IntN(1e6))
-	if _, err := conn.Exec(ctx, "CREATE SCHEMA "+schema); err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() {
-		if c, err := pgx.Connect(context.Background(), base); err == nil {
-			c.Exec(context.Background(), "DROP SCHEMA "+schema+" CASCADE")
-			c.Close(context.Background())
-		}
-	})
-	sep := "?"
-	if strings.Contains(base, "?") {
-		sep = "&"
-	}
-	url := base + sep + "search_path=" + schema
-	p, err := plant.Open(ctx, url)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer p.Close()
-	if err := p.Migrate(ctx); err != nil {
-		t.Fatal(err)
-	}
-	return url
-}
+// plantSchema makes a migrated plant schema of the test's own and drops it
+// after (planttest.URL: it skips without a server, or fails then under
+// PADLINE_REQUIRE_PARTS=1).
+func plantSchema(t *testing.T) string { return planttest.URL(t, "plant_drb") }
 
 // An approved baseline on the plant store (DEVELOPERS.md "Approved
 // baselines on the plant"): before one is approved there, drift on the
