@@ -117,6 +117,9 @@ type DB struct {
 
 	smu   sync.Mutex
 	stmts map[string]*sql.Stmt // statements prepared once (see prepared)
+
+	omu   sync.Mutex
+	oconn *sql.Conn // the plant outbox's writes (see outboxConn)
 }
 
 // Open opens the shift log at path, creating it if it does not exist, and
@@ -391,6 +394,7 @@ func markFull(err error) error {
 // (checked.go).
 func (db *DB) Close() error {
 	db.check.stopCheck()
+	db.closeOutboxConn()
 	err := db.sql.Close()
 	if err == nil && !db.readOnly {
 		db.check.writeRecord(db.path)
