@@ -17,7 +17,7 @@ func (a *app) driftBaselineCmd() *cobra.Command {
 	var asJSON bool
 	set := &cobra.Command{
 		Use:     "set --variant V (--since T --until T | --last-approved) [--name N] [--approved-by WHO]",
-		Short:   "Store an approved baseline computed over a window of the shift log",
+		Short:   "Store an approved baseline computed over a window of the shift log (or of the plant store, --db postgres://…)",
 		Example: driftreport.BaselineExample,
 		Args:    cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
