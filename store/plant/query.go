@@ -495,37 +495,8 @@ func (db *DB) fewRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entr
 		if len(out) == 0 {
 			return
 		}
-		// The names of the runs' variants, configurations, stations and
-		// fixtures, in one round trip.
-		var want [4][]int32
-		for _, id := range ids {
-			for k := range want {
-				want[k] = append(want[k], id[k])
-			}
-		}
-		nrows, err := db.pool.Query(ctx, `SELECT 0, id, name FROM variants WHERE id = ANY($1)
-			UNION ALL SELECT 1, id, hash FROM configs WHERE id = ANY($2)
-			UNION ALL SELECT 2, id, name FROM stations WHERE id = ANY($3)
-			UNION ALL SELECT 3, id, name FROM fixtures WHERE id = ANY($4)`, want[0], want[1], want[2], want[3])
+		names, err := db.runNames(ctx, ids)
 		if err != nil {
-			fail(err)
-			return
-		}
-		var (
-			names [4]map[int32]string
-			kind  int32
-			id    int32
-			label string
-		)
-		for k := range names {
-			names[k] = map[int32]string{}
-		}
-		if _, err := pgx.ForEachRow(nrows, []any{&kind, &id, &label}, func() error {
-			if kind >= 0 && int(kind) < len(names) {
-				names[kind][id] = label
-			}
-			return nil
-		}); err != nil {
 			fail(err)
 			return
 		}
@@ -572,6 +543,41 @@ func (db *DB) fewRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entr
 			}
 		}
 	}
+}
+
+// runNames reads the names of the variants, configurations (their hash),
+// stations and fixtures that ids (variant, config, station, fixture per
+// run) name, in one round trip.
+func (db *DB) runNames(ctx context.Context, ids [][4]int32) ([4]map[int32]string, error) {
+	var (
+		want  [4][]int32
+		names [4]map[int32]string
+		kind  int32
+		id    int32
+		label string
+	)
+	for _, r := range ids {
+		for k := range want {
+			want[k] = append(want[k], r[k])
+		}
+	}
+	for k := range names {
+		names[k] = map[int32]string{}
+	}
+	rows, err := db.pool.Query(ctx, `SELECT 0, id, name FROM variants WHERE id = ANY($1)
+		UNION ALL SELECT 1, id, hash FROM configs WHERE id = ANY($2)
+		UNION ALL SELECT 2, id, name FROM stations WHERE id = ANY($3)
+		UNION ALL SELECT 3, id, name FROM fixtures WHERE id = ANY($4)`, want[0], want[1], want[2], want[3])
+	if err != nil {
+		return names, err
+	}
+	_, err = pgx.ForEachRow(rows, []any{&kind, &id, &label}, func() error {
+		if kind >= 0 && int(kind) < len(names) {
+			names[kind][id] = label
+		}
+		return nil
+	})
+	return names, err
 }
 
 // Drivers lists the station drivers the plant's runs were recorded with,
@@ -684,27 +690,28 @@ func (db *DB) RunsAt(ctx context.Context, variant string, ids []int64, ats []tim
 	// Each pair is one probe of the (variant_id, at, log_id, local_id)
 	// index per month partition; the lowest log_id is the first in plant
 	// order (at, log_id, local_id) among runs sharing id and time.
-	rows, err := db.pool.Query(ctx, `SELECT k.i, r.local_id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot,
-		r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault
+	// The names come from the small tables afterwards (runNames): joined
+	// here, PostgreSQL rebuilt their hash tables once per pair.
+	rows, err := db.pool.Query(ctx, `SELECT k.i, r.local_id, r.serial, r.variant_id, r.config_id, r.station_id, r.fixture_id,
+		r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault
 		FROM unnest($1::bigint[], $2::bigint[]) WITH ORDINALITY AS k(id, at, i)
 		CROSS JOIN LATERAL (SELECT * FROM runs r WHERE r.variant_id = (SELECT id FROM variants WHERE name = $3)
-			AND r.at = k.at AND r.local_id = k.id ORDER BY r.log_id LIMIT 1) r
-		JOIN variants v ON v.id = r.variant_id
-		JOIN configs c ON c.id = r.config_id
-		JOIN stations s ON s.id = r.station_id
-		JOIN fixtures fx ON fx.id = r.fixture_id`, ids, ns, variant)
+			AND r.at = k.at AND r.local_id = k.id ORDER BY r.log_id LIMIT 1) r`, ids, ns, variant)
 	if err != nil {
 		return nil, fmt.Errorf("plant runs of %s by id and time: %w", variant, err)
 	}
 	var (
 		i       int64
 		e       store.Entry
+		id      [4]int32 // variant, config, station, fixture
 		started *int64
 		fin     int64
 		verdict string
 		trip    *float64
+		found   []int
+		names   [][4]int32
 	)
-	_, err = pgx.ForEachRow(rows, []any{&i, &e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture, &e.Operator,
+	_, err = pgx.ForEachRow(rows, []any{&i, &e.ID, &e.Serial, &id[0], &id[1], &id[2], &id[3], &e.Operator,
 		&e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault}, func() error {
 		if i < 1 || i > int64(len(out)) {
 			return fmt.Errorf("row for pair %d of %d", i, len(out))
@@ -715,10 +722,22 @@ func (db *DB) RunsAt(ctx context.Context, variant string, ids []int64, ats []tim
 		}
 		x.Finished, x.Verdict, x.TripPF = time.Unix(0, fin).UTC(), sequences.Verdict(verdict), orNaN(trip)
 		out[i-1] = x
+		found, names = append(found, int(i-1)), append(names, id)
 		return nil
 	})
 	if err != nil {
 		return nil, fmt.Errorf("plant runs of %s by id and time: %w", variant, err)
+	}
+	if len(found) == 0 {
+		return out, nil
+	}
+	n, err := db.runNames(ctx, names)
+	if err != nil {
+		return nil, fmt.Errorf("plant runs of %s by id and time: %w", variant, err)
+	}
+	for k, j := range found {
+		out[j].Variant, out[j].ConfigHash = n[0][names[k][0]], n[1][names[k][1]]
+		out[j].Station, out[j].Fixture = n[2][names[k][2]], n[3][names[k][3]]
 	}
 	return out, nil
 }
