@@ -163,3 +163,86 @@ func copyFile(t testing.TB, from, to string) {
 		t.Fatal(err)
 	}
 }
+
+// BenchmarkPutBatch compares the two ways Put stores a batch, to place
+// smallBatch: as arrays in two round trips ("arrays", putSmall) and by
+// COPY into staging tables ("copy"), for batches of 1 to 1,000 runs (4
+// measurements each). An iteration stores a backlog of putBatchRuns runs
+// batch by batch into a fresh schema as the station's own role;
+// station-cpu-us/run is this process's CPU time (getrusage) per run, the
+// figure a station pays, and station-cpu-us/batch the same per batch.
+//
+//	go test ./store/plant -run '^$' -bench PutBatch -benchtime 1x
+func BenchmarkPutBatch(b *testing.B) {
+	ctx := context.Background()
+	src := tempLog(b, "putbatch")
+	log := stationLog(b, src, "S1", putBatchRuns, time.Date(2026, 11, 20, 6, 0, 0, 0, time.UTC), 1)
+	st, err := log.OutboxState(ctx)
+	if err != nil {
+		b.Fatal(err)
+	}
+	runs, err := log.PendingRuns(ctx, 0, putBatchRuns)
+	if err != nil {
+		b.Fatal(err)
+	}
+	var configs []plant.Config
+	seen := map[[2]string]bool{}
+	for _, r := range runs {
+		k := [2]string{r.Variant, r.ConfigHash}
+		if seen[k] {
+			continue
+		}
+		seen[k] = true
+		snap, err := log.Snapshot(ctx, r.Variant, r.ConfigHash)
+		if err != nil {
+			b.Fatal(err)
+		}
+		configs = append(configs, plant.Config{Variant: r.Variant, Hash: r.ConfigHash, Snapshot: snap})
+	}
+	for _, size := range []int{1, 10, 50, 200, 500, 1000} {
+		for _, path := range []string{"arrays", "copy"} {
+			b.Run(fmt.Sprintf("runs-%d/%s", size, path), func(b *testing.B) {
+				restore := plant.SetSmallBatchForTest(map[string]int{"arrays": size, "copy": -1}[path])
+				defer restore()
+				var cpu time.Duration
+				batches := 0
+				for range b.N {
+					b.StopTimer()
+					url, schema := newSchema(b, baseURL())
+					admin := openPlant(b, url)
+					register(b, admin, plant.Station{Name: "S1", Role: schema + "_s1"})
+					p := openPlant(b, asRole(url, schema+"_s1"))
+					// The first batch registers the names and the configuration.
+					if _, err := p.Put(ctx, &plant.Batch{Log: st.LogUUID, Station: "S1", Sent: time.Now(), Runs: runs[:1], Configs: configs}); err != nil {
+						b.Fatal(err)
+					}
+					b.StartTimer()
+					cpu0 := selfCPU(b)
+					for lo := 1; lo < len(runs); lo += size {
+						res, err := p.Put(ctx, &plant.Batch{Log: st.LogUUID, Station: "S1", Sent: time.Now(), Runs: runs[lo:min(lo+size, len(runs))]})
+						if err != nil {
+							b.Fatal(err)
+						}
+						if len(res.Refused) > 0 {
+							b.Fatalf("refused: %v", res.Refused)
+						}
+						batches++
+					}
+					cpu += selfCPU(b) - cpu0
+					b.StopTimer()
+					if n := countRuns(b, admin, store.Filter{}); n != int64(len(runs)) {
+						b.Fatalf("%d runs landed of %d", n, len(runs))
+					}
+					b.StartTimer()
+				}
+				b.ReportMetric(float64(cpu.Microseconds())/float64(b.N*(len(runs)-1)), "station-cpu-us/run")
+				b.ReportMetric(float64(cpu.Microseconds())/float64(batches), "station-cpu-us/batch")
+				load, _ := os.ReadFile("/proc/loadavg")
+				b.Logf("load %s", strings.Join(strings.Fields(string(load))[:3], " "))
+			})
+		}
+	}
+}
+
+// putBatchRuns is BenchmarkPutBatch's backlog.
+const putBatchRuns = 3001

@@ -33,3 +33,11 @@ func (db *DB) BackendPIDsForTest(ctx context.Context, app string) ([]int64, erro
 	}
 	return out, rows.Err()
 }
+
+// SetSmallBatchForTest sets the most runs a batch sends as arrays
+// (putSmall; -1: none) and returns the function that restores it.
+func SetSmallBatchForTest(n int) (restore func()) {
+	old := smallBatch
+	smallBatch = n
+	return func() { smallBatch = old }
+}
