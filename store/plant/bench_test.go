@@ -199,7 +199,7 @@ func BenchmarkPutBatch(b *testing.B) {
 		}
 		configs = append(configs, plant.Config{Variant: r.Variant, Hash: r.ConfigHash, Snapshot: snap})
 	}
-	for _, size := range []int{1, 10, 50, 200, 500, 1000} {
+	for _, size := range putBatchSizes {
 		for _, path := range []string{"arrays", "copy"} {
 			b.Run(fmt.Sprintf("runs-%d/%s", size, path), func(b *testing.B) {
 				restore := plant.SetSmallBatchForTest(map[string]int{"arrays": size, "copy": -1}[path])
@@ -246,3 +246,6 @@ func BenchmarkPutBatch(b *testing.B) {
 
 // putBatchRuns is BenchmarkPutBatch's backlog.
 const putBatchRuns = 3001
+
+// putBatchSizes are BenchmarkPutBatch's batch sizes.
+var putBatchSizes = []int{1, 10, 50, 200, 500, 1000}
