@@ -133,6 +133,8 @@ const (
 	MeasPriorSigmaLogSD    Quantity = "prior_sigma_log_sd"    // its SD of ln σ
 	MeasPriorSigmaUnits    Quantity = "prior_sigma_units"     // recent passing units it rests on (0: the variant's)
 	MeasPriorSigmaLogUnits Quantity = "prior_sigma_log_units" // of those, units read from the shift log at start
+	MeasPriorTripPF        Quantity = "prior_trip_pf"         // centre of the search's prior on the trip point, pF (the variant's prediction)
+	MeasPriorTripSDPF      Quantity = "prior_trip_sd_pf"      // its SD, pF
 	MeasSigmaRefPF         Quantity = "sigma_ref_pf"          // the unit's σ under the variant's own prior (what the window notes)
 	// The fixture offset (Plan.SetOffset): the trip as found on the
 	// ladder's entered values, the offset added to it and its standard
@@ -657,6 +659,12 @@ func (p *Plan) tripSearch(ctx context.Context, t *Trial) error {
 		t.Measure(MeasPriorSigmaLogSD, o.SpreadPriorLogSD, "", NoLimit, NoLimit)
 		t.Measure(MeasPriorSigmaUnits, float64(units), "count", NoLimit, NoLimit)
 		t.Measure(MeasPriorSigmaLogUnits, float64(logUnits), "count", NoLimit, NoLimit)
+		if o.TripPriorSDPF > 0 {
+			// In the levels' basis: a fixture offset (a few tenths of a
+			// pF) is small beside the prior's SD and is not taken off.
+			t.Measure(MeasPriorTripPF, o.TripPriorPF, "pF", NoLimit, NoLimit)
+			t.Measure(MeasPriorTripSDPF, o.TripPriorSDPF, "pF", NoLimit, NoLimit)
+		}
 	}
 	res, err := FindTrip(pr, pf, opt)
 	for i, d := range pr.elapsed {

@@ -225,3 +225,51 @@ func TestPlanFoldedWithoutEdges(t *testing.T) {
 		}
 	}
 }
+
+// TestPlanTripPriorFailCodes: with the variant's predicted trip
+// distribution as the search's prior, a unit whose trip lies far from the
+// prediction (a defect) fails with the same code as with the bisection of
+// the whole ladder, a good unit passes, and each run records the prior.
+func TestPlanTripPriorFailCodes(t *testing.T) {
+	levels := demoLevels(t)
+	for _, tc := range []struct {
+		name string
+		unit func(f *fakeStation)
+		code sequences.FailCode
+	}{
+		{"good unit", func(f *fakeStation) {}, ""},
+		{"trips low", func(f *fakeStation) { f.TripPF = 8 }, sequences.CodeTripLow},
+		{"trips high", func(f *fakeStation) { f.TripPF = 65 }, sequences.CodeTripHigh},
+		{"trips far high", func(f *fakeStation) { f.TripPF = 120 }, sequences.CodeTripHigh},
+		{"never trips", func(f *fakeStation) { f.TripPF = 500 }, sequences.CodeNoTrip},
+		{"trips below the open ladder", func(f *fakeStation) { f.TripPF = 3 }, sequences.CodeIdleLatched},
+		{"sticky latch tripping high", func(f *fakeStation) { f.Sticky, f.TripPF = true, 80 }, sequences.CodeStuckLatched},
+		{"noisy", func(f *fakeStation) { f.SigmaPF = 3 }, sequences.CodeTripNoisy},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			for seed := range uint64(seeds) {
+				for _, prior := range []bool{false, true} {
+					cfg := foldConfig()
+					if prior {
+						cfg.Search.TripPriorPF, cfg.Search.TripPriorSDPF = priorPF, priorSDPF
+					}
+					f := newFake(levels, seed)
+					tc.unit(f)
+					_, run, err := execute(t, context.Background(), cfg, f)
+					if err != nil {
+						t.Fatal(err)
+					}
+					if run.FailCode != tc.code && (tc.code != sequences.CodeTripNoisy || run.FailCode != "") {
+						t.Errorf("seed %d prior %v: code %q, want %q", seed, prior, run.FailCode, tc.code)
+					}
+					m := measurements(t, run)
+					if got, ok := m["prior_trip_pf"]; prior && run.FailCode != sequences.CodeIdleLatched && (!ok || got.Value != priorPF || m["prior_trip_sd_pf"].Value != priorSDPF) {
+						t.Errorf("seed %d: prior recorded as %+v, %+v", seed, got, m["prior_trip_sd_pf"])
+					} else if !prior && ok {
+						t.Errorf("seed %d: a prior recorded for a search without one", seed)
+					}
+				}
+			}
+		})
+	}
+}

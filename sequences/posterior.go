@@ -6,7 +6,8 @@ import (
 )
 
 // tripGrid is the posterior of a probit transition, P(high | C) =
-// Φ((C − μ)/σ), over a grid of (μ, ln σ): a flat or normal prior on μ, a
+// Φ((C − μ)/σ), over a grid of (μ, ln σ): a flat prior on μ or the trip
+// prior (SearchOptions.TripPriorPF, TripPriorOffModel), a
 // log-normal prior on σ, and the likelihood of every tally booked. Its
 // moments are sums over the grid: the trip point's posterior mean and
 // standard deviation are what the search reports and stops on, so the
@@ -36,7 +37,7 @@ const (
 )
 
 // newTripGrid builds the prior grid centred at centre.
-func newTripGrid(centre float64, prior ProbitPrior, muPrior, muPriorSD, seTarget float64) *tripGrid {
+func newTripGrid(centre float64, prior ProbitPrior, muLogPrior func(float64) float64, seTarget float64) *tripGrid {
 	ls0, span := math.Log(prior.SigmaPF), math.Min(3*prior.LogSD, 2.5)
 	if !(span > 0) {
 		span = 2.5
@@ -56,19 +57,20 @@ func newTripGrid(centre float64, prior ProbitPrior, muPrior, muPriorSD, seTarget
 		g.sig[j] = math.Exp(g.logSig[j])
 	}
 	g.logp = make([]float64, nMu*nSig)
+	muLP := make([]float64, nMu)
+	if muLogPrior != nil {
+		for i, m := range g.mu {
+			muLP[i] = muLogPrior(m)
+		}
+	}
 	for j, ls := range g.logSig {
 		var lp float64
 		if prior.LogSD > 0 {
 			r := (ls - ls0) / prior.LogSD
 			lp = -r * r / 2
 		}
-		for i, m := range g.mu {
-			v := lp
-			if muPriorSD > 0 {
-				r := (m - muPrior) / muPriorSD
-				v -= r * r / 2
-			}
-			g.logp[j*nMu+i] = v
+		for i := range g.mu {
+			g.logp[j*nMu+i] = lp + muLP[i]
 		}
 	}
 	return g
@@ -228,8 +230,8 @@ func (s *searcher) refinePosterior(mid float64) error {
 		recentre()
 	}
 	suspect := s.suspect(m, prior)
-	if !suspect && s.opt.GuardPeekK > 0 {
-		misread, err := s.guard(m.MuPF, s.opt.GuardPeekK)
+	if !suspect && (s.opt.GuardPeekK > 0 || s.opt.GuardPeekUpK > 0) {
+		misread, err := s.guard(m.MuPF, s.opt.GuardPeekK, s.opt.GuardPeekUpK)
 		if err != nil {
 			s.finishPosterior(m, prior)
 			return err
@@ -238,7 +240,7 @@ func (s *searcher) refinePosterior(mid float64) error {
 	}
 	if suspect && s.opt.GuardK > 0 {
 		s.res.Suspect = true
-		misread, err := s.guard(m.MuPF, s.opt.GuardK)
+		misread, err := s.guard(m.MuPF, s.opt.GuardK, s.opt.GuardK)
 		if err != nil {
 			s.finishPosterior(m, prior)
 			return err
@@ -256,7 +258,11 @@ func (s *searcher) refinePosterior(mid float64) error {
 // buildGrid makes a fresh grid centred at centre holding every sample so
 // far, and returns its moments.
 func (s *searcher) buildGrid(centre float64, prior ProbitPrior) gridMoments {
-	s.grid = newTripGrid(centre, prior, s.opt.TripPriorPF, s.opt.TripPriorSDPF, s.opt.SETargetPF)
+	var muLogPrior func(float64) float64
+	if s.opt.TripPriorSDPF > 0 {
+		muLogPrior = s.tripLogPrior
+	}
+	s.grid = newTripGrid(centre, prior, muLogPrior, s.opt.SETargetPF)
 	for _, l := range s.touched {
 		s.grid.add(s.levels[l], s.n[l], s.h[l])
 	}

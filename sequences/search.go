@@ -79,10 +79,22 @@ type SearchOptions struct {
 	// unit clock period (0 when operate + bounce end before the next edge).
 	// Posterior only.
 	MoveCostSamples float64
-	// TripPriorPF and TripPriorSDPF put a normal prior on the trip point
-	// (the variant's predicted trip distribution); SD 0 leaves it flat.
-	// Posterior only.
+	// TripPriorPF and TripPriorSDPF are the variant's predicted trip
+	// distribution (the timing model's Monte Carlo mean and SD); SD 0
+	// leaves the trip point's prior flat. With a prior, the prior on the
+	// trip point is the mixture (1 − TripPriorOffModel)·N(TripPriorPF,
+	// TripPriorSDPF²) + TripPriorOffModel·uniform over the levels' range:
+	// the Bracket strategy bisects its cumulative distribution instead of
+	// the level indices (see bisectPrior), and the Posterior refinement's
+	// grid carries it.
 	TripPriorPF, TripPriorSDPF float64
+	// TripPriorOffModel is the prior share of units the prediction does not
+	// describe, whose trip may lie anywhere on the ladder (default 0.03:
+	// the demo's unit defect rates sum to 3.6 %, DEVELOPERS.md "Simulator
+	// realism floor"; most of them do not move the trip point). It keeps a
+	// unit far from its prediction to a bisection's probes and a few more
+	// instead of a search that creeps through the prior's tail.
+	TripPriorOffModel float64
 	// SuspectP marks a unit suspect, so that it gets guard samples, when
 	// the fit's deviance has a chi-square tail probability below it
 	// (default 0.05); SuspectSigmaPF when the fitted σ exceeds it; and
@@ -92,14 +104,23 @@ type SearchOptions struct {
 	// NoisySpreadPF, is 0.4 pF: a 1.03 pF transition, above the widest a
 	// good unit of the demo variant shows (0.9 pF).
 	SuspectP, SuspectSigmaPF, SuspectReadingP float64
-	// GuardPeekK is the number of samples the Posterior refinement takes at
-	// each guard level of a unit the fit does not find suspect (default 2;
-	// −1 takes none): a wrong reading there makes the unit suspect and the
+	// GuardPeekK and GuardPeekUpK are the numbers of samples the Posterior
+	// refinement takes at the lower and the upper guard level of a unit
+	// the fit does not find suspect (defaults 1 and 4; −1 takes none on
+	// that side): a wrong reading there makes the unit suspect and the
 	// full GuardK follows. A latch that reads at random (a coin flip, or a
 	// probability that jumps from level to level) looks like a clean
 	// transition at the one or two levels the refinement samples; only
-	// samples away from the trip point show it.
-	GuardPeekK int
+	// samples away from the trip point show it. Five samples keep a coin
+	// flip's chance of passing them at 1/32. Four go above the trip point:
+	// a pad that loses contact (intermittent, open) removes capacitance, so
+	// its wrong readings are lows where a good unit reads high
+	// (DEVELOPERS.md "Physics" 4: less capacitance, a faster decay, a low
+	// latch), and a bracket that starts from the trip prior makes about
+	// one probe fewer above the trip point than a bisection of the whole
+	// ladder, whose probes there caught such units too
+	// (TestFindTripNoisyDetection).
+	GuardPeekK, GuardPeekUpK int
 	// SigmaRefPrior, when set, asks the Posterior refinement for
 	// TripResult.SigmaRefPF: σ as the samples show it under this prior
 	// rather than the one searched with (a plan's running prior must be
@@ -164,6 +185,7 @@ func (o SearchOptions) withDefaults() (SearchOptions, error) {
 	def(&o.SpreadPriorLogSD, 0.7)
 	def(&o.NoisySpreadPF, 2.5)
 	def(&o.ConsistencyP, 1e-3)
+	def(&o.TripPriorOffModel, 0.03)
 	if o.MaxRefineSamples == 0 {
 		// Laplace: 32. Posterior: 64 at 0.1 pF (2.4 × the floor's
 		// refinement at σ 0.35 pF: its honest SE needs more samples than
@@ -183,7 +205,10 @@ func (o SearchOptions) withDefaults() (SearchOptions, error) {
 		o.GuardK = 3
 	}
 	if o.GuardPeekK == 0 {
-		o.GuardPeekK = 2
+		o.GuardPeekK = 1
+	}
+	if o.GuardPeekUpK == 0 {
+		o.GuardPeekUpK = 4
 	}
 	def(&o.GuardPF, 0.6*o.NoisySpreadPF)
 	def(&o.SuspectP, 0.05)
@@ -194,12 +219,13 @@ func (o SearchOptions) withDefaults() (SearchOptions, error) {
 		return o, fmt.Errorf("strategy %q: %w", o.Strategy, ErrSearchOptions)
 	case o.Refine != Posterior && o.Refine != Laplace:
 		return o, fmt.Errorf("refinement %q: %w", o.Refine, ErrSearchOptions)
-	case !(o.MoveCostSamples >= 0), !(o.TripPriorSDPF >= 0):
-		return o, fmt.Errorf("negative move cost or prior width: %w", ErrSearchOptions)
+	case !(o.MoveCostSamples >= 0), !(o.TripPriorSDPF >= 0), o.TripPriorSDPF > 0 && math.IsNaN(o.TripPriorPF),
+		!(o.TripPriorOffModel > 0 && o.TripPriorOffModel <= 1):
+		return o, fmt.Errorf("negative move cost, prior width or off-model share: %w", ErrSearchOptions)
 	case !(o.SETargetPF > 0), !(o.SpreadPriorPF > 0), !(o.SpreadPriorLogSD > 0),
 		!(o.NoisySpreadPF > 0), !(o.GuardPF > 0), !(o.ConsistencyP >= 0 && o.ConsistencyP < 1):
 		return o, fmt.Errorf("non-positive target, prior or threshold: %w", ErrSearchOptions)
-	case o.MaxRefineSamples < 0, o.BatchK < 0, o.ConfirmK < 0, o.GuardK < -1, o.GuardPeekK < -1:
+	case o.MaxRefineSamples < 0, o.BatchK < 0, o.ConfirmK < 0, o.GuardK < -1, o.GuardPeekK < -1, o.GuardPeekUpK < -1:
 		return o, fmt.Errorf("negative sample count: %w", ErrSearchOptions)
 	}
 	return o, nil
@@ -362,6 +388,8 @@ func (s *searcher) run() error {
 	if s.opt.Strategy == Staircase {
 		phase = PhaseClimb
 		lo, hi, err = s.climb()
+	} else if s.opt.TripPriorSDPF > 0 {
+		lo, hi, err = s.bisectPrior()
 	} else {
 		lo, hi, err = s.bisect()
 	}
@@ -437,6 +465,85 @@ func (s *searcher) bisect() (lo, hi int, err error) {
 	return lo, hi, nil
 }
 
+// tripPriorCDF is the trip point's prior probability of lying below x
+// (TripPriorSDPF > 0): the variant's predicted normal distribution, mixed
+// with TripPriorOffModel of a uniform one over the levels' range.
+func (s *searcher) tripPriorCDF(x float64) float64 {
+	lo, hi := s.levels[0], s.levels[len(s.levels)-1]
+	u := math.Min(math.Max((x-lo)/(hi-lo), 0), 1)
+	e := s.opt.TripPriorOffModel
+	return (1-e)*normCDF((x-s.opt.TripPriorPF)/s.opt.TripPriorSDPF) + e*u
+}
+
+// tripLogPrior is the log density of that prior at x.
+func (s *searcher) tripLogPrior(x float64) float64 {
+	lo, hi := s.levels[0], s.levels[len(s.levels)-1]
+	e, sd := s.opt.TripPriorOffModel, s.opt.TripPriorSDPF
+	d := (1 - e) * phi((x-s.opt.TripPriorPF)/sd) / sd
+	if x >= lo && x <= hi {
+		d += e / (hi - lo)
+	}
+	return math.Log(math.Max(d, math.SmallestNonzeroFloat64))
+}
+
+// bisectPrior is bisect on the trip point's prior instead of the level
+// indices: each single-sample probe is at the level that splits the
+// prior's probability left between the last level read low and the first
+// read high most evenly (its conditional median). This is the weighted
+// bisection of Mehlhorn's nearly optimal binary search trees (K. Mehlhorn,
+// Acta Informatica 5, 1975, 287–295: at most H + 2 probes expected, H the
+// prior's entropy over the level gaps, against log₂ of the gap count for
+// plain bisection). The first probe is at the predicted trip point; while
+// the readings say the trip lies outside the prediction the probes step
+// outwards, by steps that grow as the normal part's tail empties and the
+// off-model part takes over, until they become plain bisection of what is
+// left. It returns what bisect returns; level 0 and the top level are
+// probed only when the prior's split falls there, and samples already
+// booked at them (SearchOptions.Known) count.
+func (s *searcher) bisectPrior() (lo, hi int, err error) {
+	top := len(s.levels) - 1
+	lo, hi = -1, top+1 // −1 and top+1: not yet bounded
+	if s.n[0] > 0 && s.h[0] == 0 {
+		lo = 0
+	}
+	if s.n[top] > 0 && s.h[top] == s.n[top] {
+		hi = top
+	}
+	for hi-lo > 1 {
+		a, b := 0.0, 1.0
+		if lo >= 0 {
+			a = s.tripPriorCDF(s.levels[lo])
+		}
+		if hi <= top {
+			b = s.tripPriorCDF(s.levels[hi])
+		}
+		q := (a + b) / 2
+		first, last := lo+1, hi-1
+		// The first level in [first, last] whose prior CDF reaches q, or
+		// the one before it when that is nearer.
+		m := first + sort.Search(last-first+1, func(i int) bool { return s.tripPriorCDF(s.levels[first+i]) >= q })
+		if m > last || (m > first && q-s.tripPriorCDF(s.levels[m-1]) < s.tripPriorCDF(s.levels[m])-q) {
+			m--
+		}
+		hs, err := s.probe(m, 1, PhaseBracket)
+		if err != nil {
+			return 0, 0, err
+		}
+		if hs > 0 {
+			hi = m
+		} else {
+			lo = m
+		}
+	}
+	switch {
+	case hi == 0:
+		return 0, 0, nil
+	case lo == top:
+		return top, top, nil
+	}
+	return lo, hi, nil
+}
+
 // climb probes every level from the bottom with one sample until the first
 // high reading.
 func (s *searcher) climb() (lo, hi int, err error) {
@@ -475,7 +582,7 @@ func (s *searcher) refine(mu0 float64) error {
 		fit, ok = s.fit(prior, fit.MuPF, math.Log(fit.SigmaPF))
 	}
 	if ok && s.opt.GuardK > 0 {
-		misread, err := s.guard(fit.MuPF, s.opt.GuardK)
+		misread, err := s.guard(fit.MuPF, s.opt.GuardK, s.opt.GuardK)
 		if err != nil {
 			s.finish(fit, ok)
 			return err
@@ -487,24 +594,25 @@ func (s *searcher) refine(mu0 float64) error {
 	return nil
 }
 
-// guard takes k samples at the highest level at least GuardPF below mu and
-// at the lowest at least GuardPF above it, and reports whether either read
-// on the wrong side of mu.
-func (s *searcher) guard(mu float64, k int) (misread bool, err error) {
+// guard takes kLo samples at the highest level at least GuardPF below mu
+// and kHi at the lowest at least GuardPF above it (none on a side whose k
+// is not positive), and reports whether either read on the wrong side of
+// mu.
+func (s *searcher) guard(mu float64, kLo, kHi int) (misread bool, err error) {
 	// Highest level ≤ mu − GuardPF.
-	if lo := sort.SearchFloat64s(s.levels, math.Nextafter(mu-s.opt.GuardPF, math.Inf(1))) - 1; lo >= 0 {
-		hs, err := s.probe(lo, k, PhaseGuard)
+	if lo := sort.SearchFloat64s(s.levels, math.Nextafter(mu-s.opt.GuardPF, math.Inf(1))) - 1; lo >= 0 && kLo > 0 {
+		hs, err := s.probe(lo, kLo, PhaseGuard)
 		if err != nil {
 			return false, err
 		}
 		misread = hs > 0
 	}
-	if hi := sort.SearchFloat64s(s.levels, mu+s.opt.GuardPF); hi < len(s.levels) {
-		hs, err := s.probe(hi, k, PhaseGuard)
+	if hi := sort.SearchFloat64s(s.levels, mu+s.opt.GuardPF); hi < len(s.levels) && kHi > 0 {
+		hs, err := s.probe(hi, kHi, PhaseGuard)
 		if err != nil {
 			return false, err
 		}
-		misread = misread || hs < k
+		misread = misread || hs < kHi
 	}
 	return misread, nil
 }

@@ -238,7 +238,7 @@ func sameAsLogged(u unitLine, e *store.Entry) error {
 var planOrder = []string{
 	"idle/clock_hz", "idle/idle_highs",
 	"trip_search/prior_sigma_pf", "trip_search/prior_sigma_log_sd", "trip_search/prior_sigma_units",
-	"trip_search/prior_sigma_log_units", "trip_search/sigma_ref_pf",
+	"trip_search/prior_sigma_log_units", "trip_search/prior_trip_pf", "trip_search/prior_trip_sd_pf", "trip_search/sigma_ref_pf",
 	"trip_search/trip_ladder_pf", "trip_search/fixture_offset_pf", "trip_search/fixture_offset_u_pf",
 	"release/release_lows", "idle/idle_lows",
 	"trip_search/trip_pf", "trip_search/trip_se_pf", "trip_search/spread_pf", "retest/prior_fails",

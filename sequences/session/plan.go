@@ -57,6 +57,11 @@ func PlanConfig(v *Variant, rep timing.Report, clockWired bool, strategy string)
 	if clockWired {
 		cfg.ClockPeriods = p.ClockPeriods
 	}
+	// The posterior search starts from the variant's predicted trip
+	// distribution (the timing model's Monte Carlo, 'padline limits').
+	if refine == sequences.Posterior && rep.Trip.MCSD > 0 && !math.IsNaN(rep.Trip.MCMean) {
+		cfg.Search.TripPriorPF, cfg.Search.TripPriorSDPF = rep.Trip.MCMean, rep.Trip.MCSD
+	}
 	return cfg, nil
 }
 
