@@ -705,9 +705,9 @@ func writeTiming(w io.Writer, ss []Stats, seTarget float64) {
 	row("relay operations per unit", func(x Stats) float64 { return x.RelayOpsMean })
 	row("trip RMS error, pF ×1000", func(x Stats) float64 { return 1000 * x.TripRMSErrPF })
 	row("search samples, good units", func(x Stats) float64 { return x.SearchSamples })
-	fmt.Fprintf(w, "  search floor on good units: %.1f samples = %.1f ms at each unit's clock (the bisection's probes, then\n", s.FloorSamples, s.FloorMS)
-	fmt.Fprintf(w, "  the samples at the nearest level that reach SE %.2f pF with the transition known; relays settle inside a\n", seTarget)
-	fmt.Fprintf(w, "  period here); the %s search took %.1f samples, %.1f ms (%.2f× the floor)\n", s.Strategy, s.SearchSamples, s.SearchMS, s.SearchSamples/s.FloorSamples)
+	fmt.Fprintf(w, "  search floor on good units: %.1f samples = %.1f ms at each unit's clock (a bisection of the whole ladder from\n", s.FloorSamples, s.FloorMS)
+	fmt.Fprintf(w, "  no prior, then the samples at the nearest level that reach SE %.2f pF with the transition known; relays settle\n", seTarget)
+	fmt.Fprintf(w, "  inside a period here); the %s search took %.1f samples, %.1f ms (%.2f× the floor)\n", s.Strategy, s.SearchSamples, s.SearchMS, s.SearchSamples/s.FloorSamples)
 	for _, c := range ss[1:] {
 		if c.Strategy == "staircase" {
 			b := ss[0]
