@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"iter"
 	"math"
 	"runtime"
 	"slices"
@@ -429,6 +430,9 @@ func logGroups(ctx context.Context, db runLog, o Options, variant string) ([]dri
 	if o.Last == 0 && o.By == "" {
 		whole = startCounts(ctx, db, o.Filter, sem)
 	}
+	if rs, ok := db.(runStreamer); ok && o.Last == 0 && o.Filter.Verdict == "" && streamKey(store.TripPoint{}, o.By) != nil {
+		return streamGroups(ctx, rs, o, variant)
+	}
 	if o.Last == 0 && byGroups {
 		f := o.Filter
 		f.FirstInGroup = true // as driftKey sets it for every group CountsBy counts
@@ -457,6 +461,101 @@ func logGroups(ctx context.Context, db runLog, o Options, variant string) ([]dri
 	}
 	for i := range groups {
 		groups[i].counts = startCounts(ctx, db, groups[i].filter, sem)
+	}
+	return groups, nil
+}
+
+// runStreamer is a log that streams every run with its verdict and counts
+// first verdicts by group on their own (the plant store): a --by series
+// and its groups' run totals then come from one read of the variant's
+// runs, not from the series' read and a second, grouped, count of the same
+// runs alongside it (on 10,000,000 plant runs that count was most of
+// drift --by station's server time).
+type runStreamer interface {
+	RunPoints(ctx context.Context, f store.Filter) iter.Seq2[store.TripPoint, error]
+	FirstCountsBy(ctx context.Context, f store.Filter, by string) (map[string]store.Counts, error)
+}
+
+// streamKey is a run's group under --by as both driftKey and CountsBy
+// key it (nil: --by is not one streamGroups counts).
+func streamKey(p store.TripPoint, by string) *string {
+	switch by {
+	case "station":
+		return &p.Station
+	case "fixture":
+		return &p.Fixture
+	case "lot":
+		return &p.Lot
+	case "line":
+		return &p.Line
+	}
+	return nil
+}
+
+// streamGroups is logGroups over a runStreamer (no --last, no verdict
+// filter): every run of the groups' filter is read once; each counts in
+// its group's verdict totals, as CountsBy counts it, and the passing ones
+// with a trip point (every one with a trip point under --all-verdicts)
+// make the series, as driftGroups reads it. The first-pass counts come
+// from FirstCountsBy, running alongside.
+func streamGroups(ctx context.Context, rs runStreamer, o Options, variant string) ([]driftSeries, error) {
+	f := o.Filter
+	cf := f
+	cf.FirstInGroup = true // as driftKey sets it for every group
+	first := &countsBy{f: byCommon(cf, o.By), done: make(chan struct{})}
+	go func() {
+		defer close(first.done)
+		first.m, first.err = rs.FirstCountsBy(ctx, first.f, o.By)
+	}()
+	runs := map[string]store.Counts{}
+	var cur *store.Counts
+	curKey := ""
+	groups, err := seriesGroups(&f, o.By, func(add func(store.TripPoint)) error {
+		for p, err := range rs.RunPoints(ctx, f) {
+			if err != nil {
+				return err
+			}
+			if k := *streamKey(p, o.By); cur == nil || k != curKey {
+				if cur != nil {
+					runs[curKey] = *cur
+				}
+				c := runs[k]
+				cur, curKey = &c, k
+			}
+			cur.Runs++
+			switch p.Verdict {
+			case sequences.Pass:
+				cur.Pass++
+			case sequences.Fail:
+				cur.Fail++
+			case sequences.StationFault:
+				cur.StationFault++
+			}
+			if !math.IsNaN(p.TripPF) && (o.AllVerdicts || p.Verdict == sequences.Pass) {
+				add(p)
+			}
+		}
+		if cur != nil {
+			runs[curKey] = *cur
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("drift: %w", err)
+	}
+	if len(groups) == 0 {
+		return nil, fmt.Errorf("drift: no trip points of %s in %s%s", variant, o.DB, describeFilter(o))
+	}
+	for i := range groups {
+		ch := make(chan countsResult, 1)
+		groups[i].counts = ch
+		key := groups[i].key
+		go func() {
+			<-first.done
+			c := runs[key]
+			c.FirstUnits, c.FirstPass = first.m[key].FirstUnits, first.m[key].FirstPass
+			ch <- countsResult{c, first.err}
+		}()
 	}
 	return groups, nil
 }
@@ -570,13 +669,45 @@ func driftGroups(ctx context.Context, db runLog, f store.Filter, by string, allV
 	// point; station, fixture and lot are read only when --by needs them.
 	// With --last N only the last N are read, and the groups' yield counts
 	// the runs since the first of them.
+	return seriesGroups(&f, by, func(add func(store.TripPoint)) error {
+		if last > 0 {
+			series := db.TripSeries
+			if by == "" || by == "shift" {
+				series = db.TripValues
+			}
+			pts, err := series(ctx, sf, last)
+			if err != nil {
+				return err
+			}
+			if len(pts) > 0 && pts[0].Finished.After(f.Since) {
+				f.Since = pts[0].Finished
+			}
+			for _, p := range pts {
+				add(p)
+			}
+			return nil
+		}
+		for p, err := range db.Trips(ctx, sf, by != "" && by != "shift") {
+			if err != nil {
+				return err
+			}
+			add(p)
+		}
+		return nil
+	})
+}
+
+// seriesGroups splits the points read calls add with into series by the
+// --by key, groups in key order (shift keys sort by time); *f is the
+// groups' common filter (read may narrow it before the first point).
+func seriesGroups(f *store.Filter, by string, read func(add func(store.TripPoint)) error) ([]driftSeries, error) {
 	var out []driftSeries
 	idx := map[string]int{}
 	add := func(p store.TripPoint) {
 		key, i := "", 0
 		if by != "" {
 			var gf store.Filter
-			key, gf = driftKey(p, by, f)
+			key, gf = driftKey(p, by, *f)
 			var ok bool
 			if i, ok = idx[key]; !ok {
 				i = len(out)
@@ -584,35 +715,15 @@ func driftGroups(ctx context.Context, db runLog, f store.Filter, by string, allV
 				out = append(out, driftSeries{key: key, filter: gf})
 			}
 		} else if len(out) == 0 {
-			out = append(out, driftSeries{filter: f})
+			out = append(out, driftSeries{filter: *f})
 		}
 		g := &out[i]
 		g.x = append(g.x, p.TripPF)
 		g.runIDs = append(g.runIDs, p.RunID)
 		g.times = append(g.times, p.Finished.UnixNano())
 	}
-	if last > 0 {
-		series := db.TripSeries
-		if by == "" || by == "shift" {
-			series = db.TripValues
-		}
-		pts, err := series(ctx, sf, last)
-		if err != nil {
-			return nil, err
-		}
-		if len(pts) > 0 && pts[0].Finished.After(f.Since) {
-			f.Since = pts[0].Finished
-		}
-		for _, p := range pts {
-			add(p)
-		}
-	} else {
-		for p, err := range db.Trips(ctx, sf, by != "" && by != "shift") {
-			if err != nil {
-				return nil, err
-			}
-			add(p)
-		}
+	if err := read(add); err != nil {
+		return nil, err
 	}
 	slices.SortStableFunc(out, func(a, b driftSeries) int { return strings.Compare(a.key, b.key) })
 	return out, nil
