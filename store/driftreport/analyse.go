@@ -472,7 +472,7 @@ func logGroups(ctx context.Context, db runLog, o Options, variant string) ([]dri
 // runs alongside it (on 10,000,000 plant runs that count was most of
 // drift --by station's server time).
 type runStreamer interface {
-	RunPoints(ctx context.Context, f store.Filter) iter.Seq2[store.TripPoint, error]
+	RunPoints(ctx context.Context, f store.Filter, by string) iter.Seq2[store.TripPoint, error]
 	FirstCountsBy(ctx context.Context, f store.Filter, by string) (map[string]store.Counts, error)
 }
 
@@ -511,7 +511,7 @@ func streamGroups(ctx context.Context, rs runStreamer, o Options, variant string
 	var cur *store.Counts
 	curKey := ""
 	groups, err := seriesGroups(&f, o.By, func(add func(store.TripPoint)) error {
-		for p, err := range rs.RunPoints(ctx, f) {
+		for p, err := range rs.RunPoints(ctx, f, o.By) {
 			if err != nil {
 				return err
 			}
