@@ -2,6 +2,7 @@ package plant_test
 
 import (
 	"context"
+	"math"
 	"strconv"
 	"testing"
 	"time"
@@ -59,6 +60,75 @@ func TestCountsByMatchesCounts(t *testing.T) {
 					t.Errorf("by %s %q (filter %+v): CountsBy %+v, Counts %+v", by, k, f, c, want)
 				}
 			}
+			if by != "site" {
+				runPointsMatch(ctx, t, p, f, by, got)
+			}
+		}
+	}
+}
+
+// runPointsMatch checks drift's one-pass read against the plant's other
+// queries: FirstCountsBy gives CountsBy's first-pass counts and nothing
+// else, RunPoints' verdicts tally to CountsBy's run totals per group, and
+// its runs with a trip point that pass are Trips' passing series, in order.
+func runPointsMatch(ctx context.Context, t *testing.T, p *plant.DB, f store.Filter, by string, counts map[string]store.Counts) {
+	t.Helper()
+	first, err := p.FirstCountsBy(ctx, f, by)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tally := map[string]store.Counts{}
+	var got []store.TripPoint
+	key := func(q store.TripPoint) string {
+		return map[string]string{"station": q.Station, "line": q.Line, "fixture": q.Fixture, "lot": q.Lot}[by]
+	}
+	for q, err := range p.RunPoints(ctx, f, by) {
+		if err != nil {
+			t.Fatal(err)
+		}
+		c := tally[key(q)]
+		c.Runs++
+		switch q.Verdict {
+		case sequences.Pass:
+			c.Pass++
+		case sequences.Fail:
+			c.Fail++
+		case sequences.StationFault:
+			c.StationFault++
+		}
+		tally[key(q)] = c
+		if q.Verdict == sequences.Pass && !math.IsNaN(q.TripPF) {
+			got = append(got, q)
+		}
+	}
+	for k, c := range counts {
+		if w := (store.Counts{FirstUnits: c.FirstUnits, FirstPass: c.FirstPass}); first[k] != w {
+			t.Errorf("by %s %q (filter %+v): FirstCountsBy %+v, CountsBy's first-pass %+v", by, k, f, first[k], w)
+		}
+		c.FirstUnits, c.FirstPass = 0, 0
+		if tally[k] != c {
+			t.Errorf("by %s %q (filter %+v): RunPoints' verdicts %+v, CountsBy %+v", by, k, f, tally[k], c)
+		}
+	}
+	if len(first) != len(counts) || len(tally) != len(counts) {
+		t.Errorf("by %s (filter %+v): %d groups in FirstCountsBy, %d in RunPoints, %d in CountsBy", by, f, len(first), len(tally), len(counts))
+	}
+	pf := f
+	pf.Verdict = sequences.Pass
+	var want []store.TripPoint
+	for q, err := range p.Trips(ctx, pf, true) {
+		if err != nil {
+			t.Fatal(err)
+		}
+		want = append(want, q)
+	}
+	if len(got) != len(want) || len(want) == 0 {
+		t.Fatalf("by %s (filter %+v): %d passing points with a trip from RunPoints, %d from Trips", by, f, len(got), len(want))
+	}
+	for i := range want {
+		w, g := want[i], got[i]
+		if g.RunID != w.RunID || !g.Finished.Equal(w.Finished) || g.TripPF != w.TripPF || key(g) != key(w) {
+			t.Fatalf("by %s point %d: RunPoints %+v, Trips %+v", by, i, g, w)
 		}
 	}
 }
