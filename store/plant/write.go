@@ -185,6 +185,7 @@ type ids struct {
 	quantities   map[[3]string]int32
 	now          int64
 	offset       int64
+	stored       int64            // the log's offset before this batch
 	resolved     map[string]int32 // to remember once the batch commits
 }
 
@@ -200,53 +201,65 @@ func newIDs() *ids {
 		configs: map[[2]string]int32{}, quantities: map[[3]string]int32{}, resolved: map[string]int32{}}
 }
 
-// smallBatch is the most runs a batch sends as arrays in two round trips
-// (putSmall) rather than by COPY into staging tables in nine. On a slow
-// line every unit is a batch of its own, and the staging path cost the
-// station more CPU per unit than issue 17 allows (≤ 1 ms). Past about 200
-// runs COPY's cheaper encoding wins: BenchmarkPutBatch, station CPU per
-// run at load 9-10, arrays against COPY: 1 run 699 µs against 2,443; 50
+// smallBatch is the most runs a batch sends as arrays in one round trip
+// (putSmall; two when a name or the log is new to this handle) rather
+// than by COPY into staging tables in nine. On a slow line every unit is
+// a batch of its own, and the staging path cost the station more CPU per
+// unit than issue 17 allows (≤ 1 ms). Past about 200 runs COPY's cheaper
+// encoding wins: BenchmarkPutBatch, station CPU per run at load 9-10,
+// arrays (two round trips) against COPY: 1 run 699 µs against 2,443; 50
 // runs 37.9 against 69.0; 200 runs 21.5 against 22.8; 500 runs 27.1
-// against 17.6.
+// against 17.6. In one round trip, 1 run: 418 µs against 2,076 (load 7).
 var smallBatch = 200
 
-// putSmall stores a batch of at most smallBatch runs in two round trips on
-// one connection: BEGIN with the server's clock, then every row, the
-// shift log's row and COMMIT pipelined (pgx.Batch: one Sync for them
-// all, PostgreSQL manual, "Extended Query" protocol flow), the runs and measurements moved from arrays by
-// one statement (moveArraysSQL) that applies the row-level policies and
-// the first-verdict bookkeeping as moveSQL does. A row error aborts the
-// whole transaction (nothing stored): Put then stores the batch again on
-// the staging path, under savepoints.
+// putSmall stores a batch of at most smallBatch runs in one transaction
+// pipelined on one connection (pgx.Batch: one Sync for every statement,
+// PostgreSQL manual, "Message Flow", "Extended Query"): BEGIN, the runs and
+// measurements moved from arrays by one statement (moveArraysSQL, which
+// applies the row-level policies and the first-verdict bookkeeping as
+// moveSQL does), the station checks, studies, relay counts, the shift
+// log's row and COMMIT. The statements take the server's clock from
+// transaction_timestamp() and work the clock offset out from it as resolve
+// does (offsetSQL), so a batch whose names and log this handle knows costs
+// one round trip; else BEGIN and the lookups go first. A row error aborts
+// the whole transaction (nothing stored): Put then stores the batch again
+// on the staging path, under savepoints.
 func (db *DB) putSmall(ctx context.Context, b *Batch) (Result, *ids, error) {
 	var res Result
 	x := newIDs()
+	fast := len(b.Configs) == 0 && db.resolve(ctx, noQueries{}, b, x) == nil
 	c, err := db.pool.Acquire(ctx)
 	if err != nil {
 		return res, x, err
 	}
 	defer c.Release() // a connection left in a transaction is closed, not reused
 	conn := c.Conn()
-	pb := &pgx.Batch{}
-	pb.Queue("BEGIN")
-	pb.Queue(nowSQL).QueryRow(func(r pgx.Row) error { return r.Scan(&x.now) })
-	err = conn.SendBatch(ctx, pb).Close()
-	if err == nil {
-		err = db.resolve(ctx, conn, b, x)
-	}
-	if err != nil {
+	rollback := func() {
 		if conn.PgConn().TxStatus() != 'I' && !conn.IsClosed() {
 			rctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), 5*time.Second)
 			_, _ = conn.Exec(rctx, "ROLLBACK")
 			cancel()
 		}
-		return res, x, err
 	}
-	res.Offset = time.Duration(x.offset)
-	pb = &pgx.Batch{}
+	pb := &pgx.Batch{}
+	pb.Queue("BEGIN")
+	if !fast {
+		x = newIDs()
+		pb.Queue(nowSQL).QueryRow(func(r pgx.Row) error { return r.Scan(&x.now) })
+		err = conn.SendBatch(ctx, pb).Close()
+		if err == nil {
+			err = db.resolve(ctx, conn, b, x)
+		}
+		if err != nil {
+			rollback()
+			return res, x, err
+		}
+		pb = &pgx.Batch{}
+	}
+	sent := b.Sent.UnixNano()
 	if len(b.Runs) > 0 {
 		var landed, noted int64
-		pb.Queue(moveArraysSQL, runArrays(b.Runs, x)...).QueryRow(func(r pgx.Row) error {
+		pb.Queue(moveArraysSQL, runArrays(b.Runs, x, sent)...).QueryRow(func(r pgx.Row) error {
 			if err := r.Scan(&landed, &noted); err != nil {
 				return err
 			}
@@ -263,47 +276,98 @@ func (db *DB) putSmall(ctx context.Context, b *Batch) (Result, *ids, error) {
 		return nil
 	}
 	for _, c := range b.Checks {
-		pb.Queue(checkSQL, checkArgs(c, x)...).Exec(count)
+		pb.Queue(checkSmallSQL, x.log, c.ID, idOrNil(x.stations, c.Station), idOrNil(x.fixtures, c.Fixture), c.Time.UnixNano(),
+			c.StationHash, c.OK, c.LastRunID, string(c.Details), sent, x.stored).Exec(count)
 	}
 	for _, s := range b.Studies {
-		pb.Queue(studySQL, studyArgs(s, x)...).Exec(count)
+		pb.Queue(studySmallSQL, x.log, s.ID, idOrNil(x.stations, s.Station), idOrNil(x.fixtures, s.Fixture), s.Kind,
+			s.Time.UnixNano(), string(s.Results), sent, x.stored).Exec(count)
 	}
 	if len(b.Relays) > 0 {
 		args, err := relayArgs(b, x)
 		if err != nil {
+			rollback()
 			return res, x, err
 		}
-		pb.Queue(relaySQL, args...).Exec(func(pgconn.CommandTag) error { return nil })
+		pb.Queue(relaySmallSQL, args[0], args[2], args[3], args[4]).Exec(func(pgconn.CommandTag) error { return nil })
 	}
-	pb.Queue(logSQL, logArgs(b, x)...)
+	la := logArgs(b, x)
+	pb.Queue(logSmallSQL, la[0], la[1], la[2], la[4], sent, x.stored).QueryRow(func(r pgx.Row) error {
+		return r.Scan(&x.now, &x.offset)
+	})
 	pb.Queue("COMMIT").Exec(func(tag pgconn.CommandTag) error {
 		if tag.String() != "COMMIT" {
 			return fmt.Errorf("plant batch not committed (%s)", tag)
 		}
 		return nil
 	})
-	err = conn.SendBatch(ctx, pb).Close()
-	if err != nil && conn.PgConn().TxStatus() != 'I' && !conn.IsClosed() {
-		rctx, cancel := context.WithTimeout(context.WithoutCancel(ctx), 5*time.Second)
-		_, _ = conn.Exec(rctx, "ROLLBACK")
-		cancel()
+	if err := conn.SendBatch(ctx, pb).Close(); err != nil {
+		rollback()
+		return res, x, err
 	}
-	return res, x, err
+	res.Offset = time.Duration(x.offset)
+	return res, x, nil
 }
 
+// errNeedsQuery: resolve needs the database (noQueries).
+var errNeedsQuery = errors.New("plant: lookup needs the database")
+
+// noQueries is a querier that refuses every statement: resolve with it
+// succeeds only when every id the batch names is known to this handle.
+type noQueries struct{}
+
+func (noQueries) Exec(context.Context, string, ...any) (pgconn.CommandTag, error) {
+	return pgconn.CommandTag{}, errNeedsQuery
+}
+func (noQueries) Query(context.Context, string, ...any) (pgx.Rows, error) { return nil, errNeedsQuery }
+func (noQueries) QueryRow(context.Context, string, ...any) pgx.Row        { return errRow{} }
+
+type errRow struct{}
+
+func (errRow) Scan(...any) error { return errNeedsQuery }
+
+// serverNowSQL is the server's clock at the start of the transaction in
+// ns, the same for every statement of it; offsetSQL is the station's clock
+// offset that resolve would work out from it, given the station's send
+// time ($S) and the log's offset so far ($K): kept unless the measured one
+// is more than offsetHysteresis away.
+const serverNowSQL = `(extract(epoch FROM transaction_timestamp()) * 1e9)::bigint`
+
+func offsetSQL(sent, known string) string {
+	return `(CASE WHEN abs(` + serverNowSQL + ` - ` + sent + `::bigint - ` + known + `::bigint) > ` +
+		strconv.FormatInt(int64(offsetHysteresis), 10) + ` THEN ` + serverNowSQL + ` - ` + sent + `::bigint ELSE ` + known + `::bigint END)`
+}
+
+// The small path's statements (putSmall): as checkSQL, studySQL, relaySQL
+// and logSQL, the receive time and offset worked out by the server.
+var (
+	checkSmallSQL = `INSERT INTO station_checks (log_id, local_id, station_id, fixture_id, time, received,
+			station_hash, ok, last_run_id, details) VALUES ($1, $2, $3, $4, $5::bigint + ` + offsetSQL("$10", "$11") + `, ` + serverNowSQL + `,
+			$6, $7, $8, $9) ON CONFLICT DO NOTHING`
+	studySmallSQL = `INSERT INTO studies (log_id, local_id, station_id, fixture_id, kind, time, received, results)
+			VALUES ($1, $2, $3, $4, $5, $6::bigint + ` + offsetSQL("$8", "$9") + `, ` + serverNowSQL + `, $7) ON CONFLICT DO NOTHING`
+	relaySmallSQL = `INSERT INTO relay_wear (station_id, fixture_id, rung, count, updated)
+		SELECT $1, f, r, c, ` + serverNowSQL + ` FROM unnest($2::int[], $3::int[], $4::bigint[]) AS u(f, r, c)
+		ON CONFLICT (station_id, fixture_id, rung) DO UPDATE SET count = EXCLUDED.count, updated = EXCLUDED.updated`
+	logSmallSQL = `UPDATE logs SET last_local_id = greatest(last_local_id, $2), backlog = $3,
+		reported = ` + serverNowSQL + `, profile = $4, clock_offset_ns = ` + offsetSQL("$5", "$6") + ` WHERE id = $1
+		RETURNING reported, clock_offset_ns`
+)
+
 // moveArraysSQL is moveSQL for runs and measurements sent as arrays
-// (runArrays): $3…$20 the runs' columns, $21…$27 the measurements'.
-const moveArraysSQL = `WITH u AS (
-	SELECT * FROM unnest($3::bigint[], $4::int[], $5::text[], $6::int[], $7::int[], $8::int[],
-		$9::text[], $10::text[], $11::text[], $12::bigint[], $13::bigint[], $14::bigint[],
+// (runArrays): $2 the station's send time and $3 the log's clock offset so
+// far (offsetSQL), $4…$20 the runs' columns, $21…$27 the measurements'.
+var moveArraysSQL = `WITH u AS (
+	SELECT * FROM unnest($4::bigint[], $5::int[], $6::text[], $7::int[], $8::int[], $9::int[],
+		$10::text[], $11::text[], $12::text[], $13::bigint[], $14::bigint[],
 		$15::text[], $16::text[], $17::float8[], $18::text[], $19::text[], $20::text[]) WITH ORDINALITY
 		AS u(local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-			started, finished, at, verdict, fail_code, trip_pf, driver, fault, site, i)),
+			started, finished, verdict, fail_code, trip_pf, driver, fault, site, i)),
 ins AS (
 	INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
 		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
 	SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-		started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault, site
+		started, finished, finished + ` + offsetSQL("$2", "$3") + `, ` + serverNowSQL + `, verdict, fail_code, trip_pf, driver, fault, site
 	FROM u ORDER BY i
 	ON CONFLICT DO NOTHING
 	RETURNING local_id, station_id, serial, variant_id, fixture_id, lot, site, finished, at, verdict),
@@ -321,7 +385,7 @@ SELECT (SELECT count(*) FROM ins), (SELECT count(*) FROM first)`
 
 // runArrays is moveArraysSQL's arguments: the columns runSource and
 // measSource feed COPY, one array each.
-func runArrays(runs []*store.Entry, x *ids) []any {
+func runArrays(runs []*store.Entry, x *ids, sent int64) []any {
 	n, nm := len(runs), 0
 	for _, r := range runs {
 		nm += len(r.Measurements)
@@ -333,7 +397,7 @@ func runArrays(runs []*store.Entry, x *ids) []any {
 		verdict, failCode, driver       = make([]string, n), make([]string, n), make([]string, n)
 		fault, site                     = make([]string, n), make([]string, n)
 		started                         = make([]*int64, n)
-		finished, at                    = make([]int64, n), make([]int64, n)
+		finished                        = make([]int64, n)
 		trip                            = make([]*float64, n)
 		mLocal                          = make([]int64, 0, nm)
 		mSeq, mQty                      = make([]int32, 0, nm), make([]*int32, 0, nm)
@@ -347,7 +411,6 @@ func runArrays(runs []*store.Entry, x *ids) []any {
 		serial[i], operator[i], lot[i], software[i] = r.Serial, r.Operator, r.Lot, r.Software
 		started[i] = nullT(r.Started)
 		finished[i] = r.Finished.UnixNano()
-		at[i] = finished[i] + x.offset
 		verdict[i], failCode[i], trip[i] = string(r.Verdict), string(r.FailCode), nullF(r.TripPF)
 		driver[i], fault[i] = r.Driver, r.Fault
 		if r.Site > 0 {
@@ -360,8 +423,8 @@ func runArrays(runs []*store.Entry, x *ids) []any {
 			mVerdict = append(mVerdict, string(m.Verdict))
 		}
 	}
-	return []any{x.log, x.now, localID, station, serial, variant, config, fixt, operator, lot, software,
-		started, finished, at, verdict, failCode, trip, driver, fault, site,
+	return []any{x.log, sent, x.stored, localID, station, serial, variant, config, fixt, operator, lot, software,
+		started, finished, verdict, failCode, trip, driver, fault, site,
 		mLocal, mSeq, mQty, mValue, mLow, mHigh, mVerdict, string(sequences.StationFault)}
 }
 
@@ -525,7 +588,7 @@ func (db *DB) resolve(ctx context.Context, tx querier, b *Batch, x *ids) error {
 			return fmt.Errorf("shift log %s belongs to another station than %s", b.Log, b.Station)
 		}
 	}
-	x.offset = offset
+	x.offset, x.stored = offset, offset
 	if measured := x.now - b.Sent.UnixNano(); time.Duration(abs(measured-offset)) > offsetHysteresis {
 		x.offset = measured
 	}
