@@ -349,6 +349,20 @@ func (db *DB) names(ctx context.Context, table, col string) (map[int32]string, e
 	return m, err
 }
 
+// groupNames names the ids a --by group is kept under: stations by name or
+// by line, fixtures by name; nil for groups stored as text (lot).
+func (db *DB) groupNames(ctx context.Context, by string) (map[int32]string, error) {
+	switch by {
+	case "station":
+		return db.names(ctx, "stations", "name")
+	case "line":
+		return db.names(ctx, "stations", "line")
+	case "fixture":
+		return db.names(ctx, "fixtures", "name")
+	}
+	return nil, nil
+}
+
 // Counts returns the verdict totals of the runs matching f, and the
 // first-pass counts by the plant's first-verdict rule (firstTable).
 func (db *DB) Counts(ctx context.Context, f store.Filter) (store.Counts, error) {
@@ -627,16 +641,7 @@ func (db *DB) RunPoints(ctx context.Context, f store.Filter, by string) iter.Seq
 			fail(errors.New("want station, fixture, lot or line"))
 			return
 		}
-		var names map[int32]string
-		var err error
-		switch by {
-		case "station":
-			names, err = db.names(ctx, "stations", "name")
-		case "line":
-			names, err = db.names(ctx, "stations", "line")
-		case "fixture":
-			names, err = db.names(ctx, "fixtures", "name")
-		}
+		names, err := db.groupNames(ctx, by)
 		if err != nil {
 			fail(err)
 			return
@@ -770,15 +775,7 @@ func (db *DB) countsBy(ctx context.Context, f store.Filter, by string, runs bool
 	if err != nil {
 		return nil, fmt.Errorf("plant counts by %s: %w", by, err)
 	}
-	var names map[int32]string
-	switch by {
-	case "station":
-		names, err = db.names(ctx, "stations", "name")
-	case "line":
-		names, err = db.names(ctx, "stations", "line")
-	case "fixture":
-		names, err = db.names(ctx, "fixtures", "name")
-	}
+	names, err := db.groupNames(ctx, by)
 	if err != nil {
 		rows.Close()
 		return nil, fmt.Errorf("plant counts by %s: %w", by, err)
