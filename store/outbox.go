@@ -89,28 +89,11 @@ func (db *DB) PendingRuns(ctx context.Context, after int64, limit int) ([]*Entry
 	defer rows.Close()
 	var out []*Entry
 	for rows.Next() {
-		var (
-			e        Entry
-			started  sql.NullInt64
-			finished int64
-			verdict  string
-			trip     sql.NullFloat64
-			site     sql.NullInt64
-			panel    sql.NullString
-		)
-		if err := rows.Scan(&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
-			&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
-			&panel, &site); err != nil {
+		var r runCols
+		if err := rows.Scan(r.dest()...); err != nil {
 			return nil, fmt.Errorf("pending runs: %w", err)
 		}
-		if started.Valid {
-			e.Started = time.Unix(0, started.Int64).UTC()
-		}
-		e.Finished = time.Unix(0, finished).UTC()
-		e.Verdict = sequences.Verdict(verdict)
-		e.TripPF = orNaN(trip)
-		e.Panel, e.Site = panel.String, int(site.Int64)
-		out = append(out, &e)
+		out = append(out, r.entry())
 	}
 	if err := rows.Err(); err != nil {
 		return nil, fmt.Errorf("pending runs: %w", err)

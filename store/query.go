@@ -164,34 +164,20 @@ func (db *DB) runsRows(query func() (*sql.Rows, error)) iter.Seq2[*Entry, error]
 		var cur *Entry
 		for rows.Next() {
 			var (
-				e                          Entry
-				started                    sql.NullInt64
-				finished                   int64
-				verdict                    string
-				trip                       sql.NullFloat64
-				seq, site                  sql.NullInt64
-				panel                      sql.NullString
+				r                          runCols
+				seq                        sql.NullInt64
 				step, name, unit, mverdict sql.NullString
 				value, low, high           sql.NullFloat64
 			)
-			if err := rows.Scan(&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
-				&e.Operator, &e.Lot, &e.Software, &started, &finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
-				&panel, &site, &seq, &step, &name, &unit, &value, &low, &high, &mverdict); err != nil {
+			if err := rows.Scan(append(r.dest(), &seq, &step, &name, &unit, &value, &low, &high, &mverdict)...); err != nil {
 				yield(nil, fmt.Errorf("read run: %w", err))
 				return
 			}
-			if cur == nil || cur.ID != e.ID {
+			if cur == nil || cur.ID != r.e.ID {
 				if cur != nil && !yield(cur, nil) {
 					return
 				}
-				if started.Valid {
-					e.Started = time.Unix(0, started.Int64).UTC()
-				}
-				e.Finished = time.Unix(0, finished).UTC()
-				e.Verdict = sequences.Verdict(verdict)
-				e.TripPF = orNaN(trip)
-				e.Panel, e.Site = panel.String, int(site.Int64)
-				cur = &e
+				cur = r.entry()
 			}
 			if seq.Valid {
 				cur.Measurements = append(cur.Measurements, sequences.Measurement{
@@ -209,6 +195,39 @@ func (db *DB) runsRows(query func() (*sql.Rows, error)) iter.Seq2[*Entry, error]
 			yield(cur, nil)
 		}
 	}
+}
+
+// runCols scans the run columns that runsSQL and pendingRunsSQL both
+// select, in their order, into an Entry.
+type runCols struct {
+	e        Entry
+	started  sql.NullInt64
+	finished int64
+	verdict  string
+	trip     sql.NullFloat64
+	site     sql.NullInt64
+	panel    sql.NullString
+}
+
+// dest returns the scan destinations of the run columns.
+func (r *runCols) dest() []any {
+	e := &r.e
+	return []any{&e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
+		&e.Operator, &e.Lot, &e.Software, &r.started, &r.finished, &r.verdict, &e.FailCode, &r.trip, &e.Driver, &e.Fault,
+		&r.panel, &r.site}
+}
+
+// entry returns the scanned run.
+func (r *runCols) entry() *Entry {
+	e := r.e
+	if r.started.Valid {
+		e.Started = time.Unix(0, r.started.Int64).UTC()
+	}
+	e.Finished = time.Unix(0, r.finished).UTC()
+	e.Verdict = sequences.Verdict(r.verdict)
+	e.TripPF = orNaN(r.trip)
+	e.Panel, e.Site = r.panel.String, int(r.site.Int64)
+	return &e
 }
 
 func orNaN(v sql.NullFloat64) float64 {
