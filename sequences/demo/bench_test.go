@@ -8,7 +8,6 @@ import (
 
 	"padline/sequences"
 	"padline/sequences/session"
-	"padline/sequences/timing"
 )
 
 // BenchmarkSimulatedUnit measures the computer time to test one simulated
@@ -20,42 +19,20 @@ import (
 func BenchmarkSimulatedUnit(b *testing.B) {
 	for _, strategy := range []string{"bracket", "staircase"} {
 		b.Run(strategy, func(b *testing.B) {
-			v, err := session.LoadVariant("QM-205")
+			// The rig as 'padline run' builds it; the stand-in guard band
+			// stands, so no shift log is read.
+			r, err := session.OpenRig(context.Background(), "QM-205", "demo-sim", "", session.RigOptions{UncertaintyPF: session.DefaultUncertaintyPF, Strategy: strategy})
 			if err != nil {
 				b.Fatal(err)
 			}
-			st, err := session.LoadStation("demo-sim")
-			if err != nil {
-				b.Fatal(err)
-			}
-			rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: session.DefaultUncertaintyPF})
-			if err != nil {
-				b.Fatal(err)
-			}
-			line, err := session.NewSimLine(st, v)
-			if err != nil {
-				b.Fatal(err)
-			}
-			fx, err := session.NewFixture(st, line.Pins(), line.Clock())
-			if err != nil {
-				b.Fatal(err)
-			}
-			cfg, err := session.PlanConfig(v, rep, true, strategy)
-			if err != nil {
-				b.Fatal(err)
-			}
-			plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
-			if err != nil {
-				b.Fatal(err)
-			}
-			sess := &sequences.Session{Plan: plan, Station: fx, Clock: line.Clock(), Recorder: discard{}}
+			sess := &sequences.Session{Plan: r.Plan, Station: r.Fixture, Clock: r.Clock, Recorder: discard{}}
 			var fixture time.Duration
 			b.ResetTimer()
 			for i := range b.N {
 				serial := fmt.Sprintf("QM205-%06d", i%100000+1)
-				line.Load(serial)
+				r.Line.Load(serial)
 				oc, err := sess.Test(context.Background(), serial)
-				line.Unload()
+				r.Line.Unload()
 				if oc == nil {
 					b.Fatal(err)
 				}

@@ -17,7 +17,6 @@ import (
 
 	"padline/sequences"
 	"padline/sequences/session"
-	"padline/sequences/timing"
 	"padline/store"
 	"padline/store/plant"
 	"padline/store/plant/planttest"
@@ -69,34 +68,11 @@ type benchArm struct {
 
 func benchForwarding(b *testing.B, every time.Duration) {
 	ctx := context.Background()
-	v, err := session.LoadVariant("QM-205")
+	r, err := session.OpenRig(ctx, "QM-205", "demo-sim", "", session.RigOptions{UncertaintyPF: session.DefaultUncertaintyPF})
 	if err != nil {
 		b.Fatal(err)
 	}
-	st, err := session.LoadStation("demo-sim")
-	if err != nil {
-		b.Fatal(err)
-	}
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: session.DefaultUncertaintyPF})
-	if err != nil {
-		b.Fatal(err)
-	}
-	line, err := session.NewSimLine(st, v)
-	if err != nil {
-		b.Fatal(err)
-	}
-	fx, err := session.NewFixture(st, line.Pins(), line.Clock())
-	if err != nil {
-		b.Fatal(err)
-	}
-	cfg, err := session.PlanConfig(v, rep, true, "")
-	if err != nil {
-		b.Fatal(err)
-	}
-	plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
-	if err != nil {
-		b.Fatal(err)
-	}
+	v, st := r.Variant, r.Station
 	url := plantSchema(b)
 	p, err := plant.Open(ctx, url)
 	if err != nil {
@@ -116,7 +92,7 @@ func benchForwarding(b *testing.B, every time.Duration) {
 		if err != nil {
 			b.Fatal(err)
 		}
-		a.sess = &sequences.Session{Plan: plan, Station: fx, Clock: line.Clock(), Recorder: a.db,
+		a.sess = &sequences.Session{Plan: r.Plan, Station: r.Fixture, Clock: r.Clock, Recorder: a.db,
 			Template: sequences.Run{Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture}}
 	}
 	fwd := arms[1]
@@ -156,9 +132,9 @@ func benchForwarding(b *testing.B, every time.Duration) {
 				for i := range n {
 					serial := fmt.Sprintf("QM205-%06d", (done/2+i)%100000+1)
 					t0 := time.Now()
-					line.Load(serial)
+					r.Line.Load(serial)
 					oc, err := a.sess.Test(ctx, serial)
-					line.Unload()
+					r.Line.Unload()
 					if oc == nil {
 						b.Fatal(err)
 					}
