@@ -51,16 +51,16 @@ func where(f store.Filter) (string, []any) {
 	if f.Lot != "" {
 		add("r.lot = ?", f.Lot)
 	}
-	// The plant keeps a run's panel site as text ('' for a unit tested
-	// alone) and does not keep panel labels yet.
+	// The plant keeps a run's panel label and site (as text) where the
+	// shift log keeps NULL, '' for a unit tested alone (migration 0011).
+	if f.Panel != "" {
+		add("r.panel = ?", f.Panel)
+	}
 	switch {
 	case f.Site > 0:
 		add("r.site = ?", strconv.Itoa(f.Site))
 	case f.Site < 0:
 		conds = append(conds, "r.site = ''")
-	}
-	if f.Panel != "" {
-		conds = append(conds, "false")
 	}
 	if f.Verdict != "" {
 		add("r.verdict = ?", string(f.Verdict))
@@ -82,7 +82,7 @@ func where(f store.Filter) (string, []any) {
 
 const runsSQL = `
 SELECT r.log_id, r.local_id, r.serial, v.name, c.hash, s.name, fx.name, r.operator, r.lot, r.software,
-       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault,
+       r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault, r.panel, r.site,
        m.seq, q.step, q.name, q.unit, m.value, m.low, m.high, m.verdict
 FROM runs r
 JOIN variants v ON v.id = r.variant_id
@@ -93,6 +93,13 @@ LEFT JOIN measurements m ON m.log_id = r.log_id AND m.local_id = r.local_id AND 
 LEFT JOIN quantities q ON q.id = m.quantity_id
 WHERE %s
 ORDER BY r.at, r.log_id, r.local_id, m.seq`
+
+// siteNumber is a run's panel site as the shift log gives it (1-based; 0
+// for a unit tested alone, whose site the plant keeps as empty text).
+func siteNumber(s string) int {
+	n, _ := strconv.Atoi(s)
+	return n
+}
 
 func orNaN(v *float64) float64 {
 	if v == nil {
@@ -119,6 +126,7 @@ func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, 
 		var (
 			cur     *store.Entry
 			curLog  int32
+			site    string
 			logID   int32
 			e       store.Entry
 			started *int64
@@ -137,7 +145,7 @@ func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, 
 		for rows.Next() {
 			e = store.Entry{}
 			if err := rows.Scan(&logID, &e.ID, &e.Serial, &e.Variant, &e.ConfigHash, &e.Station, &e.Fixture,
-				&e.Operator, &e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault,
+				&e.Operator, &e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault, &e.Panel, &site,
 				&seq, &step, &name, &unit, &val, &low, &high, &mv); err != nil {
 				yield(nil, fmt.Errorf("read plant run: %w", err))
 				return
@@ -153,6 +161,7 @@ func (db *DB) Runs(ctx context.Context, f store.Filter) iter.Seq2[*store.Entry, 
 				ne.Finished = time.Unix(0, fin).UTC()
 				ne.Verdict = sequences.Verdict(verdict)
 				ne.TripPF = orNaN(trip)
+				ne.Site = siteNumber(site)
 				cur, curLog = &ne, logID
 			}
 			if seq != nil {
@@ -397,13 +406,14 @@ func firstTable(f store.Filter, by string) string {
 }
 
 // firstFrom reads a table of first unit verdicts as runs r, so the runs'
-// filter applies to it. The table keeps no driver: a driver filter reads
-// the run's own (one probe of runs_serial per first verdict, made only when
-// the filter names a driver, as PostgreSQL evaluates the subquery only
-// where r.driver is used).
+// filter applies to it. The table keeps no driver and no panel label: a
+// driver or panel filter reads the run's own (one probe of runs_serial per
+// first verdict, made only when the filter names a driver or a panel, as
+// PostgreSQL evaluates each subquery only where r.driver or r.panel is
+// used).
 func firstFrom(table string) string {
-	return `(SELECT t.*, (SELECT x.driver FROM runs x WHERE x.serial = t.serial AND x.at = t.at
-    AND x.log_id = t.log_id AND x.local_id = t.local_id LIMIT 1) AS driver FROM ` + table + ` t) r`
+	run := `FROM runs x WHERE x.serial = t.serial AND x.at = t.at AND x.log_id = t.log_id AND x.local_id = t.local_id LIMIT 1`
+	return `(SELECT t.*, (SELECT x.driver ` + run + `) AS driver, (SELECT x.panel ` + run + `) AS panel FROM ` + table + ` t) r`
 }
 
 // ConfigHistory returns the configurations variant has had, in the order
@@ -463,7 +473,7 @@ func (db *DB) fewRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entr
 		fail := func(err error) { yield(nil, fmt.Errorf("query plant runs: %w", err)) }
 		cond, args := where(f)
 		rows, err := db.pool.Query(ctx, `SELECT r.log_id, r.local_id, r.serial, r.variant_id, r.config_id, r.station_id, r.fixture_id,
-			r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault
+			r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault, r.panel, r.site
 			FROM runs r WHERE `+cond+` ORDER BY r.at, r.log_id, r.local_id`, args...)
 		if err != nil {
 			fail(err)
@@ -487,14 +497,15 @@ func (db *DB) fewRuns(ctx context.Context, f store.Filter) iter.Seq2[*store.Entr
 				started      *int64
 				verdict      string
 				trip         *float64
+				site         string
 			)
 			if err := rows.Scan(&k.log, &k.local, &e.Serial, &v, &c, &st, &fx, &e.Operator, &e.Lot, &e.Software, &started,
-				&k.finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault); err != nil {
+				&k.finished, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault, &e.Panel, &site); err != nil {
 				rows.Close()
 				fail(err)
 				return
 			}
-			e.ID, e.Verdict, e.TripPF = k.local, sequences.Verdict(verdict), orNaN(trip)
+			e.ID, e.Verdict, e.TripPF, e.Site = k.local, sequences.Verdict(verdict), orNaN(trip), siteNumber(site)
 			if started != nil {
 				e.Started = time.Unix(0, *started).UTC()
 			}
@@ -826,7 +837,7 @@ func (db *DB) RunsAt(ctx context.Context, variant string, ids []int64, ats []tim
 	// The names come from the small tables afterwards (runNames): joined
 	// here, PostgreSQL rebuilt their hash tables once per pair.
 	rows, err := db.pool.Query(ctx, `SELECT k.i, r.local_id, r.serial, r.variant_id, r.config_id, r.station_id, r.fixture_id,
-		r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault
+		r.operator, r.lot, r.software, r.started, r.finished, r.verdict, r.fail_code, r.trip_pf, r.driver, r.fault, r.panel, r.site
 		FROM unnest($1::bigint[], $2::bigint[]) WITH ORDINALITY AS k(id, at, i)
 		CROSS JOIN LATERAL (SELECT * FROM runs r WHERE r.variant_id = (SELECT id FROM variants WHERE name = $3)
 			AND r.at = k.at AND r.local_id = k.id ORDER BY r.log_id LIMIT 1) r`, ids, ns, variant)
@@ -841,11 +852,12 @@ func (db *DB) RunsAt(ctx context.Context, variant string, ids []int64, ats []tim
 		fin     int64
 		verdict string
 		trip    *float64
+		site    string
 		found   []int
 		names   [][4]int32
 	)
 	_, err = pgx.ForEachRow(rows, []any{&i, &e.ID, &e.Serial, &id[0], &id[1], &id[2], &id[3], &e.Operator,
-		&e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault}, func() error {
+		&e.Lot, &e.Software, &started, &fin, &verdict, &e.FailCode, &trip, &e.Driver, &e.Fault, &e.Panel, &site}, func() error {
 		if i < 1 || i > int64(len(out)) {
 			return fmt.Errorf("row for pair %d of %d", i, len(out))
 		}
@@ -853,7 +865,7 @@ func (db *DB) RunsAt(ctx context.Context, variant string, ids []int64, ats []tim
 		if started != nil {
 			x.Started = time.Unix(0, *started).UTC()
 		}
-		x.Finished, x.Verdict, x.TripPF = time.Unix(0, fin).UTC(), sequences.Verdict(verdict), orNaN(trip)
+		x.Finished, x.Verdict, x.TripPF, x.Site = time.Unix(0, fin).UTC(), sequences.Verdict(verdict), orNaN(trip), siteNumber(site)
 		out[i-1] = x
 		found, names = append(found, int(i-1)), append(names, id)
 		return nil

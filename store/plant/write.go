@@ -356,31 +356,31 @@ var (
 
 // moveArraysSQL is moveSQL for runs and measurements sent as arrays
 // (runArrays): $2 the station's send time and $3 the log's clock offset so
-// far (offsetSQL), $4…$20 the runs' columns, $21…$27 the measurements'.
+// far (offsetSQL), $4…$21 the runs' columns, $22…$28 the measurements'.
 var moveArraysSQL = `WITH u AS (
 	SELECT * FROM unnest($4::bigint[], $5::int[], $6::text[], $7::int[], $8::int[], $9::int[],
 		$10::text[], $11::text[], $12::text[], $13::bigint[], $14::bigint[],
-		$15::text[], $16::text[], $17::float8[], $18::text[], $19::text[], $20::text[]) WITH ORDINALITY
+		$15::text[], $16::text[], $17::float8[], $18::text[], $19::text[], $20::text[], $21::text[]) WITH ORDINALITY
 		AS u(local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-			started, finished, verdict, fail_code, trip_pf, driver, fault, site, i)),
+			started, finished, verdict, fail_code, trip_pf, driver, fault, site, panel, i)),
 ins AS (
 	INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
+		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site, panel)
 	SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-		started, finished, finished + ` + offsetSQL("$2", "$3") + `, ` + serverNowSQL + `, verdict, fail_code, trip_pf, driver, fault, site
+		started, finished, finished + ` + offsetSQL("$2", "$3") + `, ` + serverNowSQL + `, verdict, fail_code, trip_pf, driver, fault, site, panel
 	FROM u ORDER BY i
 	ON CONFLICT DO NOTHING
 	RETURNING local_id, station_id, serial, variant_id, fixture_id, lot, site, finished, at, verdict),
 meas AS (
 	INSERT INTO measurements (log_id, local_id, finished, seq, station_id, quantity_id, value, low, high, verdict)
 	SELECT $1, m.local_id, ins.finished, m.seq, ins.station_id, m.quantity_id, m.value, m.low, m.high, m.verdict
-	FROM unnest($21::bigint[], $22::int[], $23::int[], $24::float8[], $25::float8[], $26::float8[], $27::text[])
+	FROM unnest($22::bigint[], $23::int[], $24::int[], $25::float8[], $26::float8[], $27::float8[], $28::text[])
 		AS m(local_id, seq, quantity_id, value, low, high, verdict)
 	JOIN ins ON ins.local_id = m.local_id),
 first AS (
 	SELECT plant_note_first(array_agg(serial), array_agg(at), array_agg($1::int), array_agg(local_id),
 		array_agg(station_id), array_agg(variant_id), array_agg(fixture_id), array_agg(lot), array_agg(site), array_agg(verdict))
-	FROM ins WHERE verdict <> $28)
+	FROM ins WHERE verdict <> $29)
 SELECT (SELECT count(*) FROM ins), (SELECT count(*) FROM first)`
 
 // runArrays is moveArraysSQL's arguments: the columns runSource and
@@ -395,7 +395,7 @@ func runArrays(runs []*store.Entry, x *ids, sent int64) []any {
 		station, variant, config, fixt  = make([]*int32, n), make([]*int32, n), make([]*int32, n), make([]*int32, n)
 		serial, operator, lot, software = make([]string, n), make([]string, n), make([]string, n), make([]string, n)
 		verdict, failCode, driver       = make([]string, n), make([]string, n), make([]string, n)
-		fault, site                     = make([]string, n), make([]string, n)
+		fault, site, panel              = make([]string, n), make([]string, n), make([]string, n)
 		started                         = make([]*int64, n)
 		finished                        = make([]int64, n)
 		trip                            = make([]*float64, n)
@@ -412,7 +412,7 @@ func runArrays(runs []*store.Entry, x *ids, sent int64) []any {
 		started[i] = nullT(r.Started)
 		finished[i] = r.Finished.UnixNano()
 		verdict[i], failCode[i], trip[i] = string(r.Verdict), string(r.FailCode), nullF(r.TripPF)
-		driver[i], fault[i] = r.Driver, r.Fault
+		driver[i], fault[i], panel[i] = r.Driver, r.Fault, r.Panel
 		if r.Site > 0 {
 			site[i] = strconv.Itoa(r.Site)
 		}
@@ -424,7 +424,7 @@ func runArrays(runs []*store.Entry, x *ids, sent int64) []any {
 		}
 	}
 	return []any{x.log, sent, x.stored, localID, station, serial, variant, config, fixt, operator, lot, software,
-		started, finished, verdict, failCode, trip, driver, fault, site,
+		started, finished, verdict, failCode, trip, driver, fault, site, panel,
 		mLocal, mSeq, mQty, mValue, mLow, mHigh, mVerdict, string(sequences.StationFault)}
 }
 
@@ -787,13 +787,13 @@ func nullT(t time.Time) *int64 {
 const stagingSQL = `CREATE TEMP TABLE IF NOT EXISTS plant_runs_in (
 	i int, local_id bigint, station_id int, serial text, variant_id int, config_id int, fixture_id int,
 	operator text, lot text, software text, started bigint, finished bigint, at bigint,
-	verdict text, fail_code text, trip_pf float8, driver text, fault text, site text) ON COMMIT DELETE ROWS;
+	verdict text, fail_code text, trip_pf float8, driver text, fault text, site text, panel text) ON COMMIT DELETE ROWS;
 CREATE TEMP TABLE IF NOT EXISTS plant_measurements_in (
 	local_id bigint, seq int, quantity_id int, value float8, low float8, high float8, verdict text) ON COMMIT DELETE ROWS`
 
 var (
 	runsInCols = []string{"i", "local_id", "station_id", "serial", "variant_id", "config_id", "fixture_id",
-		"operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf", "driver", "fault", "site"}
+		"operator", "lot", "software", "started", "finished", "at", "verdict", "fail_code", "trip_pf", "driver", "fault", "site", "panel"}
 	measInCols = []string{"local_id", "seq", "quantity_id", "value", "low", "high", "verdict"}
 )
 
@@ -820,7 +820,7 @@ type runSource struct {
 	runs []*store.Entry
 	x    *ids
 	i    int
-	row  [19]any
+	row  [20]any
 }
 
 func (s *runSource) Next() bool { s.i++; return s.i < len(s.runs) }
@@ -832,10 +832,10 @@ func (s *runSource) Values() ([]any, error) {
 		site = strconv.Itoa(r.Site)
 	}
 	fin := r.Finished.UnixNano()
-	s.row = [19]any{int32(s.i), r.ID, idOrNil(x.stations, r.Station), r.Serial, idOrNil(x.variants, r.Variant),
+	s.row = [20]any{int32(s.i), r.ID, idOrNil(x.stations, r.Station), r.Serial, idOrNil(x.variants, r.Variant),
 		idOrNil(x.configs, [2]string{r.Variant, r.ConfigHash}), idOrNil(x.fixtures, r.Fixture),
 		r.Operator, r.Lot, r.Software, nullT(r.Started), fin, fin + x.offset,
-		string(r.Verdict), string(r.FailCode), nullF(r.TripPF), r.Driver, r.Fault, site}
+		string(r.Verdict), string(r.FailCode), nullF(r.TripPF), r.Driver, r.Fault, site, r.Panel}
 	return s.row[:], nil
 }
 
@@ -870,9 +870,9 @@ func (s *measSource) Values() ([]any, error) {
 // first verdicts. It returns how many runs it stored.
 const moveSQL = `WITH ins AS (
 	INSERT INTO runs (log_id, local_id, station_id, serial, variant_id, config_id, fixture_id,
-		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site)
+		operator, lot, software, started, finished, at, received, verdict, fail_code, trip_pf, driver, fault, site, panel)
 	SELECT $1, local_id, station_id, serial, variant_id, config_id, fixture_id, operator, lot, software,
-		started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault, site
+		started, finished, at, $2, verdict, fail_code, trip_pf, driver, fault, site, panel
 	FROM plant_runs_in WHERE i >= $3 AND i < $4 ORDER BY i
 	ON CONFLICT DO NOTHING
 	RETURNING local_id, station_id, serial, variant_id, fixture_id, lot, site, finished, at, verdict),

@@ -1,0 +1,11 @@
+-- 0011: as in the station's shift log (store migration 0005), a run of a
+-- unit tested on a panel names its panel (the label scanned for the panel);
+-- '' for a unit tested alone, whose site is '' too. Runs forwarded before
+-- this carry ''. A constant default makes the new column a catalogue change
+-- only, on the partitioned table and each month partition: no row is
+-- rewritten (PostgreSQL manual, ALTER TABLE, "Notes": since version 11 a
+-- non-volatile DEFAULT is stored in the catalogue and returned for rows
+-- written before it). The station roles' INSERT and SELECT on runs, the
+-- readers' SELECT and the row-level policies (0001, 0008) are table-wide
+-- and cover the column without a new grant.
+ALTER TABLE runs ADD COLUMN panel text NOT NULL DEFAULT '';
