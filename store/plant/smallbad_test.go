@@ -19,9 +19,11 @@ import (
 // "JSON Types") is refused as a whole transaction; Put stores it again on the
 // staging path under savepoints, so the two rows are refused and reported
 // (Result.Refused, the shift log's plant_refused) and the runs, the good
-// check and the good study land, once. The first batch resolves its names
-// on the connection; the second, whose log and names the handle knows, is
-// the one-round-trip case. Sending everything again lands nothing new.
+// check and the good study land, once. The two forwarded batches resolve
+// their names on the connection (they carry the configuration); sending
+// everything again without it, to a handle that knows the log and every
+// name, is the one-round-trip case: nothing new lands, the same rows are
+// refused.
 func TestBadTrustRowsSmallBatch(t *testing.T) {
 	url, schema := newSchema(t, baseURL())
 	ctx := context.Background()
@@ -78,7 +80,7 @@ func TestBadTrustRowsSmallBatch(t *testing.T) {
 	plantHolds(t, admin, log, 5, []int64{goodCheck}, []int64{goodStudy})
 
 	// The second batch: three more runs, a check under T-S2 again and a
-	// good study, in one round trip as far as the plant lets it.
+	// good study.
 	hash := store.HashConfig([]byte("name: QM-205\n# demo variant of the tests\n"))
 	for i := range 3 {
 		if _, err := log.Record(ctx, simRun("T-S1", fmt.Sprintf("QM205-T2-%d", i), hash, start.Add(time.Hour+time.Duration(i)*time.Second), 30, false, false)); err != nil {
@@ -103,8 +105,9 @@ func TestBadTrustRowsSmallBatch(t *testing.T) {
 	}
 	plantHolds(t, admin, log, 8, []int64{goodCheck}, []int64{goodStudy, good2})
 
-	// Everything sent again, as one small batch: nothing new lands, the
-	// same three rows are refused.
+	// Everything sent again, as one small batch without configurations
+	// (putSmall's one round trip): nothing new lands, the same three rows
+	// are refused.
 	o, _ = log.OutboxState(ctx)
 	runs, err := log.PendingRuns(ctx, 0, 100)
 	if err != nil {
