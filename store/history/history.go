@@ -96,7 +96,8 @@ func writeHistoryTable(ctx context.Context, w io.Writer, db runLog, opts Options
 			writeDetail(w, e)
 		}
 	}
-	// x-outs live in the shift log only: the plant store keeps no panels yet.
+	// x-outs live in the shift log only: the plant store keeps each run's panel
+	// and site, not the panel's x-outs.
 	if xl, ok := db.(interface {
 		XOuts(ctx context.Context, panel string) ([]store.XOut, error)
 	}); ok && opts.Filter.Panel != "" {
