@@ -120,6 +120,15 @@ type DB struct {
 
 	omu   sync.Mutex
 	oconn *sql.Conn // the plant outbox's writes (see outboxConn)
+
+	// pmu guards the outbox advance not yet committed (DeferAdvance,
+	// outbox.go) and the run commit times of its idle flush. Take it
+	// after wmu, never before.
+	pmu        sync.Mutex
+	pend       *Advance
+	pendSince  time.Time // when pend was made
+	lastRecord time.Time // the last run's commit
+	recordGap  time.Duration
 }
 
 // Open opens the shift log at path, creating it if it does not exist, and
@@ -394,12 +403,15 @@ func markFull(err error) error {
 // (checked.go).
 func (db *DB) Close() error {
 	db.check.stopCheck()
+	// A landed batch's cursor still in memory (DeferAdvance): written now,
+	// or its batch is sent again next time.
+	ferr := db.FlushOutbox(context.Background())
 	db.closeOutboxConn()
 	err := db.sql.Close()
 	if err == nil && !db.readOnly {
 		db.check.writeRecord(db.path)
 	}
-	return err
+	return errors.Join(ferr, err)
 }
 
 // Path returns the file the log was opened from.

@@ -35,27 +35,51 @@ type Outbox struct {
 	Refused int64
 }
 
-// OutboxState returns the forwarding state, backlog included.
+// OutboxState returns the forwarding state, backlog included, with an
+// advance still pending in this process (DeferAdvance) merged in: the
+// cursors it moves, the backlog after them, the runs it accepted and its
+// time.
 func (db *DB) OutboxState(ctx context.Context) (Outbox, error) {
 	var (
 		o           Outbox
 		last, errAt sql.NullInt64
+		p           Advance
+		pending     bool
 	)
 	stmt, err := db.prepared(ctx, `
-		SELECT o.log_uuid, o.run_cursor, o.check_cursor, o.study_cursor, o.forwarded,
-		       o.last_time, o.last_error, o.last_error_time,
-		       (SELECT count(*) FROM runs WHERE id > o.run_cursor),
-		       (SELECT count(*) FROM station_checks WHERE id > o.check_cursor),
-		       (SELECT count(*) FROM studies WHERE id > o.study_cursor),
+		WITH o AS (SELECT log_uuid, max(run_cursor, ?) AS rc, max(check_cursor, ?) AS cc,
+		                  max(study_cursor, ?) AS sc, forwarded + ? AS fw, last_time, last_error, last_error_time
+		           FROM plant_outbox WHERE id = 1)
+		SELECT o.log_uuid, o.rc, o.cc, o.sc, o.fw, o.last_time, o.last_error, o.last_error_time,
+		       (SELECT count(*) FROM runs WHERE id > o.rc),
+		       (SELECT count(*) FROM station_checks WHERE id > o.cc),
+		       (SELECT count(*) FROM studies WHERE id > o.sc),
 		       (SELECT count(*) FROM plant_refused)
-		FROM plant_outbox o WHERE o.id = 1`)
+		FROM o`)
 	if err != nil {
 		return o, fmt.Errorf("outbox state: %w", err)
 	}
-	err = stmt.QueryRowContext(ctx).Scan(&o.LogUUID, &o.RunCursor, &o.CheckCursor, &o.StudyCursor,
+	db.pmu.Lock()
+	if db.pend != nil {
+		// Held through the read: a run's commit that writes the pending
+		// advance meanwhile would have it counted twice.
+		p, pending = *db.pend, true
+		defer db.pmu.Unlock()
+	} else {
+		db.pmu.Unlock()
+	}
+	err = stmt.QueryRowContext(ctx, p.Runs, p.Checks, p.Studies, p.Accepted).Scan(&o.LogUUID, &o.RunCursor, &o.CheckCursor, &o.StudyCursor,
 		&o.Forwarded, &last, &o.LastError, &errAt, &o.BacklogRuns, &o.BacklogChecks, &o.BacklogStudies, &o.Refused)
 	if err != nil {
 		return o, fmt.Errorf("outbox state: %w", err)
+	}
+	if pending {
+		// A pending advance was made after any error noted so far
+		// (NoteOutboxError writes it first), and clears it as it lands.
+		if !last.Valid || p.At.UnixNano() > last.Int64 {
+			last = sql.NullInt64{Int64: p.At.UnixNano(), Valid: true}
+		}
+		o.LastError = ""
 	}
 	if last.Valid {
 		o.LastTime = time.Unix(0, last.Int64).UTC()
@@ -249,21 +273,41 @@ type Advance struct {
 	At                    time.Time
 }
 
-// AdvanceOutbox commits a. A crash before it commits makes the forwarder
-// send the batch again; the plant store drops what it already has. It
-// commits on the outbox's own connection (outboxConn), without waiting for
-// the disk.
+// advanceSQL moves the cursors of a landed batch; each only moves forward,
+// so applying an advance twice, or an older one after a newer, is harmless.
+const advanceSQL = `UPDATE plant_outbox SET
+	run_cursor = max(run_cursor, ?), check_cursor = max(check_cursor, ?), study_cursor = max(study_cursor, ?),
+	forwarded = forwarded + ?, last_time = ?, last_error = '' WHERE id = 1`
+
+// AdvanceOutbox commits a, with any advance still pending (DeferAdvance),
+// at once. A crash before it commits makes the forwarder send the batch
+// again; the plant store drops what it already has. It commits on the
+// outbox's own connection (outboxConn), without waiting for the disk.
 func (db *DB) AdvanceOutbox(ctx context.Context, a Advance) error {
+	db.wmu.Lock()
+	defer db.wmu.Unlock()
+	db.pmu.Lock()
+	defer db.pmu.Unlock()
+	p := db.pend
+	if p != nil {
+		a = mergeAdvance(*p, a)
+	}
+	if err := db.advanceLocked(ctx, a); err != nil {
+		return err
+	}
+	db.pend = nil
+	return nil
+}
+
+// advanceLocked commits a on the outbox's connection. Call it holding
+// wmu and pmu.
+func (db *DB) advanceLocked(ctx context.Context, a Advance) error {
 	// Prepared once: preparing it with every batch was a fifth of the
 	// cursor's CPU time (BenchmarkUnitForwarding/every-unit, pprof).
-	up, err := db.prepared(ctx, `UPDATE plant_outbox SET
-		run_cursor = max(run_cursor, ?), check_cursor = max(check_cursor, ?), study_cursor = max(study_cursor, ?),
-		forwarded = forwarded + ?, last_time = ?, last_error = '' WHERE id = 1`)
+	up, err := db.prepared(ctx, advanceSQL)
 	if err != nil {
 		return fmt.Errorf("advance outbox: %w", err)
 	}
-	db.wmu.Lock()
-	defer db.wmu.Unlock()
 	c, err := db.outboxConn(ctx)
 	if err != nil {
 		return fmt.Errorf("advance outbox: %w", err)
@@ -289,11 +333,164 @@ func (db *DB) AdvanceOutbox(ctx context.Context, a Advance) error {
 	return nil
 }
 
-// NoteOutboxError records the last forwarding error.
+// advanceIn applies a, which has no refusals, in tx (a run's commit).
+func (db *DB) advanceIn(ctx context.Context, tx *sql.Tx, a Advance) error {
+	up, err := db.prepared(ctx, advanceSQL)
+	if err != nil {
+		return err
+	}
+	_, err = tx.StmtContext(ctx, up).ExecContext(ctx, a.Runs, a.Checks, a.Studies, a.Accepted, a.At.UnixNano())
+	return err
+}
+
+// mergeAdvance is a then b as one advance: the higher cursors, the runs
+// accepted by both, the later time and both batches' refusals.
+func mergeAdvance(a, b Advance) Advance {
+	m := Advance{Runs: max(a.Runs, b.Runs), Checks: max(a.Checks, b.Checks), Studies: max(a.Studies, b.Studies),
+		Accepted: a.Accepted + b.Accepted, At: a.At}
+	if b.At.After(m.At) {
+		m.At = b.At
+	}
+	if len(a.Refused)+len(b.Refused) > 0 {
+		m.Refused = append(append([]Refusal(nil), a.Refused...), b.Refused...)
+	}
+	return m
+}
+
+// A landed batch's cursor need not be committed on its own. The plant
+// store has the batch, so losing the cursor costs only a resend, which the
+// plant store drops by its run key. Committing it after every batch of a
+// slow line (a batch per unit) was the larger part of what forwarding
+// added to a unit's CPU time on the station (BenchmarkUnitForwarding
+// every-unit: 0.44 of 1.39 ms; README "The plant store"). So DeferAdvance
+// keeps the advance in memory and the next run's commit (Record) writes it
+// in its own transaction; it is written on its own only when rows were
+// refused (they are reported), by FlushOutbox (the forwarder's Drain and
+// stop, Close, an error noted) and by FlushIdleOutbox once the line has
+// committed no run for a while. OutboxState merges it, so this process
+// sees the cursor at once; another process ('padline plant status') sees
+// it a unit or a few seconds late.
+
+// The idle flush: a pending advance is written on its own once no run
+// has been committed for twice the last interval between two runs, at
+// least idleFlushMin and at most idleFlushMax. A steady line never waits
+// that long between units, so its cursors always ride a run's commit,
+// whatever its takt up to idleFlushMax/2; a line that stops shows its last
+// batch in the log within idleFlushMin to idleFlushMax.
+const (
+	idleFlushMin = 5 * time.Second
+	idleFlushMax = time.Minute
+)
+
+// DeferAdvance hands the log a landed batch's advance to commit with the
+// next run (Record), merged with any advance already pending. An advance
+// with refused rows is committed at once (AdvanceOutbox): refusals are
+// reported. The cursor only ever moves after the plant store committed,
+// so an advance lost in a crash means the batch is sent again and dropped
+// by the plant store's run key.
+func (db *DB) DeferAdvance(ctx context.Context, a Advance) error {
+	if len(a.Refused) > 0 {
+		return db.AdvanceOutbox(ctx, a)
+	}
+	db.pmu.Lock()
+	defer db.pmu.Unlock()
+	if db.pend == nil {
+		p := a
+		db.pend = &p
+		db.pendSince = db.now()
+		return nil
+	}
+	*db.pend = mergeAdvance(*db.pend, a)
+	return nil
+}
+
+// takePending returns the pending advance for a run's commit, nil if none,
+// and then holds pmu until Record calls donePending: a read of the state
+// meanwhile would otherwise count the accepted runs twice (in the log and
+// in memory).
+func (db *DB) takePending() *Advance {
+	db.pmu.Lock()
+	if db.pend == nil {
+		db.pmu.Unlock()
+		return nil
+	}
+	return db.pend
+}
+
+// donePending ends what takePending began (p non-nil): committed tells
+// whether the run's transaction, with the advance in it, committed.
+func (db *DB) donePending(committed bool) {
+	if committed {
+		db.pend = nil
+	}
+	db.pmu.Unlock()
+}
+
+// noteRecord notes a run's commit at t for the idle flush.
+func (db *DB) noteRecord(t time.Time) {
+	db.pmu.Lock()
+	if !db.lastRecord.IsZero() {
+		db.recordGap = t.Sub(db.lastRecord)
+	}
+	db.lastRecord = t
+	db.pmu.Unlock()
+}
+
+// FlushOutbox commits a pending advance on its own now (nothing if none).
+func (db *DB) FlushOutbox(ctx context.Context) error {
+	db.wmu.Lock()
+	defer db.wmu.Unlock()
+	db.pmu.Lock()
+	defer db.pmu.Unlock()
+	return db.flushLocked(ctx)
+}
+
+// flushLocked commits the pending advance; call it holding wmu and pmu.
+func (db *DB) flushLocked(ctx context.Context) error {
+	if db.pend == nil {
+		return nil
+	}
+	if err := db.advanceLocked(ctx, *db.pend); err != nil {
+		return err
+	}
+	db.pend = nil
+	return nil
+}
+
+// FlushIdleOutbox commits a pending advance on its own when the line has
+// committed no run since it for the idle time (idleFlushMin): a stopped
+// line's status catches up.
+func (db *DB) FlushIdleOutbox(ctx context.Context) error {
+	db.pmu.Lock()
+	since := db.pendSince
+	if db.lastRecord.After(since) {
+		since = db.lastRecord
+	}
+	due := db.pend != nil && db.now().Sub(since) >= db.idleAfterLocked()
+	db.pmu.Unlock()
+	if !due {
+		return nil
+	}
+	return db.FlushOutbox(ctx)
+}
+
+// idleAfterLocked is how long a pending advance waits for a run's commit.
+func (db *DB) idleAfterLocked() time.Duration {
+	return min(max(2*db.recordGap, idleFlushMin), idleFlushMax)
+}
+
+// NoteOutboxError records the last forwarding error, after a pending
+// advance (which would otherwise clear it when it rides a later commit).
 func (db *DB) NoteOutboxError(ctx context.Context, msg string, at time.Time) error {
 	db.wmu.Lock()
 	defer db.wmu.Unlock()
-	c, err := db.outboxConn(ctx)
+	db.pmu.Lock()
+	defer db.pmu.Unlock()
+	err := db.flushLocked(ctx)
+	var c *sql.Conn
+	if err == nil {
+		c, err = db.outboxConn(ctx)
+	}
 	if err == nil {
 		_, err = c.ExecContext(ctx, `UPDATE plant_outbox SET last_error = ?, last_error_time = ? WHERE id = 1`,
 			msg, at.UnixNano())

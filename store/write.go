@@ -117,9 +117,22 @@ func (db *DB) Record(ctx context.Context, r *sequences.Run) (int64, error) {
 		tx.Rollback()
 		return 0, notSaved(r.Serial, err)
 	}
-	if err := tx.Commit(); err != nil {
+	// A landed batch's outbox cursor rides this commit (DeferAdvance). If
+	// its UPDATE fails the run is committed without it and it stays
+	// pending: forwarding never costs a run.
+	adv := db.takePending()
+	if adv != nil && db.advanceIn(ctx, tx, *adv) != nil {
+		db.donePending(false)
+		adv = nil
+	}
+	err = tx.Commit()
+	if adv != nil {
+		db.donePending(err == nil)
+	}
+	if err != nil {
 		return 0, notSaved(r.Serial, err)
 	}
+	db.noteRecord(db.now())
 	db.ids.merge(w.pending)
 	return id, nil
 }

@@ -39,6 +39,7 @@ import (
 // "every-unit" sends a batch per unit. Needs the test PostgreSQL server.
 //
 //	go test ./sequences/session -run '^$' -bench UnitForwarding -benchtime 4000x
+//	go test ./sequences/session -run '^$' -bench UnitForwarding/every-unit -benchtime 300x -forward.takt 1.2s -forward.block 10
 func BenchmarkUnitForwarding(b *testing.B) {
 	for _, c := range []struct {
 		name  string
@@ -141,7 +142,7 @@ func benchForwarding(b *testing.B, every time.Duration) {
 					a.fw.Committed(oc.ID, oc.Run) // as the session's commit does
 					a.wall += time.Since(t0)
 					b.StopTimer()
-					time.Sleep(benchTakt) // the operator changes the unit
+					time.Sleep(*benchTakt) // the operator changes the unit
 					b.StartTimer()
 				}
 			})
@@ -218,8 +219,12 @@ func loadAvg() float64 {
 	return l
 }
 
-// benchTakt is the pause between units in BenchmarkUnitForwarding.
-const benchTakt = 20 * time.Millisecond
+// benchTakt is the pause between units in BenchmarkUnitForwarding. The
+// 20 ms default keeps a run of 4,000 units to minutes; a slow line's takt
+// (-forward.takt 1.2s, a few hundred units) checks that every-unit's
+// figure holds when the forwarder idles between units (its poll, the idle
+// flush of the outbox cursor, the runtime's timers).
+var benchTakt = flag.Duration("forward.takt", 20*time.Millisecond, "BenchmarkUnitForwarding: pause between units")
 
 // cpuTime is the process's user + system CPU time so far.
 func cpuTime() time.Duration {

@@ -32,7 +32,10 @@ type Status struct {
 
 // StationStatus reads the forwarding state of the shift log at path
 // (never creating one); url is the plant store it forwards to, shown
-// without its password.
+// without its password. A running station keeps its last batch's cursor in
+// memory until its next run's commit, or until its line has been idle a
+// while (store.DB.DeferAdvance), so the status may show the last forwarded
+// run a unit or a few seconds late (README "The plant store").
 func StationStatus(ctx context.Context, path, url string) (Status, error) {
 	if _, err := os.Stat(path); err != nil {
 		return Status{}, fmt.Errorf("no shift log at %s (give --db PATH or --station FILE)", path)
