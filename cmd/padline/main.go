@@ -8,6 +8,7 @@ import (
 	"os"
 
 	"padline/sequences/session"
+	"padline/store/plant"
 )
 
 func main() {
@@ -43,9 +44,10 @@ func exitCode(err error) int {
 	return 1
 }
 
-// reportError prints err as one line on w, prefixed with the program name.
+// reportError prints err as one line on w, prefixed with the program name;
+// a plant store setup fault says what to do (plant.Hint).
 func reportError(w io.Writer, err error) {
-	fmt.Fprintf(w, "padline: %v\n", err)
+	fmt.Fprintf(w, "padline: %v\n", plant.Hint(err))
 }
 
 // refused gives a station the gate or its check refused exit status 3.

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"net"
+	"strings"
 	"time"
 
 	"github.com/spf13/cobra"
@@ -85,7 +86,7 @@ func (a *app) plantSub(parent *cobra.Command, use, short string, nargs int, f fu
 				return fmt.Errorf("plant %s: %w", cmd.Name(), err)
 			}
 			if cmd.Flags().Lookup("json") == nil {
-				fmt.Fprintf(a.stdout, "plant %s %v: done (plant store %s, schema version %d)\n", cmd.Name(), args, plant.Redact(db), plant.SchemaVersion())
+				fmt.Fprintf(a.stdout, "plant %s: done (%s)\n", strings.Join(append([]string{cmd.Name()}, args...), " "), p.Describe(cmd.Context()))
 			}
 			return nil
 		}}

@@ -114,8 +114,8 @@ func TestRunForwardsToPlant(t *testing.T) {
 	checkStation(t, db)
 	in := "QM205-000001\nQM205-000002\nQM205-000003\n"
 	out, errs, code := runPadline(t, context.Background(), in, "run", "--variant", "QM-205", "--station", "demo-sim", "--db", db, "--plant-url", url)
-	if code != 0 {
-		t.Fatalf("exit %d\n%s\n%s", code, out, errs)
+	if code != 0 || !strings.Contains(out, "forwarding to plant store "+url) {
+		t.Fatalf("exit %d (the banner names the plant store)\n%s\n%s", code, out, errs)
 	}
 	// Every run is in the plant store when run returns.
 	h := mustCLI(t, "history", "--variant", "QM-205", "--db", url)
@@ -134,8 +134,11 @@ func TestRunForwardsToPlant(t *testing.T) {
 	if err := json.Unmarshal([]byte(mustCLI(t, "plant", "status", "--db", db2, "--json")), &st); err != nil {
 		t.Fatal(err)
 	}
-	if st.BacklogRuns != 1 || st.LastError == "" {
+	if st.BacklogRuns != 1 || st.LastError == "" || !strings.Contains(st.LastErrorFix, "nothing answers") {
 		t.Fatalf("status with the plant down: %+v", st)
+	}
+	if text := mustCLI(t, "plant", "status", "--db", db2); !strings.Contains(text, "what to do    nothing answers") {
+		t.Fatalf("status text with the plant down:\n%s", text)
 	}
 }
 

@@ -174,7 +174,7 @@ func (db *DB) Migrate(ctx context.Context) error {
 		return fmt.Errorf("migrate plant store: %w", err)
 	}
 	if v > len(all) {
-		return fmt.Errorf("%w: database at version %d, this padline knows up to %d", ErrSchemaTooNew, v, len(all))
+		return fmt.Errorf("%w: database at version %d, this padline knows up to %d: use the padline that migrated it, or a newer one", ErrSchemaTooNew, v, len(all))
 	}
 	for i := v; i < len(all); i++ {
 		m := all[i]
@@ -201,6 +201,20 @@ func (db *DB) Version(ctx context.Context) (int, error) {
 		return 0, nil
 	}
 	return v, err
+}
+
+// Describe names the plant store and its schema version for a command's
+// last line, and says when the schema is older than this program and how
+// to bring it up to date.
+func (db *DB) Describe(ctx context.Context) string {
+	v, err := db.Version(ctx)
+	switch {
+	case err != nil:
+		return fmt.Sprintf("plant store %s, schema version unknown: %v", Redact(db.url), Hint(err))
+	case v < SchemaVersion():
+		return fmt.Sprintf("plant store %s, schema version %d; this padline knows %d: run 'padline plant init' as the plant's owner", Redact(db.url), v, SchemaVersion())
+	}
+	return fmt.Sprintf("plant store %s, schema version %d", Redact(db.url), v)
 }
 
 // Station is a station registered in the plant store.
@@ -340,6 +354,13 @@ func OpenReader(ctx context.Context, url string) (*DB, error) {
 		AND has_table_privilege(format('%I.%I', schemaname, tablename), 'INSERT, UPDATE, DELETE, TRUNCATE'))`).Scan(&user, &writes)
 	if err == nil && writes {
 		err = fmt.Errorf("role %s may write the plant tables: connect as a read-only role ('padline plant add-reader ROLE')", user)
+	}
+	var v int
+	if err == nil {
+		v, err = p.Version(ctx)
+	}
+	if err == nil && v == 0 {
+		err = errors.New("no plant schema here (run 'padline plant init --db URL' as the plant's owner, then 'padline plant add-reader ROLE')")
 	}
 	if err != nil {
 		pool.Close()

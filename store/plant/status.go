@@ -15,19 +15,22 @@ import (
 // plant status'); it is read without the plant store, so it answers while
 // the plant store is down.
 type Status struct {
-	ShiftLog       string          `json:"shift_log"`
-	PlantURL       string          `json:"plant_url"`
-	LogUUID        string          `json:"log_uuid"`
-	BacklogRuns    int64           `json:"backlog_runs"`
-	BacklogChecks  int64           `json:"backlog_checks"`
-	BacklogStudies int64           `json:"backlog_studies"`
-	LastRunID      int64           `json:"last_forwarded_run"`
-	LastTime       *time.Time      `json:"last_forwarded_at"`
-	Forwarded      int64           `json:"forwarded_runs"`
-	LastError      string          `json:"last_error"`
-	LastErrorTime  *time.Time      `json:"last_error_at"`
-	Refused        int64           `json:"refused"`
-	RecentRefused  []store.Refusal `json:"recent_refused"`
+	ShiftLog       string     `json:"shift_log"`
+	PlantURL       string     `json:"plant_url"`
+	LogUUID        string     `json:"log_uuid"`
+	BacklogRuns    int64      `json:"backlog_runs"`
+	BacklogChecks  int64      `json:"backlog_checks"`
+	BacklogStudies int64      `json:"backlog_studies"`
+	LastRunID      int64      `json:"last_forwarded_run"`
+	LastTime       *time.Time `json:"last_forwarded_at"`
+	Forwarded      int64      `json:"forwarded_runs"`
+	LastError      string     `json:"last_error"`
+	// LastErrorFix is what to do about LastError when it is a known
+	// setup fault (Hint), "" otherwise.
+	LastErrorFix  string          `json:"last_error_what_to_do,omitempty"`
+	LastErrorTime *time.Time      `json:"last_error_at"`
+	Refused       int64           `json:"refused"`
+	RecentRefused []store.Refusal `json:"recent_refused"`
 }
 
 // StationStatus reads the forwarding state of the shift log at path
@@ -53,6 +56,9 @@ func StationStatus(ctx context.Context, path, url string) (Status, error) {
 		BacklogStudies: o.BacklogStudies, LastRunID: o.RunCursor, Forwarded: o.Forwarded, LastError: o.LastError, Refused: o.Refused}
 	if url != "" {
 		s.PlantURL = Redact(url)
+	}
+	if s.LastError != "" {
+		s.LastError, s.LastErrorFix = oneLine(s.LastError), remedy(s.LastError)
 	}
 	if !o.LastTime.IsZero() {
 		s.LastTime = &o.LastTime
@@ -86,6 +92,9 @@ func (r Status) Write(w io.Writer, asJSON bool) error {
 	}
 	if r.LastError != "" {
 		p("last error    %s: %s", r.LastErrorTime.Local().Format("2006-01-02 15:04:05"), r.LastError)
+		if r.LastErrorFix != "" {
+			p("what to do    %s", r.LastErrorFix)
+		}
 	} else {
 		p("last error    none since the last batch")
 	}
