@@ -103,6 +103,9 @@ type Started struct {
 	// UncertaintyPF is the guard band; UncertaintyFrom its source.
 	UncertaintyPF   float64 `json:"uncertainty_pf"`
 	UncertaintyFrom string  `json:"uncertainty_from"`
+	// Plant is the plant store committed runs are forwarded to, without
+	// its password ("": none).
+	Plant string `json:"plant_store,omitempty"`
 }
 
 // Scan is a serial accepted for test.

@@ -132,6 +132,7 @@ func (s *Session) Forward(ctx context.Context, flag string, warn io.Writer) (sto
 	if fw == nil {
 		return func() {}
 	}
+	s.plant = plant.Redact(PlantURL(flag, s.rig.Station))
 	s.fwd.Store(fw)
 	return func() {
 		s.fwd.Store(nil)

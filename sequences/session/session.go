@@ -109,6 +109,9 @@ type Session struct {
 	needOpen atomic.Bool
 	// fwd, when set, forwards to the plant store; every commit wakes it.
 	fwd atomic.Pointer[Forwarding]
+	// plant is the plant store Forward forwards to, without its password,
+	// for session_started ("": none).
+	plant string
 	// runCtx is Run's context: a held run (holdingRecorder) gives up when
 	// it ends.
 	runCtx  context.Context
@@ -322,6 +325,7 @@ func (s *Session) started() *Started {
 		Driver: r.Station.Driver, ShiftLog: s.opts.ShiftLog, Simulated: r.Simulated(),
 		Operator: s.opts.Operator, Lot: s.opts.Lot, Limits: r.PlanConfig.Limits,
 		UncertaintyPF: r.UncertaintyPF, UncertaintyFrom: r.UncertaintyFrom,
+		Plant: s.plant,
 	}
 }
 

@@ -241,7 +241,7 @@ func VariantFor(ctx context.Context, db ConfigSource, ref string) (*Variant, str
 			if err == nil {
 				v, perr := parseVariant(newSource("shift log config "+shortHash(last.Hash), raw))
 				if perr == nil {
-					return v, fmt.Sprintf("the shift log's latest configuration %s (first seen %s)",
+					return v, fmt.Sprintf("the latest configuration logged, %s (first seen %s)",
 						shortHash(last.Hash), last.FirstSeen.Local().Format("2006-01-02 15:04")), nil
 				}
 			}

@@ -146,6 +146,9 @@ func WriteBanner(w io.Writer, s *session.Started) {
 	}
 	fmt.Fprintf(w, "padline run: %s on station %s, fixture %s;%s trip limits %.2f … %.2f pF (guard band %.2f pF from %s); shift log %s\n",
 		s.Variant, s.Station, s.Fixture, sim, s.Limits.TripLowPF, s.Limits.TripHighPF, s.UncertaintyPF, s.UncertaintyFrom, s.ShiftLog)
+	if s.Plant != "" {
+		fmt.Fprintf(w, "forwarding to plant store %s ('padline plant status --station FILE' shows its backlog and last error)\n", s.Plant)
+	}
 	fmt.Fprintln(w, "CAUTION: unit supply up to 15 V, station GPIO 3.3 V: level-shift every input; keep hands clear of the clamp.")
 }
 
