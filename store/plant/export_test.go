@@ -1,6 +1,11 @@
 package plant
 
-import "context"
+import (
+	"context"
+	"fmt"
+
+	"padline/store"
+)
 
 // QueryRowForTest runs one query for tests: dest first, then args.
 func (db *DB) QueryRowForTest(ctx context.Context, q string, destAndArgs ...any) error {
@@ -40,4 +45,14 @@ func SetSmallBatchForTest(n int) (restore func()) {
 	old := smallBatch
 	smallBatch = n
 	return func() { smallBatch = old }
+}
+
+// RunsSQLForTest returns the query Runs sends for f's runs, with its
+// arguments.
+func RunsSQLForTest(f store.Filter) (string, []any) {
+	if fewRunsFilter(f) {
+		return fewRunsSQL(f)
+	}
+	cond, args := where(f)
+	return fmt.Sprintf(runsSQL, cond), args
 }
