@@ -36,7 +36,6 @@ import (
 	"padline/fixture/sim"
 	"padline/sequences"
 	"padline/sequences/session"
-	"padline/sequences/timing"
 	"padline/store"
 )
 
@@ -701,20 +700,11 @@ var errStepPanic = errors.New("torture: a step panicked")
 // and every rung pin must be low, every contact open once the relays had
 // their operate + bounce time, and nothing of the unit logged.
 func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
-	v, err := session.LoadVariant("QM-205")
+	v, st, err := session.Load("QM-205", "demo-sim")
 	if err != nil {
 		t.Fatal(err)
 	}
-	st, err := session.LoadStation("demo-sim")
-	if err != nil {
-		t.Fatal(err)
-	}
-	u, _ := session.StatedUncertainty(st)
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
-	if err != nil {
-		t.Fatal(err)
-	}
-	cfg, err := session.PlanConfig(v, rep, st.Pins.Clock != "", "")
+	base, err := session.NewRig(v, st, session.RigOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -751,26 +741,19 @@ func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
 			how = "panic"
 		}
 		t.Run(fmt.Sprintf("%s_after_%s_%d", how, c.op, c.n), func(t *testing.T) {
-			line, err := session.NewSimLine(st, v)
+			rig, err := base.Reopen() // a line of its own, the limits computed once
 			if err != nil {
 				t.Fatal(err)
 			}
-			fx, err := session.NewFixture(st, line.Pins(), line.Clock())
-			if err != nil {
-				t.Fatal(err)
-			}
-			plan, err := sequences.NewPlan(cfg, fx.Ladder().Distinct())
-			if err != nil {
-				t.Fatal(err)
-			}
+			line := rig.Line
 			ctx, cancel := context.WithCancel(context.Background())
 			defer cancel()
-			w := &tripwire{Station: fx, line: line, op: c.op, n: c.n, fire: cancel}
+			w := &tripwire{Station: rig.Fixture, line: line, op: c.op, n: c.n, fire: cancel}
 			if c.panics {
 				w.fire = func() { panic(errStepPanic) }
 			}
 			sess := &sequences.Session{
-				Plan: plan, Station: w, Clock: line.Clock(), Recorder: db,
+				Plan: rig.Plan, Station: w, Clock: rig.Clock, Recorder: db,
 				Template: sequences.Run{Variant: v.Name, ConfigHash: hash, Station: st.Name, Fixture: st.Fixture},
 				Retest:   &sequences.RetestPolicy{Max: v.Plan.Retest.Max, FlagPassAfterFail: v.Plan.Retest.FlagPassAfterFail},
 			}

@@ -98,19 +98,45 @@ func NewRig(v *Variant, st *Station, o RigOptions) (*Rig, error) {
 	// The search weighs a change of level by the relay time that does not
 	// hide inside a unit clock period.
 	r.PlanConfig.RelaySettle = st.Ladder.Operate + st.Ladder.Bounce
-	pins, clk, line, err := OpenPins(st, v, o.GPIO)
-	if err != nil {
-		return nil, err
-	}
-	r.Clock, r.Line = clk, line
-	if r.Fixture, err = NewFixture(st, pins, clk); err != nil {
-		return nil, err
-	}
-	if r.Plan, err = sequences.NewPlan(r.PlanConfig, r.Fixture.Ladder().Distinct()); err != nil {
-		_ = r.Fixture.Halt()
+	if err := r.open(o.GPIO); err != nil {
 		return nil, err
 	}
 	return r, nil
+}
+
+// open opens the station's pins, builds the fixture and the plan from
+// r.PlanConfig. On error nothing is left open.
+func (r *Rig) open(gpio GPIOOpener) error {
+	pins, clk, line, err := OpenPins(r.Station, r.Variant, gpio)
+	if err != nil {
+		return err
+	}
+	r.Clock, r.Line = clk, line
+	if r.Fixture, err = NewFixture(r.Station, pins, clk); err != nil {
+		return err
+	}
+	if r.Plan, err = sequences.NewPlan(r.PlanConfig, r.Fixture.Ladder().Distinct()); err != nil {
+		_ = r.Fixture.Halt()
+		return err
+	}
+	return nil
+}
+
+// Reopen is a simulated rig again from the start: the same variant,
+// station, limits and plan configuration on a new simulated line, fixture
+// and plan (the line's units, clock and relay counts start anew), without
+// computing the limits again. r is left as it was. A rig on real pins is
+// refused.
+func (r *Rig) Reopen() (*Rig, error) {
+	if !r.Simulated() {
+		return nil, fmt.Errorf("station %s: driver %s: only a simulated rig can be reopened", r.Station.Source.Name, r.Station.Driver)
+	}
+	n := &Rig{Variant: r.Variant, Station: r.Station, Limits: r.Limits, UncertaintyPF: r.UncertaintyPF,
+		UncertaintyFrom: r.UncertaintyFrom, PlanConfig: r.PlanConfig}
+	if err := n.open(nil); err != nil {
+		return nil, err
+	}
+	return n, nil
 }
 
 // OpenRig is Load, the shift log's uncertainty for the station (see
