@@ -10,6 +10,7 @@ import (
 
 	"periph.io/x/conn/v3/gpio"
 
+	"padline/fixture"
 	"padline/fixture/sim"
 	"padline/sequences"
 	"padline/sequences/session"
@@ -31,32 +32,7 @@ func (p failHigh) Out(l gpio.Level) error {
 // verdict event and is stored with the run.
 func TestStationFaultMessageKept(t *testing.T) {
 	ctx := context.Background()
-	path := filepath.Join(t.TempDir(), "shift.db")
-	healthy := openDemo(t, session.Options{ShiftLog: path})
-	if rep, err := healthy.Check(ctx); err != nil || !rep.OK {
-		t.Fatalf("check %v %v", rep.Faults, err)
-	}
-	if err := healthy.Close(); err != nil {
-		t.Fatal(err)
-	}
-
-	v, st, err := session.Load("QM-205", "demo-sim")
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := session.NewRig(v, st, session.RigOptions{})
-	if err != nil {
-		t.Fatal(err)
-	}
-	pins := r.Line.Pins()
-	pins.Power = failHigh{pins.Power}
-	if r.Fixture, err = session.NewFixture(st, pins, r.Clock); err != nil {
-		t.Fatal(err)
-	}
-	s, err := session.OpenOn(ctx, r, session.Options{ShiftLog: path})
-	if err != nil {
-		t.Fatal(err)
-	}
+	s := openDemoPins(t, checkedLog(t), func(p *fixture.Pins) { p.Power = failHigh{p.Power} })
 	defer s.Close()
 	ch, _ := s.Subscribe(256)
 	if err := s.Run(ctx, session.OneSerial("QM205-000010")); err != nil {

@@ -7,6 +7,7 @@ import (
 	"testing"
 	"time"
 
+	"padline/fixture"
 	"padline/sequences"
 	"padline/sequences/session"
 )
@@ -24,6 +25,45 @@ func openDemo(t *testing.T, o session.Options) *session.Session {
 		t.Fatal(err)
 	}
 	t.Cleanup(func() { _ = s.Close() })
+	return s
+}
+
+// checkedLog is a fresh shift log on which a demo session has passed its
+// shift-start check, so that a session opened on it next tests units.
+func checkedLog(t *testing.T) string {
+	t.Helper()
+	path := filepath.Join(t.TempDir(), "shift.db")
+	healthy := openDemo(t, session.Options{ShiftLog: path})
+	if rep, err := healthy.Check(context.Background()); err != nil || !rep.OK {
+		t.Fatalf("check %v %v", rep.Faults, err)
+	}
+	if err := healthy.Close(); err != nil {
+		t.Fatal(err)
+	}
+	return path
+}
+
+// openDemoPins is openDemo on the shift log at path over a rig whose
+// simulated pins fault changes before the fixture is built on them.
+func openDemoPins(t *testing.T, path string, fault func(*fixture.Pins)) *session.Session {
+	t.Helper()
+	v, st, err := session.Load("QM-205", "demo-sim")
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := session.NewRig(v, st, session.RigOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pins := r.Line.Pins()
+	fault(&pins)
+	if r.Fixture, err = session.NewFixture(st, pins, r.Clock); err != nil {
+		t.Fatal(err)
+	}
+	s, err := session.OpenOn(context.Background(), r, session.Options{ShiftLog: path})
+	if err != nil {
+		t.Fatal(err)
+	}
 	return s
 }
 

@@ -2,12 +2,12 @@ package session_test
 
 import (
 	"context"
-	"path/filepath"
 	"sync/atomic"
 	"testing"
 
 	"periph.io/x/conn/v3/gpio"
 
+	"padline/fixture"
 	"padline/fixture/sim"
 	"padline/sequences/session"
 	"padline/store"
@@ -35,37 +35,17 @@ func (p *stopAfterReads) Read() gpio.Level {
 // unit_aborted, and the fixture is left with power off and every rung open.
 func TestStopMidUnitDeterministic(t *testing.T) {
 	ctx := context.Background()
-	path := filepath.Join(t.TempDir(), "shift.db")
-	healthy := openDemo(t, session.Options{ShiftLog: path})
-	if rep, err := healthy.Check(ctx); err != nil || !rep.OK {
-		t.Fatalf("check %v %v", rep.Faults, err)
-	}
-	if err := healthy.Close(); err != nil {
-		t.Fatal(err)
-	}
+	path := checkedLog(t)
 
 	// Count the latch reads one unit takes, on a rig of its own.
 	count := func(stopAt int64) (*session.Session, *stopAfterReads, context.Context) {
-		v, st, err := session.Load("QM-205", "demo-sim")
-		if err != nil {
-			t.Fatal(err)
-		}
-		r, err := session.NewRig(v, st, session.RigOptions{})
-		if err != nil {
-			t.Fatal(err)
-		}
 		runCtx, stop := context.WithCancel(ctx)
 		t.Cleanup(stop)
-		pins := r.Line.Pins()
-		latch := &stopAfterReads{PinIn: pins.Latch, n: stopAt, stop: stop}
-		pins.Latch = latch
-		if r.Fixture, err = session.NewFixture(st, pins, r.Clock); err != nil {
-			t.Fatal(err)
-		}
-		s, err := session.OpenOn(ctx, r, session.Options{ShiftLog: path})
-		if err != nil {
-			t.Fatal(err)
-		}
+		var latch *stopAfterReads
+		s := openDemoPins(t, path, func(p *fixture.Pins) {
+			latch = &stopAfterReads{PinIn: p.Latch, n: stopAt, stop: stop}
+			p.Latch = latch
+		})
 		return s, latch, runCtx
 	}
 	s, latch, runCtx := count(-1)
