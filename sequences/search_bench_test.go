@@ -12,7 +12,6 @@ import (
 
 	"padline/sequences"
 	"padline/sequences/session"
-	"padline/sequences/timing"
 )
 
 var benchUnits = flag.Int("search.units", 3000, "synthetic units per spread in BenchmarkSearchTargets")
@@ -36,7 +35,7 @@ func tripPrediction(t testing.TB) (meanPF, sdPF float64) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: session.DefaultUncertaintyPF})
+	rep, err := v.StationLimits(session.DefaultUncertaintyPF)
 	if err != nil {
 		t.Fatal(err)
 	}

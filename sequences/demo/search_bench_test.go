@@ -12,7 +12,6 @@ import (
 	"testing"
 
 	"padline/sequences/session"
-	"padline/sequences/timing"
 )
 
 var benchFixtureUnits = flag.Int("search.fixture-units", 300, "units per simulated fixture in BenchmarkSearchTargets")
@@ -65,7 +64,7 @@ func writeStationTargets(t testing.TB, w io.Writer, perFixture int) {
 		}
 		st.Sim.Seed = seed
 		u, _ := session.StatedUncertainty(st)
-		rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
+		rep, err := v.StationLimits(u)
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -137,7 +137,7 @@ func Run(ctx context.Context, o Options) (*Result, error) {
 	st.Sim.Seed = o.Seed
 	u, _ := session.StatedUncertainty(st)
 	res := &Result{Variant: v, Station: st, DBPath: o.DB, Kept: o.DB != "", Strategies: []string{o.Search}}
-	if res.Limits, err = v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u}); err != nil {
+	if res.Limits, err = v.StationLimits(u); err != nil {
 		return nil, err
 	}
 	if o.Compare {

@@ -104,7 +104,7 @@ func uKind(source string) string {
 // SyncStudyLimits records the limits a new U gives (after a study stored
 // it) as a version, as SyncLimits does for the rig's own U.
 func SyncStudyLimits(ctx context.Context, db *store.DB, r *Rig, u float64, from string, now time.Time) (store.LimitsVersion, error) {
-	rep, err := r.Variant.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
+	rep, err := r.Variant.StationLimits(u)
 	if err != nil {
 		return store.LimitsVersion{}, err
 	}
@@ -123,7 +123,7 @@ func CurrentLimits(ctx context.Context, db *store.DB, variantRef string, st *Sta
 	if err != nil {
 		return store.LimitsVersion{}, err
 	}
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
+	rep, err := v.StationLimits(u)
 	if err != nil {
 		return store.LimitsVersion{}, err
 	}
@@ -384,7 +384,7 @@ func diffVariants(ctx context.Context, db *store.DB, refs []string, st *Station,
 		if err != nil {
 			return res, err
 		}
-		rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
+		rep, err := v.StationLimits(u)
 		if err != nil {
 			return res, err
 		}

@@ -272,11 +272,9 @@ func NewPanelRig(v *Variant, st *Station, o RigOptions) (*PanelRig, error) {
 	if st.Driver != DriverSim && o.PanelGPIO == nil {
 		return nil, fmt.Errorf("station %s: %w", st.Source.Name, ErrPanelGPIO)
 	}
-	r := &PanelRig{Variant: v, Station: st, UncertaintyPF: o.UncertaintyPF, UncertaintyFrom: o.UncertaintyFrom}
-	if r.UncertaintyPF <= 0 {
-		r.UncertaintyPF, r.UncertaintyFrom = StatedUncertainty(st)
-	}
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: r.UncertaintyPF})
+	r := &PanelRig{Variant: v, Station: st}
+	r.UncertaintyPF, r.UncertaintyFrom = o.guardBand(st)
+	rep, err := v.StationLimits(r.UncertaintyPF)
 	if err != nil {
 		return nil, err
 	}

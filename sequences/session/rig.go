@@ -61,6 +61,15 @@ type RigOptions struct {
 	PanelGPIO PanelGPIOOpener
 }
 
+// guardBand is the guard band U o sets and where it came from, else the
+// station file's or the stand-in (StatedUncertainty).
+func (o RigOptions) guardBand(st *Station) (float64, string) {
+	if o.UncertaintyPF > 0 {
+		return o.UncertaintyPF, o.UncertaintyFrom
+	}
+	return StatedUncertainty(st)
+}
+
 // Load resolves and parses a variant and a station reference: each a .yaml
 // file or a built-in name.
 func Load(variantRef, stationRef string) (*Variant, *Station, error) {
@@ -83,16 +92,13 @@ func NewRig(v *Variant, st *Station, o RigOptions) (*Rig, error) {
 		// site's ladder with site 1's values: refuse instead.
 		return nil, fmt.Errorf("station %s is a panel station (sites:): this command tests one unit per closure; use 'padline run', 'padline station check' or 'padline demo --panel'", st.Source.Name)
 	}
-	r := &Rig{Variant: v, Station: st, UncertaintyPF: o.UncertaintyPF, UncertaintyFrom: o.UncertaintyFrom}
-	if r.UncertaintyPF <= 0 {
-		r.UncertaintyPF, r.UncertaintyFrom = StatedUncertainty(st)
-	}
-	rep, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: r.UncertaintyPF})
-	if err != nil {
+	r := &Rig{Variant: v, Station: st}
+	r.UncertaintyPF, r.UncertaintyFrom = o.guardBand(st)
+	var err error
+	if r.Limits, err = v.StationLimits(r.UncertaintyPF); err != nil {
 		return nil, err
 	}
-	r.Limits = rep
-	if r.PlanConfig, err = PlanConfig(v, rep, st.Pins.Clock != "", o.Strategy); err != nil {
+	if r.PlanConfig, err = PlanConfig(v, r.Limits, st.Pins.Clock != "", o.Strategy); err != nil {
 		return nil, err
 	}
 	// The search weighs a change of level by the relay time that does not

@@ -7,6 +7,7 @@ import (
 
 	"padline/sequences"
 	"padline/sequences/session"
+	"padline/sequences/timing"
 )
 
 // Reopen starts a simulated rig anew over the same limits: after two units
@@ -71,3 +72,23 @@ func TestRigReopen(t *testing.T) {
 type nopRecorder struct{}
 
 func (nopRecorder) Record(context.Context, *sequences.Run) (int64, error) { return 0, nil }
+
+// A rig tests by the limits 'padline limits' prints with its default draws
+// and seed (README "Commands": the model limits and the test limits) for
+// the same guard band, and so do the limits versions the shift log keeps
+// (CurrentLimits): all take them from Variant.StationLimits.
+func TestRigLimitsArePrintedLimits(t *testing.T) {
+	r, err := session.OpenRig(context.Background(), "QM-205", "demo-sim", "", session.RigOptions{UncertaintyPF: 0.4, UncertaintyFrom: "test"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	lr, err := session.VariantLimits(context.Background(), session.LimitsQuery{Variant: "QM-205", UncertaintyPF: 0.4, UncertaintyGiven: true,
+		Draws: timing.DefaultDraws, Seed: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	pl := r.PlanConfig.Limits
+	if r.Limits.TestLimits != lr.TestLimits || r.Limits.Trip != lr.Trip || pl.TripLowPF != lr.TestLimits.Low || pl.TripHighPF != lr.TestLimits.High {
+		t.Errorf("rig limits %+v (trip %+v, plan %+v), 'padline limits' %+v (trip %+v)", r.Limits.TestLimits, r.Limits.Trip, pl, lr.TestLimits, lr.Trip)
+	}
+}

@@ -6,8 +6,6 @@ import (
 	"math"
 	"slices"
 	"strings"
-
-	"padline/sequences/timing"
 )
 
 // 'padline station validate': a station file checked completely without
@@ -127,7 +125,7 @@ func validateLadder(rep *ValidateReport, st *Station) {
 // reference's allowed deviation must be smaller than the window.
 func validateAgainst(rep *ValidateReport, st *Station, v *Variant) error {
 	u, from := StatedUncertainty(st)
-	lim, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
+	lim, err := v.StationLimits(u)
 	if err != nil {
 		return err
 	}

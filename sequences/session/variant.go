@@ -210,6 +210,14 @@ func (v *Variant) Limits(opt timing.Options) (timing.Report, error) {
 	return rep, nil
 }
 
+// StationLimits is the timing model's report as a station tests by it:
+// timing.DefaultDraws draws, seed 1, guard band u. Every rig, the limits
+// versions the shift log keeps, the station validation and the drift
+// report take their limits from here, so that they agree.
+func (v *Variant) StationLimits(u float64) (timing.Report, error) {
+	return v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: u})
+}
+
 // ConfigSource is where VariantFor looks for a variant's latest
 // configuration: a shift log (*store.DB) or the plant store.
 type ConfigSource interface {

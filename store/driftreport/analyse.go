@@ -15,7 +15,6 @@ import (
 
 	"padline/sequences"
 	"padline/sequences/session"
-	"padline/sequences/timing"
 	"padline/store"
 	"padline/store/drift"
 	"padline/store/drift/chart"
@@ -391,7 +390,7 @@ func (o *Options) limits(ctx context.Context, db runLog, rep *Report) (low, high
 			rep.LimitsFrom = "none: " + err.Error()
 		default:
 			rep.Variant = v.Name
-			lr, err := v.Limits(timing.Options{Draws: timing.DefaultDraws, Seed: 1, UncertaintyPF: o.UncertaintyPF})
+			lr, err := v.StationLimits(o.UncertaintyPF)
 			if err != nil {
 				return low, high, fmt.Errorf("drift: %w", err)
 			}
