@@ -7,8 +7,6 @@ import (
 	"io"
 	"maps"
 	"math"
-	"os"
-	"path/filepath"
 	"slices"
 	"strings"
 	"time"
@@ -117,15 +115,12 @@ func RunPanel(ctx context.Context, o Options) (*PanelResult, error) {
 		return nil, err
 	}
 	defer r.Halt()
-	res := &PanelResult{Variant: v, Station: st, Limits: r.PlanConfig.Limits, DBPath: o.DB, Kept: o.DB != ""}
-	if res.DBPath == "" {
-		dir, err := os.MkdirTemp("", "padline-demo-")
-		if err != nil {
-			return nil, fmt.Errorf("demo: %w", err)
-		}
-		defer os.RemoveAll(dir)
-		res.DBPath = filepath.Join(dir, "shift.db")
+	res := &PanelResult{Variant: v, Station: st, Limits: r.PlanConfig.Limits, Kept: o.DB != ""}
+	var remove func()
+	if res.DBPath, remove, err = shiftLogPath(o.DB); err != nil {
+		return nil, err
 	}
+	defer remove()
 	panels, fixture, cpu, err := res.panels(ctx, r, o)
 	if err != nil {
 		return nil, err

@@ -136,21 +136,18 @@ func Run(ctx context.Context, o Options) (*Result, error) {
 	}
 	st.Sim.Seed = o.Seed
 	u, _ := session.StatedUncertainty(st)
-	res := &Result{Variant: v, Station: st, DBPath: o.DB, Kept: o.DB != "", Strategies: []string{o.Search}}
+	res := &Result{Variant: v, Station: st, Kept: o.DB != "", Strategies: []string{o.Search}}
 	if res.Limits, err = v.StationLimits(u); err != nil {
 		return nil, err
 	}
 	if o.Compare {
 		res.Strategies = []string{"bracket", session.SearchLaplace, "staircase"}
 	}
-	if res.DBPath == "" {
-		dir, err := os.MkdirTemp("", "padline-demo-")
-		if err != nil {
-			return nil, fmt.Errorf("demo: %w", err)
-		}
-		defer os.RemoveAll(dir)
-		res.DBPath = filepath.Join(dir, "shift.db")
+	var remove func()
+	if res.DBPath, remove, err = shiftLogPath(o.DB); err != nil {
+		return nil, err
 	}
+	defer remove()
 	if err := res.passes(ctx, o); err != nil {
 		return nil, err
 	}
@@ -163,6 +160,19 @@ func Run(ctx context.Context, o Options) (*Result, error) {
 	}
 	res.TrueStrayPF = line.TrueStrayPF()
 	return res, nil
+}
+
+// shiftLogPath is the demo's shift log: db when given, else shift.db in a
+// new temporary folder that remove deletes (remove does nothing for db).
+func shiftLogPath(db string) (path string, remove func(), err error) {
+	if db != "" {
+		return db, func() {}, nil
+	}
+	dir, err := os.MkdirTemp("", "padline-demo-")
+	if err != nil {
+		return "", nil, fmt.Errorf("demo: %w", err)
+	}
+	return filepath.Join(dir, "shift.db"), func() { os.RemoveAll(dir) }, nil
 }
 
 // passes runs the shift once per strategy; only the first pass is logged.
