@@ -507,6 +507,22 @@ func TestSIGTERMWhileWaitingForScan(t *testing.T) {
 	}
 }
 
+// tortureStart is what a crash torture starts from: the -torture.* units
+// and kills (fewer with -short), the padline binary, a shift log that has
+// passed the station check, the serials, and the kill moments' generator
+// (seeded by -torture.seed, on the torture's own stream).
+func tortureStart(t *testing.T, stream uint64) (units, kills int, bin, db string, serials []string, rng *rand.Rand) {
+	t.Helper()
+	units, kills = *tortureUnits, *tortureKills
+	if testing.Short() {
+		units, kills = min(units, 100), min(kills, 5)
+	}
+	bin = padlineBinary(t)
+	db = filepath.Join(t.TempDir(), "shift.db")
+	checkStation(t, db)
+	return units, kills, bin, db, serialRange(1, units), rand.New(rand.NewPCG(*tortureSeed, stream))
+}
+
 // TestCrashTorture runs 'padline run --json' on the serials, SIGKILLs it at
 // seeded random moments (after a random number of verdict lines plus a random
 // 0–3 ms, so kills land in start-up, inside units and inside commits), and
@@ -515,15 +531,7 @@ func TestSIGTERMWhileWaitingForScan(t *testing.T) {
 // must pass its integrity check, hold every printed verdict unchanged, hold
 // only whole runs, and hold a run for every serial.
 func TestCrashTorture(t *testing.T) {
-	units, kills := *tortureUnits, *tortureKills
-	if testing.Short() {
-		units, kills = min(units, 100), min(kills, 5)
-	}
-	bin := padlineBinary(t)
-	db := filepath.Join(t.TempDir(), "shift.db")
-	checkStation(t, db)
-	serials := serialRange(1, units)
-	rng := rand.New(rand.NewPCG(*tortureSeed, 0x4b494c4c))
+	units, kills, bin, db, serials, rng := tortureStart(t, 0x4b494c4c)
 
 	printed := map[string]unitLine{}
 	refused := map[string]string{}

@@ -5,7 +5,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -25,15 +24,7 @@ import (
 // (verdict, fail code, trip point as printed). Scale it with the same
 // -torture.* flags.
 func TestCrashTortureText(t *testing.T) {
-	units, kills := *tortureUnits, *tortureKills
-	if testing.Short() {
-		units, kills = min(units, 100), min(kills, 5)
-	}
-	bin := padlineBinary(t)
-	db := filepath.Join(t.TempDir(), "shift.db")
-	checkStation(t, db)
-	serials := serialRange(1, units)
-	rng := rand.New(rand.NewPCG(*tortureSeed, 0x54455854))
+	units, kills, bin, db, serials, rng := tortureStart(t, 0x54455854)
 	type shown struct{ verdict, code, trip string }
 	printed := map[string]shown{}
 	remaining := serials
