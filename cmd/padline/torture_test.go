@@ -708,14 +708,11 @@ var errStepPanic = errors.New("torture: a step panicked")
 // and every rung pin must be low, every contact open once the relays had
 // their operate + bounce time, and nothing of the unit logged.
 func TestStopAndPanicLeaveFixtureHalted(t *testing.T) {
-	v, st, err := session.Load("QM-205", "demo-sim")
+	base, err := session.OpenRig(context.Background(), "QM-205", "demo-sim", "", session.RigOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
-	base, err := session.NewRig(v, st, session.RigOptions{})
-	if err != nil {
-		t.Fatal(err)
-	}
+	v, st := base.Variant, base.Station
 	db, err := store.Open(filepath.Join(t.TempDir(), "shift.db"))
 	if err != nil {
 		t.Fatal(err)

@@ -16,11 +16,7 @@ import (
 // line, its clock and the relay counts start again), the first rig is left
 // as it was, and a rig that is not simulated is refused.
 func TestRigReopen(t *testing.T) {
-	v, st, err := session.Load("QM-205", "demo-sim")
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := session.NewRig(v, st, session.RigOptions{})
+	r, err := session.OpenRig(context.Background(), "QM-205", "demo-sim", "", session.RigOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}

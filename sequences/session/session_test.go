@@ -47,17 +47,13 @@ func checkedLog(t *testing.T) string {
 // simulated pins fault changes before the fixture is built on them.
 func openDemoPins(t *testing.T, path string, fault func(*fixture.Pins)) *session.Session {
 	t.Helper()
-	v, st, err := session.Load("QM-205", "demo-sim")
-	if err != nil {
-		t.Fatal(err)
-	}
-	r, err := session.NewRig(v, st, session.RigOptions{})
+	r, err := session.OpenRig(context.Background(), "QM-205", "demo-sim", "", session.RigOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
 	pins := r.Line.Pins()
 	fault(&pins)
-	if r.Fixture, err = session.NewFixture(st, pins, r.Clock); err != nil {
+	if r.Fixture, err = session.NewFixture(r.Station, pins, r.Clock); err != nil {
 		t.Fatal(err)
 	}
 	s, err := session.OpenOn(context.Background(), r, session.Options{ShiftLog: path})
