@@ -49,6 +49,7 @@ func (a *app) driftBaselineCmd() *cobra.Command {
 	for _, c := range []*cobra.Command{set, show} {
 		fl := c.Flags()
 		addShiftLogFlag(fl)
+		fl.Lookup("db").Usage = plantOrLog
 		fl.StringVar(&stationFile, "station-file", "", "station file (or built-in name): its shift_log")
 		fl.StringVar(&r.Variant, "variant", "", "variant, e.g. QM-205")
 		fl.BoolVar(&asJSON, "json", false, "print the baseline as JSON")
@@ -57,7 +58,7 @@ func (a *app) driftBaselineCmd() *cobra.Command {
 	fl.StringVar(&r.Since, "since", "", "window start (inclusive): 8h, 2026-11-30, \"2026-11-30 06:00\"")
 	fl.StringVar(&r.Until, "until", "", "window end (exclusive); same forms")
 	fl.BoolVar(&r.LastApproved, "last-approved", false, "instead of --since/--until: the units judged against the limits version approved last (no versions: the last approved baseline's window)")
-	fl.StringVar(&r.Name, "name", "", "name of the baseline (default: its window, or with --last-approved the last one's name)")
+	fl.StringVar(&r.Name, "name", "", "name of the baseline (default: the times of its first and last units, or with --last-approved the last one's name)")
 	fl.StringVar(&r.Approver, "approved-by", os.Getenv("USER"), "who approves it")
 	cmd.AddCommand(set, show)
 	return cmd

@@ -72,6 +72,7 @@ func (a *app) driftCmd() *cobra.Command {
 // add defines the flags.
 func (f *driftFlags) add(fl *pflag.FlagSet) {
 	addShiftLogFlag(fl)
+	fl.Lookup("db").Usage = plantOrLog
 	fl.StringVar(&f.o.StationFile, "station-file", "", "station file (or built-in name): its shift_log and its uncertainty U")
 	fl.StringVar(&f.o.Variant, "variant", "", "variant whose trip points to watch, e.g. QM-205 (or a .yaml file)")
 	fl.StringVar(&f.o.Since, "since", "", "from this time on (inclusive): 8h, 2d, 2026-11-30, \"2026-11-30 14:00\"")

@@ -35,7 +35,7 @@ func (a *app) historyCmd() *cobra.Command {
 		},
 	})
 	fl := cmd.Flags()
-	fl.StringVar(new(string), "db", "", "shift log file (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")
+	fl.StringVar(new(string), "db", "", plantOrLog)
 	fl.StringVar(&stationFile, "station-file", "", "station file (or built-in name) whose shift_log to read")
 	fl.StringVar(&q.Serial, "serial", "", "runs of this unit serial")
 	fl.StringVar(&q.Variant, "variant", "", "runs of this product variant, e.g. QM-205")

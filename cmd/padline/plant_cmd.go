@@ -30,7 +30,7 @@ run arrives once. README "The plant store" shows a setup.`,
   padline plant status --station /etc/padline/station.yaml --json`}
 	var line, role, station, url string
 	var asJSON bool
-	add := a.plantSub(cmd, "add-station NAME", "Register a station (--role: and create the login role it forwards as, writing its own rows only)", 1,
+	add := a.plantSub(cmd, "add-station NAME", "Register a station, as the plant's owner (--role: also the login role it forwards as, which writes its own rows only; making it needs CREATEROLE)", 1,
 		func(ctx context.Context, p *plant.DB, args []string) error {
 			return p.AddStation(ctx, plant.Station{Name: args[0], Line: line, Role: role})
 		})
@@ -38,7 +38,7 @@ run arrives once. README "The plant store" shows a setup.`,
 	add.Flags().StringVar(&role, "role", "", "PostgreSQL login role the station forwards as")
 	a.plantSub(cmd, "init", "Create or update the plant schema, as its owner (?search_path=NAME picks the schema)", 0,
 		func(ctx context.Context, p *plant.DB, _ []string) error { return p.Migrate(ctx) })
-	a.plantSub(cmd, "add-reader ROLE", "Create a login role that reads every plant table and writes none (the line board's)", 1,
+	a.plantSub(cmd, "add-reader ROLE", "Create a login role that reads every plant table and writes none (the line board's, history's, drift's), as the plant's owner with CREATEROLE", 1,
 		func(ctx context.Context, p *plant.DB, args []string) error { return p.AddReader(ctx, args[0]) })
 	a.plantSub(cmd, "stations", "List the registered stations", 0, func(ctx context.Context, p *plant.DB, _ []string) error {
 		ss, err := p.Stations(ctx)

@@ -34,6 +34,9 @@ func shiftLogPath(cmd *cobra.Command, stationRef string) (string, error) {
 	return defaultShiftLog, nil
 }
 
+// plantOrLog is the --db usage of the commands that also read the plant store.
+const plantOrLog = "shift log, or the plant store postgres://USER@HOST/DB (default: $PADLINE_DB, the station file's shift_log, else ./" + defaultShiftLog + ")"
+
 // addShiftLogFlag adds the --db flag that shiftLogPath reads.
 func addShiftLogFlag(f *pflag.FlagSet) {
 	f.String("db", "", "shift log (default: $PADLINE_DB, the station file's shift_log, else ./"+defaultShiftLog+")")

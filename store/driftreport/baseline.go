@@ -230,8 +230,11 @@ func ShowBaseline(ctx context.Context, path, variant string) (store.Baseline, er
 	}
 	defer closeLog()
 	b, err := db.LastBaseline(ctx, variant)
-	if err != nil {
+	if errors.Is(err, store.ErrNotFound) {
 		return b, fmt.Errorf("drift baseline show: %w (set one with 'padline drift baseline set')", err)
+	}
+	if err != nil {
+		return b, fmt.Errorf("drift baseline show: %w", err)
 	}
 	return b, nil
 }

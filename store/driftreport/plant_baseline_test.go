@@ -8,8 +8,11 @@ import (
 	"math/rand/v2"
 	"path/filepath"
 	"reflect"
+	"strings"
 	"testing"
 	"time"
+
+	"github.com/jackc/pgx/v5"
 
 	"padline/sequences"
 	"padline/store"
@@ -166,5 +169,27 @@ func TestPlantApprovedBaseline(t *testing.T) {
 	}
 	if again.Name != "laminate A" || again.N != pb.N || again.Centre != pb.Centre || again.Sigma != pb.Sigma {
 		t.Errorf("--last-approved on the plant: %+v, want the window of %+v", again, pb)
+	}
+}
+
+// 'drift baseline show' tells to set a baseline only when there is none:
+// on a plant schema that predates the baselines table it names 'padline
+// plant init' alone (it used to add "set one" after that).
+func TestShowBaselineSaysWhatIsMissing(t *testing.T) {
+	url := plantSchema(t)
+	ctx := context.Background()
+	if _, err := ShowBaseline(ctx, url, "QM-205"); err == nil || !strings.Contains(err.Error(), "set one with") {
+		t.Fatalf("no baseline yet: %v", err)
+	}
+	conn, err := pgx.Connect(ctx, url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer conn.Close(ctx)
+	if _, err := conn.Exec(ctx, "DROP TABLE drift_baselines"); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := ShowBaseline(ctx, url, "QM-205"); err == nil || !strings.Contains(err.Error(), "padline plant init") || strings.Contains(err.Error(), "set one with") {
+		t.Fatalf("schema without the baselines table: %v", err)
 	}
 }

@@ -362,6 +362,9 @@ func OpenReader(ctx context.Context, url string) (*DB, error) {
 	if err == nil && v == 0 {
 		err = errors.New("no plant schema here (run 'padline plant init --db URL' as the plant's owner, then 'padline plant add-reader ROLE')")
 	}
+	if err == nil {
+		err = readable(v)
+	}
 	if err != nil {
 		pool.Close()
 		return nil, fmt.Errorf("plant store %s: %w", Redact(url), err)

@@ -25,6 +25,7 @@ var hints = []struct {
 	{[]string{"SQLSTATE 28P01"}, "wrong password for the plant URL's role: check the password in the URL ($PADLINE_PLANT_URL); ALTER ROLE … PASSWORD sets it"},
 	{[]string{"SQLSTATE 42P01"}, plantInit},
 	{[]string{"SQLSTATE 42883"}, plantInit},
+	{[]string{"SQLSTATE 42703"}, plantInit},
 	{[]string{"SQLSTATE 3F000"}, "the schema the URL's search_path names does not exist: CREATE SCHEMA it as the plant's owner, then 'padline plant init'"},
 	{[]string{"SQLSTATE 42501", "row-level security"}, "the plant URL's role is not this station's: a station forwards as the role 'padline plant add-station NAME --role ROLE' gave it ('padline plant stations' lists them)"},
 	{[]string{"SQLSTATE 42501", "create role"}, "the --db role may not create roles: as a superuser, ALTER ROLE it CREATEROLE (README \"The plant store\"), or create the role first"},

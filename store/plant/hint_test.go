@@ -31,6 +31,7 @@ func TestHintText(t *testing.T) {
 		{`set plant baseline x (table drift_baselines): ERROR: cannot execute INSERT in a read-only transaction (SQLSTATE 25006)`, "read-only (an add-reader role)"},
 		{`stations: ERROR: relation "stations" does not exist (SQLSTATE 42P01)`, "run 'padline plant init"},
 		{`month partition: ERROR: function plant_ensure_month(unknown) does not exist (SQLSTATE 42883)`, "run 'padline plant init"},
+		{`put batch of L2-S1: error preprocessing batch (prepare): ERROR: column "panel" of relation "runs" does not exist (SQLSTATE 42703)`, "older than this padline: run 'padline plant init"},
 	} {
 		got := plant.HintText(c.msg)
 		if !strings.Contains(got, " — what to do: ") || !strings.Contains(got, c.want) || strings.Contains(got, "\n") {
@@ -125,6 +126,19 @@ func TestDescribeAndReaderOnOldSchema(t *testing.T) {
 	if err := p.AddReader(ctx, schema+"_board"); err != nil {
 		t.Fatal(err)
 	}
+	// Readers refuse it: their queries name what the last migration adds.
+	if r, err := plant.OpenMigrated(ctx, url); err == nil {
+		r.Close()
+		t.Error("OpenMigrated accepted a schema older than the program")
+	} else if !strings.Contains(err.Error(), "run 'padline plant init") {
+		t.Errorf("OpenMigrated on an older schema: %v", err)
+	}
+	if r, err := plant.OpenReader(ctx, asRole(url, schema+"_board")); err == nil {
+		r.Close()
+		t.Error("OpenReader accepted a schema older than the program")
+	} else if !strings.Contains(err.Error(), fmt.Sprintf("plant schema at version %d, this padline reads version %d", plant.SchemaVersion()-1, plant.SchemaVersion())) {
+		t.Errorf("OpenReader on an older schema: %v", err)
+	}
 	if _, err := conn.Exec(ctx, `DROP TABLE plant_schema`); err != nil {
 		t.Fatal(err)
 	}
@@ -133,5 +147,19 @@ func TestDescribeAndReaderOnOldSchema(t *testing.T) {
 		t.Error("OpenReader accepted a database without the plant schema")
 	} else if !strings.Contains(err.Error(), "no plant schema here (run 'padline plant init") {
 		t.Errorf("OpenReader without the plant schema: %v", err)
+	}
+}
+
+// 'plant status' says when no plant store is set, and what to do about a
+// last error it knows.
+func TestStatusTextNamesWhatToDo(t *testing.T) {
+	at := time.Date(2026, 12, 2, 18, 25, 0, 0, time.UTC)
+	var b strings.Builder
+	s := plant.Status{ShiftLog: "s.db", LastError: "x (SQLSTATE 28P01)", LastErrorTime: &at, LastErrorFix: "check the password"}
+	if err := s.Write(&b, false); err != nil {
+		t.Fatal(err)
+	}
+	if out := b.String(); !strings.Contains(out, "plant store   none set (station file plant.url, or $PADLINE_PLANT_URL)") || !strings.Contains(out, "what to do    check the password") {
+		t.Errorf("status text:\n%s", out)
 	}
 }

@@ -29,7 +29,20 @@ func OpenMigrated(ctx context.Context, url string) (*DB, error) {
 		p.Close()
 		return nil, fmt.Errorf("plant store %s has no plant schema (run 'padline plant init --db URL')", Redact(url))
 	}
+	if err := readable(v); err != nil {
+		p.Close()
+		return nil, fmt.Errorf("plant store %s: %w", Redact(url), err)
+	}
 	return p, nil
+}
+
+// readable refuses a schema older than the program's: its queries name
+// columns and tables the missing migrations add.
+func readable(v int) error {
+	if v < SchemaVersion() {
+		return fmt.Errorf("plant schema at version %d, this padline reads version %d: run 'padline plant init --db URL' as the plant's owner", v, SchemaVersion())
+	}
+	return nil
 }
 
 // OpenFlag opens the plant store named by a --db flag, else by

@@ -83,6 +83,8 @@ func (r Status) Write(w io.Writer, asJSON bool) error {
 	p("shift log     %s (plant id %s)", r.ShiftLog, r.LogUUID)
 	if r.PlantURL != "" {
 		p("plant store   %s", r.PlantURL)
+	} else {
+		p("plant store   none set (station file plant.url, or $PADLINE_PLANT_URL)")
 	}
 	p("backlog       %d runs, %d checks, %d studies", r.BacklogRuns, r.BacklogChecks, r.BacklogStudies)
 	if r.LastTime != nil {
