@@ -372,11 +372,11 @@ func mergeAdvance(a, b Advance) Advance {
 // it a unit or a few seconds late.
 
 // The idle flush: a pending advance is written on its own once no run
-// has been committed for twice the last interval between two runs, at
-// least idleFlushMin and at most idleFlushMax. A steady line never waits
-// that long between units, so its cursors always ride a run's commit,
-// whatever its takt up to idleFlushMax/2; a line that stops shows its last
-// batch in the log within idleFlushMin to idleFlushMax.
+// has been committed since it for twice the last interval between two
+// runs, at least idleFlushMin and at most idleFlushMax. A steady line
+// never waits that long between units, so its cursors always ride a run's
+// commit, whatever its takt up to idleFlushMax/2; a line that stops shows
+// its last batch in the log idleFlushMin to idleFlushMax after it.
 const (
 	idleFlushMin = 5 * time.Second
 	idleFlushMax = time.Minute
@@ -458,20 +458,25 @@ func (db *DB) flushLocked(ctx context.Context) error {
 }
 
 // FlushIdleOutbox commits a pending advance on its own when the line has
-// committed no run since it for the idle time (idleFlushMin): a stopped
-// line's status catches up.
-func (db *DB) FlushIdleOutbox(ctx context.Context) error {
+// committed no run since it for the idle time (idleFlushMin to
+// idleFlushMax): a stopped line's status catches up. Otherwise it returns
+// how long until a pending advance is due (0: none pending).
+func (db *DB) FlushIdleOutbox(ctx context.Context) (time.Duration, error) {
 	db.pmu.Lock()
 	since := db.pendSince
 	if db.lastRecord.After(since) {
 		since = db.lastRecord
 	}
-	due := db.pend != nil && db.now().Sub(since) >= db.idleAfterLocked()
+	pending := db.pend != nil
+	left := db.idleAfterLocked() - db.now().Sub(since)
 	db.pmu.Unlock()
-	if !due {
-		return nil
+	if !pending {
+		return 0, nil
 	}
-	return db.FlushOutbox(ctx)
+	if left > 0 {
+		return left, nil
+	}
+	return 0, db.FlushOutbox(ctx)
 }
 
 // idleAfterLocked is how long a pending advance waits for a run's commit.

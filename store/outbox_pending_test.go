@@ -153,8 +153,9 @@ func TestDeferredAdvanceFlushes(t *testing.T) {
 }
 
 // FlushIdleOutbox writes a pending advance once the line has committed no
-// run for twice its last interval between runs, at least 5 s: a line with a
-// 2 s takt after 5 s, one with a 10 s takt after 20 s, never before.
+// run since it for twice its last interval between runs, at least 5 s: a
+// line with a 2 s takt after 5 s, one with a 10 s takt after 20 s, never
+// before, and says how long it has to go.
 func TestDeferredAdvanceIdleFlush(t *testing.T) {
 	ctx := context.Background()
 	for _, c := range []struct {
@@ -172,24 +173,24 @@ func TestDeferredAdvanceIdleFlush(t *testing.T) {
 				t.Fatal(err)
 			}
 		}
-		last := now
-		now = now.Add(10 * time.Millisecond) // the batch lands
+		landed := now.Add(10 * time.Millisecond) // the batch lands after the last run
+		now = landed
 		if err := db.DeferAdvance(ctx, store.Advance{Runs: 3, Accepted: 3, At: now}); err != nil {
 			t.Fatal(err)
 		}
-		now = last.Add(c.early)
-		if err := db.FlushIdleOutbox(ctx); err != nil {
-			t.Fatal(err)
+		now = landed.Add(c.early)
+		if left, err := db.FlushIdleOutbox(ctx); err != nil || left != c.due-c.early {
+			t.Fatalf("takt %v, %v after the batch: due in %v (%v), want %v", c.takt, c.early, left, err, c.due-c.early)
 		}
 		if o := outboxOf(t, path); o.RunCursor != 0 {
-			t.Fatalf("takt %v: written on its own %v after the last run", c.takt, c.early)
+			t.Fatalf("takt %v: written on its own %v after the batch", c.takt, c.early)
 		}
-		now = last.Add(c.due + 10*time.Millisecond)
-		if err := db.FlushIdleOutbox(ctx); err != nil {
-			t.Fatal(err)
+		now = landed.Add(c.due)
+		if left, err := db.FlushIdleOutbox(ctx); err != nil || left != 0 {
+			t.Fatalf("takt %v: due in %v (%v), want written now", c.takt, left, err)
 		}
 		if o := outboxOf(t, path); o.RunCursor != 3 || o.Forwarded != 3 {
-			t.Fatalf("takt %v: not written %v after the last run: %+v", c.takt, c.due, o)
+			t.Fatalf("takt %v: not written %v after the batch: %+v", c.takt, c.due, o)
 		}
 	}
 }

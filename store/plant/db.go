@@ -104,6 +104,14 @@ func open(ctx context.Context, url string, forReads bool) (*DB, error) {
 	}
 	if forReads {
 		readParams(cfg)
+	} else if cfg.ShouldPing == nil {
+		// pgxpool pings a connection idle over 1 s before handing it out:
+		// a round trip and a goroutine on every batch of a line slower than
+		// a unit a second. A forwarder sends at least every Heartbeat, so
+		// this pings only after a pause; a connection the server dropped
+		// meanwhile fails its batch, which is retried after the back-off
+		// (under 1 s) on a new one.
+		cfg.ShouldPing = func(_ context.Context, p pgxpool.ShouldPingParams) bool { return p.IdleDuration > 2*Heartbeat }
 	}
 	pool, err := pgxpool.NewWithConfig(ctx, cfg)
 	if err != nil {

@@ -37,7 +37,9 @@ type Forwarder struct {
 	// sends again.
 	BatchSize int
 	// Poll is how often an idle forwarder looks for new runs (default
-	// 1 s); Kick wakes it at once.
+	// 1 s, or stateEvery once runs are offered: each of them wakes it and
+	// others are found only when the state is read again); Kick wakes it
+	// at once.
 	Poll time.Duration
 	// Every is the least time between two batches while the forwarder
 	// keeps up (default 1 s; negative: a batch per Kick): the runs a line
@@ -214,9 +216,17 @@ func (f *Forwarder) Run(ctx context.Context) error {
 	if maxB < minB {
 		maxB = max(2*time.Minute, minB)
 	}
-	poll := f.Poll
-	if poll <= 0 {
-		poll = time.Second
+	poll := func() time.Duration {
+		switch {
+		case f.Poll > 0:
+			return f.Poll
+		case f.offering():
+			// Every run this process commits wakes the forwarder (Offer);
+			// a wake-up a second more cost a slow line's station CPU for
+			// nothing but the state's read, every stateEvery anyway.
+			return stateEvery
+		}
+		return time.Second
 	}
 	every := f.Every
 	if every == 0 {
@@ -225,16 +235,32 @@ func (f *Forwarder) Run(ctx context.Context) error {
 	// A landed batch's cursor still pending in the log (DeferAdvance) is
 	// written as the forwarder stops.
 	defer f.Log.FlushOutbox(context.WithoutCancel(ctx))
+	// One timer for every wait (a new one per wait showed in the profile
+	// of a slow line); since Go 1.23 Reset after Stop delivers no stale
+	// tick.
+	t := time.NewTimer(time.Hour)
+	defer t.Stop()
+	wait := func(d time.Duration, kick <-chan struct{}) error {
+		t.Reset(d)
+		select {
+		case <-ctx.Done():
+			return ctx.Err()
+		case <-kick:
+			t.Stop()
+		case <-t.C:
+		}
+		return nil
+	}
 	fails := 0
 	for {
 		n, err := f.Step(ctx)
-		var wait time.Duration
+		var d time.Duration
 		switch {
 		case ctx.Err() != nil:
 			return ctx.Err()
 		case err != nil:
 			fails++
-			wait = Backoff(fails, minB, maxB, rand.Float64())
+			d = Backoff(fails, minB, maxB, rand.Float64())
 		case n >= f.batchSize():
 			fails = 0
 			continue // a backlog: more are waiting
@@ -245,35 +271,34 @@ func (f *Forwarder) Run(ctx context.Context) error {
 			}
 			// Let the line commit more before the next batch; a commit
 			// meanwhile does not cut the wait short.
-			t := time.NewTimer(every)
-			select {
-			case <-ctx.Done():
-				t.Stop()
-				return ctx.Err()
-			case <-t.C:
+			if err := wait(every, nil); err != nil {
+				return err
 			}
 			continue
 		default:
 			fails = 0
-			wait = poll
+			d = poll()
 			// Nothing to send: once the line has committed no run for a
 			// while, the last batch's cursor is written on its own.
-			_ = f.Log.FlushIdleOutbox(ctx)
+			if due, _ := f.Log.FlushIdleOutbox(ctx); due > 0 {
+				d = min(d, due)
+			}
 		}
-		t := time.NewTimer(wait)
 		kick := f.kick
 		if err != nil {
 			kick = nil // a new run does not cut a back-off short
 		}
-		select {
-		case <-ctx.Done():
-			t.Stop()
-			return ctx.Err()
-		case <-kick:
-			t.Stop()
-		case <-t.C:
+		if err := wait(d, kick); err != nil {
+			return err
 		}
 	}
+}
+
+// offering reports whether runs are handed over by Offer.
+func (f *Forwarder) offering() bool {
+	f.omu.Lock()
+	defer f.omu.Unlock()
+	return f.offers
 }
 
 // Step sends one batch, if there is anything to send, and returns how many
