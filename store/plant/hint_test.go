@@ -155,11 +155,11 @@ func TestDescribeAndReaderOnOldSchema(t *testing.T) {
 func TestStatusTextNamesWhatToDo(t *testing.T) {
 	at := time.Date(2026, 12, 2, 18, 25, 0, 0, time.UTC)
 	var b strings.Builder
-	s := plant.Status{ShiftLog: "s.db", LastError: "x (SQLSTATE 28P01)", LastErrorTime: &at, LastErrorFix: "check the password"}
+	s := plant.Status{ShiftLog: "s.db", LastTime: &at, LastError: "x (SQLSTATE 28P01)", LastErrorTime: &at, LastErrorFix: "check the password"}
 	if err := s.Write(&b, false); err != nil {
 		t.Fatal(err)
 	}
-	if out := b.String(); !strings.Contains(out, "plant store   none set (station file plant.url, or $PADLINE_PLANT_URL)") || !strings.Contains(out, "what to do    check the password") {
+	if out := b.String(); !strings.Contains(out, "plant store   none set (station file plant.url, or $PADLINE_PLANT_URL)") || !strings.Contains(out, "what to do    check the password") || !strings.Contains(out, "no runs forwarded yet") {
 		t.Errorf("status text:\n%s", out)
 	}
 }

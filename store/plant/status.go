@@ -87,7 +87,9 @@ func (r Status) Write(w io.Writer, asJSON bool) error {
 		p("plant store   none set (station file plant.url, or $PADLINE_PLANT_URL)")
 	}
 	p("backlog       %d runs, %d checks, %d studies", r.BacklogRuns, r.BacklogChecks, r.BacklogStudies)
-	if r.LastTime != nil {
+	if r.LastTime != nil && r.Forwarded == 0 {
+		p("last batch    %s: no runs forwarded yet", r.LastTime.Local().Format("2006-01-02 15:04:05"))
+	} else if r.LastTime != nil {
 		p("last batch    %s: runs up to id %d forwarded (%d in all)", r.LastTime.Local().Format("2006-01-02 15:04:05"), r.LastRunID, r.Forwarded)
 	} else {
 		p("last batch    none yet")
