@@ -118,8 +118,11 @@ func (db *DB) Record(ctx context.Context, r *sequences.Run) (int64, error) {
 		return 0, notSaved(r.Serial, err)
 	}
 	// A landed batch's outbox cursor rides this commit (DeferAdvance). If
-	// its UPDATE fails the run is committed without it and it stays
-	// pending: forwarding never costs a run.
+	// its UPDATE fails, it stays pending and the run is committed without
+	// it: SQLite undoes only the failed statement where it can (sqlite.org,
+	// "Response To Errors Within A Transaction"); where it rolled the whole
+	// transaction back (a full disk, an I/O error), the commit fails and
+	// the run is not saved, as with any failed commit.
 	adv := db.takePending()
 	if adv != nil && db.advanceIn(ctx, tx, *adv) != nil {
 		db.donePending(false)
