@@ -13,7 +13,10 @@ import (
 	"path/filepath"
 	"slices"
 	"sort"
+	"strconv"
 	"strings"
+	"unicode"
+	"unicode/utf8"
 
 	"github.com/spf13/viper"
 
@@ -33,9 +36,31 @@ type ConfigError struct {
 
 func (e *ConfigError) Error() string {
 	if e.Key == "" {
-		return e.File + ": " + e.Msg
+		return e.File + ": " + escapeControls(e.Msg)
 	}
-	return e.File + ": " + e.Key + ": " + e.Msg
+	return e.File + ": " + escapeControls(e.Key) + ": " + escapeControls(e.Msg)
+}
+
+// escapeControls writes each control character of s (but tab) as its Go
+// escape and each invalid byte as U+FFFD, so a config error stays one
+// printable line: a YAML parser's message can quote the file's own bytes
+// (a "\0" in a quoted scalar is a NUL), which must not reach the terminal
+// or the shift log raw.
+func escapeControls(s string) string {
+	bad := func(r rune) bool { return unicode.IsControl(r) && r != '\t' }
+	if utf8.ValidString(s) && !strings.ContainsFunc(s, bad) {
+		return s
+	}
+	var b strings.Builder
+	for _, r := range strings.ToValidUTF8(s, "\uFFFD") {
+		if bad(r) {
+			q := strconv.QuoteRune(r)
+			b.WriteString(q[1 : len(q)-1])
+			continue
+		}
+		b.WriteRune(r)
+	}
+	return b.String()
 }
 
 // Source is the exact bytes of one config file and where they came from.
