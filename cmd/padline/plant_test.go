@@ -193,3 +193,36 @@ func TestLineBoardReadOnlyRole(t *testing.T) {
 		t.Fatalf("line as %s: exit %d\n%s%s", role, code, out, errs)
 	}
 }
+
+// 'padline plant compact' says when no month has closed, lists each closed
+// month's partitions (an empty one is kept as it is) and prints one JSON
+// array with --json. TestCompactClosedMonths in store/plant checks what it
+// rebuilds.
+func TestPlantCompactCommand(t *testing.T) {
+	url := plantSchema(t)
+	if out := mustCLI(t, "plant", "compact", "--db", url); !strings.Contains(out, "no month has closed yet") {
+		t.Fatalf("compact on a new plant store: %s", out)
+	}
+	ctx := context.Background()
+	c, err := pgx.Connect(ctx, url)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer c.Close(ctx)
+	if _, err := c.Exec(ctx, `SELECT plant_ensure_month($1)`, time.Date(2026, 1, 15, 0, 0, 0, 0, time.UTC).UnixNano()); err != nil {
+		t.Fatal(err)
+	}
+	out := mustCLI(t, "plant", "compact", "--db", url)
+	for _, want := range []string{"MONTH    TABLE", "2026-01  runs_y2026m01", "2026-01  measurements_y2026m01", "kept: empty", "nothing to rebuild: 2 partitions kept"} {
+		if !strings.Contains(out, want) {
+			t.Fatalf("compact output lacks %q:\n%s", want, out)
+		}
+	}
+	var rs []plant.Rebuilt
+	if err := json.Unmarshal([]byte(mustCLI(t, "plant", "compact", "--db", url, "--json")), &rs); err != nil {
+		t.Fatal(err)
+	}
+	if len(rs) != 2 || rs[0].Table != "runs_y2026m01" || rs[0].Month != "2026-01" || !rs[0].Kept || rs[0].Rows != 0 {
+		t.Fatalf("compact --json: %+v", rs)
+	}
+}

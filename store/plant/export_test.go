@@ -56,3 +56,27 @@ func RunsSQLForTest(f store.Filter) (string, []any) {
 	cond, args := where(f)
 	return fmt.Sprintf(runsSQL, cond), args
 }
+
+// ExecForTest runs one statement for tests.
+func (db *DB) ExecForTest(ctx context.Context, q string) error {
+	_, err := db.pool.Exec(ctx, q)
+	return err
+}
+
+// HoldAdvisoryLockForTest takes the session advisory lock NAME of the
+// schema (as Migrate and Compact name theirs) on a connection of its own
+// until release is called.
+func (db *DB) HoldAdvisoryLockForTest(ctx context.Context, name string) (release func(), err error) {
+	conn, err := db.pool.Acquire(ctx)
+	if err != nil {
+		return nil, err
+	}
+	if _, err := conn.Exec(ctx, `SELECT pg_advisory_lock(hashtext(current_schema() || '.' || $1))`, name); err != nil {
+		conn.Release()
+		return nil, err
+	}
+	return func() {
+		conn.Exec(context.Background(), `SELECT pg_advisory_unlock(hashtext(current_schema() || '.' || $1))`, name)
+		conn.Release()
+	}, nil
+}
