@@ -117,14 +117,20 @@ func (a *app) compact(ctx context.Context, p *plant.DB, asJSON bool) error {
 			before, after = before+r.IndexBytesBefore, after+r.IndexBytesAfter
 		}
 	}
+	parts := func(n int) string {
+		if n == 1 {
+			return "1 partition"
+		}
+		return fmt.Sprintf("%d partitions", n)
+	}
 	switch {
 	case len(done) == 0:
 		fmt.Fprintln(a.stdout, "no month has closed yet: nothing to rebuild")
 	case rebuilt == 0:
-		fmt.Fprintf(a.stdout, "nothing to rebuild: %d partitions kept, in %.1f s\n", len(done), time.Since(start).Seconds())
+		fmt.Fprintf(a.stdout, "nothing to rebuild: %s kept, in %.1f s\n", parts(len(done)), time.Since(start).Seconds())
 	default:
-		fmt.Fprintf(a.stdout, "%d partitions rebuilt (indexes %.1f MB -> %.1f MB), %d kept, in %.1f s\n",
-			rebuilt, float64(before)/1e6, float64(after)/1e6, len(done)-rebuilt, time.Since(start).Seconds())
+		fmt.Fprintf(a.stdout, "%s rebuilt (indexes %.1f MB -> %.1f MB), %d kept, in %.1f s\n",
+			parts(rebuilt), float64(before)/1e6, float64(after)/1e6, len(done)-rebuilt, time.Since(start).Seconds())
 	}
 	return nil
 }
