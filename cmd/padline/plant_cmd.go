@@ -109,29 +109,7 @@ func (a *app) compact(ctx context.Context, p *plant.DB, asJSON bool) error {
 		}
 		return json.NewEncoder(a.stdout).Encode(done)
 	}
-	var rebuilt int
-	var before, after int64
-	for _, r := range done {
-		if !r.Kept {
-			rebuilt++
-			before, after = before+r.IndexBytesBefore, after+r.IndexBytesAfter
-		}
-	}
-	parts := func(n int) string {
-		if n == 1 {
-			return "1 partition"
-		}
-		return fmt.Sprintf("%d partitions", n)
-	}
-	switch {
-	case len(done) == 0:
-		fmt.Fprintln(a.stdout, "no month has closed yet: nothing to rebuild")
-	case rebuilt == 0:
-		fmt.Fprintf(a.stdout, "nothing to rebuild: %s kept, in %.1f s\n", parts(len(done)), time.Since(start).Seconds())
-	default:
-		fmt.Fprintf(a.stdout, "%s rebuilt (indexes %.1f MB -> %.1f MB), %d kept, in %.1f s\n",
-			parts(rebuilt), float64(before)/1e6, float64(after)/1e6, len(done)-rebuilt, time.Since(start).Seconds())
-	}
+	fmt.Fprintln(a.stdout, plant.CompactSummary(done, time.Since(start)))
 	return nil
 }
 

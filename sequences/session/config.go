@@ -16,7 +16,6 @@ import (
 	"strconv"
 	"strings"
 	"unicode"
-	"unicode/utf8"
 
 	"github.com/spf13/viper"
 
@@ -42,18 +41,14 @@ func (e *ConfigError) Error() string {
 }
 
 // escapeControls writes each control character of s (but tab) as its Go
-// escape and each invalid byte as U+FFFD, so a config error stays one
-// printable line: a YAML parser's message can quote the file's own bytes
-// (a "\0" in a quoted scalar is a NUL), which must not reach the terminal
-// or the shift log raw.
+// escape and each invalid byte as U+FFFD (as range reads it), so a config
+// error stays one printable line: a YAML parser's message can quote the
+// file's own bytes (a "\0" in a quoted scalar is a NUL), which must not
+// reach the terminal or the shift log raw.
 func escapeControls(s string) string {
-	bad := func(r rune) bool { return unicode.IsControl(r) && r != '\t' }
-	if utf8.ValidString(s) && !strings.ContainsFunc(s, bad) {
-		return s
-	}
 	var b strings.Builder
-	for _, r := range strings.ToValidUTF8(s, "\uFFFD") {
-		if bad(r) {
+	for _, r := range s {
+		if unicode.IsControl(r) && r != '\t' {
 			q := strconv.QuoteRune(r)
 			b.WriteString(q[1 : len(q)-1])
 			continue

@@ -227,3 +227,29 @@ func (r Rebuilt) Line() string {
 	}
 	return fmt.Sprintf("%s %11.1f %8.1f%s\n", head, mb(r.IndexBytesAfter), r.Seconds, dropped)
 }
+
+// CompactSummary is the last line of a Compact that looked at done in took.
+func CompactSummary(done []Rebuilt, took time.Duration) string {
+	var rebuilt int
+	var before, after int64
+	for _, r := range done {
+		if !r.Kept {
+			rebuilt++
+			before, after = before+r.IndexBytesBefore, after+r.IndexBytesAfter
+		}
+	}
+	parts := func(n int) string {
+		if n == 1 {
+			return "1 partition"
+		}
+		return fmt.Sprintf("%d partitions", n)
+	}
+	switch {
+	case len(done) == 0:
+		return "no month has closed yet: nothing to rebuild"
+	case rebuilt == 0:
+		return fmt.Sprintf("nothing to rebuild: %s kept, in %.1f s", parts(len(done)), took.Seconds())
+	}
+	return fmt.Sprintf("%s rebuilt (indexes %.1f MB -> %.1f MB), %d kept, in %.1f s",
+		parts(rebuilt), float64(before)/1e6, float64(after)/1e6, len(done)-rebuilt, took.Seconds())
+}
